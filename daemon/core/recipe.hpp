@@ -1,0 +1,92 @@
+// The sweep recipe an engineer writes (config/recipes/*.jsonc), as plain values.
+// Loading and checking live in recipe_loader.hpp / recipe_check.hpp; this header is data only.
+// Units are in the field names: _hz, _dbm, _db, _s, _mm. Thread-safe: immutable once loaded.
+#pragma once
+
+#include <map>
+#include <optional>
+#include <string>
+#include <vector>
+
+namespace echoline::core {
+
+// One frequency segment: start..stop inclusive, either `points` or `step_hz` given in the file.
+struct Segment {
+  double start_hz = 0;
+  double stop_hz = 0;
+  int points = 0;  // resolved point count (from points or step_hz)
+};
+
+struct SourceSettings {
+  double power_dbm = -10;   // CW level at the source output
+  double settle_s = 0.0;    // wait after each frequency change before triggering
+};
+
+struct ReceiverSettings {
+  double rbw_hz = 10e3;
+  double vbw_hz = 0;         // 0 = same as RBW
+  double span_hz = 100e3;    // span around each point (0 = zero span)
+  double reference_level_dbm = 0;
+  double attenuation_db = -1; // -1 = leave to the instrument (auto)
+  int averages = 1;           // readings per point, averaged in linear power
+};
+
+struct CalibrationPolicy {
+  bool use_short = true;            // OPEN+SHORT reference; OPEN alone when false
+  double max_age_s = 8 * 3600.0;    // calibration expires after this
+  int max_units = 500;              // ... or after this many units
+  double max_temperature_change_c = 5.0;  // ... or this temperature change, when known
+  int check_every_units = 50;       // re-measure the check standard every N units (0 = never)
+  std::string check_standard = "LOAD";   // OPEN, SHORT or LOAD
+  double check_drift_limit_db = 1.0;     // drift beyond this makes calibration due
+};
+
+// Minimum return loss over a frequency range (a limit-line segment).
+struct LimitSegment {
+  double start_hz = 0;
+  double stop_hz = 0;
+  double min_return_loss_db = 0;
+};
+
+struct Limits {
+  std::vector<LimitSegment> mask;
+  std::optional<double> resonance_min_hz;        // resonance window, both or neither
+  std::optional<double> resonance_max_hz;
+  std::optional<double> min_bandwidth_hz;        // bandwidth where RL >= threshold
+  double bandwidth_threshold_db = 9.5424;        // VSWR 2:1 by default
+};
+
+enum class DecisionRule { simple, guarded };
+
+struct Trim {
+  double element_length_mm = 0;
+  double target_hz = 0;
+};
+
+enum class SweepMode { step, fast_capture };
+
+struct Recipe {
+  std::string name;
+  std::string version;
+  std::string description;
+  std::string content_hash;   // hex SHA-256 (or FNV) of the file bytes, set by the loader
+  std::string source_path;    // file it was loaded from
+  SweepMode mode = SweepMode::step;
+  std::vector<Segment> segments;
+  SourceSettings source;
+  ReceiverSettings receiver;
+  CalibrationPolicy calibration;
+  Limits limits;
+  DecisionRule rule = DecisionRule::guarded;
+  std::optional<Trim> trim;
+  double source_match_db = 25;  // effective source (test-port) match, if not in the profile
+  std::map<std::string, std::vector<std::string>> setup;     // role -> raw SCPI lines
+  std::map<std::string, std::vector<std::string>> teardown;  // role -> raw SCPI lines
+};
+
+// The frequencies of the whole plan, segment after segment (duplicates at joints removed).
+std::vector<double> plan_frequencies(const Recipe& recipe);
+
+const char* to_string(DecisionRule rule);
+
+}  // namespace echoline::core

@@ -1,0 +1,28 @@
+// Names of verdicts and failure classes as users, the store and the API see them.
+#include "daemon/core/run_result.hpp"
+
+namespace echoline::core {
+
+const char* to_string(Verdict v) {
+  switch (v) {
+    case Verdict::pass: return "pass";
+    case Verdict::fail: return "fail";
+    case Verdict::inconclusive: return "inconclusive";
+    case Verdict::aborted: return "aborted";
+  }
+  return "aborted";
+}
+
+const char* to_string(FailureClass c) {
+  switch (c) {
+    case FailureClass::none: return "";
+    case FailureClass::no_response: return "no-response";
+    case FailureClass::tuned_low: return "tuned-low";
+    case FailureClass::tuned_high: return "tuned-high";
+    case FailureClass::shallow: return "shallow";
+    case FailureClass::out_of_mask: return "out-of-mask";
+  }
+  return "";
+}
+
+}  // namespace echoline::core

@@ -1,0 +1,2 @@
+// Scaffolding entry point; replaced by the real one.
+int main() { return 1; }
