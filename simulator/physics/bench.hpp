@@ -5,6 +5,7 @@
 #pragma once
 
 #include <complex>
+#include <cstdint>
 #include <memory>
 #include <string>
 
@@ -31,6 +32,9 @@ class Dut {
   // Reflection coefficient at the test port at frequency f (Hz), referenced to 50 ohm.
   virtual Complex gamma(double frequency_hz) const = 0;
   virtual std::string describe() const = 0;
+  // Called by the instrument before each sweep; models that change over time (an intermittent
+  // feed) update here. Default: no change.
+  virtual void on_sweep(std::uint64_t sweep_index) { (void)sweep_index; }
 };
 
 // Complex wave (sqrt(W) units, phase in radians) arriving at the receiver input for a
