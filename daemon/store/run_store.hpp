@@ -1,0 +1,114 @@
+// The station's run store: one SQLite file (WAL, synchronous=FULL) holding units, runs with every
+// raw reading, and calibrations with their raw standard traces. Only this module touches disk.
+// Thread-safe: one connection per RunStore, calls are serialised by an internal mutex.
+// A run, its readings and its unit-row update commit in ONE transaction; nothing is overwritten.
+#pragma once
+
+#include <filesystem>
+#include <map>
+#include <memory>
+#include <optional>
+#include <string>
+#include <string_view>
+#include <vector>
+
+#include "daemon/core/run_result.hpp"
+#include "daemon/store/serial.hpp"
+#include "drivers/result.hpp"
+
+namespace echoline::store {
+
+// Schema version this code writes (PRAGMA user_version). Older files are migrated on open;
+// newer files are refused (ErrorKind::storage, message names both versions).
+inline constexpr int kSchemaVersion = 3;
+
+struct StoreOptions {
+  int busy_timeout_ms = 5000;                           // wait this long for another writer
+  std::string serial_pattern{kDefaultSerialPattern};    // save_run validates serials with this
+  long long max_pages = 0;   // size cap in database pages (PRAGMA max_page_count, 4096 B); 0 = none.
+                             // A save that would grow the file past it fails with ErrorKind::storage.
+};
+
+// One row of the units table.
+struct UnitSummary {
+  std::string serial;
+  std::string first_seen_utc;
+  std::string last_seen_utc;
+  std::string last_verdict;   // "pass" | "fail" | "inconclusive" | "aborted"
+  int run_count = 0;
+};
+
+enum class YieldGroup { lot, recipe, station };
+
+// Yield of one group (a lot, a recipe name, a station). Definitions (see README):
+//   runs_by_verdict / runs_by_class count RUNS (retests included, aborted included).
+//   units_tested = distinct serials with at least one finished (non-aborted) run.
+//   first_pass_yield = units whose FIRST finished run passed / units_tested.
+//   final_yield      = units whose LATEST finished run passed / units_tested.
+//   Both are 0 when units_tested == 0. Order of runs: started_utc, then insertion.
+struct YieldSummary {
+  std::string group;                       // the lot / recipe name / station
+  int runs = 0;
+  std::map<std::string, int> runs_by_verdict;   // "pass" -> n ...; every verdict present
+  std::map<std::string, int> runs_by_class;     // failure classes of fail/inconclusive runs ("" excluded)
+  int units_tested = 0;
+  int units_first_pass = 0;
+  int units_final_pass = 0;
+  double first_pass_yield = 0;
+  double final_yield = 0;
+};
+
+class RunStore {
+ public:
+  // Opens or creates `file`. Sets journal_mode=WAL, synchronous=FULL, foreign_keys=ON, the busy
+  // timeout; migrates an older schema in one transaction; refuses a newer one.
+  // Errors: ErrorKind::storage naming the file.
+  static Result<std::unique_ptr<RunStore>> open(const std::filesystem::path& file, StoreOptions options = {});
+
+  ~RunStore();
+  RunStore(const RunStore&) = delete;
+  RunStore& operator=(const RunStore&) = delete;
+
+  // Stores a run with all its points and updates the unit row, in one transaction.
+  // REQUIRES: run.run_id non-empty and not yet stored (a retest is a new run_id).
+  // Refuses (stores nothing) an invalid serial (invalid_argument), a duplicate run_id
+  // (invalid_argument); any SQLite failure is ErrorKind::storage and the transaction is rolled back.
+  // When it returns ok, the run is on disk (synchronous=FULL).
+  Status save_run(const core::RunResult& run);
+
+  // Stores a calibration with its raw traces (one transaction). Duplicate id: invalid_argument.
+  Status save_calibration(const core::CalibrationRecord& cal);
+  // Updates the units-since counter the service maintains.
+  Status set_calibration_units(std::string_view calibration_id, int units_since);
+
+  // Loads one run with its points. Unknown id: ErrorKind::invalid_argument.
+  Result<core::RunResult> load_run(std::string_view run_id);
+  // A serial's runs, oldest first (started_utc, then insertion order). Points omitted unless asked.
+  Result<std::vector<core::RunResult>> history(std::string_view serial, bool with_points = false);
+  // A lot's runs in the same order.
+  Result<std::vector<core::RunResult>> lot_runs(std::string_view lot, bool with_points);
+  // Runs with from_utc <= started_utc < to_utc (ISO 8601 strings compare as times when they
+  // share the "YYYY-MM-DDTHH:MM:SS[.fff]Z" form the station writes).
+  Result<std::vector<core::RunResult>> runs_between(std::string_view from_utc, std::string_view to_utc,
+                                                    bool with_points = false);
+  Result<int> run_count(std::string_view serial);
+  Result<std::optional<UnitSummary>> unit(std::string_view serial);
+
+  // The most recently created calibration (created_utc, then insertion), with traces.
+  Result<std::optional<core::CalibrationRecord>> latest_calibration();
+  Result<std::optional<core::CalibrationRecord>> load_calibration(std::string_view id);
+
+  // Yield per group; `only` restricts to one group value when non-empty.
+  Result<std::vector<YieldSummary>> yield_by(YieldGroup group, std::string_view only = {});
+
+  // "ok" or SQLite's list of problems (PRAGMA integrity_check).
+  Result<std::string> integrity_check();
+  const std::filesystem::path& path() const;
+
+ private:
+  struct Impl;
+  explicit RunStore(std::unique_ptr<Impl> impl);
+  std::unique_ptr<Impl> impl_;
+};
+
+}  // namespace echoline::store

@@ -1,0 +1,166 @@
+// Schema history. Never edit a released step: add a new one at the end and raise kSchemaVersion.
+#include "daemon/store/schema.hpp"
+
+#include <fmt/format.h>
+
+#include "daemon/store/run_store.hpp"
+
+namespace echoline::store::detail {
+
+namespace {
+
+constexpr std::string_view kVersion1 = R"sql(
+CREATE TABLE units (
+  serial TEXT PRIMARY KEY,
+  first_seen_utc TEXT NOT NULL,
+  last_seen_utc TEXT NOT NULL,
+  last_verdict TEXT NOT NULL,
+  run_count INTEGER NOT NULL
+);
+CREATE TABLE runs (
+  seq INTEGER PRIMARY KEY AUTOINCREMENT,
+  run_id TEXT NOT NULL UNIQUE,
+  serial TEXT NOT NULL REFERENCES units(serial),
+  lot TEXT NOT NULL,
+  recipe_name TEXT NOT NULL,
+  recipe_version TEXT NOT NULL,
+  recipe_hash TEXT NOT NULL,
+  decision_rule TEXT NOT NULL,
+  station TEXT NOT NULL,
+  operator TEXT NOT NULL,
+  instruments_json TEXT NOT NULL,
+  started_utc TEXT NOT NULL,
+  ended_utc TEXT NOT NULL,
+  temperature_c REAL,
+  calibration_id TEXT NOT NULL,
+  retest INTEGER NOT NULL,
+  verdict TEXT NOT NULL CHECK (verdict IN ('pass','fail','inconclusive','aborted')),
+  failure_class TEXT NOT NULL,
+  reason TEXT NOT NULL,
+  resonance_hz REAL,
+  depth_db REAL,
+  bandwidth_hz REAL,
+  band_low_hz REAL,
+  band_high_hz REAL,
+  min_margin_db REAL,
+  vswr_at_resonance REAL,
+  mismatch_loss_db REAL,
+  directivity_db REAL,
+  trim_element_length_mm REAL,
+  trim_change_mm REAL,
+  trim_measured_hz REAL,
+  trim_target_hz REAL,
+  trim_text TEXT,
+  total_s REAL,
+  sweep_s REAL,
+  analysis_s REAL,
+  points_count INTEGER NOT NULL
+);
+CREATE TABLE readings (
+  run_id TEXT NOT NULL REFERENCES runs(run_id),
+  idx INTEGER NOT NULL,
+  frequency_hz REAL NOT NULL,
+  raw_dbm REAL,
+  rl_db REAL,
+  rl_worst_db REAL,
+  rl_best_db REAL,
+  PRIMARY KEY (run_id, idx)
+) WITHOUT ROWID;
+CREATE TABLE calibrations (
+  seq INTEGER PRIMARY KEY AUTOINCREMENT,
+  id TEXT NOT NULL UNIQUE,
+  created_utc TEXT NOT NULL,
+  recipe_name TEXT NOT NULL,
+  recipe_version TEXT NOT NULL,
+  recipe_hash TEXT NOT NULL,
+  station TEXT NOT NULL,
+  instruments_json TEXT NOT NULL,
+  temperature_c REAL,
+  reference_json TEXT NOT NULL,
+  directivity_json TEXT NOT NULL,
+  min_directivity_db REAL,
+  warnings_json TEXT NOT NULL,
+  valid INTEGER NOT NULL,
+  max_age_s REAL NOT NULL,
+  max_units INTEGER NOT NULL,
+  max_temperature_change_c REAL NOT NULL
+);
+CREATE TABLE calibration_traces (
+  calibration_id TEXT NOT NULL REFERENCES calibrations(id),
+  standard TEXT NOT NULL,
+  idx INTEGER NOT NULL,
+  frequency_hz REAL NOT NULL,
+  raw_dbm REAL,
+  PRIMARY KEY (calibration_id, standard, idx)
+) WITHOUT ROWID;
+)sql";
+
+constexpr std::string_view kVersion2 = R"sql(
+ALTER TABLE calibrations ADD COLUMN noise_margin_db REAL NOT NULL DEFAULT 0;
+ALTER TABLE calibrations ADD COLUMN units_since INTEGER NOT NULL DEFAULT 0;
+CREATE INDEX runs_by_serial ON runs(serial, started_utc, seq);
+CREATE INDEX runs_by_lot ON runs(lot, started_utc, seq);
+CREATE INDEX runs_by_start ON runs(started_utc, seq);
+)sql";
+
+constexpr std::string_view kVersion3 = R"sql(
+ALTER TABLE calibrations ADD COLUMN errors_json TEXT NOT NULL DEFAULT '[]';
+)sql";
+
+}  // namespace
+
+const std::vector<Migration>& migrations() {
+  static const std::vector<Migration> steps = {
+      {1, "units, runs, readings, calibrations, calibration traces", kVersion1},
+      {2, "calibration noise margin and unit counter; indexes by serial, lot and start time", kVersion2},
+      {3, "calibration errors (why a record is not valid)", kVersion3},
+  };
+  return steps;
+}
+
+Status prepare_schema(Database& db, int busy_timeout_ms) {
+  sqlite3_busy_timeout(db.handle(), busy_timeout_ms);
+  auto mode = db.query_text("PRAGMA journal_mode=WAL");
+  if (!mode.ok()) return mode.error();
+  if (*mode != "wal") {
+    return make_error(ErrorKind::storage, fmt::format("run store {}: cannot switch to WAL journal mode (got '{}')",
+                                                      db.file().string(), *mode));
+  }
+  // synchronous is per connection: FULL makes every returned COMMIT durable in WAL mode.
+  if (auto s = db.exec("PRAGMA synchronous=FULL; PRAGMA foreign_keys=ON;"); !s.ok()) return s;
+  auto version = db.query_int("PRAGMA user_version");
+  if (!version.ok()) return version.error();
+  if (*version > kSchemaVersion) {
+    return make_error(ErrorKind::storage,
+                      fmt::format("run store {}: schema version {} is newer than this program knows ({}); "
+                                  "use a newer Echoline or another file",
+                                  db.file().string(), *version, kSchemaVersion));
+  }
+  if (*version == kSchemaVersion) return Status::success();
+  if (*version == 0) {
+    auto tables = db.query_int("SELECT count(*) FROM sqlite_master WHERE type='table'");
+    if (!tables.ok()) return tables.error();
+    if (*tables > 0) {
+      return make_error(ErrorKind::storage, fmt::format("run store {}: the file holds {} tables but no schema "
+                                                        "version: it is not an Echoline run store",
+                                                        db.file().string(), *tables));
+    }
+  }
+  if (auto s = db.exec("BEGIN IMMEDIATE"); !s.ok()) return s;
+  for (const auto& m : migrations()) {
+    if (m.version <= *version) continue;
+    auto s = db.exec(m.sql);
+    if (s.ok()) s = db.exec(fmt::format("PRAGMA user_version={}", m.version));
+    if (!s.ok()) {
+      (void)db.exec("ROLLBACK");
+      return s.error().with_context(fmt::format("migrating to schema version {} ({})", m.version, m.what));
+    }
+  }
+  if (auto s = db.exec("COMMIT"); !s.ok()) {
+    (void)db.exec("ROLLBACK");
+    return s;
+  }
+  return Status::success();
+}
+
+}  // namespace echoline::store::detail
