@@ -1,0 +1,58 @@
+// Instrument profiles (config/instruments/*.jsonc): everything a role driver needs to know about
+// one instrument model — identity, I/O settings, error policy, limits, init lines and the SCPI
+// text of each operation. A new SCPI instrument needs a profile, not code. Immutable once
+// loaded; safe to share between threads. See config/README.md for every field.
+#pragma once
+
+#include <filesystem>
+#include <map>
+#include <string>
+#include <string_view>
+#include <vector>
+
+#include "drivers/command_template.hpp"
+#include "drivers/config_error.hpp"
+#include "drivers/result.hpp"
+#include "drivers/scpi_codec.hpp"
+#include "drivers/scpi_session.hpp"
+
+namespace echoline::drivers {
+
+struct Profile {
+  std::string name, role /*source|receiver|switch*/, description, file;
+  std::string identity_manufacturer, identity_model;   // expected *IDN? fields ("" = any; '*' and '?' wildcards)
+  SessionOptions io;
+  std::string check_errors = "each-step";              // "each-step" | "end-of-sweep" | "never"
+  bool reset_on_initialize = true;                     // send *RST before *CLS and the init lines
+  double min_frequency_hz = 0, max_frequency_hz = 0;   // source and receiver
+  double min_power_dbm = 0, max_power_dbm = 0;         // source: output level; receiver: reference level
+  double max_safe_input_dbm = 0;                       // receiver: damage level at its input (dBm)
+  double noise_figure_db = 0;                          // receiver, for station capability
+  double max_attenuation_db = 0;                       // receiver: input attenuator range 0..max (dB)
+  std::string trace_format = "ascii";                  // receiver: "ascii" | "real32"
+  std::string byte_order = "normal";                   // receiver, real32: "normal" (big-endian) | "swapped"
+  std::map<std::string, CommandTemplate> commands;     // by operation name
+  std::vector<std::string> init;                       // lines sent on initialize()
+  std::map<std::string, std::string> positions;        // switch: OPEN/SHORT/LOAD/DUT -> position token
+
+  bool has(std::string_view operation) const { return commands.count(std::string(operation)) != 0; }
+  // REQUIRES: has(operation) (true for every required operation of the role).
+  const CommandTemplate& command(std::string_view operation) const { return commands.at(std::string(operation)); }
+};
+
+// Loads and checks a profile. Throws ConfigError naming file, line and key.
+Profile load_profile(const std::filesystem::path& file);
+
+// True when `text` matches `pattern` ("" matches anything; '*' any run, '?' one character;
+// case-sensitive, whole string).
+bool identity_field_matches(std::string_view pattern, std::string_view text);
+
+// Compares an *IDN? reply with the profile's expected fields. Error (instrument) reads
+// "<instrument>: identity: expected manufacturer "X" model "Y", instrument says "<IDN reply>"".
+Status check_identity(const scpi::Identity& id, const Profile& profile, std::string_view instrument_name);
+
+// Sends *IDN?, then check_identity(). The *IDN? reply is returned for the run record.
+Result<scpi::Identity> identify_and_verify(ScpiSession& session, const Profile& profile);
+Status verify_identity(ScpiSession& session, const Profile& profile);
+
+}  // namespace echoline::drivers

@@ -1,0 +1,125 @@
+// Receiver role driver: range checks, template expansion, trace reading, error policy.
+#include "drivers/receiver.hpp"
+
+#include <cmath>
+
+#include <fmt/format.h>
+
+namespace echoline::drivers {
+
+Receiver::Receiver(ScpiSession& session, const Profile& profile) : session_(session), profile_(profile) {}
+
+Status Receiver::check_range(std::string_view what, double value, double min, double max, std::string_view unit) const {
+  if (std::isfinite(value) && value >= min && value <= max) return Status::success();
+  return make_error(ErrorKind::invalid_argument,
+                    fmt::format("{}: {}: {} {} is outside the range of profile {} ({} to {} {}); nothing sent",
+                                session_.name(), what, value, unit, profile_.name, min, max, unit));
+}
+
+Status Receiver::send(std::string_view operation, std::initializer_list<TemplateArg> args, bool check) {
+  if (!profile_.has(operation))
+    return make_error(ErrorKind::config, fmt::format("{}: profile {} has no operation {}", session_.name(), profile_.name, operation));
+  auto command = profile_.command(operation).expand(args);
+  if (!command.ok()) return command.error().with_context(session_.name());
+  Status s = session_.write(command.value());
+  if (!s.ok()) return s;
+  if (check && profile_.check_errors == "each-step") return session_.drain_errors();
+  return Status::success();
+}
+
+Status Receiver::initialize() {
+  if (profile_.reset_on_initialize) {
+    if (Status s = session_.reset(); !s.ok()) return s;
+  }
+  if (Status s = session_.clear(); !s.ok()) return s;
+  for (const auto& line : profile_.init)
+    if (Status s = session_.write(line); !s.ok()) return s;
+  if (Status s = send("set_single", {}, false); !s.ok()) return s;
+  const bool real = profile_.trace_format == "real32";
+  if (profile_.has("set_trace_format"))
+    if (Status s = send("set_trace_format", {{"format", std::string(real ? "REAL,32" : "ASC")}}, false); !s.ok()) return s;
+  if (real && profile_.has("set_byte_order"))
+    if (Status s = send("set_byte_order", {{"byte_order", std::string(profile_.byte_order == "swapped" ? "SWAP" : "NORM")}}, false); !s.ok())
+      return s;
+  if (Status s = session_.wait_complete(); !s.ok()) return s;
+  return check_errors();
+}
+
+Status Receiver::configure(const ReceiverSetup& setup) {
+  const Profile& p = profile_;
+  const double vbw = setup.vbw_hz == 0 ? setup.rbw_hz : setup.vbw_hz;
+  // Every value is checked before the first command goes out.
+  if (Status s = check_range("set_center", setup.center_hz, p.min_frequency_hz, p.max_frequency_hz, "Hz"); !s.ok()) return s;
+  if (Status s = check_range("set_span", setup.span_hz, 0, p.max_frequency_hz - p.min_frequency_hz, "Hz"); !s.ok()) return s;
+  if (!(setup.rbw_hz > 0) || !std::isfinite(setup.rbw_hz))
+    return make_error(ErrorKind::invalid_argument, fmt::format("{}: set_rbw: {} Hz must be above 0; nothing sent", session_.name(), setup.rbw_hz));
+  if (!(vbw > 0) || !std::isfinite(vbw))
+    return make_error(ErrorKind::invalid_argument, fmt::format("{}: set_vbw: {} Hz must be above 0; nothing sent", session_.name(), vbw));
+  if (Status s = check_range("set_reference_level", setup.reference_level_dbm, p.min_power_dbm, p.max_power_dbm, "dBm"); !s.ok()) return s;
+  if (setup.attenuation_db >= 0)
+    if (Status s = check_range("set_attenuation", setup.attenuation_db, 0, p.max_attenuation_db, "dB"); !s.ok()) return s;
+
+  if (Status s = send("set_center", {{"frequency_hz", setup.center_hz}}, false); !s.ok()) return s;
+  if (Status s = send("set_span", {{"frequency_hz", setup.span_hz}}, false); !s.ok()) return s;
+  if (Status s = send("set_rbw", {{"frequency_hz", setup.rbw_hz}}, false); !s.ok()) return s;
+  if (Status s = send("set_vbw", {{"frequency_hz", vbw}}, false); !s.ok()) return s;
+  if (Status s = send("set_reference_level", {{"power_dbm", setup.reference_level_dbm}}, false); !s.ok()) return s;
+  if (setup.attenuation_db >= 0) {
+    if (Status s = send("set_attenuation", {{"db", setup.attenuation_db}}, false); !s.ok()) return s;
+  } else if (p.has("set_attenuation_auto")) {
+    if (Status s = send("set_attenuation_auto", {}, false); !s.ok()) return s;
+  }
+  if (p.check_errors == "each-step") return session_.drain_errors();
+  return Status::success();
+}
+
+Status Receiver::set_center(double hz) {
+  if (Status s = check_range("set_center", hz, profile_.min_frequency_hz, profile_.max_frequency_hz, "Hz"); !s.ok()) return s;
+  return send("set_center", {{"frequency_hz", hz}}, true);
+}
+
+Status Receiver::post_center(double hz) {
+  if (Status s = check_range("set_center", hz, profile_.min_frequency_hz, profile_.max_frequency_hz, "Hz"); !s.ok()) return s;
+  return send("set_center", {{"frequency_hz", hz}}, false);
+}
+
+Status Receiver::set_max_hold(bool on) {
+  // send() reports a profile without set_max_hold; the template uses {state} or {trace_mode}.
+  return send("set_max_hold", {{"state", on}, {"trace_mode", on}}, true);
+}
+
+Status Receiver::trigger() { return send("trigger", {}, false); }
+
+Status Receiver::wait_sweep() {
+  if (Status s = session_.wait_complete(); !s.ok()) return s;
+  if (profile_.check_errors == "each-step") return session_.drain_errors();
+  return Status::success();
+}
+
+Result<double> Receiver::read_peak_dbm() {
+  if (Status s = send("peak_search", {}, false); !s.ok()) return s.error();
+  auto y = session_.query_number(profile_.command("read_marker_y").text());
+  if (!y.ok()) return y;
+  if (profile_.check_errors == "each-step")
+    if (Status s = session_.drain_errors(); !s.ok()) return s.error();
+  return y;
+}
+
+Result<std::vector<double>> Receiver::read_trace_dbm() {
+  const std::string& cmd = profile_.command("read_trace").text();
+  Result<std::vector<double>> trace =
+      profile_.trace_format == "real32"
+          ? session_.query_real_block(cmd, 32, profile_.byte_order == "swapped" ? scpi::ByteOrder::swapped : scpi::ByteOrder::normal)
+          : session_.query_numbers(cmd);
+  if (!trace.ok()) return trace;
+  if (profile_.check_errors == "each-step")
+    if (Status s = session_.drain_errors(); !s.ok()) return s.error();
+  return trace;
+}
+
+Status Receiver::check_errors() {
+  if (profile_.check_errors == "never") return Status::success();
+  return session_.drain_errors();
+}
+
+}  // namespace echoline::drivers

@@ -1,0 +1,55 @@
+// Receiver role driver: a spectrum analyzer driven only through its profile's command templates.
+// Checks settings against the profile's limits before anything is sent. One user thread at a time;
+// REQUIRES: the session and the profile outlive the driver.
+// EQUIPMENT SAFETY: max_safe_input_dbm() is the damage level at the input; callers must keep the
+// worst-case power at the input below it (the daemon refuses recipes that could exceed it).
+#pragma once
+
+#include <vector>
+
+#include "drivers/profile.hpp"
+#include "drivers/result.hpp"
+#include "drivers/scpi_session.hpp"
+
+namespace echoline::drivers {
+
+struct ReceiverSetup {
+  double center_hz = 0;
+  double span_hz = 0;               // 0 = zero span
+  double rbw_hz = 0;
+  double vbw_hz = 0;                // 0 = same as RBW
+  double reference_level_dbm = 0;
+  double attenuation_db = -1;       // < 0 = auto: set_attenuation_auto when the profile has it, else left to the instrument
+};
+
+class Receiver {
+ public:
+  Receiver(ScpiSession& session, const Profile& profile);
+  Receiver(const Receiver&) = delete;
+  Receiver& operator=(const Receiver&) = delete;
+
+  // [*RST] *CLS, init lines, single-sweep mode, trace format (when the profile has the
+  // operations), *OPC?, then the error queue (unless policy "never").
+  Status initialize();
+  Status configure(const ReceiverSetup& setup);   // all settings range-checked before the first is sent
+  Status set_center(double hz);
+  Status post_center(double hz);      // pipelined: range-checked, sent, no wait, no check
+  Status set_max_hold(bool on);       // REQUIRES profile operation set_max_hold (error otherwise)
+  Status trigger();                   // start one single sweep (e.g. INIT:IMM), no wait
+  Status wait_sweep();                // *OPC?
+  Result<double> read_peak_dbm();     // peak_search then read_marker_y
+  Result<std::vector<double>> read_trace_dbm();   // read_trace, ASCII list or REAL,32 block per profile
+  Status check_errors();
+
+  double max_safe_input_dbm() const { return profile_.max_safe_input_dbm; }
+  const Profile& profile() const { return profile_; }
+  ScpiSession& session() { return session_; }
+
+ private:
+  Status send(std::string_view operation, std::initializer_list<TemplateArg> args, bool check);
+  Status check_range(std::string_view what, double value, double min, double max, std::string_view unit) const;
+  ScpiSession& session_;
+  const Profile& profile_;
+};
+
+}  // namespace echoline::drivers

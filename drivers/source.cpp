@@ -1,0 +1,68 @@
+// Source role driver: range checks, template expansion, error policy.
+#include "drivers/source.hpp"
+
+#include <cmath>
+
+#include <fmt/format.h>
+
+namespace echoline::drivers {
+
+Source::Source(ScpiSession& session, const Profile& profile) : session_(session), profile_(profile) {}
+
+Status Source::check_range(std::string_view operation, double value, double min, double max,
+                           std::string_view unit) const {
+  if (std::isfinite(value) && value >= min && value <= max) return Status::success();
+  return make_error(ErrorKind::invalid_argument,
+                    fmt::format("{}: {}: {} {} is outside the range of profile {} ({} to {} {}); nothing sent",
+                                session_.name(), operation, value, unit, profile_.name, min, max, unit));
+}
+
+Status Source::send(std::string_view operation, std::initializer_list<TemplateArg> args, bool check) {
+  if (!profile_.has(operation))
+    return make_error(ErrorKind::config, fmt::format("{}: profile {} has no operation {}", session_.name(), profile_.name, operation));
+  auto command = profile_.command(operation).expand(args);
+  if (!command.ok()) return command.error().with_context(session_.name());
+  Status s = session_.write(command.value());
+  if (!s.ok()) return s;
+  if (check && profile_.check_errors == "each-step") return session_.drain_errors();
+  return Status::success();
+}
+
+Status Source::initialize() {
+  if (profile_.reset_on_initialize) {
+    if (Status s = session_.reset(); !s.ok()) return s;
+  }
+  if (Status s = session_.clear(); !s.ok()) return s;
+  for (const auto& line : profile_.init)
+    if (Status s = session_.write(line); !s.ok()) return s;
+  // RF off until a sweep asks for it.
+  if (Status s = send("set_output", {{"state", false}}, false); !s.ok()) return s;
+  if (Status s = session_.wait_complete(); !s.ok()) return s;
+  return check_errors();
+}
+
+Status Source::set_frequency(double hz) {
+  if (Status s = check_range("set_frequency", hz, profile_.min_frequency_hz, profile_.max_frequency_hz, "Hz"); !s.ok()) return s;
+  return send("set_frequency", {{"frequency_hz", hz}}, true);
+}
+
+Status Source::set_power(double dbm) {
+  if (Status s = check_range("set_power", dbm, profile_.min_power_dbm, profile_.max_power_dbm, "dBm"); !s.ok()) return s;
+  return send("set_power", {{"power_dbm", dbm}}, true);
+}
+
+Status Source::set_output(bool on) { return send("set_output", {{"state", on}}, true); }
+
+Status Source::post_frequency(double hz) {
+  if (Status s = check_range("set_frequency", hz, profile_.min_frequency_hz, profile_.max_frequency_hz, "Hz"); !s.ok()) return s;
+  return send("set_frequency", {{"frequency_hz", hz}}, false);
+}
+
+Status Source::sync() { return session_.wait_complete(); }
+
+Status Source::check_errors() {
+  if (profile_.check_errors == "never") return Status::success();
+  return session_.drain_errors();
+}
+
+}  // namespace echoline::drivers

@@ -1,0 +1,109 @@
+// Loading config/station.jsonc: instruments, fixture, paths, API.
+#include "drivers/station_config.hpp"
+
+#include <regex>
+#include <set>
+
+#include <fmt/format.h>
+
+#include "drivers/jsonc.hpp"
+#include "drivers/profile.hpp"
+
+namespace echoline::drivers {
+namespace {
+
+const JsonPointer kRoot{};
+
+std::filesystem::path resolve(const std::filesystem::path& base, const std::string& p) {
+  std::filesystem::path path(p);
+  if (path.empty() || path.is_absolute()) return path.lexically_normal();
+  return (base / path).lexically_normal();
+}
+
+void load_fixture(const JsoncDocument& doc, FixtureConfig& f) {
+  const JsonPointer at = kRoot / "fixture";
+  doc.check_keys(at, {"coupling_db", "mainline_loss_db", "cable_loss_db", "source_match_db", "nominal_directivity_db"});
+  f.coupling_db = doc.number_in(at / "coupling_db", f.coupling_db, 1, 60, "dB");
+  f.mainline_loss_db = doc.number_in(at / "mainline_loss_db", f.mainline_loss_db, 0, 10, "dB");
+  f.cable_loss_db = doc.number_in(at / "cable_loss_db", f.cable_loss_db, 0, 20, "dB");
+  f.source_match_db = doc.number_in(at / "source_match_db", f.source_match_db, 0, 80, "dB");
+  f.nominal_directivity_db = doc.number_in(at / "nominal_directivity_db", f.nominal_directivity_db, 0, 80, "dB");
+}
+
+void load_api(const JsoncDocument& doc, const std::filesystem::path& base, const std::filesystem::path& data_dir, ApiConfig& a) {
+  const JsonPointer at = kRoot / "api";
+  doc.check_keys(at, {"unix_socket", "tcp_host", "tcp_port", "token_file"});
+  a.unix_socket = doc.has(at / "unix_socket") ? resolve(base, doc.require_string(at / "unix_socket")) : data_dir / "echolined.sock";
+  // sockaddr_un.sun_path holds 108 bytes including the terminating NUL.
+  if (a.unix_socket.string().size() > 107)
+    doc.fail(at / "unix_socket", fmt::format("socket path \"{}\" is {} bytes; a unix socket path holds at most 107",
+                                             a.unix_socket.string(), a.unix_socket.string().size()));
+  a.tcp_host = doc.string_or(at / "tcp_host", a.tcp_host);
+  if (a.tcp_host.empty()) doc.fail(at / "tcp_host", "must not be empty");
+  a.tcp_port = static_cast<int>(doc.integer_or(at / "tcp_port", a.tcp_port));
+  if (a.tcp_port < 0 || a.tcp_port > 65535) doc.fail(at / "tcp_port", "must be 0 (TCP off) or a port 1..65535");
+  a.token_file = doc.has(at / "token_file") ? resolve(base, doc.require_string(at / "token_file")) : std::filesystem::path{};
+  const bool loopback = a.tcp_host == "127.0.0.1" || a.tcp_host == "::1" || a.tcp_host == "localhost";
+  if (a.tcp_port != 0 && !loopback && a.token_file.empty())
+    doc.fail(at / "tcp_host", fmt::format("listening on {} (not loopback) needs a token_file: anyone on the network "
+                                          "could otherwise drive the instruments", a.tcp_host));
+}
+
+void load_instruments(const JsoncDocument& doc, const std::filesystem::path& base, std::vector<InstrumentConfig>& out) {
+  const JsonPointer at = kRoot / "instruments";
+  const auto& arr = doc.require_array(at);
+  std::set<std::string> roles, names;
+  for (std::size_t i = 0; i < arr.size(); ++i) {
+    const JsonPointer e = at / i;
+    doc.require_object(e);
+    doc.check_keys(e, {"role", "name", "address", "profile"});
+    InstrumentConfig ic;
+    ic.role = doc.require_enum(e / "role", {"source", "receiver", "switch"});
+    ic.name = doc.require_string(e / "name");
+    if (ic.name.empty()) doc.fail(e / "name", "must not be empty");
+    ic.address = doc.require_string(e / "address");
+    if (ic.address.rfind("tcp://", 0) != 0 && ic.address.rfind("serial:", 0) != 0)
+      doc.fail(e / "address", fmt::format("\"{}\" is not an instrument address; expected \"tcp://host:port\" or "
+                                          "\"serial:<device>[?baud=...]\"", ic.address));
+    ic.profile = resolve(base, doc.require_string(e / "profile"));
+    if (!roles.insert(ic.role).second) doc.fail(e / "role", fmt::format("a second {} instrument; one per role", ic.role));
+    if (!names.insert(ic.name).second) doc.fail(e / "name", fmt::format("name \"{}\" is used twice", ic.name));
+    std::error_code ec;
+    if (!std::filesystem::is_regular_file(ic.profile, ec))
+      doc.fail(e / "profile", fmt::format("profile file \"{}\" does not exist", ic.profile.string()));
+    Profile p = load_profile(ic.profile);   // its own errors name the profile file
+    if (p.role != ic.role)
+      doc.fail(e / "profile", fmt::format("profile {} is for role {}, the instrument's role is {}", p.name, p.role, ic.role));
+    out.push_back(std::move(ic));
+  }
+  for (const char* needed : {"source", "receiver"})
+    if (!roles.count(needed)) doc.fail(at, fmt::format("no {} instrument; a station needs a source and a receiver", needed));
+}
+
+}  // namespace
+
+StationConfig load_station_config(const std::filesystem::path& file) {
+  JsoncDocument doc = JsoncDocument::load(file);
+  if (!doc.root().is_object()) doc.fail(kRoot, "a station config is a JSON object {...}");
+  doc.check_keys(kRoot, {"station", "data_dir", "log_dir", "recipe", "instruments", "fixture", "api", "serial_pattern"});
+  const std::filesystem::path base = std::filesystem::absolute(file).parent_path();
+  StationConfig c;
+  c.file = doc.file();
+  c.station = doc.require_string(kRoot / "station");
+  if (c.station.empty()) doc.fail(kRoot / "station", "must not be empty");
+  c.data_dir = resolve(base, doc.require_string(kRoot / "data_dir"));
+  c.log_dir = doc.has(kRoot / "log_dir") ? resolve(base, doc.require_string(kRoot / "log_dir")) : c.data_dir / "log";
+  c.recipe = doc.has(kRoot / "recipe") ? resolve(base, doc.require_string(kRoot / "recipe")) : std::filesystem::path{};
+  load_instruments(doc, base, c.instruments);
+  load_fixture(doc, c.fixture);
+  load_api(doc, base, c.data_dir, c.api);
+  c.serial_pattern = doc.string_or(kRoot / "serial_pattern", c.serial_pattern);
+  try {
+    std::regex re(c.serial_pattern, std::regex::ECMAScript);
+  } catch (const std::regex_error& e) {
+    doc.fail(kRoot / "serial_pattern", fmt::format("not a valid regular expression: {}", e.what()));
+  }
+  return c;
+}
+
+}  // namespace echoline::drivers

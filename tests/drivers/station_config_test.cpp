@@ -1,0 +1,138 @@
+// Station configuration: the shipped file loads, relative paths resolve against the file's
+// folder, and mistakes are named with file, line and key.
+#include "drivers/station_config.hpp"
+
+#include <fstream>
+
+#include <gtest/gtest.h>
+
+#include "tests/support/process.hpp"
+
+namespace echoline::drivers {
+namespace {
+
+// A station file in a temp folder whose profiles point at the shipped sim profiles.
+std::string station_text(const std::string& extra_instrument = "", const std::string& api = "") {
+  const std::string prof = (testing::source_dir() / "config" / "instruments").string();
+  return "{\n"
+         "  \"station\": \"t\",\n"
+         "  \"data_dir\": \"data\",\n"
+         "  \"instruments\": [\n"
+         "    {\"role\": \"source\", \"name\": \"gen\", \"address\": \"tcp://127.0.0.1:1\", \"profile\": \"" + prof + "/sim-source.jsonc\"},\n"
+         "    {\"role\": \"receiver\", \"name\": \"sa\", \"address\": \"serial:/dev/ttyUSB0?baud=9600\", \"profile\": \"" + prof + "/sim-receiver.jsonc\"}" +
+         extra_instrument + "\n"
+         "  ]" + api + "\n"
+         "}\n";
+}
+
+std::filesystem::path write(const testing::TempDir& dir, const std::string& text) {
+  auto p = dir / "station.jsonc";
+  std::ofstream(p) << text;
+  return p;
+}
+
+ConfigError load_error(const std::filesystem::path& p) {
+  try {
+    load_station_config(p);
+  } catch (const ConfigError& e) {
+    return e;
+  }
+  ADD_FAILURE() << "no ConfigError";
+  return ConfigError("", 0, "", "");
+}
+
+TEST(StationConfig, ShippedDemoStationLoads) {
+  auto file = testing::source_dir() / "config" / "station.jsonc";
+  StationConfig c = load_station_config(file);
+  EXPECT_EQ(c.station, "line2-bench1");
+  ASSERT_NE(c.find_role("source"), nullptr);
+  ASSERT_NE(c.find_role("receiver"), nullptr);
+  ASSERT_NE(c.find_role("switch"), nullptr);
+  auto config_dir = std::filesystem::absolute(file).parent_path().lexically_normal();
+  EXPECT_EQ(c.find_role("receiver")->profile, config_dir / "instruments" / "sim-receiver.jsonc");
+  EXPECT_TRUE(c.data_dir.is_absolute());
+  EXPECT_EQ(c.api.tcp_host, "127.0.0.1");
+  EXPECT_EQ(c.api.tcp_port, 0);
+  EXPECT_EQ(c.serial_pattern, "^[A-Za-z0-9._-]{1,64}$");
+}
+
+TEST(StationConfig, DefaultsAndRelativePaths) {
+  testing::TempDir dir;
+  StationConfig c = load_station_config(write(dir, station_text()));
+  EXPECT_EQ(c.data_dir, (dir.path() / "data").lexically_normal());
+  EXPECT_EQ(c.log_dir, c.data_dir / "log");
+  EXPECT_EQ(c.api.unix_socket, c.data_dir / "echolined.sock");
+  EXPECT_TRUE(c.recipe.empty());
+  EXPECT_DOUBLE_EQ(c.fixture.coupling_db, 20);
+  EXPECT_DOUBLE_EQ(c.fixture.nominal_directivity_db, 30);
+  EXPECT_EQ(c.find_role("switch"), nullptr);
+  EXPECT_EQ(c.serial_pattern, "^[A-Za-z0-9._-]{1,64}$");
+}
+
+TEST(StationConfig, SecondSourceIsRefusedAtItsLine) {
+  testing::TempDir dir;
+  const std::string prof = (testing::source_dir() / "config" / "instruments" / "sim-source.jsonc").string();
+  ConfigError e = load_error(write(dir, station_text(",\n    {\"role\": \"source\", \"name\": \"gen2\", \"address\": \"tcp://h:1\", \"profile\": \"" + prof + "\"}")));
+  EXPECT_EQ(e.key, "/instruments/2/role");
+  EXPECT_EQ(e.line, 7);
+}
+
+TEST(StationConfig, ProfileForAnotherRoleIsRefused) {
+  testing::TempDir dir;
+  const std::string prof = (testing::source_dir() / "config" / "instruments" / "sim-source.jsonc").string();
+  ConfigError e = load_error(write(dir, station_text(",\n    {\"role\": \"switch\", \"name\": \"sw\", \"address\": \"tcp://h:1\", \"profile\": \"" + prof + "\"}")));
+  EXPECT_EQ(e.key, "/instruments/2/profile");
+  EXPECT_NE(std::string(e.what()).find("for role source"), std::string::npos) << e.what();
+}
+
+TEST(StationConfig, BadAddressAndMissingProfileAreNamed) {
+  testing::TempDir dir;
+  std::string text = station_text();
+  text.replace(text.find("tcp://127.0.0.1:1"), 17, "127.0.0.1:5025");
+  ConfigError e = load_error(write(dir, text));
+  EXPECT_EQ(e.key, "/instruments/0/address");
+  EXPECT_EQ(e.line, 5);
+
+  std::string text2 = station_text();
+  text2.replace(text2.find("sim-source.jsonc"), 16, "nope.jsonc");
+  ConfigError e2 = load_error(write(dir, text2));
+  EXPECT_EQ(e2.key, "/instruments/0/profile");
+  EXPECT_NE(std::string(e2.what()).find("does not exist"), std::string::npos);
+}
+
+TEST(StationConfig, NonLoopbackApiNeedsAToken) {
+  testing::TempDir dir;
+  ConfigError e = load_error(write(dir, station_text("", ",\n  \"api\": {\"tcp_host\": \"0.0.0.0\", \"tcp_port\": 7000}")));
+  EXPECT_EQ(e.key, "/api/tcp_host");
+  StationConfig c = load_station_config(
+      write(dir, station_text("", ",\n  \"api\": {\"tcp_host\": \"0.0.0.0\", \"tcp_port\": 7000, \"token_file\": \"tok\"}")));
+  EXPECT_EQ(c.api.token_file, (dir.path() / "tok").lexically_normal());
+  EXPECT_EQ(c.api.tcp_port, 7000);
+}
+
+TEST(StationConfig, OutOfRangeFixtureValueNamesUnitAndRange) {
+  testing::TempDir dir;
+  ConfigError e = load_error(write(dir, station_text("", ",\n  \"fixture\": {\"coupling_db\": -20}")));
+  EXPECT_EQ(e.key, "/fixture/coupling_db");
+  EXPECT_NE(std::string(e.what()).find("allowed 1 to 60 dB"), std::string::npos) << e.what();
+}
+
+TEST(StationConfig, BadSerialPatternIsRefused) {
+  testing::TempDir dir;
+  ConfigError e = load_error(write(dir, station_text("", ",\n  \"serial_pattern\": \"^[A-Z\"")));
+  EXPECT_EQ(e.key, "/serial_pattern");
+}
+
+TEST(StationConfig, StationWithoutReceiverIsRefused) {
+  testing::TempDir dir;
+  std::string text = station_text();
+  auto start = text.find(",\n    {\"role\": \"receiver\"");
+  auto end = text.find("\n  ]");
+  text.erase(start, end - start);
+  ConfigError e = load_error(write(dir, text));
+  EXPECT_EQ(e.key, "/instruments");
+  EXPECT_NE(std::string(e.what()).find("no receiver"), std::string::npos);
+}
+
+}  // namespace
+}  // namespace echoline::drivers
