@@ -99,6 +99,7 @@ struct CalibrationRecord {
   double min_directivity_db = 0;
   double noise_margin_db = 0;                           // LOAD above the noise floor (estimate)
   std::vector<std::string> warnings;                    // sanity checks that passed with remarks
+  std::vector<std::string> errors;                      // why the record is not valid (empty when valid)
   bool valid = false;                                   // all sanity checks passed
   // Expiry as configured at creation (from the recipe's policy).
   double max_age_s = 0;

@@ -1,0 +1,240 @@
+// OPEN/SHORT/LOAD calibration (calibration.hpp). Method: REFERENCE.md §3 (dB average of OPEN
+// and SHORT cancels the first-order directivity and source-match ripple); the LOAD reading
+// relative to that reference is the effective directivity (REFERENCE.md §2, common practice).
+#include "daemon/core/calibration.hpp"
+
+#include <algorithm>
+#include <cmath>
+#include <limits>
+
+#include <fmt/format.h>
+
+#include "daemon/core/frequency_text.hpp"
+
+namespace echoline::core {
+namespace {
+
+constexpr double kInf = std::numeric_limits<double>::infinity();
+
+// Relative tolerance for "same frequency" between a trace and the plan (plan points are
+// computed; instruments may round the frequency they report).
+bool same_frequency(double a, double b) { return std::fabs(a - b) <= std::max(1.0, 1e-9 * std::fabs(b)); }
+
+// Checks a trace's length, frequencies and values against the plan; "" when fine.
+std::string trace_problem(const std::string& name, const std::vector<Reading>& t, const std::vector<double>& plan) {
+  if (t.size() != plan.size()) {
+    return fmt::format("{} trace has {} readings but the plan has {} points", name, t.size(), plan.size());
+  }
+  for (std::size_t i = 0; i < t.size(); ++i) {
+    if (!same_frequency(t[i].frequency_hz, plan[i])) {
+      return fmt::format("{} reading {} is at {} but the plan point is {}", name, i, format_frequency(t[i].frequency_hz, 6),
+                         format_frequency(plan[i], 6));
+    }
+    if (!std::isfinite(t[i].raw_dbm)) {
+      return fmt::format("{} reading at {} is not a number", name, format_mhz(t[i].frequency_hz, 3));
+    }
+  }
+  return "";
+}
+
+// A full reflector (OPEN or SHORT) far from the level the fixture predicts.
+void check_level(const std::string& name, const std::vector<Reading>& t, double expected, double tol,
+                 CalibrationRecord& rec) {
+  std::size_t worst = 0, bad = 0;
+  for (std::size_t i = 0; i < t.size(); ++i) {
+    const double dev = std::fabs(t[i].raw_dbm - expected);
+    if (dev > tol) ++bad;
+    if (dev > std::fabs(t[worst].raw_dbm - expected)) worst = i;
+  }
+  if (bad == 0) return;
+  const double got = t[worst].raw_dbm;
+  const char* hint = got < expected
+                         ? "is a LOAD connected instead, a cable between source, coupler and receiver missing, or the source output off?"
+                         : "is the coupling or the source power other than configured?";
+  rec.errors.push_back(fmt::format(
+      "{} reads {:.1f} dBm at {}, expected {:.1f} dBm \u00b1 {:.0f} dB for a full reflection ({} of {} points off): {}",
+      name, got, format_mhz(t[worst].frequency_hz), expected, tol, bad, t.size(), hint));
+}
+
+}  // namespace
+
+CalibrationRecord build_calibration(const Recipe& recipe, const std::map<std::string, std::vector<Reading>>& traces,
+                                    const StationCapability& station, std::string id, std::string created_utc,
+                                    const CalibrationLimits& limits) {
+  CalibrationRecord rec;
+  rec.id = std::move(id);
+  rec.created_utc = std::move(created_utc);
+  rec.recipe = RecipeRef{recipe.name, recipe.version, recipe.content_hash};
+  rec.traces = traces;
+  rec.max_age_s = recipe.calibration.max_age_s;
+  rec.max_units = recipe.calibration.max_units;
+  rec.max_temperature_change_c = recipe.calibration.max_temperature_change_c;
+  rec.min_directivity_db = 0;
+  rec.valid = false;
+
+  const std::vector<double> plan = plan_frequencies(recipe);
+  std::vector<std::string> needed = {"OPEN", "LOAD"};
+  if (recipe.calibration.use_short) needed.insert(needed.begin() + 1, "SHORT");
+  for (const std::string& name : needed) {
+    auto it = traces.find(name);
+    if (it == traces.end()) {
+      rec.errors.push_back(fmt::format("the {} standard was not measured", name));
+      continue;
+    }
+    std::string problem = trace_problem(name, it->second, plan);
+    if (!problem.empty()) rec.errors.push_back(problem);
+  }
+  if (!rec.errors.empty()) return rec;
+
+  const std::vector<Reading>& open = traces.at("OPEN");
+  const std::vector<Reading>& load = traces.at("LOAD");
+  const std::vector<Reading>* shrt = recipe.calibration.use_short ? &traces.at("SHORT") : nullptr;
+  const std::size_t n = plan.size();
+
+  // Level sanity: OPEN and SHORT should both read near the full-reflection level.
+  const double expected = expected_reflection_dbm(recipe.source.power_dbm, station);
+  check_level("OPEN", open, expected, limits.level_tolerance_db, rec);
+  if (shrt) check_level("SHORT", *shrt, expected, limits.level_tolerance_db, rec);
+
+  // Reference and its spread.
+  rec.reference_dbm.resize(n);
+  std::size_t spread_at = 0;
+  double spread = 0;
+  for (std::size_t i = 0; i < n; ++i) {
+    if (shrt) {
+      rec.reference_dbm[i] = (open[i].raw_dbm + (*shrt)[i].raw_dbm) / 2;
+      const double d = std::fabs(open[i].raw_dbm - (*shrt)[i].raw_dbm);
+      if (d > spread) {
+        spread = d;
+        spread_at = i;
+      }
+    } else {
+      rec.reference_dbm[i] = open[i].raw_dbm;
+    }
+  }
+  if (shrt && spread > limits.max_open_short_spread_db) {
+    // With 20 dB directivity the anti-phase ripple gives at most ~1.7 dB between OPEN and SHORT
+    // (REFERENCE.md §3: +0.83 / −0.92 dB); a larger gap is a bad, loose or swapped standard.
+    rec.errors.push_back(fmt::format(
+        "OPEN and SHORT differ by {:.1f} dB at {} (more than {:.0f} dB): a standard is bad or loose, or one of them is "
+        "really the LOAD",
+        spread, format_mhz(open[spread_at].frequency_hz), limits.max_open_short_spread_db));
+  }
+  if (!shrt) {
+    rec.warnings.push_back(
+        "reference from the OPEN alone: it carries the uncompensated directivity ripple (about \u00b10.3 dB at 30 dB "
+        "directivity, REFERENCE.md \u00a73); measure the SHORT too for a better reference");
+  }
+
+  // Directivity from the LOAD.
+  rec.directivity_db.resize(n);
+  rec.min_directivity_db = kInf;
+  std::size_t dmin_at = 0;
+  rec.noise_margin_db = kInf;
+  std::size_t noise_at = 0;
+  for (std::size_t i = 0; i < n; ++i) {
+    rec.directivity_db[i] = rec.reference_dbm[i] - load[i].raw_dbm;
+    if (rec.directivity_db[i] < rec.min_directivity_db) {
+      rec.min_directivity_db = rec.directivity_db[i];
+      dmin_at = i;
+    }
+    const double margin = load[i].raw_dbm - station.noise_floor_dbm;
+    if (margin < rec.noise_margin_db) {
+      rec.noise_margin_db = margin;
+      noise_at = i;
+    }
+  }
+  if (rec.min_directivity_db < limits.min_directivity_db) {
+    rec.errors.push_back(fmt::format(
+        "the LOAD is only {:.1f} dB below the reference at {} (directivity under {:.0f} dB): the LOAD is bad or not "
+        "connected, or the OPEN/SHORT were measured on something else",
+        rec.min_directivity_db, format_mhz(load[dmin_at].frequency_hz), limits.min_directivity_db));
+  }
+  if (rec.noise_margin_db < limits.min_noise_margin_db) {
+    rec.warnings.push_back(fmt::format(
+        "the LOAD reads only {:.1f} dB above the receiver noise floor ({:.1f} dBm) at {}: the directivity there is "
+        "limited by noise and reads lower than the coupler's own (the bounds stay on the safe side)",
+        rec.noise_margin_db, station.noise_floor_dbm, format_mhz(load[noise_at].frequency_hz)));
+  }
+  rec.valid = rec.errors.empty();
+  return rec;
+}
+
+CalibrationState calibration_due(const CalibrationRecord* cal, const Recipe& recipe, double now_unix_s,
+                                 double created_unix_s, std::optional<double> temperature_c) {
+  if (!cal) return {true, "no calibration yet"};
+  if (!cal->valid) return {true, fmt::format("calibration {} did not pass its checks", cal->id)};
+  if (!cal->recipe.content_hash.empty() && !recipe.content_hash.empty() &&
+      cal->recipe.content_hash != recipe.content_hash) {
+    return {true, fmt::format("calibration {} was made for recipe {} {}, not this one", cal->id, cal->recipe.name,
+                              cal->recipe.version)};
+  }
+  // Same plan: the reference must exist at every point we will measure.
+  const std::vector<double> plan = plan_frequencies(recipe);
+  auto open = cal->traces.find("OPEN");
+  bool same_plan = open != cal->traces.end() && open->second.size() == plan.size() &&
+                   cal->reference_dbm.size() == plan.size() && cal->directivity_db.size() == plan.size();
+  for (std::size_t i = 0; same_plan && i < plan.size(); ++i) {
+    same_plan = same_frequency(open->second[i].frequency_hz, plan[i]);
+  }
+  if (!same_plan) return {true, fmt::format("calibration {} covers other frequencies than this recipe", cal->id)};
+  const double max_age = cal->max_age_s > 0 ? cal->max_age_s : recipe.calibration.max_age_s;
+  const double age = now_unix_s - created_unix_s;
+  if (age > max_age) {
+    return {true, fmt::format("calibration is {:.1f} h old (limit {:.1f} h)", age / 3600, max_age / 3600)};
+  }
+  if (age < -60) return {true, "calibration is dated in the future: check the station clock"};
+  const int max_units = cal->max_units > 0 ? cal->max_units : recipe.calibration.max_units;
+  if (cal->units_since >= max_units) {
+    return {true, fmt::format("{} units tested since calibration (limit {})", cal->units_since, max_units)};
+  }
+  const double max_dt = cal->max_temperature_change_c > 0 ? cal->max_temperature_change_c
+                                                          : recipe.calibration.max_temperature_change_c;
+  if (temperature_c && cal->temperature_c) {
+    const double dt = std::fabs(*temperature_c - *cal->temperature_c);
+    if (dt > max_dt) {
+      return {true, fmt::format("temperature changed by {:.1f} \u00b0C since calibration ({:.1f} \u2192 {:.1f} \u00b0C, "
+                                "limit {:.1f} \u00b0C)",
+                                dt, *cal->temperature_c, *temperature_c, max_dt)};
+    }
+  }
+  return {false, ""};
+}
+
+bool check_standard_drifted(const CalibrationRecord& cal, const std::string& standard,
+                            const std::vector<Reading>& remeasured, double limit_db, std::string* why) {
+  auto say = [&](std::string text) {
+    if (why) *why = std::move(text);
+    return true;
+  };
+  auto it = cal.traces.find(standard);
+  if (it == cal.traces.end()) return say(fmt::format("the calibration has no {} trace to compare with", standard));
+  const std::vector<Reading>& ref = it->second;
+  if (ref.size() != remeasured.size()) {
+    return say(fmt::format("the {} check has {} readings, the calibration {}", standard, remeasured.size(), ref.size()));
+  }
+  std::size_t worst = 0;
+  double drift = 0;
+  for (std::size_t i = 0; i < ref.size(); ++i) {
+    if (!same_frequency(ref[i].frequency_hz, remeasured[i].frequency_hz)) {
+      return say(fmt::format("the {} check reading {} is at {}, the calibration's at {}", standard, i,
+                             format_mhz(remeasured[i].frequency_hz, 3), format_mhz(ref[i].frequency_hz, 3)));
+    }
+    if (!std::isfinite(remeasured[i].raw_dbm)) {
+      return say(fmt::format("the {} check reading at {} is not a number", standard, format_mhz(ref[i].frequency_hz)));
+    }
+    const double d = std::fabs(remeasured[i].raw_dbm - ref[i].raw_dbm);
+    if (d > drift) {
+      drift = d;
+      worst = i;
+    }
+  }
+  if (drift > limit_db) {
+    return say(fmt::format("the {} check standard moved {:.2f} dB at {} since calibration (limit {:.2f} dB)", standard,
+                           drift, format_mhz(ref[worst].frequency_hz), limit_db));
+  }
+  if (why) why->clear();
+  return false;
+}
+
+}  // namespace echoline::core

@@ -1,0 +1,293 @@
+// Decisions, failure classes and reasons (decision.hpp).
+// Terms: JCGM 106:2012 §8.2 simple acceptance, §8.3.2 guarded acceptance; ILAC-G8:09/2019 §4.2.1
+// binary statement for simple acceptance, §4.2.3 non-binary statement (our "inconclusive" is the
+// conditional pass / conditional fail zone). The guard band here is the full worst-case interval
+// from directivity and source match (REFERENCE.md §2), not a symmetric ±U.
+#include "daemon/core/decision.hpp"
+
+#include <algorithm>
+#include <cmath>
+#include <limits>
+
+#include <fmt/format.h>
+
+#include "daemon/core/frequency_text.hpp"
+
+namespace echoline::core {
+namespace {
+
+constexpr double kInf = std::numeric_limits<double>::infinity();
+constexpr double kEdgeToleranceHz = 1e-3;
+
+std::string db_text(double v) {
+  if (std::isinf(v)) return v > 0 ? "+inf dB" : "-inf dB";
+  return fmt::format("{:.1f} dB", v);
+}
+
+// A limit as written, trailing zeros removed: "10 dB", "9.54 dB".
+std::string limit_text(double v) {
+  std::string s = fmt::format("{:.2f}", v);
+  while (!s.empty() && s.back() == '0') s.pop_back();
+  if (!s.empty() && s.back() == '.') s.pop_back();
+  return s + " dB";
+}
+
+std::string bandwidth_text(double hz) { return fmt::format("{:.2f} MHz", hz / 1e6); }
+
+bool inside(double f, const LimitSegment& s) {
+  return f >= s.start_hz - kEdgeToleranceHz && f <= s.stop_hz + kEdgeToleranceHz;
+}
+
+// Mask: per point, then the point that explains the segment's outcome.
+LimitCheck check_mask(DecisionRule rule, const std::vector<PointResult>& points, const LimitSegment& seg) {
+  LimitCheck c;
+  c.kind = "mask";
+  const std::string where = "over " + format_frequency_range(seg.start_hz, seg.stop_hz);
+  const double lim = seg.min_return_loss_db;
+  const PointResult* fail_at = nullptr;     // smallest margin of the value that decides a fail
+  const PointResult* incon_at = nullptr;    // smallest worst-case margin among inconclusive points
+  const PointResult* tightest = nullptr;    // smallest margin (measured or worst) overall
+  std::size_t count = 0;
+  Verdict v = Verdict::pass;
+  const bool guarded = rule == DecisionRule::guarded;
+  for (const PointResult& p : points) {
+    if (!inside(p.frequency_hz, seg)) continue;
+    ++count;
+    const Verdict pv = decide_lower_limit(rule, p.return_loss_db, p.return_loss_worst_db, p.return_loss_best_db, lim);
+    v = combine(v, pv);
+    const double decisive = guarded ? p.return_loss_best_db : p.return_loss_db;
+    if (pv == Verdict::fail &&
+        (!fail_at || decisive < (guarded ? fail_at->return_loss_best_db : fail_at->return_loss_db))) {
+      fail_at = &p;
+    }
+    if (pv == Verdict::inconclusive && (!incon_at || p.return_loss_worst_db < incon_at->return_loss_worst_db)) {
+      incon_at = &p;
+    }
+    const double m = guarded ? p.return_loss_worst_db : p.return_loss_db;
+    if (!tightest || m < (guarded ? tightest->return_loss_worst_db : tightest->return_loss_db)) tightest = &p;
+  }
+  if (count == 0) {
+    c.verdict = Verdict::inconclusive;
+    c.detail = fmt::format("no measured point {}: the {} limit could not be checked", where, limit_text(lim));
+    return c;
+  }
+  c.verdict = v;
+  if (v == Verdict::fail) {
+    c.detail = fmt::format("return loss {} at {} is below the {} limit {}", db_text(fail_at->return_loss_db),
+                           format_mhz(fail_at->frequency_hz), limit_text(lim), where);
+    if (guarded) c.detail += fmt::format(" (at best {})", db_text(fail_at->return_loss_best_db));
+  } else if (v == Verdict::inconclusive) {
+    c.detail = fmt::format(
+        "return loss {} at {} is within the measurement uncertainty of the {} limit {} (true value {} to {})",
+        db_text(incon_at->return_loss_db), format_mhz(incon_at->frequency_hz), limit_text(lim), where,
+        db_text(incon_at->return_loss_worst_db), db_text(incon_at->return_loss_best_db));
+  } else {
+    const double m = (guarded ? tightest->return_loss_worst_db : tightest->return_loss_db) - lim;
+    c.detail = fmt::format("{}margin {} at {} for the {} limit {}", guarded ? "worst-case " : "", db_text(m),
+                           format_mhz(tightest->frequency_hz), limit_text(lim), where);
+  }
+  return c;
+}
+
+LimitCheck check_window(DecisionRule rule, const Recipe& recipe, const Analysis& a) {
+  LimitCheck c;
+  c.kind = "resonance";
+  const double lo = *recipe.limits.resonance_min_hz;
+  const double hi = *recipe.limits.resonance_max_hz;
+  const std::string window = format_frequency_range(lo, hi);
+  if (!a.resonance) {
+    c.verdict = Verdict::fail;
+    c.detail = fmt::format("no resonance found for the {} window", window);
+    return c;
+  }
+  const Resonance& r = *a.resonance;
+  double low = r.frequency_hz - r.uncertainty_hz;
+  double high = r.frequency_hz + r.uncertainty_hz;
+  if (r.at_edge) {
+    // The true maximum may lie beyond the sweep edge it sits on.
+    if (r.index == 0) low = -kInf;
+    else high = kInf;
+  }
+  c.verdict = decide_window(rule, r.frequency_hz, low, high, lo, hi);
+  const std::string at = format_mhz(r.frequency_hz);
+  if (c.verdict == Verdict::pass) {
+    c.detail = fmt::format("resonance at {} is inside the {} window", at, window);
+  } else if (c.verdict == Verdict::inconclusive) {
+    c.detail = fmt::format("resonance at {} (\u00b1{:.2f} MHz) is too close to the edge of the {} window to decide",
+                           at, r.uncertainty_hz / 1e6, window);
+  } else if (r.frequency_hz < lo) {
+    c.detail = fmt::format("resonance at {} is below the {} window (element too long)", at, window);
+  } else {
+    c.detail = fmt::format("resonance at {} is above the {} window (element too short)", at, window);
+  }
+  if (r.at_edge) c.detail += "; the maximum is on the sweep edge, so the resonance may lie outside the sweep";
+  return c;
+}
+
+double band_width(const std::optional<Band>& b, bool open_means_unbounded) {
+  if (!b) return 0;
+  if (open_means_unbounded && (b->low_open || b->high_open)) return kInf;
+  return b->width_hz();
+}
+
+LimitCheck check_bandwidth(DecisionRule rule, const Recipe& recipe, const Analysis& a) {
+  LimitCheck c;
+  c.kind = "bandwidth";
+  const double min_bw = *recipe.limits.min_bandwidth_hz;
+  const double thr = recipe.limits.bandwidth_threshold_db;
+  const double measured = band_width(a.band, false);
+  const double worst = band_width(a.band_worst, false);  // an open edge: still a lower bound
+  const double best = band_width(a.band_best, true);     // an open edge: could be wider
+  c.verdict = decide_lower_limit(rule, measured, std::min(worst, measured), std::max(best, measured), min_bw);
+  const std::string head = fmt::format("bandwidth {} (return loss \u2265 {})", bandwidth_text(measured), limit_text(thr));
+  if (c.verdict == Verdict::pass) {
+    c.detail = fmt::format("{} meets the {} minimum", head, bandwidth_text(min_bw));
+  } else if (c.verdict == Verdict::inconclusive) {
+    c.detail = fmt::format("{} is within the measurement uncertainty of the {} minimum (true {} to {})", head,
+                           bandwidth_text(min_bw), bandwidth_text(worst),
+                           std::isinf(best) ? std::string("unbounded") : bandwidth_text(best));
+  } else {
+    c.detail = fmt::format("{} is below the {} minimum", head, bandwidth_text(min_bw));
+  }
+  if (a.band && (a.band->low_open || a.band->high_open)) c.detail += " (band reaches the sweep edge)";
+  return c;
+}
+
+// The strictest mask limit at frequency f (or over the whole mask when f is in no segment).
+double limit_at(const std::vector<LimitSegment>& mask, double f) {
+  double lim = -kInf;
+  for (const LimitSegment& s : mask) {
+    if (inside(f, s)) lim = std::max(lim, s.min_return_loss_db);
+  }
+  if (std::isinf(lim)) {
+    for (const LimitSegment& s : mask) lim = std::max(lim, s.min_return_loss_db);
+  }
+  return lim;
+}
+
+void classify(const Recipe& recipe, const std::vector<PointResult>& points, const Analysis& a, Decision& d) {
+  const auto first_failed = [&](const char* kind) -> const LimitCheck* {
+    for (const LimitCheck& c : d.checks) {
+      if (c.kind == kind && c.verdict == Verdict::fail) return &c;
+    }
+    return nullptr;
+  };
+  if (a.max_return_loss_db < kNoResponseReturnLossDb || !a.resonance) {
+    d.failure_class = FailureClass::no_response;
+    d.reason = fmt::format(
+        "no dip anywhere: feed broken or element not connected (best return loss {} over {}, reflects like an "
+        "open or a short)",
+        db_text(a.max_return_loss_db),
+        points.empty() ? std::string("the sweep")
+                       : format_frequency_range(points.front().frequency_hz, points.back().frequency_hz));
+    return;
+  }
+  const Resonance& r = *a.resonance;
+  if (const LimitCheck* w = first_failed("resonance")) {
+    d.failure_class = r.frequency_hz < *recipe.limits.resonance_min_hz ? FailureClass::tuned_low : FailureClass::tuned_high;
+    d.reason = w->detail;
+    return;
+  }
+  const LimitCheck* mask = first_failed("mask");
+  if (mask && !recipe.limits.resonance_min_hz && !recipe.limits.mask.empty()) {
+    // No window: judge the tuning against the span the mask covers.
+    double lo = kInf, hi = -kInf;
+    for (const LimitSegment& s : recipe.limits.mask) {
+      lo = std::min(lo, s.start_hz);
+      hi = std::max(hi, s.stop_hz);
+    }
+    if (r.frequency_hz < lo || r.frequency_hz > hi) {
+      const bool low = r.frequency_hz < lo;
+      d.failure_class = low ? FailureClass::tuned_low : FailureClass::tuned_high;
+      d.reason = fmt::format("resonance at {} is {} the {} band ({})", format_mhz(r.frequency_hz),
+                             low ? "below" : "above", format_frequency_range(lo, hi),
+                             low ? "element too long" : "element too short");
+      return;
+    }
+  }
+  const double lim = recipe.limits.mask.empty() ? 0 : limit_at(recipe.limits.mask, r.frequency_hz);
+  if (mask && r.depth_db < lim) {
+    d.failure_class = FailureClass::shallow;
+    d.reason = fmt::format(
+        "dip at {} reaches only {} return loss, below the {} limit (poor match: check the feed, the solder joint "
+        "and the ground connection)",
+        format_mhz(r.frequency_hz), db_text(r.depth_db), limit_text(lim));
+    return;
+  }
+  d.failure_class = FailureClass::out_of_mask;
+  if (mask) d.reason = mask->detail;
+  else if (const LimitCheck* bw = first_failed("bandwidth")) d.reason = bw->detail;
+  else d.reason = "a limit was not met";
+}
+
+}  // namespace
+
+Verdict decide_lower_limit(DecisionRule rule, double measured, double worst, double best, double limit) {
+  if (rule == DecisionRule::simple) {
+    // JCGM 106 §8.2 simple acceptance: acceptance limit = tolerance limit; on the limit passes.
+    return measured >= limit ? Verdict::pass : Verdict::fail;
+  }
+  // JCGM 106 §8.3.2 guarded acceptance; the in-between zone is ILAC-G8 §4.2.3's conditional zone.
+  if (worst >= limit) return Verdict::pass;
+  if (best < limit) return Verdict::fail;
+  return Verdict::inconclusive;
+}
+
+Verdict decide_window(DecisionRule rule, double measured, double low, double high, double min, double max) {
+  if (rule == DecisionRule::simple) return measured >= min && measured <= max ? Verdict::pass : Verdict::fail;
+  if (low >= min && high <= max) return Verdict::pass;
+  if (high < min || low > max) return Verdict::fail;
+  return Verdict::inconclusive;
+}
+
+Verdict combine(Verdict a, Verdict b) {
+  auto rank = [](Verdict v) {
+    switch (v) {
+      case Verdict::pass: return 0;
+      case Verdict::inconclusive: return 1;
+      case Verdict::fail: return 2;
+      case Verdict::aborted: return 3;
+    }
+    return 3;
+  };
+  return rank(a) >= rank(b) ? a : b;
+}
+
+Decision decide(const Recipe& recipe, const std::vector<PointResult>& points, const Analysis& analysis) {
+  Decision d;
+  if (points.empty()) {
+    d.verdict = Verdict::aborted;
+    d.reason = "no readings to judge";
+    return d;
+  }
+  for (const LimitSegment& seg : recipe.limits.mask) d.checks.push_back(check_mask(recipe.rule, points, seg));
+  if (recipe.limits.resonance_min_hz && recipe.limits.resonance_max_hz) {
+    d.checks.push_back(check_window(recipe.rule, recipe, analysis));
+  }
+  if (recipe.limits.min_bandwidth_hz) d.checks.push_back(check_bandwidth(recipe.rule, recipe, analysis));
+  for (const LimitCheck& c : d.checks) d.verdict = combine(d.verdict, c.verdict);
+  // A trace that never dips is a failure whatever the limits say.
+  if (analysis.max_return_loss_db < kNoResponseReturnLossDb) d.verdict = Verdict::fail;
+
+  if (d.verdict == Verdict::fail) {
+    classify(recipe, points, analysis, d);
+  } else if (d.verdict == Verdict::inconclusive) {
+    std::string parts;
+    for (const LimitCheck& c : d.checks) {
+      if (c.verdict != Verdict::inconclusive) continue;
+      if (!parts.empty()) parts += "; ";
+      parts += c.detail;
+    }
+    d.reason = parts + ". Retest; if it stays inconclusive, hold the unit for review";
+  } else {
+    const Resonance* r = analysis.resonance ? &*analysis.resonance : nullptr;
+    d.reason = r ? fmt::format("resonance at {}, {} deep; every limit met", format_mhz(r->frequency_hz), db_text(r->depth_db))
+                 : std::string("every limit met");
+    for (const LimitCheck& c : d.checks) {
+      if (c.kind == "mask") d.reason += "; " + c.detail;
+    }
+  }
+  return d;
+}
+
+}  // namespace echoline::core

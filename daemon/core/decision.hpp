@@ -1,0 +1,53 @@
+// Conformity decisions (JCGM 106:2012 §8 simple / guarded acceptance; ILAC-G8:09/2019 §4.2)
+// for a calibrated trace, the failure class and the plain-words reason for the operator.
+// Pure; thread-safe.
+#pragma once
+
+#include <string>
+#include <vector>
+
+#include "daemon/core/analysis.hpp"
+#include "daemon/core/recipe.hpp"
+#include "daemon/core/run_result.hpp"
+
+namespace echoline::core {
+
+// A lower limit (value >= limit passes) judged from a measured value and its interval
+// [worst, best] (worst <= measured <= best).
+//   simple:  pass when measured >= limit, else fail (the acceptance interval is the tolerance
+//            interval, JCGM 106 §8.2 / ILAC-G8 §4.2.1).
+//   guarded: pass when worst >= limit; fail when best < limit; inconclusive otherwise
+//            (guarded acceptance with the guard band equal to the full worst-case interval,
+//            JCGM 106 §8.3.2; the in-between zone is ILAC-G8 §4.2.3's conditional zone).
+Verdict decide_lower_limit(DecisionRule rule, double measured, double worst, double best, double limit);
+
+// A value that must lie in [min, max], known to lie in [low, high] (low <= measured <= high).
+//   simple:  pass when min <= measured <= max.
+//   guarded: pass when [low, high] ⊂ [min, max]; fail when they do not overlap; else inconclusive.
+Verdict decide_window(DecisionRule rule, double measured, double low, double high, double min, double max);
+
+// fail beats inconclusive beats pass (aborted beats everything).
+Verdict combine(Verdict a, Verdict b);
+
+// One limit's outcome.
+struct LimitCheck {
+  std::string kind;        // "mask" | "resonance" | "bandwidth"
+  Verdict verdict = Verdict::pass;
+  std::string detail;      // plain words, e.g. "return loss 8.3 dB at 902.0 MHz is below the 10 dB limit over 902–928 MHz"
+};
+
+struct Decision {
+  Verdict verdict = Verdict::pass;
+  FailureClass failure_class = FailureClass::none;
+  std::string reason;
+  std::vector<LimitCheck> checks;
+};
+
+// No-response threshold: best RL over the whole sweep below this reflects like an open or short.
+inline constexpr double kNoResponseReturnLossDb = 3.0;
+
+// Applies the recipe's rule to the mask (per point), the resonance window and the minimum
+// bandwidth, then classifies a failure: no-response, tuned-low, tuned-high, shallow, out-of-mask.
+Decision decide(const Recipe& recipe, const std::vector<PointResult>& points, const Analysis& analysis);
+
+}  // namespace echoline::core

@@ -1,0 +1,28 @@
+// Frequencies as people write and read them: "902 MHz", "2.4835 GHz", "100 kHz", 915e6.
+// Pure, locale-independent (std::from_chars / fmt); thread-safe.
+#pragma once
+
+#include <string>
+#include <string_view>
+
+#include "drivers/result.hpp"
+
+namespace echoline::core {
+
+// Parses "<number>[ ]<unit>" with unit Hz, kHz, MHz or GHz (case-insensitive; "MHz" is mega,
+// as in IEEE 488.2's MHZ special case) or a bare number in Hz. Surrounding spaces are allowed.
+// Rejects empty text, trailing characters, other units, NaN and infinity.
+// Errors: ErrorKind::invalid_argument, message names the text and the accepted forms.
+Result<double> parse_frequency(std::string_view text);
+
+// "915 MHz", "902.5 MHz", "2.4835 GHz", "100 kHz", "12 Hz": the largest unit in which the value
+// is >= 1, with up to `max_decimals` decimals and trailing zeros removed.
+std::string format_frequency(double hz, int max_decimals = 4);
+
+// Measured frequency in MHz with a fixed number of decimals: "897.4 MHz".
+std::string format_mhz(double hz, int decimals = 1);
+
+// A range in one unit: "905–925 MHz", "2.4–2.4835 GHz".
+std::string format_frequency_range(double start_hz, double stop_hz);
+
+}  // namespace echoline::core

@@ -1,0 +1,102 @@
+// Raw readings to verdict (judge.hpp): calibrate, analyse, decide, advise.
+#include "daemon/core/judge.hpp"
+
+#include <algorithm>
+#include <cmath>
+#include <limits>
+
+#include <fmt/format.h>
+
+#include "daemon/core/analysis.hpp"
+#include "daemon/core/decision.hpp"
+#include "daemon/core/frequency_text.hpp"
+#include "daemon/core/rf_math.hpp"
+#include "daemon/core/trim.hpp"
+
+namespace echoline::core {
+namespace {
+
+Judgement aborted(std::string reason) {
+  Judgement j;
+  j.verdict = Verdict::aborted;
+  j.reason = std::move(reason);
+  return j;
+}
+
+// "" when the readings fit the calibration point for point.
+std::string mismatch(const CalibrationRecord& cal, const std::vector<Reading>& dut) {
+  const std::size_t n = cal.reference_dbm.size();
+  if (dut.empty()) return "no readings";
+  if (dut.size() != n || cal.directivity_db.size() != n) {
+    return fmt::format("{} readings but the calibration has {} points", dut.size(), n);
+  }
+  auto open = cal.traces.find("OPEN");
+  for (std::size_t i = 0; i < n; ++i) {
+    if (!std::isfinite(dut[i].raw_dbm)) return fmt::format("the reading at {} is not a number", format_mhz(dut[i].frequency_hz));
+    if (open != cal.traces.end() && open->second.size() == n) {
+      const double f = open->second[i].frequency_hz;
+      if (std::fabs(f - dut[i].frequency_hz) > std::max(1.0, 1e-9 * f)) {
+        return fmt::format("reading {} is at {} but the calibration point is at {}", i,
+                           format_frequency(dut[i].frequency_hz, 6), format_frequency(f, 6));
+      }
+    }
+  }
+  return "";
+}
+
+}  // namespace
+
+Judgement judge(const Recipe& recipe, const CalibrationRecord& cal, const std::vector<Reading>& dut,
+                double source_match_db) {
+  if (!cal.valid) return aborted(fmt::format("calibration {} is not valid; calibrate again", cal.id));
+  if (std::string why = mismatch(cal, dut); !why.empty()) {
+    return aborted(fmt::format("readings do not match calibration {}: {}", cal.id, why));
+  }
+
+  CalibratedTrace trace = calibrate_points(cal, dut, source_match_db);
+  const Analysis analysis = analyze(recipe, trace);
+  const Decision decision = decide(recipe, trace.points, analysis);
+
+  Judgement j;
+  j.points = std::move(trace.points);
+  j.verdict = decision.verdict;
+  j.failure_class = decision.failure_class;
+  j.reason = decision.reason;
+  if (analysis.clamped_points > 0) {
+    j.reason += fmt::format(" ({} reading(s) above the OPEN/SHORT reference were taken as total reflection)",
+                            analysis.clamped_points);
+  }
+
+  Metrics& m = j.metrics;
+  m.directivity_db = cal.min_directivity_db;
+  if (analysis.resonance) {
+    m.resonance_hz = analysis.resonance->frequency_hz;
+    m.depth_db = analysis.resonance->depth_db;
+    m.vswr_at_resonance = vswr_from_return_loss(m.depth_db);
+    m.mismatch_loss_db = mismatch_loss_from_return_loss(m.depth_db);
+  }
+  if (analysis.band) {
+    m.bandwidth_hz = analysis.band->width_hz();
+    m.band_low_hz = analysis.band->low_hz;
+    m.band_high_hz = analysis.band->high_hz;
+  }
+  m.min_margin_db = 0;
+  bool first = true;
+  for (const SegmentMargin& s : analysis.margins) {
+    if (s.point_count == 0) continue;
+    if (first || s.measured_db < m.min_margin_db) m.min_margin_db = s.measured_db;
+    first = false;
+  }
+
+  // Trim advice when the tuning is what is wrong (or cannot be decided).
+  if (recipe.trim && analysis.resonance && j.verdict != Verdict::pass) {
+    bool tuning = j.failure_class == FailureClass::tuned_low || j.failure_class == FailureClass::tuned_high;
+    for (const LimitCheck& c : decision.checks) {
+      if (c.kind == "resonance" && c.verdict == Verdict::inconclusive) tuning = true;
+    }
+    if (tuning) j.trim = trim_advice(*recipe.trim, analysis.resonance->frequency_hz, analysis.resonance->at_edge);
+  }
+  return j;
+}
+
+}  // namespace echoline::core

@@ -1,0 +1,29 @@
+// Everything from raw DUT readings to a verdict: calibrate, analyse, decide, classify, advise.
+// Pure; thread-safe.
+#pragma once
+
+#include <optional>
+#include <string>
+#include <vector>
+
+#include "daemon/core/recipe.hpp"
+#include "daemon/core/run_result.hpp"
+
+namespace echoline::core {
+
+struct Judgement {
+  std::vector<PointResult> points;
+  Metrics metrics;
+  Verdict verdict = Verdict::aborted;
+  FailureClass failure_class = FailureClass::none;
+  std::string reason;
+  std::optional<TrimAdvice> trim;
+};
+
+// REQUIRES nothing: readings that do not match the calibration (count or frequencies), an
+// invalid calibration or non-finite readings give Verdict::aborted with the reason — never pass.
+// source_match_db: effective test-port match (profile or recipe), +inf to ignore.
+Judgement judge(const Recipe& recipe, const CalibrationRecord& cal, const std::vector<Reading>& dut,
+                double source_match_db);
+
+}  // namespace echoline::core

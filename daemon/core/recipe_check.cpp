@@ -1,0 +1,137 @@
+// Recipe against station capability (recipe_check.hpp).
+#include "daemon/core/recipe_check.hpp"
+
+#include <algorithm>
+#include <cmath>
+
+#include <fmt/format.h>
+
+#include "daemon/core/frequency_text.hpp"
+
+namespace echoline::core {
+namespace {
+
+// REFERENCE.md §2 rule of thumb (common practice): directivity should exceed the RL to be
+// verified by at least 10 dB (margin 10 dB -> -2.39/+3.30 dB error).
+constexpr double kDirectivityMarginDb = 10;
+// A reading this far above the noise floor is disturbed by noise by less than ~0.4 dB
+// (10·log10(1 + 10^-1)); common practice, no source.
+constexpr double kNoiseMarginDb = 10;
+// A single point sweep longer than this makes a run slow enough to mention (common practice).
+constexpr double kSlowPointS = 0.5;
+
+void add(std::vector<CheckFinding>& out, const char* sev, std::string key, std::string msg) {
+  out.push_back(CheckFinding{sev, std::move(key), std::move(msg)});
+}
+
+}  // namespace
+
+double worst_case_receiver_dbm(double source_power_dbm, const StationCapability& st) {
+  // Full reflection at the test port reaches the receiver at P_src − coupling; the directivity
+  // leakage (P_src − coupling − D) can add in phase: + 20·log10(1 + 10^(−D/20)).
+  // Mainline and cable losses only lower the level: ignored for the worst case.
+  return source_power_dbm - st.coupling_db + 20.0 * std::log10(1.0 + std::pow(10.0, -st.directivity_db / 20.0));
+}
+
+double expected_reflection_dbm(double source_power_dbm, const StationCapability& st) {
+  return source_power_dbm - st.coupling_db - st.mainline_loss_db - 2 * st.cable_loss_db;
+}
+
+bool has_errors(const std::vector<CheckFinding>& findings) {
+  return std::any_of(findings.begin(), findings.end(), [](const CheckFinding& f) { return f.severity == "error"; });
+}
+
+std::vector<CheckFinding> check_recipe(const Recipe& r, const StationCapability& st) {
+  std::vector<CheckFinding> out;
+
+  // Equipment safety first: the receiver's input can be damaged.
+  const double p_rx = worst_case_receiver_dbm(r.source.power_dbm, st);
+  if (p_rx > st.receiver_max_safe_input_dbm) {
+    add(out, "error", "/source/power_dbm",
+        fmt::format("worst-case power at the receiver input is {:.1f} dBm (source {:.1f} dBm, coupling {:.1f} dB, "
+                    "full reflection with directivity leakage in phase, losses ignored), above its maximum safe "
+                    "input of {:.1f} dBm: this could damage the receiver; lower the source power",
+                    p_rx, r.source.power_dbm, st.coupling_db, st.receiver_max_safe_input_dbm));
+  }
+  if (r.source.power_dbm > st.source_max_power_dbm) {
+    add(out, "error", "/source/power_dbm",
+        fmt::format("source power {:.1f} dBm is above the source's maximum {:.1f} dBm", r.source.power_dbm,
+                    st.source_max_power_dbm));
+  }
+
+  // Frequency ranges: the source sets each point; the receiver looks span/2 either side.
+  for (std::size_t i = 0; i < r.segments.size(); ++i) {
+    const Segment& s = r.segments[i];
+    const std::string key = fmt::format("/segments/{}", i);
+    const std::string range = format_frequency_range(s.start_hz, s.stop_hz);
+    if (s.start_hz < st.source_min_hz || s.stop_hz > st.source_max_hz) {
+      add(out, "error", key,
+          fmt::format("segment {} is outside the source's range {}", range,
+                      format_frequency_range(st.source_min_hz, st.source_max_hz)));
+    }
+    const double half = r.receiver.span_hz / 2;
+    if (s.start_hz - half < st.receiver_min_hz || s.stop_hz + half > st.receiver_max_hz) {
+      add(out, "error", key,
+          fmt::format("segment {} (with the {} span around each point) is outside the receiver's range {}", range,
+                      format_frequency(r.receiver.span_hz), format_frequency_range(st.receiver_min_hz, st.receiver_max_hz)));
+    }
+  }
+
+  // Can the station verify the limits?
+  double max_limit = 0;
+  for (const LimitSegment& m : r.limits.mask) max_limit = std::max(max_limit, m.min_return_loss_db);
+  if (r.limits.min_bandwidth_hz) max_limit = std::max(max_limit, r.limits.bandwidth_threshold_db);
+  if (st.directivity_db - max_limit < kDirectivityMarginDb) {
+    add(out, "warning", "/limits/mask",
+        fmt::format("directivity {:.1f} dB is only {:.1f} dB above the highest return-loss limit {:.1f} dB (want "
+                    "at least {:.0f} dB): the uncertainty will be large and many units may be inconclusive",
+                    st.directivity_db, st.directivity_db - max_limit, max_limit, kDirectivityMarginDb));
+  }
+  const double p_ref = expected_reflection_dbm(r.source.power_dbm, st);
+  const double p_dut = p_ref - max_limit;
+  if (p_dut - st.noise_floor_dbm < kNoiseMarginDb) {
+    add(out, "warning", "/source/power_dbm",
+        fmt::format("a unit just at the {:.1f} dB limit reads about {:.1f} dBm, only {:.1f} dB above the noise floor "
+                    "{:.1f} dBm (want at least {:.0f} dB): raise the source power or narrow the RBW",
+                    max_limit, p_dut, p_dut - st.noise_floor_dbm, st.noise_floor_dbm, kNoiseMarginDb));
+  }
+  const double p_load = p_ref - st.directivity_db;
+  if (p_load - st.noise_floor_dbm < kNoiseMarginDb) {
+    add(out, "warning", "/source/power_dbm",
+        fmt::format("the LOAD is expected at about {:.1f} dBm, only {:.1f} dB above the noise floor {:.1f} dBm: the "
+                    "calibrated directivity will be limited by noise and read low",
+                    p_load, p_load - st.noise_floor_dbm, st.noise_floor_dbm));
+  }
+  if (p_ref > r.receiver.reference_level_dbm) {
+    add(out, "warning", "/receiver/reference_level_dbm",
+        fmt::format("OPEN/SHORT are expected at about {:.1f} dBm, above the reference level {:.1f} dBm: readings "
+                    "may be compressed or clipped",
+                    p_ref, r.receiver.reference_level_dbm));
+  }
+
+  // RBW vs span.
+  const ReceiverSettings& rx = r.receiver;
+  if (rx.span_hz > 0 && rx.span_hz < 2 * rx.rbw_hz) {
+    add(out, "warning", "/receiver/span_hz",
+        fmt::format("span {} is narrower than twice the RBW {}: use zero span (0) or a span of several RBW",
+                    format_frequency(rx.span_hz), format_frequency(rx.rbw_hz)));
+  }
+  if (rx.vbw_hz > 0 && rx.vbw_hz > rx.rbw_hz * 10) {
+    add(out, "warning", "/receiver/vbw_hz",
+        fmt::format("VBW {} is more than ten times the RBW {}: it does nothing but may not be accepted",
+                    format_frequency(rx.vbw_hz), format_frequency(rx.rbw_hz)));
+  }
+  if (rx.span_hz > 0) {
+    // Swept analyzer: ST ≈ k·span/RBW², k ≈ 2.5 (Agilent AN 150, REFERENCE.md §6).
+    const double st_point = 2.5 * rx.span_hz / (rx.rbw_hz * rx.rbw_hz) * rx.averages;
+    if (st_point > kSlowPointS) {
+      add(out, "warning", "/receiver/rbw_hz",
+          fmt::format("each point needs about {:.2f} s of sweep (span {}, RBW {}, {} average(s)): widen the RBW or "
+                      "narrow the span",
+                      st_point, format_frequency(rx.span_hz), format_frequency(rx.rbw_hz), rx.averages));
+    }
+  }
+  return out;
+}
+
+}  // namespace echoline::core

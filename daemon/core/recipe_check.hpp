@@ -1,0 +1,49 @@
+// Checks a recipe against what the station can do: equipment safety (receiver maximum safe
+// input), frequency ranges, and whether the station can verify the limits (directivity, noise).
+// Pure; thread-safe.
+#pragma once
+
+#include <string>
+#include <vector>
+
+#include "daemon/core/recipe.hpp"
+
+namespace echoline::core {
+
+struct CheckFinding {
+  std::string severity;  // "error" | "warning"
+  std::string key;       // recipe key path the finding is about, e.g. "/source/power_dbm"
+  std::string message;
+};
+
+// What the station's instruments and fixture can do (from profiles and station config).
+struct StationCapability {
+  double directivity_db = 30;         // effective coupler directivity (nominal or calibrated)
+  double source_match_db = 25;        // effective test-port match
+  double coupling_db = 20;            // coupler coupling factor (source -> test port path to receiver)
+  double mainline_loss_db = 0.5;
+  double cable_loss_db = 0.3;         // one way, test-port cable
+  double noise_floor_dbm = -110;      // receiver displayed noise floor AT THE RECIPE'S RBW
+                                      // (thermal_noise_floor_dbm(rbw, NF) from rf_math.hpp)
+  double receiver_max_safe_input_dbm = 20;
+  double source_min_hz = 0, source_max_hz = 0;
+  double receiver_min_hz = 0, receiver_max_hz = 0;
+  double source_max_power_dbm = 0;
+};
+
+// Findings in recipe order; any "error" means the recipe must not run on this station.
+std::vector<CheckFinding> check_recipe(const Recipe& recipe, const StationCapability& station);
+
+// Worst-case power at the receiver input for a source power (REFERENCE.md §2 model):
+//   P = P_src − coupling + 20·log10(1 + 10^(−D/20))
+// full reflection at the test port, directivity leakage adding in phase, losses ignored
+// (they only lower the level, so ignoring them is the worst case).
+double worst_case_receiver_dbm(double source_power_dbm, const StationCapability& station);
+
+// Expected level of a full reflector (OPEN/SHORT) at the receiver:
+//   P_src − coupling − mainline loss − 2·cable loss.
+double expected_reflection_dbm(double source_power_dbm, const StationCapability& station);
+
+bool has_errors(const std::vector<CheckFinding>& findings);
+
+}  // namespace echoline::core

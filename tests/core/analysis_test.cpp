@@ -1,0 +1,133 @@
+// Calibrated points, resonance, bandwidth and mask margins (daemon/core/analysis.hpp).
+#include "daemon/core/analysis.hpp"
+
+#include <cmath>
+#include <functional>
+#include <limits>
+
+#include <gtest/gtest.h>
+
+#include "daemon/core/rf_math.hpp"
+
+namespace echoline::core {
+namespace {
+
+constexpr double kInf = std::numeric_limits<double>::infinity();
+
+std::vector<PointResult> trace(double start, double step, int n, const std::function<double(double)>& rl,
+                               double directivity_db = 30) {
+  std::vector<PointResult> out;
+  for (int i = 0; i < n; ++i) {
+    PointResult p;
+    p.frequency_hz = start + step * i;
+    p.return_loss_db = rl(p.frequency_hz);
+    ReturnLossBounds b = return_loss_bounds(p.return_loss_db, directivity_db, kInf);
+    p.return_loss_worst_db = b.worst_db;
+    p.return_loss_best_db = b.best_db;
+    out.push_back(p);
+  }
+  return out;
+}
+
+// A parabola through three samples has its vertex found exactly (analytic geometry).
+TEST(Analysis, ResonanceRefinementIsExactOnAParabola) {
+  const double f0 = 914.37e6;
+  auto pts = trace(860e6, 0.55e6, 201, [&](double f) {
+    const double x = (f - f0) / 1e6;
+    return 20.0 - 0.02 * x * x;
+  });
+  auto r = find_resonance(pts);
+  ASSERT_TRUE(r);
+  EXPECT_TRUE(r->refined);
+  EXPECT_FALSE(r->at_edge);
+  EXPECT_NEAR(r->frequency_hz, f0, 1.0);
+  EXPECT_NEAR(r->depth_db, 20.0, 1e-9);
+  EXPECT_NEAR(r->uncertainty_hz, 0.275e6, 1e-3);   // half the point step
+}
+
+// Unequal spacing around the maximum (a joint between segments) still gives the exact vertex.
+TEST(Analysis, ParabolaVertexWithUnequalSpacing) {
+  auto y = [](double x) { return 5.0 - 3.0 * (x - 1.3) * (x - 1.3); };
+  auto v = parabola_vertex(0.5, y(0.5), 1.0, y(1.0), 2.2, y(2.2));
+  ASSERT_TRUE(v);
+  EXPECT_NEAR(v->x, 1.3, 1e-12);
+  EXPECT_NEAR(v->y, 5.0, 1e-12);
+  EXPECT_FALSE(parabola_vertex(0, 1, 1, 1, 2, 1));   // flat: no maximum
+  EXPECT_FALSE(parabola_vertex(0, 2, 1, 1, 2, 2));   // opens upward
+}
+
+TEST(Analysis, ResonanceOnTheSweepEdgeIsNotRefined) {
+  auto pts = trace(860e6, 1e6, 50, [](double f) { return 30.0 - (f - 860e6) / 1e6; });
+  auto r = find_resonance(pts);
+  ASSERT_TRUE(r);
+  EXPECT_TRUE(r->at_edge);
+  EXPECT_FALSE(r->refined);
+  EXPECT_EQ(r->index, 0u);
+  EXPECT_DOUBLE_EQ(r->frequency_hz, 860e6);
+}
+
+// Linear interpolation at both crossings: on a V-shaped (piecewise linear) dip the crossings are
+// exact: RL = 20 − 0.5 dB/MHz·|f − 915 MHz| crosses 10 dB at 895 and 935 MHz.
+TEST(Analysis, BandwidthCrossingsAreInterpolated) {
+  auto pts = trace(860e6, 0.55e6, 201, [](double f) { return 20.0 - 0.5 * std::fabs(f - 915e6) / 1e6; });
+  auto r = find_resonance(pts);
+  ASSERT_TRUE(r);
+  auto band = find_band(pts, r->index, 10.0);
+  ASSERT_TRUE(band);
+  EXPECT_NEAR(band->low_hz, 895e6, 1e-3);
+  EXPECT_NEAR(band->high_hz, 935e6, 1e-3);
+  EXPECT_NEAR(band->width_hz(), 40e6, 1e-3);
+  EXPECT_FALSE(band->low_open);
+  EXPECT_FALSE(band->high_open);
+  // Worst-case trace is narrower, best-case wider.
+  auto worst = find_band(pts, r->index, 10.0, TraceValue::worst);
+  auto best = find_band(pts, r->index, 10.0, TraceValue::best);
+  ASSERT_TRUE(worst && best);
+  EXPECT_LT(worst->width_hz(), band->width_hz());
+  EXPECT_GT(best->width_hz(), band->width_hz());
+  EXPECT_DOUBLE_EQ(crossing_hz(1.0, 12.0, 2.0, 8.0, 10.0), 1.5);
+}
+
+TEST(Analysis, BandReachingTheSweepEdgeIsOpen) {
+  auto pts = trace(900e6, 1e6, 21, [](double f) { return 15.0 - 0.5 * std::fabs(f - 905e6) / 1e6; });
+  auto r = find_resonance(pts);
+  auto band = find_band(pts, r->index, 10.0);
+  ASSERT_TRUE(band);
+  EXPECT_TRUE(band->low_open);
+  EXPECT_DOUBLE_EQ(band->low_hz, 900e6);
+  EXPECT_FALSE(band->high_open);
+  EXPECT_NEAR(band->high_hz, 915e6, 1e-3);
+  EXPECT_FALSE(find_band(pts, r->index, 16.0));   // dip never reaches the threshold
+}
+
+TEST(Analysis, MaskMarginsPerSegment) {
+  auto pts = trace(900e6, 1e6, 31, [](double f) { return 20.0 - 0.5 * std::fabs(f - 915e6) / 1e6; });
+  auto m = mask_margins(pts, {LimitSegment{902e6, 928e6, 10}, LimitSegment{929e6, 930e6, 5}});
+  ASSERT_EQ(m.size(), 2u);
+  EXPECT_EQ(m[0].point_count, 27u);
+  EXPECT_NEAR(m[0].measured_db, 20 - 0.5 * 13 - 10, 1e-9);   // at 902 and 928 MHz
+  EXPECT_LT(m[0].worst_db, m[0].measured_db);
+  EXPECT_GT(m[0].best_db, m[0].measured_db);
+  EXPECT_EQ(m[1].point_count, 2u);
+  EXPECT_NEAR(m[1].measured_db, 20 - 0.5 * 15 - 5, 1e-9);
+  EXPECT_DOUBLE_EQ(m[1].measured_at_hz, 930e6);
+}
+
+// RL = reference − P_dut; a reading above the reference is clamped to 0 dB and counted.
+TEST(Analysis, CalibratePointsUsesReferenceAndDirectivity) {
+  CalibrationRecord cal;
+  cal.reference_dbm = {-31.0, -31.0, -31.0};
+  cal.directivity_db = {30, 30, 40};
+  std::vector<Reading> dut = {{900e6, -51.0}, {901e6, -30.5}, {902e6, -61.0}};
+  CalibratedTrace t = calibrate_points(cal, dut, kInf);
+  ASSERT_EQ(t.points.size(), 3u);
+  EXPECT_NEAR(t.points[0].return_loss_db, 20.0, 1e-12);
+  EXPECT_NEAR(t.points[0].return_loss_worst_db, 17.6134, 1e-4);   // REFERENCE.md §2, D 30, RL 20
+  EXPECT_NEAR(t.points[0].return_loss_best_db, 23.3018, 1e-4);
+  EXPECT_EQ(t.points[1].return_loss_db, 0.0);
+  EXPECT_EQ(t.clamped_points, 1u);
+  EXPECT_NEAR(t.points[2].return_loss_worst_db, 27.6134, 1e-4);   // Hiebel: D 40, RL 30
+}
+
+}  // namespace
+}  // namespace echoline::core

@@ -1,0 +1,216 @@
+// OPEN/SHORT/LOAD calibration: reference, directivity, sanity checks, due, drift
+// (daemon/core/calibration.hpp).
+#include "daemon/core/calibration.hpp"
+
+#include <cmath>
+#include <complex>
+#include <numbers>
+
+#include <gtest/gtest.h>
+
+#include "tests/core/synthetic_bench.hpp"
+
+namespace echoline::core {
+namespace {
+
+using namespace testing_bench;
+
+bool any_contains(const std::vector<std::string>& v, const std::string& needle) {
+  for (const auto& s : v) {
+    if (s.find(needle) != std::string::npos) return true;
+  }
+  return false;
+}
+
+std::string joined(const std::vector<std::string>& v) {
+  std::string s;
+  for (const auto& x : v) s += x + "\n";
+  return s;
+}
+
+// REFERENCE.md §3 check values (E_R = 1, dB average of OPEN and SHORT):
+//   D 30, E_S 0, φ 0°:   OPEN +0.2704, SHORT −0.2791, dB avg −0.0043
+//   D 30, E_S 0, φ 90°:  OPEN +0.0043, SHORT +0.0043, dB avg +0.0043
+//   D ∞, M_S 20, φ 0°:   OPEN +0.9151, SHORT −0.8279, dB avg +0.0436
+//   D 30, M_S 20, φ 0°:  OPEN +1.1589, SHORT −1.1354, dB avg +0.0118
+// Fed to build_calibration as raw traces around 0 dBm; the reference must be the dB average.
+TEST(Calibration, OpenShortAveragingMatchesReferenceCheckValues) {
+  struct Case { double d_db, ms_db, phi_deg, open_db, short_db, avg_db; };
+  const Case cases[] = {{30, 1e9, 0, 0.2704, -0.2791, -0.0043},
+                        {30, 1e9, 90, 0.0043, 0.0043, 0.0043},
+                        {1e9, 20, 0, 0.9151, -0.8279, 0.0436},
+                        {30, 20, 0, 1.1589, -1.1354, 0.0118}};
+  Recipe r = whip_recipe();
+  r.segments = {Segment{900e6, 903e6, 4}};
+  r.limits.mask = {LimitSegment{900e6, 903e6, 10}};
+  r.limits.resonance_min_hz.reset();
+  r.limits.resonance_max_hz.reset();
+  r.source.power_dbm = 20 + 0.5 + 0.6;   // expected full reflection = 0 dBm on the station below
+  std::map<std::string, std::vector<Reading>> traces;
+  const auto plan = plan_frequencies(r);
+  for (std::size_t i = 0; i < 4; ++i) {
+    const Case& c = cases[i];
+    const std::complex<double> ed = std::polar(std::pow(10.0, -c.d_db / 20), c.phi_deg * std::numbers::pi / 180);
+    const double es = std::pow(10.0, -c.ms_db / 20);
+    const double open = 20 * std::log10(std::abs(ed + 1.0 / (1.0 - es)));
+    const double shrt = 20 * std::log10(std::abs(ed - 1.0 / (1.0 + es)));
+    EXPECT_NEAR(open, c.open_db, 0.0001);   // the model reproduces the table
+    EXPECT_NEAR(shrt, c.short_db, 0.0001);
+    traces["OPEN"].push_back({plan[i], open});
+    traces["SHORT"].push_back({plan[i], shrt});
+    traces["LOAD"].push_back({plan[i], -40});
+  }
+  CalibrationRecord cal = build_calibration(r, traces, station(), "c", "t");
+  ASSERT_TRUE(cal.valid) << joined(cal.errors);
+  for (std::size_t i = 0; i < 4; ++i) {
+    EXPECT_NEAR(cal.reference_dbm[i], cases[i].avg_db, 0.0001) << "case " << i;
+    EXPECT_NEAR(cal.directivity_db[i], cases[i].avg_db + 40, 0.0001);
+  }
+  EXPECT_NEAR(cal.min_directivity_db, -0.0043 + 40, 0.0001);
+}
+
+// A clean synthetic bench (D 35 dB, LOAD 45 dB) calibrates without remarks and reports the
+// coupler's directivity within the ±(error) the LOAD's own reflection allows.
+TEST(Calibration, CleanBenchIsValid) {
+  Recipe r = whip_recipe();
+  CalibrationRecord cal = calibrate(r);
+  EXPECT_TRUE(cal.valid) << joined(cal.errors);
+  EXPECT_TRUE(cal.errors.empty());
+  EXPECT_TRUE(cal.warnings.empty()) << joined(cal.warnings);
+  ASSERT_EQ(cal.reference_dbm.size(), 201u);
+  EXPECT_GT(cal.min_directivity_db, 30);
+  EXPECT_LT(cal.min_directivity_db, 36);
+  EXPECT_TRUE(std::isfinite(cal.noise_margin_db));
+  EXPECT_GT(cal.noise_margin_db, 30);
+  EXPECT_EQ(cal.recipe.content_hash, "feed");
+  EXPECT_EQ(cal.max_units, r.calibration.max_units);
+}
+
+// A LOAD connected where the OPEN belongs reads ~35 dB low: the level check names the standard
+// and a frequency, and the spread check catches it too.
+TEST(Calibration, LoadConnectedAsOpenIsCaught) {
+  Recipe r = whip_recipe();
+  auto traces = standards(r, Bench{});
+  traces["OPEN"] = traces["LOAD"];
+  CalibrationRecord cal = build_calibration(r, traces, station(), "c", "t");
+  EXPECT_FALSE(cal.valid);
+  EXPECT_TRUE(any_contains(cal.errors, "OPEN reads")) << joined(cal.errors);
+  EXPECT_TRUE(any_contains(cal.errors, "MHz"));
+  EXPECT_TRUE(any_contains(cal.errors, "LOAD connected instead"));
+  EXPECT_TRUE(any_contains(cal.errors, "OPEN and SHORT differ"));
+}
+
+// A missing cable (no signal) makes every standard read far below the expected level.
+TEST(Calibration, MissingCableIsCaughtByTheLevelCheck) {
+  Recipe r = whip_recipe();
+  Bench b;
+  b.level_dbm = kReflectionDbm - 40;
+  CalibrationRecord cal = build_calibration(r, standards(r, b), station(), "c", "t");
+  EXPECT_FALSE(cal.valid);
+  EXPECT_TRUE(any_contains(cal.errors, "OPEN reads")) << joined(cal.errors);
+  EXPECT_TRUE(any_contains(cal.errors, "SHORT reads"));
+}
+
+// The LOAD is the directivity: a shallow LOAD (bad standard, or an OPEN on the LOAD port)
+// below 20 dB makes the calibration invalid.
+TEST(Calibration, ShallowLoadIsNotValid) {
+  Recipe r = whip_recipe();
+  auto traces = standards(r, Bench{});
+  for (auto& rd : traces["LOAD"]) rd.raw_dbm = kReflectionDbm - 14;
+  CalibrationRecord cal = build_calibration(r, traces, station(), "c", "t");
+  EXPECT_FALSE(cal.valid);
+  EXPECT_TRUE(any_contains(cal.errors, "directivity under 20 dB")) << joined(cal.errors);
+  EXPECT_TRUE(any_contains(cal.errors, "the LOAD is only")) << joined(cal.errors);
+  EXPECT_TRUE(any_contains(cal.errors, " MHz (directivity under"));
+}
+
+TEST(Calibration, LoadNearTheNoiseFloorIsAWarning) {
+  Recipe r = whip_recipe();
+  auto traces = standards(r, Bench{});
+  StationCapability st = station();
+  st.noise_floor_dbm = traces["LOAD"][100].raw_dbm - 3;
+  CalibrationRecord cal = build_calibration(r, traces, st, "c", "t");
+  EXPECT_TRUE(cal.valid) << joined(cal.errors);
+  EXPECT_TRUE(any_contains(cal.warnings, "noise floor")) << joined(cal.warnings);
+}
+
+TEST(Calibration, OpenOnlyWarnsAboutRipple) {
+  Recipe r = whip_recipe();
+  r.calibration.use_short = false;
+  auto traces = standards(r, Bench{});
+  traces.erase("SHORT");
+  CalibrationRecord cal = build_calibration(r, traces, station(), "c", "t");
+  EXPECT_TRUE(cal.valid) << joined(cal.errors);
+  EXPECT_TRUE(any_contains(cal.warnings, "OPEN alone")) << joined(cal.warnings);
+  EXPECT_DOUBLE_EQ(cal.reference_dbm[7], traces["OPEN"][7].raw_dbm);
+}
+
+TEST(Calibration, MissingOrMisalignedTracesAreNotValid) {
+  Recipe r = whip_recipe();
+  auto traces = standards(r, Bench{});
+  traces.erase("SHORT");
+  CalibrationRecord cal = build_calibration(r, traces, station(), "c", "t");
+  EXPECT_FALSE(cal.valid);
+  EXPECT_TRUE(any_contains(cal.errors, "SHORT standard was not measured"));
+
+  traces = standards(r, Bench{});
+  traces["LOAD"].pop_back();
+  cal = build_calibration(r, traces, station(), "c", "t");
+  EXPECT_FALSE(cal.valid);
+  EXPECT_TRUE(any_contains(cal.errors, "LOAD trace has 200 readings but the plan has 201")) << joined(cal.errors);
+}
+
+TEST(CalibrationDue, ReasonsInOrder) {
+  Recipe r = whip_recipe();
+  EXPECT_TRUE(calibration_due(nullptr, r, 1000, 0, std::nullopt).due);
+  CalibrationRecord cal = calibrate(r);
+  cal.temperature_c = 22.0;
+  const double t0 = 1.8e9;
+  CalibrationState s = calibration_due(&cal, r, t0 + 3600, t0, 23.0);
+  EXPECT_FALSE(s.due) << s.reason;
+
+  s = calibration_due(&cal, r, t0 + 9 * 3600, t0, 23.0);
+  EXPECT_TRUE(s.due);
+  EXPECT_NE(s.reason.find("9.0 h old"), std::string::npos) << s.reason;
+
+  cal.units_since = 500;
+  s = calibration_due(&cal, r, t0 + 60, t0, 22.0);
+  EXPECT_TRUE(s.due);
+  EXPECT_NE(s.reason.find("500 units"), std::string::npos) << s.reason;
+  cal.units_since = 0;
+
+  s = calibration_due(&cal, r, t0 + 60, t0, 28.5);
+  EXPECT_TRUE(s.due);
+  EXPECT_NE(s.reason.find("temperature changed by 6.5"), std::string::npos) << s.reason;
+  EXPECT_FALSE(calibration_due(&cal, r, t0 + 60, t0, std::nullopt).due);   // unknown: not a reason
+
+  Recipe other = r;
+  other.content_hash = "beef";
+  s = calibration_due(&cal, other, t0 + 60, t0, 22.0);
+  EXPECT_TRUE(s.due);
+  EXPECT_NE(s.reason.find("recipe"), std::string::npos);
+
+  cal.valid = false;
+  EXPECT_TRUE(calibration_due(&cal, r, t0 + 60, t0, 22.0).due);
+}
+
+TEST(CheckStandard, DriftBeyondTheLimitIsReported) {
+  Recipe r = whip_recipe();
+  CalibrationRecord cal = calibrate(r);
+  std::vector<Reading> again = cal.traces.at("OPEN");
+  for (auto& rd : again) rd.raw_dbm += 0.4;
+  std::string why = "stale";
+  EXPECT_FALSE(check_standard_drifted(cal, "OPEN", again, 1.0, &why));
+  EXPECT_TRUE(why.empty());
+  again[100].raw_dbm += 1.1;   // 1.5 dB at 915 MHz
+  EXPECT_TRUE(check_standard_drifted(cal, "OPEN", again, 1.0, &why));
+  EXPECT_NE(why.find("OPEN"), std::string::npos) << why;
+  EXPECT_NE(why.find("915.0 MHz"), std::string::npos) << why;
+  EXPECT_NE(why.find("1.50 dB"), std::string::npos) << why;
+  again.pop_back();
+  EXPECT_TRUE(check_standard_drifted(cal, "OPEN", again, 1.0, &why));
+  EXPECT_TRUE(check_standard_drifted(cal, "THRU", cal.traces.at("OPEN"), 1.0, nullptr));
+}
+
+}  // namespace
+}  // namespace echoline::core

@@ -1,0 +1,172 @@
+// Raw readings to verdict, failure class, reason and trim advice on synthetic traces
+// (daemon/core/judge.hpp). Traces come from the one-port model with a series-RLC antenna
+// (REFERENCE.md §2, §5); expected classes follow from where the dip lies.
+#include "daemon/core/judge.hpp"
+
+#include <cmath>
+
+#include <gtest/gtest.h>
+
+#include "daemon/core/rf_math.hpp"
+#include "tests/core/synthetic_bench.hpp"
+
+namespace echoline::core {
+namespace {
+
+using namespace testing_bench;
+
+Judgement judge_antenna(const Recipe& r, double f0, double q, double r_ohm) {
+  CalibrationRecord cal = calibrate(r);
+  EXPECT_TRUE(cal.valid);
+  auto dut = measure(r, Bench{}, [&](double f) { return antenna(f, f0, q, r_ohm); });
+  return judge(r, cal, dut, 30);
+}
+
+bool has(const std::string& s, const std::string& needle) { return s.find(needle) != std::string::npos; }
+
+TEST(Judge, WellTunedWhipPasses) {
+  Judgement j = judge_antenna(whip_recipe(), 915e6, 10, 60);
+  EXPECT_EQ(j.verdict, Verdict::pass) << j.reason;
+  EXPECT_EQ(j.failure_class, FailureClass::none);
+  ASSERT_TRUE(j.metrics.resonance_hz);
+  EXPECT_NEAR(*j.metrics.resonance_hz, 915e6, 1e6);
+  // The true return loss of every point lies inside its [worst, best] interval (the bounds are
+  // the worst case of the one-port model, REFERENCE.md §2; 0.05 dB for second-order residuals of
+  // the OPEN/SHORT reference, REFERENCE.md §3).
+  for (const PointResult& p : j.points) {
+    const double truth = return_loss_from_gamma(std::abs(antenna(p.frequency_hz, 915e6, 10, 60)));
+    EXPECT_GE(truth, p.return_loss_worst_db - 0.05) << p.frequency_hz;
+    EXPECT_LE(truth, p.return_loss_best_db + 0.05) << p.frequency_hz;
+  }
+  // Series RLC with R = 60 Ω: |Γ| = 10/110 at f0 -> RL 20.83 dB, within the bounds there.
+  EXPECT_GT(j.metrics.depth_db, 19.0);
+  ASSERT_TRUE(j.metrics.bandwidth_hz);
+  EXPECT_GT(*j.metrics.bandwidth_hz, 26e6);
+  EXPECT_GT(j.metrics.min_margin_db, 0);
+  EXPECT_NEAR(j.metrics.vswr_at_resonance, vswr_from_return_loss(j.metrics.depth_db), 1e-12);
+  EXPECT_FALSE(j.trim);
+  EXPECT_EQ(j.points.size(), 201u);
+  EXPECT_TRUE(has(j.reason, "resonance at 91")) << j.reason;
+}
+
+TEST(Judge, LongElementIsTunedLowWithCutAdvice) {
+  Judgement j = judge_antenna(whip_recipe(), 880e6, 10, 60);
+  EXPECT_EQ(j.verdict, Verdict::fail);
+  EXPECT_EQ(j.failure_class, FailureClass::tuned_low);
+  EXPECT_TRUE(has(j.reason, "is below the 905\u2013925 MHz window (element too long)")) << j.reason;
+  EXPECT_NEAR(*j.metrics.resonance_hz, 880e6, 1.5e6);
+  ASSERT_TRUE(j.trim);
+  EXPECT_LT(j.trim->change_mm, 0);
+  EXPECT_NEAR(j.trim->change_mm, 78.0 * (*j.metrics.resonance_hz / 915e6 - 1), 1e-9);
+  EXPECT_TRUE(has(j.trim->text, "cut ")) << j.trim->text;
+}
+
+TEST(Judge, ShortElementIsTunedHigh) {
+  Judgement j = judge_antenna(whip_recipe(), 950e6, 10, 60);
+  EXPECT_EQ(j.verdict, Verdict::fail);
+  EXPECT_EQ(j.failure_class, FailureClass::tuned_high);
+  EXPECT_TRUE(has(j.reason, "above the 905\u2013925 MHz window (element too short)")) << j.reason;
+  ASSERT_TRUE(j.trim);
+  EXPECT_GT(j.trim->change_mm, 0);
+  EXPECT_TRUE(has(j.trim->text, "too short")) << j.trim->text;
+}
+
+// R = 200 Ω: |Γ| = 150/250 at f0 -> RL 4.4 dB: a dip in the window, not deep enough.
+TEST(Judge, PoorMatchIsShallow) {
+  Judgement j = judge_antenna(whip_recipe(), 915e6, 10, 200);
+  EXPECT_EQ(j.verdict, Verdict::fail);
+  EXPECT_EQ(j.failure_class, FailureClass::shallow) << j.reason;
+  EXPECT_TRUE(has(j.reason, "reaches only")) << j.reason;
+  EXPECT_FALSE(j.trim);
+}
+
+// An open feed reflects everything: no dip anywhere.
+TEST(Judge, OpenFeedIsNoResponse) {
+  Recipe r = whip_recipe();
+  CalibrationRecord cal = calibrate(r);
+  auto dut = measure(r, Bench{}, [](double) { return cd(0.98, 0.05); });
+  Judgement j = judge(r, cal, dut, 30);
+  EXPECT_EQ(j.verdict, Verdict::fail);
+  EXPECT_EQ(j.failure_class, FailureClass::no_response);
+  EXPECT_TRUE(has(j.reason, "no dip anywhere: feed broken or element not connected")) << j.reason;
+}
+
+// High Q: deep but narrow dip at the right frequency; the band edges miss the mask.
+TEST(Judge, NarrowDipIsOutOfMask) {
+  Judgement j = judge_antenna(whip_recipe(), 915e6, 60, 55);
+  EXPECT_EQ(j.verdict, Verdict::fail);
+  EXPECT_EQ(j.failure_class, FailureClass::out_of_mask) << j.reason;
+  EXPECT_TRUE(has(j.reason, "is below the 10 dB limit over 902\u2013928 MHz")) << j.reason;
+}
+
+// A trace at 10.2 dB on the mask's edge points (902.35 and 927.65 MHz) with ~35 dB directivity
+// (error about ±0.5 dB at a 25 dB margin): its interval straddles the
+// 10 dB limit -> inconclusive under guarded acceptance, pass under simple (JCGM 106 §8.2/§8.3.2).
+TEST(Judge, StraddlingTheLimitIsInconclusiveGuardedAndPassSimple) {
+  for (DecisionRule rule : {DecisionRule::guarded, DecisionRule::simple}) {
+    Recipe r = whip_recipe(rule);
+    CalibrationRecord cal = calibrate(r);
+    auto dut = readings_for(r, cal, [](double f) {
+      const double x = (f - 915e6) / 12.65e6;
+      return std::max(0.5, 20.2 - 10 * x * x);
+    });
+    Judgement j = judge(r, cal, dut, 30);
+    if (rule == DecisionRule::guarded) {
+      EXPECT_EQ(j.verdict, Verdict::inconclusive) << j.reason;
+      EXPECT_TRUE(has(j.reason, "within the measurement uncertainty of the 10 dB limit")) << j.reason;
+      EXPECT_TRUE(has(j.reason, "Retest")) << j.reason;
+    } else {
+      EXPECT_EQ(j.verdict, Verdict::pass) << j.reason;
+    }
+    EXPECT_EQ(j.failure_class, FailureClass::none);
+  }
+}
+
+// Readings that do not belong to the calibration never give a verdict other than aborted.
+TEST(Judge, MismatchedReadingsOrInvalidCalibrationAbort) {
+  Recipe r = whip_recipe();
+  CalibrationRecord cal = calibrate(r);
+  auto dut = measure(r, Bench{}, [](double f) { return antenna(f, 915e6, 10, 60); });
+  auto short_dut = dut;
+  short_dut.pop_back();
+  Judgement j = judge(r, cal, short_dut, 30);
+  EXPECT_EQ(j.verdict, Verdict::aborted);
+  EXPECT_TRUE(has(j.reason, "200 readings but the calibration has 201")) << j.reason;
+
+  auto shifted = dut;
+  shifted[3].frequency_hz += 1e5;
+  EXPECT_EQ(judge(r, cal, shifted, 30).verdict, Verdict::aborted);
+
+  auto nan = dut;
+  nan[5].raw_dbm = std::nan("");
+  EXPECT_EQ(judge(r, cal, nan, 30).verdict, Verdict::aborted);
+
+  cal.valid = false;
+  EXPECT_EQ(judge(r, cal, dut, 30).verdict, Verdict::aborted);
+}
+
+// Min bandwidth under guarded: a dip whose measured bandwidth clears the minimum but whose
+// worst-case bandwidth does not is inconclusive; a clearly narrow one fails (out-of-mask).
+TEST(Judge, MinimumBandwidthIsDecided) {
+  Recipe r = whip_recipe();
+  r.limits.mask = {LimitSegment{910e6, 920e6, 10}};
+  r.limits.min_bandwidth_hz = 60e6;
+  CalibrationRecord cal = calibrate(r);
+  auto v_dip = [](double f) { return std::max(0.5, 20.0 - 0.5 * std::fabs(f - 915e6) / 1e6); };
+  // RL >= 9.5424 over 915 ± 20.9 MHz: about 41.8 MHz, below 60 MHz.
+  Judgement j = judge(r, cal, readings_for(r, cal, v_dip), 30);
+  EXPECT_EQ(j.verdict, Verdict::fail) << j.reason;
+  EXPECT_EQ(j.failure_class, FailureClass::out_of_mask);
+  EXPECT_TRUE(has(j.reason, "below the 60.00 MHz minimum")) << j.reason;
+  ASSERT_TRUE(j.metrics.bandwidth_hz);
+  EXPECT_NEAR(*j.metrics.bandwidth_hz, 2 * (20.0 - 9.5424) / 0.5 * 1e6, 1e3);
+
+  r.limits.min_bandwidth_hz = 41e6;   // measured 41.8 MHz clears it, the worst case does not
+  Judgement k = judge(r, cal, readings_for(r, cal, v_dip), 30);
+  EXPECT_EQ(k.verdict, Verdict::inconclusive) << k.reason;
+  r.rule = DecisionRule::simple;
+  EXPECT_EQ(judge(r, cal, readings_for(r, cal, v_dip), 30).verdict, Verdict::pass);
+}
+
+}  // namespace
+}  // namespace echoline::core

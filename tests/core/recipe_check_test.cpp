@@ -1,0 +1,101 @@
+// Recipe against station capability (daemon/core/recipe_check.hpp).
+#include "daemon/core/recipe_check.hpp"
+
+#include <cmath>
+
+#include <gtest/gtest.h>
+
+#include "tests/core/synthetic_bench.hpp"
+
+namespace echoline::core {
+namespace {
+
+using namespace testing_bench;
+
+const CheckFinding* find(const std::vector<CheckFinding>& f, const std::string& severity, const std::string& part) {
+  for (const auto& x : f) {
+    if (x.severity == severity && x.message.find(part) != std::string::npos) return &x;
+  }
+  return nullptr;
+}
+
+std::string dump(const std::vector<CheckFinding>& f) {
+  std::string s;
+  for (const auto& x : f) s += x.severity + " " + x.key + ": " + x.message + "\n";
+  return s;
+}
+
+TEST(RecipeCheck, WhipRecipeIsCleanOnAGoodStation) {
+  auto f = check_recipe(whip_recipe(), station());
+  EXPECT_TRUE(f.empty()) << dump(f);
+  EXPECT_FALSE(has_errors(f));
+}
+
+// Worst case at the receiver: P_src − coupling + 20·log10(1 + 10^(−D/20)). With D = 30 dB the
+// in-phase term is +0.2704 dB, the same number as REFERENCE.md §3's OPEN ripple at D = 30 dB.
+TEST(RecipeCheck, WorstCaseReceiverPower) {
+  StationCapability st = station();
+  st.directivity_db = 30;
+  st.coupling_db = 10;
+  EXPECT_NEAR(worst_case_receiver_dbm(20, st), 10.2704, 0.0001);
+  EXPECT_NEAR(expected_reflection_dbm(-10, station()), -31.1, 1e-12);
+}
+
+// SAFETY: a recipe that could put more than the receiver's maximum safe input on it is an error.
+TEST(RecipeCheck, UnsafeReceiverPowerIsAnError) {
+  Recipe r = whip_recipe();
+  r.source.power_dbm = 13;
+  StationCapability st = station();
+  st.coupling_db = 6;
+  st.receiver_max_safe_input_dbm = 5;
+  auto f = check_recipe(r, st);
+  const CheckFinding* e = find(f, "error", "could damage the receiver");
+  ASSERT_TRUE(e) << dump(f);
+  EXPECT_EQ(e->key, "/source/power_dbm");
+  EXPECT_TRUE(has_errors(f));
+}
+
+TEST(RecipeCheck, BandsOutsideInstrumentRangesAreErrors) {
+  StationCapability st = station();
+  st.source_max_hz = 900e6;
+  st.receiver_min_hz = 880e6;
+  auto f = check_recipe(whip_recipe(), st);
+  EXPECT_TRUE(find(f, "error", "outside the source's range")) << dump(f);
+  EXPECT_TRUE(find(f, "error", "outside the receiver's range")) << dump(f);
+  Recipe r = whip_recipe();
+  r.source.power_dbm = 20;
+  EXPECT_TRUE(find(check_recipe(r, station()), "error", "above the source's maximum"));
+}
+
+// REFERENCE.md §2 rule of thumb (common practice): directivity >= highest RL limit + 10 dB.
+TEST(RecipeCheck, LowDirectivityMarginIsAWarning) {
+  StationCapability st = station();
+  st.directivity_db = 19.9;   // limit 10 dB: margin 9.9 dB
+  auto f = check_recipe(whip_recipe(), st);
+  const CheckFinding* w = find(f, "warning", "directivity 19.9 dB");
+  ASSERT_TRUE(w) << dump(f);
+  EXPECT_FALSE(has_errors(f));
+  st.directivity_db = 20.0;
+  EXPECT_FALSE(find(check_recipe(whip_recipe(), st), "warning", "directivity"));
+}
+
+TEST(RecipeCheck, NoiseFloorTooHighIsAWarning) {
+  StationCapability st = station();
+  st.noise_floor_dbm = -45;   // unit at the limit reads −41.1 dBm
+  auto f = check_recipe(whip_recipe(), st);
+  EXPECT_TRUE(find(f, "warning", "above the noise floor")) << dump(f);
+}
+
+TEST(RecipeCheck, SpanNarrowerThanRbwAndSlowSweepsAreWarnings) {
+  Recipe r = whip_recipe();
+  r.receiver.rbw_hz = 100e3;
+  r.receiver.span_hz = 150e3;
+  EXPECT_TRUE(find(check_recipe(r, station()), "warning", "narrower than twice the RBW"));
+  r.receiver.rbw_hz = 1e3;
+  r.receiver.span_hz = 1e6;   // 2.5·1e6/1e6 = 2.5 s per point (AN 150, k = 2.5)
+  const auto f = check_recipe(r, station());
+  EXPECT_TRUE(find(f, "warning", "2.50 s of sweep")) << dump(f);
+}
+
+}  // namespace
+}  // namespace echoline::core

@@ -1,0 +1,219 @@
+// Recipe files: the shipped recipes load, and each kind of mistake gives its own ConfigError
+// naming the file, the line and the key path (daemon/core/recipe_loader.hpp).
+#include "daemon/core/recipe_loader.hpp"
+
+#include <string>
+
+#include <gtest/gtest.h>
+
+#include "daemon/core/sha256.hpp"
+#include "drivers/config_error.hpp"
+
+namespace echoline::core {
+namespace {
+
+const std::string kBase = R"({
+  "name": "t",
+  "version": "1",
+  "segments": [
+    { "start_hz": "860 MHz", "stop_hz": "970 MHz", "points": 201 }
+  ],
+  "source": { "power_dbm": -10 },
+  "receiver": { "rbw_hz": "10 kHz", "span_hz": "100 kHz", "averages": 1 },
+  "rule": "guarded",
+  "limits": {
+    "mask": [
+      { "start_hz": "902 MHz", "stop_hz": "928 MHz", "min_return_loss_db": 10 }
+    ],
+    "resonance_min_hz": "905 MHz",
+    "resonance_max_hz": "925 MHz"
+  }
+})";
+
+std::string replace(std::string text, const std::string& from, const std::string& to) {
+  auto at = text.find(from);
+  EXPECT_NE(at, std::string::npos) << from;
+  if (at != std::string::npos) text.replace(at, from.size(), to);
+  return text;
+}
+
+int line_of(const std::string& text, const std::string& needle) {
+  auto at = text.find(needle);
+  EXPECT_NE(at, std::string::npos) << needle;
+  int line = 1;
+  for (std::size_t i = 0; i < at && i < text.size(); ++i) line += text[i] == '\n';
+  return line;
+}
+
+struct Expect {
+  std::string key;
+  std::string line_marker;   // text on the line the error must point at
+  std::string message_part;
+};
+
+void expect_error(const std::string& text, const Expect& e) {
+  try {
+    parse_recipe(text, "bad.jsonc");
+    ADD_FAILURE() << "no error for: " << e.message_part;
+  } catch (const drivers::ConfigError& err) {
+    EXPECT_EQ(err.file, "bad.jsonc");
+    EXPECT_EQ(err.key, e.key) << err.what();
+    EXPECT_EQ(err.line, line_of(text, e.line_marker)) << err.what();
+    EXPECT_NE(std::string(err.what()).find(e.message_part), std::string::npos) << err.what();
+    // what() reads "<file>:<line>: <key>: <message>".
+    EXPECT_EQ(std::string(err.what()).rfind("bad.jsonc:" + std::to_string(err.line) + ": " + err.key + ": ", 0), 0u)
+        << err.what();
+  }
+}
+
+TEST(RecipeLoader, BaseRecipeLoads) {
+  Recipe r = parse_recipe(kBase, "ok.jsonc");
+  EXPECT_EQ(r.name, "t");
+  ASSERT_EQ(r.segments.size(), 1u);
+  EXPECT_DOUBLE_EQ(r.segments[0].start_hz, 860e6);
+  EXPECT_EQ(r.segments[0].points, 201);
+  EXPECT_EQ(r.rule, DecisionRule::guarded);
+  EXPECT_DOUBLE_EQ(*r.limits.resonance_min_hz, 905e6);
+  EXPECT_EQ(r.content_hash, sha256_hex(kBase));
+  EXPECT_EQ(r.source_path, "ok.jsonc");
+}
+
+TEST(RecipeLoader, ShippedRecipesLoad) {
+  Recipe w = load_recipe(std::string(ECHOLINE_SOURCE_DIR) + "/config/recipes/whip915.jsonc");
+  EXPECT_EQ(w.name, "whip915");
+  EXPECT_EQ(plan_frequencies(w).size(), 201u);
+  EXPECT_DOUBLE_EQ(w.limits.mask.at(0).start_hz, 902e6);
+  EXPECT_EQ(w.rule, DecisionRule::guarded);
+  ASSERT_TRUE(w.trim);
+  EXPECT_DOUBLE_EQ(w.trim->target_hz, 915e6);
+  EXPECT_EQ(w.content_hash.size(), 64u);
+
+  Recipe g = load_recipe(std::string(ECHOLINE_SOURCE_DIR) + "/config/recipes/ism2g4.jsonc");
+  EXPECT_EQ(g.segments.at(0).points, 601);   // 2.3–2.6 GHz every 500 kHz
+  EXPECT_DOUBLE_EQ(g.limits.mask.at(0).stop_hz, 2.4835e9);
+  EXPECT_DOUBLE_EQ(g.receiver.attenuation_db, -1);   // "auto"
+}
+
+TEST(RecipeLoader, StepHzGivesThePointCount) {
+  Recipe r = parse_recipe(replace(kBase, R"("points": 201)", R"("step_hz": "0.55 MHz")"), "s.jsonc");
+  EXPECT_EQ(r.segments[0].points, 201);
+}
+
+TEST(RecipeLoader, MissingFileNamesTheFile) {
+  try {
+    load_recipe("/nonexistent/recipe.jsonc");
+    ADD_FAILURE();
+  } catch (const drivers::ConfigError& e) {
+    EXPECT_EQ(e.file, "/nonexistent/recipe.jsonc");
+  }
+}
+
+TEST(RecipeLoader, UnknownKeyListsAllowedKeys) {
+  expect_error(replace(kBase, R"("rule": "guarded",)", R"("rule": "guarded", "ruel": 1,)"),
+               {"/ruel", "\"ruel\"", "allowed keys: name, version"});
+  expect_error(replace(kBase, R"("averages": 1)", R"("averages": 1, "rbw_hzz": 3)"),
+               {"/receiver/rbw_hzz", "\"rbw_hzz\": 3", "did you mean \"rbw_hz\""});
+}
+
+TEST(RecipeLoader, WrongTypeIsNamed) {
+  expect_error(replace(kBase, R"("power_dbm": -10)", R"("power_dbm": "-10")"),
+               {"/source/power_dbm", "power_dbm", "expected a number in dBm"});
+  expect_error(replace(kBase, R"("points": 201)", R"("points": 20.5)"), {"/segments/0/points", "points", "whole number"});
+  expect_error(replace(kBase, R"("stop_hz": "970 MHz")", R"("stop_hz": true)"),
+               {"/segments/0/stop_hz", "\"stop_hz\": true", "expected a frequency"});
+}
+
+TEST(RecipeLoader, BadFrequencyTextIsNamed) {
+  expect_error(replace(kBase, R"("860 MHz")", R"("860 MHzz")"),
+               {"/segments/0/start_hz", "860 MHzz", "unknown unit"});
+}
+
+TEST(RecipeLoader, StopBelowStart) {
+  expect_error(replace(kBase, R"("stop_hz": "970 MHz")", R"("stop_hz": "850 MHz")"),
+               {"/segments/0/stop_hz", "850 MHz", "stop 850 MHz is below start 860 MHz"});
+}
+
+TEST(RecipeLoader, PointsMustBePositive) {
+  expect_error(replace(kBase, R"("points": 201)", R"("points": 0)"), {"/segments/0/points", "\"points\": 0", "must be 1 or more"});
+  expect_error(replace(kBase, R"("points": 201)", R"("points": -5)"), {"/segments/0/points", "\"points\": -5", "must be 1 or more"});
+}
+
+TEST(RecipeLoader, PointsAndStepBothOrNeither) {
+  expect_error(replace(kBase, R"("points": 201)", R"("points": 201, "step_hz": "1 MHz")"),
+               {"/segments/0", "\"points\": 201", "not both"});
+  expect_error(replace(kBase, R"(, "points": 201)", ""), {"/segments/0", "\"start_hz\": \"860 MHz\"", "neither is given"});
+  expect_error(replace(kBase, R"("points": 201)", R"("step_hz": "0.7 MHz")"),
+               {"/segments/0/step_hz", "0.7 MHz", "does not divide"});
+}
+
+TEST(RecipeLoader, OverlappingSegments) {
+  expect_error(replace(kBase, R"("points": 201 }
+  ],)", R"("points": 201 },
+    { "start_hz": "950 MHz", "stop_hz": "1000 MHz", "points": 11 }
+  ],)"),
+               {"/segments/1/start_hz", "950 MHz", "overlaps"});
+}
+
+TEST(RecipeLoader, MaskProblems) {
+  // Overlapping mask segments.
+  expect_error(replace(kBase, R"("min_return_loss_db": 10 }
+    ],)", R"("min_return_loss_db": 10 },
+      { "start_hz": "920 MHz", "stop_hz": "940 MHz", "min_return_loss_db": 6 }
+    ],)"),
+               {"/limits/mask/1/start_hz", "920 MHz", "overlaps"});
+  // Outside the sweep.
+  expect_error(replace(kBase, R"("stop_hz": "928 MHz")", R"("stop_hz": "990 MHz")"),
+               {"/limits/mask/0", "990 MHz", "reaches outside the sweep 860\u2013970 MHz"});
+  // Empty segment.
+  expect_error(replace(kBase, R"("stop_hz": "928 MHz")", R"("stop_hz": "902 MHz")"),
+               {"/limits/mask/0/stop_hz", "\"stop_hz\": \"902 MHz\"", "must be above start"});
+  // Limit out of range.
+  expect_error(replace(kBase, R"("min_return_loss_db": 10)", R"("min_return_loss_db": -3)"),
+               {"/limits/mask/0/min_return_loss_db", "-3", "out of range"});
+  // No sweep point inside a narrow segment between two points (0.55 MHz grid).
+  expect_error(replace(kBase, R"("start_hz": "902 MHz", "stop_hz": "928 MHz")",
+                       R"("start_hz": "900.2 MHz", "stop_hz": "900.3 MHz")"),
+               {"/limits/mask/0", "900.2 MHz", "no sweep point falls inside"});
+  expect_error(replace(kBase, R"("mask": [
+      { "start_hz": "902 MHz", "stop_hz": "928 MHz", "min_return_loss_db": 10 }
+    ],)", R"("mask": [],)"),
+               {"/limits/mask", "\"mask\"", "at least one segment"});
+}
+
+TEST(RecipeLoader, ResonanceWindowOutsideTheSweep) {
+  expect_error(replace(kBase, R"("resonance_max_hz": "925 MHz")", R"("resonance_max_hz": "975 MHz")"),
+               {"/limits/resonance_max_hz", "975 MHz", "must lie inside the sweep"});
+  expect_error(replace(kBase, R"(,
+    "resonance_max_hz": "925 MHz")", ""),
+               {"/limits/resonance_min_hz", "905 MHz", "both"});
+}
+
+TEST(RecipeLoader, AveragesBelowOne) {
+  expect_error(replace(kBase, R"("averages": 1)", R"("averages": 0)"), {"/receiver/averages", "\"averages\": 0", "must be 1 to"});
+}
+
+TEST(RecipeLoader, UnknownRule) {
+  expect_error(replace(kBase, R"("rule": "guarded")", R"("rule": "lenient")"),
+               {"/rule", "lenient", "expected one of: simple, guarded"});
+}
+
+TEST(RecipeLoader, MissingField) {
+  expect_error(replace(kBase, R"(  "rule": "guarded",
+)", ""),
+               {"/rule", "{", "missing (required)"});
+  expect_error(replace(kBase, R"("power_dbm": -10)", R"("settle_s": 0.001)"),
+               {"/source/power_dbm", "\"source\"", "missing (required)"});
+}
+
+TEST(RecipeLoader, SyntaxErrorNamesTheLine) {
+  try {
+    parse_recipe(replace(kBase, R"("version": "1",)", R"("version": "1",,)"), "bad.jsonc");
+    ADD_FAILURE();
+  } catch (const drivers::ConfigError& e) {
+    EXPECT_EQ(e.file, "bad.jsonc");
+    EXPECT_EQ(e.line, 3) << e.what();
+  }
+}
+
+}  // namespace
+}  // namespace echoline::core
