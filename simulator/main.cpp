@@ -1,2 +1,202 @@
-// Scaffolding entry point; replaced by the real one.
-int main() { return 1; }
+// echoline-sim: the instrument simulator process (a source, a receiver, optionally a switch, and
+// the fixture control port) on loopback TCP and/or pseudo-terminals. Parses the command line,
+// loads the config and lot, prints the endpoints and `ready`, serves until SIGTERM/SIGINT.
+// Exit codes: 0 clean stop, 1 runtime failure, 2 usage or configuration error.
+#include <csignal>
+#include <cstdio>
+#include <filesystem>
+#include <iostream>
+#include <optional>
+#include <string>
+#include <vector>
+
+#include <spdlog/sinks/basic_file_sink.h>
+#include <spdlog/sinks/stdout_sinks.h>
+#include <spdlog/spdlog.h>
+
+#include "drivers/config_error.hpp"
+#include "simulator/faults.hpp"
+#include "simulator/physics/lot.hpp"
+#include "simulator/server.hpp"
+#include "simulator/sim_config.hpp"
+
+namespace {
+
+constexpr int kExitOk = 0;
+constexpr int kExitRuntime = 1;
+constexpr int kExitUsage = 2;
+
+void print_help() {
+  std::cout << R"(echoline-sim: simulated signal generator, spectrum analyzer and switch for Echoline.
+
+Usage:
+  echoline-sim --config <bench.jsonc> [--lot <lot.jsonc>] [--profile instant|bench]
+               [--log-file <file>] [--log-level trace|debug|info|warn|error]
+  echoline-sim --help
+
+Options:
+  --config F     simulated bench (required): physics, instruments, endpoints, faults, latency.
+                 Examples: config/sim/instant.jsonc, config/sim/bench.jsonc,
+                 config/sim/instant-serial.jsonc (receiver on a pseudo-terminal).
+  --lot F        lot of simulated units (overrides "lot" in the config), e.g.
+                 config/sim/lots/whip915-lot-a.jsonc. Needed to connect units by serial.
+  --profile P    latency profile, overrides the config's "latency.profile":
+                   instant  replies at once; a virtual clock makes every settling and sweep
+                            count as done (fast tests)
+                   bench    real waits: modelled sweep/settling time plus a per-command
+                            processing time (latency.command_ms, default 3 ms)
+  --log-file F   log every command received (with role and endpoint) to F instead of stderr.
+  --log-level L  default info (every command); debug adds every reply.
+  --help         this text.
+
+On start it prints one line per endpoint, then "ready", on stdout:
+  endpoint role=source transport=tcp address=tcp://127.0.0.1:40111
+  endpoint role=receiver transport=pty address=serial:/dev/pts/7?baud=115200 link=/tmp/sa
+  endpoint role=control transport=tcp address=tcp://127.0.0.1:40113
+  ready
+Port 0 in the config picks a free port. A pty's "link" (if configured) is a symlink to the
+slave device, removed at exit.
+
+Control port (TCP, one JSON object per line, one reply line each with "ok" and, when false,
+"error"):
+  {"cmd":"connect","standard":"OPEN"|"SHORT"|"LOAD"}   {"cmd":"connect","unit":"<serial>"}
+  {"cmd":"disconnect"}   {"cmd":"units"}   {"cmd":"status"}
+  {"cmd":"truth","unit":"<serial>","frequencies_hz":[...]}  -> true return loss, defect, f0
+  {"cmd":"fault","role":"source|receiver|switch","kind":"<kind>","probability":1,"seed":1,
+   "delay_ms":500}   kinds: )" << echoline::sim::fault_kind_names() << R"(
+  {"cmd":"clear-faults"[,"role":"..."][,"kind":"..."]}
+
+Signals: SIGTERM or SIGINT stop it cleanly (exit 0).
+Exit codes: 0 clean stop, 1 runtime failure, 2 usage or configuration error.
+Safety: this is a simulator. A real analyzer is damaged above its maximum safe input level,
+and a real antenna radiates; the simulator's settings say nothing about real equipment.
+)";
+}
+
+struct Args {
+  std::filesystem::path config;
+  std::optional<std::filesystem::path> lot;
+  std::optional<std::string> profile;
+  std::optional<std::filesystem::path> log_file;
+  std::string log_level = "info";
+  bool help = false;
+};
+
+// Returns an error message, or "" on success.
+std::string parse_args(int argc, char** argv, Args& args) {
+  std::vector<std::string> a(argv + 1, argv + argc);
+  for (std::size_t i = 0; i < a.size(); ++i) {
+    const std::string& opt = a[i];
+    auto value = [&](std::string& out) -> std::string {
+      if (i + 1 >= a.size()) return opt + " needs a value";
+      out = a[++i];
+      return "";
+    };
+    std::string v;
+    std::string err;
+    if (opt == "--help" || opt == "-h") {
+      args.help = true;
+    } else if (opt == "--config") {
+      err = value(v);
+      args.config = v;
+    } else if (opt == "--lot") {
+      err = value(v);
+      args.lot = v;
+    } else if (opt == "--profile") {
+      err = value(v);
+      if (err.empty() && v != "instant" && v != "bench") err = "--profile must be instant or bench, not \"" + v + "\"";
+      args.profile = v;
+    } else if (opt == "--log-file") {
+      err = value(v);
+      args.log_file = v;
+    } else if (opt == "--log-level") {
+      err = value(v);
+      if (err.empty() && spdlog::level::from_str(v) == spdlog::level::off && v != "off") {
+        err = "--log-level must be trace, debug, info, warn, error or off, not \"" + v + "\"";
+      }
+      args.log_level = v;
+    } else {
+      err = "unknown option \"" + opt + "\"";
+    }
+    if (!err.empty()) return err;
+  }
+  if (!args.help && args.config.empty()) return "--config <bench.jsonc> is required";
+  return "";
+}
+
+void setup_logging(const Args& args) {
+  std::shared_ptr<spdlog::logger> logger;
+  if (args.log_file) {
+    logger = std::make_shared<spdlog::logger>("echoline-sim",
+                                              std::make_shared<spdlog::sinks::basic_file_sink_mt>(args.log_file->string()));
+  } else {
+    logger = std::make_shared<spdlog::logger>("echoline-sim", std::make_shared<spdlog::sinks::stderr_sink_mt>());
+  }
+  logger->set_level(spdlog::level::from_str(args.log_level));
+  logger->flush_on(spdlog::level::warn);
+  spdlog::set_default_logger(logger);
+  spdlog::flush_every(std::chrono::seconds(1));
+}
+
+}  // namespace
+
+int main(int argc, char** argv) {
+  Args args;
+  if (const std::string err = parse_args(argc, argv, args); !err.empty()) {
+    std::cerr << "echoline-sim: " << err << " (see --help)\n";
+    return kExitUsage;
+  }
+  if (args.help) {
+    print_help();
+    return kExitOk;
+  }
+  std::signal(SIGPIPE, SIG_IGN);
+
+  try {
+    setup_logging(args);
+  } catch (const std::exception& e) {
+    std::cerr << "echoline-sim: --log-file " << args.log_file->string() << ": " << e.what() << "\n";
+    return kExitUsage;
+  }
+
+  std::optional<echoline::sim::SimConfig> config;
+  std::optional<echoline::sim::Lot> lot;
+  try {
+    config = echoline::sim::load_sim_config(args.config);
+    if (args.profile) config->latency = *echoline::sim::override_profile(config->latency, *args.profile);
+    const auto lot_file = args.lot ? args.lot : config->lot;
+    if (lot_file) lot = echoline::sim::load_lot(*lot_file);
+  } catch (const std::exception& e) {
+    std::cerr << "echoline-sim: " << e.what() << "\n";
+    spdlog::shutdown();
+    return kExitUsage;
+  }
+
+  std::unique_ptr<echoline::sim::Server> server;
+  try {
+    server = std::make_unique<echoline::sim::Server>(std::move(*config), std::move(lot));
+  } catch (const echoline::drivers::ConfigError& e) {
+    std::cerr << "echoline-sim: " << e.what() << "\n";
+    spdlog::shutdown();
+    return kExitUsage;
+  } catch (const std::exception& e) {
+    std::cerr << "echoline-sim: cannot start: " << e.what() << "\n";
+    spdlog::shutdown();
+    return kExitRuntime;
+  }
+
+  for (const auto& line : server->endpoint_lines()) std::cout << line << '\n';
+  std::cout << "ready" << std::endl;
+
+  int code = kExitRuntime;
+  try {
+    code = server->run();
+  } catch (const std::exception& e) {
+    spdlog::error("runtime failure: {}", e.what());
+    std::cerr << "echoline-sim: runtime failure: " << e.what() << "\n";
+    code = kExitRuntime;
+  }
+  server.reset();   // closes endpoints, removes pty links
+  spdlog::shutdown();
+  return code;
+}

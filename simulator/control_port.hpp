@@ -1,0 +1,55 @@
+// The fixture control port's protocol: JSON lines, one request -> one reply line with "ok".
+// Connects a calibration standard or a lot unit to the simulated test port, reports ground
+// truth for a unit, arms and clears faults, reports status. Pure (no Asio); the server puts it
+// on a TCP endpoint. Threading: single-threaded (the server's io thread).
+#pragma once
+
+#include <map>
+#include <string>
+
+#include <nlohmann/json.hpp>
+
+#include "simulator/instrument_host.hpp"
+#include "simulator/line_service.hpp"
+#include "simulator/physics/lot.hpp"
+#include "simulator/world.hpp"
+
+namespace echoline::sim {
+
+// Requests (see simulator/README.md for the full list):
+//   {"cmd":"connect","standard":"OPEN"|"SHORT"|"LOAD"}  {"cmd":"connect","unit":"<serial>"}
+//   {"cmd":"disconnect"}  {"cmd":"units"}  {"cmd":"status"}
+//   {"cmd":"truth","unit":"<serial>","frequencies_hz":[...]}
+//   {"cmd":"fault","role":"source","kind":"garble","probability":0.5,"seed":1,"delay_ms":500}
+//   {"cmd":"clear-faults"[,"role":"receiver"][,"kind":"garble"]}
+class ControlService final : public LineService {
+ public:
+  // REQUIRES: world, hosts, clock outlive the service; lot may be null (no lot loaded).
+  ControlService(World& world, const Lot* lot, std::map<std::string, InstrumentHost*> hosts,
+                 const SimClock& clock, std::string profile_name, double load_return_loss_db = 42);
+
+  std::vector<Outgoing> on_line(std::string_view line, const std::string& peer) override;
+  const std::string& role() const override { return role_; }
+
+  // One request -> one reply object (also used by tests without a socket).
+  nlohmann::json handle(std::string_view line);
+
+ private:
+  nlohmann::json connect(const nlohmann::json& req);
+  nlohmann::json truth(const nlohmann::json& req);
+  nlohmann::json fault(const nlohmann::json& req);
+  nlohmann::json clear_faults(const nlohmann::json& req);
+  nlohmann::json status() const;
+  const SimUnit* unit_of(const nlohmann::json& req, std::string& error) const;
+
+  std::string role_ = "control";
+  World& world_;
+  const Lot* lot_;
+  std::map<std::string, InstrumentHost*> hosts_;
+  const SimClock& clock_;
+  std::string profile_name_;
+  double load_return_loss_db_;
+  std::uint64_t requests_ = 0;
+};
+
+}  // namespace echoline::sim

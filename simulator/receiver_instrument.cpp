@@ -1,0 +1,434 @@
+// Simulated spectrum analyzer: see receiver_instrument.hpp and instrument.hpp.
+//
+// Reading model per trace bin (common practice, no source beyond REFERENCE.md §6):
+//   noise: complex Gaussian with mean power kTB + NF + attenuation (noise_floor_dbm), so the
+//          sample detector reads a Rayleigh envelope; the positive-peak detector takes the
+//          largest of ~bin-width/RBW samples;
+//   tone:  the source CW through the bench and DUT (coupled_power_dbm), visible once the
+//          source has settled, shaped by the Gaussian RBW filter at the bin's offset (for the
+//          positive detector: the closest point of the bin), added as a coherent amplitude;
+//   reading noise: a multiplicative Gaussian of reading_noise_db.
+#include "simulator/receiver_instrument.hpp"
+
+#include <algorithm>
+#include <array>
+#include <cmath>
+#include <cstring>
+#include <random>
+#include <stdexcept>
+
+#include <nlohmann/json.hpp>
+#include <spdlog/spdlog.h>
+
+#include "simulator/command_tree.hpp"
+#include "simulator/instrument.hpp"
+#include "simulator/physics/dut_models.hpp"
+#include "simulator/physics/spectrum.hpp"
+
+namespace echoline::sim {
+
+ReceiverConfig receiver_config_from_json(const nlohmann::json& config) {
+  ReceiverConfig c;
+  c.identity = detail::config_identity(config, c.identity);
+  c.frequency_range_hz = detail::config_range(config, "frequency_range_hz", c.frequency_range_hz);
+  c.noise_figure_db = detail::config_number(config, "noise_figure_db", c.noise_figure_db);
+  c.max_safe_input_dbm = detail::config_number(config, "max_safe_input_dbm", c.max_safe_input_dbm);
+  c.compression_dbm = detail::config_number(config, "compression_dbm", c.max_safe_input_dbm);
+  c.reading_noise_db = detail::config_number(config, "reading_noise_db", c.reading_noise_db);
+  c.seed = detail::config_seed(config, c.seed);
+  if (c.frequency_range_hz.first <= 0) throw std::invalid_argument("instrument settings: \"frequency_range_hz\": must be above 0 Hz");
+  if (c.reading_noise_db < 0) throw std::invalid_argument("instrument settings: \"reading_noise_db\": must be >= 0 dB");
+  return c;
+}
+
+namespace {
+
+constexpr double kMinRbwHz = 1, kMaxRbwHz = 10e6;
+constexpr double kMinPoints = 2, kMaxPoints = 10001;
+constexpr std::size_t kMarkers = 4;
+
+double mw_of(double dbm) { return std::pow(10.0, dbm / 10.0); }
+double dbm_of(double mw) { return 10.0 * std::log10(std::max(mw, 1e-30)); }
+
+class ReceiverInstrument final : public SimInstrument {
+ public:
+  ReceiverInstrument(World& world, ReceiverConfig config)
+      : world_(world), config_(std::move(config)), rng_(config_.seed), open_(make_open()) {
+    reset();
+    add_common_commands(tree_, status_, CommonHooks{[this] { return config_.identity; }, [this] { reset(); }});
+    add_frequency_commands();
+    add_sweep_commands();
+    add_trace_commands();
+  }
+
+  std::vector<Reply> handle(std::string_view message) override { return tree_.execute(message, status_, world_.now_s); }
+  std::string role() const override { return "receiver"; }
+  std::string identity() const override { return config_.identity; }
+  void query_interrupted() override { status_.push_error(-410); }
+  void query_unterminated() override { status_.push_error(-420); }
+  void push_error(int code, std::string message) override { status_.push_error_message(code, std::move(message)); }
+
+ private:
+  enum Detector : std::size_t { positive = 0, sample = 1 };
+  enum TraceMode : std::size_t { write = 0, maxhold = 1 };
+  struct Marker { bool on = false; std::size_t index = 0; };
+
+  double fmin() const { return config_.frequency_range_hz.first; }
+  double fmax() const { return config_.frequency_range_hz.second; }
+  double start() const { return center_ - span_ / 2; }
+  double stop() const { return center_ + span_ / 2; }
+  double bin_hz(std::size_t i) const {
+    return points_ < 2 ? center_ : start() + span_ * static_cast<double>(i) / static_cast<double>(points_ - 1);
+  }
+  double sweep_time() const { return sweep_time_s(span_, rbw_, vbw_); }
+
+  void reset() {
+    center_ = std::clamp(1e9, fmin(), fmax());
+    span_ = 0;
+    set_span(100e6);
+    rbw_ = 1e6;
+    vbw_ = 1e6;
+    ref_level_dbm_ = 0;
+    attenuation_db_ = 0;
+    points_ = 401;
+    continuous_ = false;
+    average_on_ = false;
+    average_count_ = 10;
+    detector_ = positive;
+    trace_mode_ = write;
+    binary_bits_ = 0;
+    swapped_ = false;
+    trace_.clear();
+    markers_ = {};
+  }
+
+  // Span change keeps the center, moving it inward when the span would leave the range.
+  void set_span(double span) {
+    span_ = std::min(span, fmax() - fmin());
+    center_ = std::clamp(center_, fmin() + span_ / 2, fmax() - span_ / 2);
+    axis_changed();
+  }
+  // Center change keeps the span, shrinking it when it would leave the range.
+  void set_center(double center) {
+    center_ = center;
+    span_ = std::min(span_, 2 * std::min(center_ - fmin(), fmax() - center_));
+    axis_changed();
+  }
+  void set_start_stop(double a, double b) {
+    center_ = (a + b) / 2;
+    span_ = b - a;
+    axis_changed();
+  }
+  void axis_changed() {
+    if (trace_mode_ == maxhold) trace_.clear();  // the held trace belonged to another axis
+  }
+
+  // One sweep starting at sim time t0; returns readings in dBm. `overload` is set when the
+  // input exceeded the max safe level during this sweep.
+  std::vector<double> sweep_once(double t0, bool& overload) {
+    const Dut& dut = world_.connected ? *world_.connected : *open_;  // unterminated port = OPEN
+    const double st = sweep_time();
+    const bool on = world_.source_output_on;
+    const double f_src = world_.source_frequency_hz;
+    const double input_dbm = on ? coupled_power_dbm(world_.bench, dut, f_src, world_.source_power_dbm) : -400.0;
+    if (on && input_dbm > config_.max_safe_input_dbm && world_.source_settled_at_s <= t0 + st) overload = true;
+    const double noise_mw = mw_of(noise_floor_dbm(rbw_, config_.noise_figure_db) + attenuation_db_);
+    const double bin_width = points_ > 1 ? span_ / static_cast<double>(points_ - 1) : 0.0;
+    std::size_t k_samples = 1;
+    if (detector_ == positive) k_samples = static_cast<std::size_t>(std::clamp(std::round(bin_width / rbw_), 1.0, 64.0));
+    std::normal_distribution<double> gauss(0.0, 1.0);
+    std::vector<double> out(points_);
+    for (std::size_t i = 0; i < points_; ++i) {
+      const double t = t0 + (points_ > 1 ? st * static_cast<double>(i) / static_cast<double>(points_ - 1) : 0.0);
+      const double f = bin_hz(i);
+      double tone_amp = 0;  // sqrt(mW)
+      if (on && t >= world_.source_settled_at_s) {
+        double offset = std::abs(f - f_src);
+        if (detector_ == positive) offset = std::max(0.0, offset - bin_width / 2);
+        tone_amp = std::sqrt(mw_of(input_dbm + rbw_response_db(offset, rbw_)));
+      }
+      double best = 0;
+      for (std::size_t k = 0; k < k_samples; ++k) {
+        const double sigma = std::sqrt(noise_mw / 2);
+        const double re = tone_amp + sigma * gauss(rng_);
+        const double im = sigma * gauss(rng_);
+        best = std::max(best, re * re + im * im);
+      }
+      double dbm = dbm_of(best) + config_.reading_noise_db * gauss(rng_);
+      out[i] = std::min(dbm, config_.compression_dbm);  // the input stage limits the reading
+    }
+    return out;
+  }
+
+  // INIT: runs the (averaged) sweep now; the result is readable after the modelled time.
+  void initiate(double now) {
+    ++world_.sweep_counter;
+    if (world_.connected) world_.connected->on_sweep(world_.sweep_counter);
+    const std::size_t count = average_on_ ? average_count_ : 1;
+    const double st = sweep_time();
+    bool overload = false;
+    std::vector<double> sum_mw(points_, 0.0);
+    for (std::size_t n = 0; n < count; ++n) {
+      const std::vector<double> one = sweep_once(now + st * static_cast<double>(n), overload);
+      for (std::size_t i = 0; i < points_; ++i) sum_mw[i] += mw_of(one[i]);  // linear power average
+    }
+    std::vector<double> result(points_);
+    for (std::size_t i = 0; i < points_; ++i) result[i] = dbm_of(sum_mw[i] / static_cast<double>(count));
+    if (trace_mode_ == maxhold && trace_.size() == result.size()) {
+      for (std::size_t i = 0; i < points_; ++i) trace_[i] = std::max(trace_[i], result[i]);
+    } else {
+      trace_ = std::move(result);
+    }
+    sweep_end_s_ = now + st * static_cast<double>(count);
+    status_.begin_operation(sweep_end_s_);
+    if (overload) report_overload();
+  }
+
+  void report_overload() {
+    const Dut& dut = world_.connected ? *world_.connected : *open_;
+    const double in = coupled_power_dbm(world_.bench, dut, world_.source_frequency_hz, world_.source_power_dbm);
+    // A real analyzer can be damaged above its max safe input; the sim only complains.
+    const std::string msg = fmt::format("Device-specific error;input overload: {:.1f} dBm at the input, max safe input {:.1f} dBm",
+                                        in, config_.max_safe_input_dbm);
+    status_.push_error_message(-300, msg);
+    spdlog::warn("{}: {}", config_.identity, msg);
+  }
+
+  // In continuous mode a read sees the sweep that has just finished.
+  void refresh_if_continuous(double now) {
+    if (continuous_ && now >= sweep_end_s_) {
+      const double st = sweep_time() * (average_on_ ? static_cast<double>(average_count_) : 1.0);
+      initiate(now - st);
+      status_.abort_operations(now);  // continuous sweeping is not a pending operation
+    }
+  }
+
+  std::optional<ScpiError> need_trace(const Call& c) {
+    refresh_if_continuous(c.now_s);
+    if (trace_.size() != points_) return ScpiError{-230, c.unit.header_text + ": no sweep with the current settings; send INIT first"};
+    return std::nullopt;
+  }
+
+  void add_frequency_commands() {
+    const NumericLimits frange{fmin(), fmax(), std::clamp(1e9, fmin(), fmax())};
+    // SCPI-99 Vol 2 SENSe:FREQuency (REFERENCE.md §7.9)
+    tree_.add("[SENSe:]FREQuency:CENTer[?]", [this, frange](const Call& c) {
+      return numeric_setting(c, Unit::hertz, frange, center_, [this](double v) { set_center(v); return std::optional<ScpiError>{}; });
+    });
+    tree_.add("[SENSe:]FREQuency:SPAN[?]", [this](const Call& c) {
+      return numeric_setting(c, Unit::hertz, {0, fmax() - fmin(), 100e6}, span_, [this](double v) { set_span(v); return std::optional<ScpiError>{}; });
+    });
+    tree_.add("[SENSe:]FREQuency:STARt[?]", [this, frange](const Call& c) {
+      return numeric_setting(c, Unit::hertz, frange, start(), [this](double v) {
+        set_start_stop(v, std::max(v, stop()));
+        return std::optional<ScpiError>{};
+      });
+    });
+    tree_.add("[SENSe:]FREQuency:STOP[?]", [this, frange](const Call& c) {
+      return numeric_setting(c, Unit::hertz, frange, stop(), [this](double v) {
+        set_start_stop(std::min(v, start()), v);
+        return std::optional<ScpiError>{};
+      });
+    });
+    // SENSe:BANDwidth (continuous values; real analyzers round to a 1-3-10 series)
+    tree_.add("[SENSe:]BANDwidth|BWIDth[:RESolution][?]", [this](const Call& c) {
+      return numeric_setting(c, Unit::hertz, {kMinRbwHz, kMaxRbwHz, 1e6}, rbw_, [this](double v) { rbw_ = v; return std::optional<ScpiError>{}; });
+    });
+    tree_.add("[SENSe:]BANDwidth|BWIDth:VIDeo[?]", [this](const Call& c) {
+      return numeric_setting(c, Unit::hertz, {kMinRbwHz, kMaxRbwHz, 1e6}, vbw_, [this](double v) { vbw_ = v; return std::optional<ScpiError>{}; });
+    });
+    // Reference level: stored and reported; it does not clip readings in this model.
+    tree_.add("DISPlay[:WINDow{1:1}]:TRACe{1:1}:Y[:SCALe]:RLEVel[?]", [this](const Call& c) {
+      return numeric_setting(c, Unit::dbm, {-150, 30, 0}, ref_level_dbm_, [this](double v) { ref_level_dbm_ = v; return std::optional<ScpiError>{}; });
+    });
+    // Input attenuation raises the displayed noise floor dB for dB (AN 150, from memory).
+    tree_.add("INPut:ATTenuation[?]", [this](const Call& c) {
+      return numeric_setting(c, Unit::db, {0, 70, 0}, attenuation_db_, [this](double v) { attenuation_db_ = v; return std::optional<ScpiError>{}; });
+    });
+  }
+
+  void add_sweep_commands() {
+    tree_.add("[SENSe:]SWEep:TIME?", [this](const Call& c) {
+      if (auto e = check_param_count(c, 0, 0)) return Outcome::fail(*e);
+      return Outcome::text(format_nr3(sweep_time()));
+    });
+    tree_.add("[SENSe:]SWEep:POINts[?]", [this](const Call& c) {
+      return numeric_setting(c, Unit::none, {kMinPoints, kMaxPoints, 401}, static_cast<double>(points_), [this](double v) {
+        points_ = static_cast<std::size_t>(std::lround(v));
+        trace_.clear();
+        return std::optional<ScpiError>{};
+      });
+    });
+    // Trigger model (SCPI-99 Vol 1 ch. 2 / Vol 2 INITiate)
+    tree_.add("INITiate[:IMMediate]", [this](const Call& c) {
+      if (auto e = check_param_count(c, 0, 0)) return Outcome::fail(*e);
+      if (continuous_) return Outcome::fail(-213, "INITiate: continuous sweep is on");
+      initiate(c.now_s);
+      return Outcome::done();
+    });
+    tree_.add("INITiate:CONTinuous[?]", [this](const Call& c) {
+      return bool_setting(c, continuous_, [this, &c](bool on) {
+        continuous_ = on;
+        if (on) status_.abort_operations(c.now_s);
+      });
+    });
+    tree_.add("ABORt", [this](const Call& c) {
+      if (auto e = check_param_count(c, 0, 0)) return Outcome::fail(*e);
+      sweep_end_s_ = std::min(sweep_end_s_, c.now_s);
+      status_.abort_operations(c.now_s);
+      return Outcome::done();
+    });
+    tree_.add("[SENSe:]AVERage:COUNt[?]", [this](const Call& c) {
+      return numeric_setting(c, Unit::none, {1, 10000, 10}, static_cast<double>(average_count_), [this](double v) {
+        average_count_ = static_cast<std::size_t>(std::lround(v));
+        return std::optional<ScpiError>{};
+      });
+    });
+    tree_.add("[SENSe:]AVERage[:STATe][?]", [this](const Call& c) {
+      return bool_setting(c, average_on_, [this](bool on) { average_on_ = on; });
+    });
+    tree_.add("[SENSe:]DETector[:FUNCtion][?]", [this](const Call& c) {
+      return choice_setting(c, {"POSitive", "SAMPle"}, detector_, [this](std::size_t i) {
+        detector_ = static_cast<Detector>(i);
+        return std::optional<ScpiError>{};
+      });
+    });
+  }
+
+  void add_trace_commands() {
+    // TRACe:MODE is common practice, not SCPI-99 (REFERENCE.md §7.9).
+    tree_.add("TRACe{1:1}:MODE[?]", [this](const Call& c) {
+      return choice_setting(c, {"WRITe", "MAXHold"}, trace_mode_, [this](std::size_t i) {
+        if (i == write && trace_mode_ == maxhold) trace_.clear();
+        if (i == maxhold && trace_mode_ == write) trace_.clear();  // max hold starts afresh
+        trace_mode_ = static_cast<TraceMode>(i);
+        return std::optional<ScpiError>{};
+      });
+    });
+    tree_.add("TRACe{1:1}[:DATA]?", [this](const Call& c) {
+      if (auto e = check_param_count(c, 1, 1)) return Outcome::fail(*e);
+      const Parameter& p = c.params()[0];
+      if (p.kind != Parameter::Kind::character) return Outcome::fail(-104, "TRACe:DATA? needs a trace name (TRACE1)");
+      if (p.text != "TRACE1" && p.text != "TRAC1") return Outcome::fail(-224, "TRACe:DATA? " + p.text + ": only TRACE1 exists");
+      if (auto e = need_trace(c)) return Outcome::fail(*e);
+      return Outcome::text(format_trace(), status_.remaining_s(c.now_s));
+    });
+    // SCPI-99 Vol 2 FORMat[:DATA] ASCii[,<n>] | REAL[,32|64]
+    tree_.add("FORMat[:DATA][?]", [this](const Call& c) {
+      if (c.query) {
+        if (auto e = check_param_count(c, 0, 0)) return Outcome::fail(*e);
+        return Outcome::text(binary_bits_ == 0 ? "ASC" : "REAL," + std::to_string(binary_bits_));
+      }
+      if (auto e = check_param_count(c, 1, 2)) return Outcome::fail(*e);
+      auto kind = to_choice(c.params()[0], {"ASCii", "REAL"});
+      if (auto* e = std::get_if<ScpiError>(&kind)) return Outcome::fail(*e);
+      int bits = std::get<std::size_t>(kind) == 0 ? 0 : 32;
+      if (bits != 0 && c.params().size() == 2) {
+        auto n = to_number(c.params()[1], Unit::none, {32, 64, 32});
+        if (auto* e = std::get_if<ScpiError>(&n)) return Outcome::fail(*e);
+        const double v = std::get<double>(n);
+        if (v != 32 && v != 64) return Outcome::fail(-224, "FORMat REAL," + c.params()[1].text + ": 32 or 64");
+        bits = static_cast<int>(v);
+      }
+      binary_bits_ = bits;  // ASCii,<n>: the digit count is accepted and not used
+      return Outcome::done();
+    });
+    tree_.add("FORMat:BORDer[?]", [this](const Call& c) {
+      return choice_setting(c, {"NORMal", "SWAPped"}, swapped_ ? 1 : 0, [this](std::size_t i) {
+        swapped_ = i == 1;
+        return std::optional<ScpiError>{};
+      });
+    });
+    // Markers: common practice, not SCPI-99 (REFERENCE.md §7.9).
+    tree_.add("CALCulate:MARKer{1:4}[:STATe][?]", [this](const Call& c) {
+      Marker& m = markers_[static_cast<std::size_t>(c.suffix() - 1)];
+      return bool_setting(c, m.on, [&m](bool on) { m.on = on; });
+    });
+    tree_.add("CALCulate:MARKer{1:4}:MAXimum[:PEAK]", [this](const Call& c) {
+      if (auto e = check_param_count(c, 0, 0)) return Outcome::fail(*e);
+      if (auto e = need_trace(c)) return Outcome::fail(*e);
+      Marker& m = markers_[static_cast<std::size_t>(c.suffix() - 1)];
+      m.on = true;
+      m.index = static_cast<std::size_t>(std::max_element(trace_.begin(), trace_.end()) - trace_.begin());
+      return Outcome::done();
+    });
+    tree_.add("CALCulate:MARKer{1:4}:X[?]", [this](const Call& c) {
+      Marker& m = markers_[static_cast<std::size_t>(c.suffix() - 1)];
+      if (c.query) {
+        if (auto e = check_param_count(c, 0, 0)) return Outcome::fail(*e);
+        if (!m.on) return Outcome::fail(-221, c.unit.header_text + ": marker is off");
+        return Outcome::text(format_nr3(bin_hz(std::min(m.index, points_ - 1))), status_.remaining_s(c.now_s));
+      }
+      return numeric_setting(c, Unit::hertz, {start(), stop(), center_}, bin_hz(m.index), [this, &m](double f) {
+        m.on = true;
+        m.index = span_ > 0 ? static_cast<std::size_t>(std::lround((f - start()) / span_ * static_cast<double>(points_ - 1))) : 0;
+        return std::optional<ScpiError>{};
+      });
+    });
+    tree_.add("CALCulate:MARKer{1:4}:Y?", [this](const Call& c) {
+      if (auto e = check_param_count(c, 0, 0)) return Outcome::fail(*e);
+      Marker& m = markers_[static_cast<std::size_t>(c.suffix() - 1)];
+      if (!m.on) return Outcome::fail(-221, c.unit.header_text + ": marker is off");
+      if (auto e = need_trace(c)) return Outcome::fail(*e);
+      return Outcome::text(format_nr3(trace_[std::min(m.index, trace_.size() - 1)]), status_.remaining_s(c.now_s));
+    });
+  }
+
+  std::string format_trace() const {
+    std::string out;
+    if (binary_bits_ == 0) {  // ASCii: comma-separated NR3
+      for (std::size_t i = 0; i < trace_.size(); ++i) {
+        if (i) out.push_back(',');
+        out += format_nr3(trace_[i]);
+      }
+      return out;
+    }
+    // REAL,32/64: IEEE 754 values, NORMal = most significant byte first; definite block.
+    std::string payload;
+    for (double v : trace_) {
+      unsigned char bytes[8];
+      std::size_t n = 0;
+      if (binary_bits_ == 32) {
+        const float f = static_cast<float>(v);
+        std::uint32_t u;
+        std::memcpy(&u, &f, 4);
+        for (int b = 3; b >= 0; --b) bytes[n++] = static_cast<unsigned char>(u >> (8 * b));
+      } else {
+        std::uint64_t u;
+        std::memcpy(&u, &v, 8);
+        for (int b = 7; b >= 0; --b) bytes[n++] = static_cast<unsigned char>(u >> (8 * b));
+      }
+      if (swapped_) std::reverse(bytes, bytes + n);
+      payload.append(reinterpret_cast<const char*>(bytes), n);
+    }
+    const std::string len = std::to_string(payload.size());
+    return "#" + std::to_string(len.size()) + len + payload;
+  }
+
+  World& world_;
+  ReceiverConfig config_;
+  StatusModel status_;
+  CommandTree tree_;
+  std::mt19937_64 rng_;
+  std::unique_ptr<Dut> open_;
+  double center_ = 1e9, span_ = 100e6, rbw_ = 1e6, vbw_ = 1e6;
+  double ref_level_dbm_ = 0, attenuation_db_ = 0;
+  std::size_t points_ = 401;
+  bool continuous_ = false, average_on_ = false;
+  std::size_t average_count_ = 10;
+  Detector detector_ = positive;
+  TraceMode trace_mode_ = write;
+  int binary_bits_ = 0;   // 0 = ASCii
+  bool swapped_ = false;
+  std::vector<double> trace_;
+  double sweep_end_s_ = 0;
+  std::array<Marker, kMarkers> markers_{};
+};
+
+}  // namespace
+
+std::unique_ptr<SimInstrument> make_receiver_instrument(World& world, const nlohmann::json& config) {
+  return std::make_unique<ReceiverInstrument>(world, receiver_config_from_json(config));
+}
+
+}  // namespace echoline::sim

@@ -1,0 +1,24 @@
+// The simulated calibration switch: a single-pole N-throw between the test port and the
+// OPEN/SHORT/LOAD standards or the DUT socket, driven by ROUTe:CLOSe (@n). Selecting a
+// standard connects it in the World; selecting DUT puts back what the standard displaced.
+// Pure, no I/O. Single-threaded (the server's io thread). Create with make_switch_instrument.
+#pragma once
+
+#include <map>
+#include <string>
+
+#include <nlohmann/json_fwd.hpp>
+
+namespace echoline::sim {
+
+// The factory's settings (keys and defaults documented at make_switch_instrument).
+struct SwitchConfig {
+  std::string identity = "Echoline,SIM-SW,SW0001,1.0";
+  std::map<int, std::string> positions{{1, "OPEN"}, {2, "SHORT"}, {3, "LOAD"}, {4, "DUT"}};
+  double load_return_loss_db = 42;
+};
+
+// Throws std::invalid_argument naming the key ("positions" values must be OPEN|SHORT|LOAD|DUT).
+SwitchConfig switch_config_from_json(const nlohmann::json& config);
+
+}  // namespace echoline::sim
