@@ -60,12 +60,17 @@ PtyEndpoint::PtyEndpoint(asio::io_context& io, LineService& service, std::string
   const int master = ::posix_openpt(O_RDWR | O_NOCTTY | O_CLOEXEC);
   if (master < 0) throw pty_error(service, "posix_openpt", errno);
   impl_->master = master;
-  if (::grantpt(master) != 0) throw pty_error(service, "grantpt", errno);
-  if (::unlockpt(master) != 0) throw pty_error(service, "unlockpt", errno);
-  char name[128] = {};
-  if (::ptsname_r(master, name, sizeof name) != 0) throw pty_error(service, "ptsname", errno);
-  impl_->device = name;
-  make_raw(service, impl_->device);
+  try {
+    if (::grantpt(master) != 0) throw pty_error(service, "grantpt", errno);
+    if (::unlockpt(master) != 0) throw pty_error(service, "unlockpt", errno);
+    char name[128] = {};
+    if (::ptsname_r(master, name, sizeof name) != 0) throw pty_error(service, "ptsname", errno);
+    impl_->device = name;
+    make_raw(service, impl_->device);
+  } catch (...) {
+    ::close(master);   // the destructor does not run for a throwing constructor
+    throw;
+  }
 
   if (!impl_->link.empty()) {
     namespace fs = std::filesystem;
@@ -75,13 +80,13 @@ PtyEndpoint::PtyEndpoint(asio::io_context& io, LineService& service, std::string
       fs::remove(impl_->link, ec);   // stale link from an earlier run
     } else if (fs::exists(status)) {
       const std::string what = "link " + impl_->link + " exists and is not a symlink; not replacing it";
-      impl_->link.clear();
+      ::close(master);
       throw std::runtime_error(fmt::format("{}: pty: {}", service.role(), what));
     }
     fs::create_symlink(impl_->device, impl_->link, ec);
     if (ec) {
       const std::string what = "cannot create link " + impl_->link + ": " + ec.message();
-      impl_->link.clear();
+      ::close(master);
       throw std::runtime_error(fmt::format("{}: pty: {}", service.role(), what));
     }
   }

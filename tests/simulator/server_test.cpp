@@ -53,6 +53,21 @@ TEST(SimProcess, BadConfigValueNamesFileLineAndKey) {
   EXPECT_EQ(p.wait(std::chrono::seconds(10)), 2);
 }
 
+TEST(SimProcess, BadInstrumentSettingIsAConfigErrorNamingTheSection) {
+  TempDir dir;
+  json cfg = read_config("config/sim/instant.jsonc");
+  cfg["instruments"]["receiver"]["settings"]["identity"] = "only,three,fields";
+  const auto path = write_config(dir, cfg);
+  auto p = ChildProcess::start({echoline::testing::sim_binary().string(), "--config", path.string(), "--log-file",
+                                (dir / "sim.log").string()}, {{}, false, true, {}});
+  auto line = p.read_line(std::chrono::seconds(10));
+  ASSERT_TRUE(line.has_value());
+  EXPECT_NE(line->find(path.string()), std::string::npos) << *line;
+  EXPECT_NE(line->find("/instruments/receiver/settings"), std::string::npos) << *line;
+  EXPECT_NE(line->find("identity"), std::string::npos) << *line;
+  EXPECT_EQ(p.wait(std::chrono::seconds(10)), 2);
+}
+
 TEST(SimProcess, PrintsOneEndpointLinePerEndpointThenReadyAndStopsCleanlyOnSigterm) {
   TempDir dir;
   RunningSim sim({"--config", repo_file("config/sim/instant.jsonc").string(), "--log-file", (dir / "sim.log").string()});
