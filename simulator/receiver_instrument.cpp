@@ -8,12 +8,33 @@
 //          source has settled, shaped by the Gaussian RBW filter at the bin's offset (for the
 //          positive detector: the closest point of the bin), added as a coherent amplitude;
 //   reading noise: a multiplicative Gaussian of reading_noise_db.
+//
+// Swept source (World::source_sweeping, fast capture). The analyzer is tuned to
+// f_rx(t) = start + span * (t - t0) / sweep_time; with the positive-peak detector bin i holds
+// the largest response while f_rx is within half a bin of the bin frequency (its dwell,
+// sweep_time / (points - 1) long; the sample detector looks only at the bin's instant). The
+// tone is seen at the closest approach |f_src(t) - f_rx(t)| during the dwell, through the RBW
+// shape, so a bin gets the tone's full peak when the source passes the bin frequency while the
+// analyzer dwells there. Timing condition (what a fast-capture setup must meet):
+//   dwell >= one source sweep, i.e. receiver sweep time >= (points - 1) x source sweep time:
+//   then every bin sees every source frequency once per receiver sweep (a sawtooth passes
+//   each frequency once per period), and one receiver sweep with max hold fills the trace.
+// A shorter receiver sweep leaves bins that missed the tone at the noise floor; max hold over
+// more receiver sweeps fills them only as the two sweeps' phases happen to line up.
+// A tone crossing the RBW at rate R (Hz/s) loses peak power: a linear FM through a Gaussian
+// filter of 3 dB bandwidth B peaks (1 + x^2)^(-1/2) in power with x = 2 ln2 R / (pi B^2)
+// (derived here from the Gaussian's impulse response; same form as the sweep-rate loss of
+// AN 150, from memory), and a burst of B/R seconds is smoothed by the video filter
+// (single pole at VBW): factor 1 - exp(-2 pi VBW B / R). Both are applied with a swept source
+// and with a manual (SWEep:TIME) analyzer sweep time; at the automatic sweep time the
+// analyzer is taken as amplitude-calibrated (common practice, no source).
 #include "simulator/receiver_instrument.hpp"
 
 #include <algorithm>
 #include <array>
 #include <cmath>
 #include <cstring>
+#include <numbers>
 #include <random>
 #include <stdexcept>
 
@@ -80,10 +101,61 @@ class ReceiverInstrument final : public SimInstrument {
   double bin_hz(std::size_t i) const {
     return points_ < 2 ? center_ : start() + span_ * static_cast<double>(i) / static_cast<double>(points_ - 1);
   }
-  double sweep_time() const { return sweep_time_s(span_, rbw_, vbw_); }
+  double sweep_time() const { return manual_sweep_time_s_ > 0 ? manual_sweep_time_s_ : sweep_time_s(span_, rbw_, vbw_); }
+
+  // Peak-power loss (dB, >= 0) of a tone crossing the RBW at `rate_hz_s` (see the file comment).
+  double crossing_loss_db(double rate_hz_s) const {
+    if (!(rate_hz_s > 0)) return 0.0;
+    const double x = 2.0 * std::log(2.0) * rate_hz_s / (std::numbers::pi * rbw_ * rbw_);
+    const double video = 1.0 - std::exp(-2.0 * std::numbers::pi * vbw_ * rbw_ / rate_hz_s);
+    return 5.0 * std::log10(1.0 + x * x) - 10.0 * std::log10(std::max(video, 1e-30));
+  }
+
+  // Closest approach of the swept source to the analyzer's tuned frequency during [ta, tb]
+  // (the bin's dwell). f_rx(t) = rx_start + rx_rate * (t - t0).
+  struct Approach { bool seen = false; double offset_hz = 0; double source_hz = 0; };
+  Approach swept_approach(double ta, double tb, double t0, double rx_rate) const {
+    Approach best;
+    const double epoch = world_.source_sweep_epoch_s;
+    ta = std::max(ta, epoch);   // nothing before the source has settled
+    if (tb < ta) return best;
+    const double s0 = world_.source_sweep_start_hz, s1 = world_.source_sweep_stop_hz;
+    const double period = world_.source_sweep_time_s;
+    auto f_rx = [&](double t) { return start() + rx_rate * (t - t0); };
+    const double pa = (ta - epoch) / period, pb = (tb - epoch) / period;
+    const double ka = std::floor(pa), kb = std::floor(pb);
+    if (kb - ka > 64) {
+      // Many whole source sweeps in the window: the source passes every frequency in [s0, s1].
+      const double lo = std::min(f_rx(ta), f_rx(tb)), hi = std::max(f_rx(ta), f_rx(tb));
+      best.seen = true;
+      best.offset_hz = hi < s0 ? s0 - hi : (lo > s1 ? lo - s1 : 0.0);
+      best.source_hz = std::clamp((lo + hi) / 2, s0, s1);
+      return best;
+    }
+    for (double k = ka; k <= kb; k += 1) {
+      const double a = std::max(ta, epoch + k * period), b = std::min(tb, epoch + (k + 1) * period);
+      if (b < a) continue;
+      auto f_s = [&](double t) { return s0 + (s1 - s0) * ((t - epoch) / period - k); };
+      const double da = f_s(a) - f_rx(a), db = f_s(b) - f_rx(b);
+      Approach here{true, 0, 0};
+      if (da * db <= 0 && da != db) {
+        const double tc = a + (b - a) * da / (da - db);
+        here.source_hz = f_s(tc);
+      } else if (std::abs(da) <= std::abs(db)) {
+        here.offset_hz = std::abs(da);
+        here.source_hz = f_s(a);
+      } else {
+        here.offset_hz = std::abs(db);
+        here.source_hz = f_s(b);
+      }
+      if (!best.seen || here.offset_hz < best.offset_hz) best = here;
+    }
+    return best;
+  }
 
   void reset() {
     center_ = std::clamp(1e9, fmin(), fmax());
+    manual_sweep_time_s_ = 0;
     span_ = 0;
     set_span(100e6);
     rbw_ = 1e6;
@@ -142,10 +214,22 @@ class ReceiverInstrument final : public SimInstrument {
       const double t = t0 + (points_ > 1 ? st * static_cast<double>(i) / static_cast<double>(points_ - 1) : 0.0);
       const double f = bin_hz(i);
       double tone_amp = 0;  // sqrt(mW)
-      if (on && t >= world_.source_settled_at_s) {
+      if (on && world_.source_sweeping) {
+        const double rx_rate = st > 0 ? span_ / st : 0.0;
+        const double dwell = points_ > 1 ? st / static_cast<double>(points_ - 1) : st;
+        const double ta = detector_ == positive ? std::max(t0, t - dwell / 2) : t;
+        const double tb = detector_ == positive ? std::min(t0 + st, t + dwell / 2) : t;
+        const Approach a = swept_approach(ta, tb, t0, rx_rate);
+        if (a.seen) {
+          const double src_rate = (world_.source_sweep_stop_hz - world_.source_sweep_start_hz) / world_.source_sweep_time_s;
+          const double level = coupled_power_dbm(world_.bench, dut, a.source_hz, world_.source_power_dbm);
+          tone_amp = std::sqrt(mw_of(level + rbw_response_db(a.offset_hz, rbw_) - crossing_loss_db(std::abs(src_rate - rx_rate))));
+        }
+      } else if (on && t >= world_.source_settled_at_s) {
         double offset = std::abs(f - f_src);
         if (detector_ == positive) offset = std::max(0.0, offset - bin_width / 2);
-        tone_amp = std::sqrt(mw_of(input_dbm + rbw_response_db(offset, rbw_)));
+        const double loss = manual_sweep_time_s_ > 0 && st > 0 ? crossing_loss_db(span_ / st) : 0.0;
+        tone_amp = std::sqrt(mw_of(input_dbm + rbw_response_db(offset, rbw_) - loss));
       }
       double best = 0;
       for (std::size_t k = 0; k < k_samples; ++k) {
@@ -248,9 +332,20 @@ class ReceiverInstrument final : public SimInstrument {
   }
 
   void add_sweep_commands() {
-    tree_.add("[SENSe:]SWEep:TIME?", [this](const Call& c) {
-      if (auto e = check_param_count(c, 0, 0)) return Outcome::fail(*e);
-      return Outcome::text(format_nr3(sweep_time()));
+    // SCPI-99 Vol 2 SENSe:SWEep:TIME[:AUTO]: a value sets a manual sweep time (AUTO OFF);
+    // AUTO ON returns to k*span/RBW^2. A manual time shorter than auto loses amplitude
+    // (crossing_loss_db), as a real analyzer does when swept too fast.
+    tree_.add("[SENSe:]SWEep:TIME[?]", [this](const Call& c) {
+      return numeric_setting(c, Unit::seconds, {kMinSweepTimeS, 3600, 0.1}, sweep_time(), [this](double v) {
+        manual_sweep_time_s_ = v;
+        return std::optional<ScpiError>{};
+      });
+    });
+    tree_.add("[SENSe:]SWEep:TIME:AUTO[?]", [this](const Call& c) {
+      return bool_setting(c, manual_sweep_time_s_ <= 0, [this](bool on) {
+        if (on) manual_sweep_time_s_ = 0;
+        else if (manual_sweep_time_s_ <= 0) manual_sweep_time_s_ = sweep_time();  // hold the current value
+      });
     });
     tree_.add("[SENSe:]SWEep:POINts[?]", [this](const Call& c) {
       return numeric_setting(c, Unit::none, {kMinPoints, kMaxPoints, 401}, static_cast<double>(points_), [this](double v) {
@@ -412,6 +507,7 @@ class ReceiverInstrument final : public SimInstrument {
   std::mt19937_64 rng_;
   std::unique_ptr<Dut> open_;
   double center_ = 1e9, span_ = 100e6, rbw_ = 1e6, vbw_ = 1e6;
+  double manual_sweep_time_s_ = 0;   // > 0: SWEep:TIME set by hand (AUTO OFF)
   double ref_level_dbm_ = 0, attenuation_db_ = 0;
   std::size_t points_ = 401;
   bool continuous_ = false, average_on_ = false;

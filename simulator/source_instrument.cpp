@@ -48,16 +48,28 @@ class SourceInstrument final : public SimInstrument {
     frequency_hz_ = std::clamp(1e9, config_.frequency_range_hz.first, config_.frequency_range_hz.second);
     power_dbm_ = std::clamp(-20.0, config_.power_range_dbm.first, config_.power_range_dbm.second);
     output_on_ = false;  // *RST turns RF off (safe state)
+    sweeping_ = false;   // *RST: CW mode
+    sweep_start_hz_ = std::clamp(0.9e9, config_.frequency_range_hz.first, config_.frequency_range_hz.second);
+    sweep_stop_hz_ = std::clamp(1.1e9, config_.frequency_range_hz.first, config_.frequency_range_hz.second);
+    sweep_time_s_ = 0.01;
     publish();
   }
 
   // Writes the actual output into the World; the receiver sees it after settling.
+  // In sweep mode the tone restarts from the start frequency after settling; the level
+  // flatness over the sweep (0.1 x level accuracy in CW) is not modelled there.
   void publish() {
-    const double flatness_db = 0.1 * config_.level_accuracy_db * detail::hashed_normal(config_.seed, frequency_hz_, power_dbm_);
-    world_.source_frequency_hz = frequency_hz_;
+    const double flatness_db =
+        sweeping_ ? 0.0 : 0.1 * config_.level_accuracy_db * detail::hashed_normal(config_.seed, frequency_hz_, power_dbm_);
+    world_.source_frequency_hz = sweeping_ ? sweep_start_hz_ : frequency_hz_;
     world_.source_power_dbm = power_dbm_ + level_offset_db_ + flatness_db;
     world_.source_output_on = output_on_;
     world_.source_settled_at_s = world_.now_s + config_.settle_s;
+    world_.source_sweeping = sweeping_;
+    world_.source_sweep_start_hz = sweep_start_hz_;
+    world_.source_sweep_stop_hz = sweep_stop_hz_;
+    world_.source_sweep_time_s = sweep_time_s_;
+    world_.source_sweep_epoch_s = world_.source_settled_at_s;
   }
 
   void add_commands() {
@@ -73,10 +85,41 @@ class SourceInstrument final : public SimInstrument {
         return std::nullopt;
       });
     });
-    // Only CW is modelled; a sweep mode is refused rather than faked.
-    tree_.add("[SOURce:]FREQuency:MODE[?]", [](const Call& c) {
-      return choice_setting(c, {"CW", "FIXed", "SWEep"}, 0, [&c](std::size_t i) -> std::optional<ScpiError> {
-        if (i == 2) return ScpiError{-221, c.unit.header_text + " SWEep: only CW is simulated"};
+    // SCPI-99 Vol 2 SOURce:FREQuency:MODE CW|FIXed|SWEep (REFERENCE.md §7.9). SWEep: the
+    // tone ramps linearly STARt -> STOP in SWEep:TIME, then restarts, repeating (free run).
+    tree_.add("[SOURce:]FREQuency:MODE[?]", [this](const Call& c) {
+      return choice_setting(c, {"CW", "FIXed", "SWEep"}, sweeping_ ? 2 : 0, [this](std::size_t i) -> std::optional<ScpiError> {
+        const bool sweep = i == 2;
+        if (sweep != sweeping_) {
+          sweeping_ = sweep;
+          publish();
+        }
+        return std::nullopt;
+      });
+    });
+    // STARt/STOP (SCPI-99 Vol 2 SOURce:FREQuency:STARt|STOP): a start above the stop moves the
+    // stop up with it, and the other way round, as the receiver's axis does.
+    tree_.add("[SOURce:]FREQuency:STARt[?]", [this, flim](const Call& c) {
+      return numeric_setting(c, Unit::hertz, flim, sweep_start_hz_, [this](double v) -> std::optional<ScpiError> {
+        sweep_start_hz_ = v;
+        sweep_stop_hz_ = std::max(sweep_stop_hz_, v);
+        publish();
+        return std::nullopt;
+      });
+    });
+    tree_.add("[SOURce:]FREQuency:STOP[?]", [this, flim](const Call& c) {
+      return numeric_setting(c, Unit::hertz, flim, sweep_stop_hz_, [this](double v) -> std::optional<ScpiError> {
+        sweep_stop_hz_ = v;
+        sweep_start_hz_ = std::min(sweep_start_hz_, v);
+        publish();
+        return std::nullopt;
+      });
+    });
+    // SCPI-99 Vol 2 SOURce:SWEep:TIME: one ramp, 1 ms to 1000 s in this model.
+    tree_.add("[SOURce:]SWEep:TIME[?]", [this](const Call& c) {
+      return numeric_setting(c, Unit::seconds, {1e-3, 1000, 0.01}, sweep_time_s_, [this](double v) -> std::optional<ScpiError> {
+        sweep_time_s_ = v;
+        publish();
         return std::nullopt;
       });
     });
@@ -106,6 +149,10 @@ class SourceInstrument final : public SimInstrument {
   double frequency_hz_ = 1e9;
   double power_dbm_ = -20;
   bool output_on_ = false;
+  bool sweeping_ = false;          // FREQuency:MODE SWEep
+  double sweep_start_hz_ = 0.9e9;
+  double sweep_stop_hz_ = 1.1e9;
+  double sweep_time_s_ = 0.01;
 };
 
 }  // namespace

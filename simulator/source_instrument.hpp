@@ -1,5 +1,6 @@
-// The simulated CW signal generator: frequency, level and output state within configured
-// ranges; every change is written to the World with the time it settles. Pure, no I/O.
+// The simulated signal generator: CW or a free-running linear frequency sweep (STARt, STOP,
+// SWEep:TIME), level and output state within configured ranges; every change is written to the
+// World with the time it settles. Pure, no I/O.
 // Single-threaded (the server's io thread). Create with make_source_instrument (instrument.hpp).
 #pragma once
 

@@ -3,6 +3,7 @@
 // Threading: single-threaded; only the server's one io thread touches a World.
 #pragma once
 
+#include <cmath>
 #include <cstdint>
 #include <memory>
 #include <string>
@@ -22,6 +23,24 @@ struct World {
   bool source_output_on = false;        // RF output state
   double source_settled_at_s = 0;       // sim time (s) when the last change has settled;
                                         // the receiver sees the tone only when now_s >= this
+
+  // Source sweep (FREQuency:MODE SWEep, written by the source instrument). While sweeping, the
+  // tone moves linearly from start to stop in source_sweep_time_s, jumps back (instant
+  // retrace) and repeats, for as long as the mode stays SWEep; the first sweep starts at
+  // source_sweep_epoch_s (sim time, after settling). source_frequency_hz then holds the start.
+  bool source_sweeping = false;
+  double source_sweep_start_hz = 0;
+  double source_sweep_stop_hz = 0;
+  double source_sweep_time_s = 1;       // > 0
+  double source_sweep_epoch_s = 0;
+
+  // The source tone frequency at sim time t (the CW frequency when not sweeping, the start
+  // before the first sweep begins).
+  double source_frequency_at(double t) const {
+    if (!source_sweeping || t <= source_sweep_epoch_s) return source_sweeping ? source_sweep_start_hz : source_frequency_hz;
+    const double phase = (t - source_sweep_epoch_s) / source_sweep_time_s;
+    return source_sweep_start_hz + (source_sweep_stop_hz - source_sweep_start_hz) * (phase - std::floor(phase));
+  }
 
   // What sits at the test port. nullptr = nothing connected: the unterminated port
   // reflects like an OPEN (the receiver models it so).

@@ -1,0 +1,30 @@
+// The fast-capture engine: the source ramps across the band on its own while the receiver spans
+// the whole plan and max-holds; one trace read returns every point. Same inputs and result shape
+// as SweepEngine::run (sweep_engine.hpp), for test runs and calibration standards alike.
+// Threading: synchronous; call from one worker thread. cancel may be set from any thread.
+// Safety: the source output is switched OFF (and the source put back to CW) at the end and on
+// every abort path; the worst-case receiver input is checked before anything is sent.
+#pragma once
+
+#include <atomic>
+
+#include "daemon/core/recipe.hpp"
+#include "daemon/service/sweep_engine.hpp"
+#include "drivers/receiver.hpp"
+#include "drivers/source.hpp"
+
+namespace echoline::service {
+
+// Runs recipe in fast-capture mode (timing from core::plan_fast_capture). Never throws; an
+// instrument error, a timeout or cancellation ends it with `error` set and no readings (a capture
+// is all or nothing). Readings: one per plan frequency; bins land on the plan points when the
+// plan is evenly spaced, otherwise the trace is interpolated (core::trace_to_plan).
+// REQUIRES profiles with the operations: source sweep_mode, sweep_start, sweep_stop, sweep_time;
+// receiver set_points, set_max_hold. The receiver's sweep time is set with the SCPI-1999
+// command [SENSe:]SWEep:TIME (the receiver profile has no operation for it yet) and put back to
+// automatic (SWEep:TIME:AUTO ON) at the end. The receiver's point count is left as set here.
+SweepOutcome run_fast_capture(drivers::Source& source, drivers::Receiver& receiver, const core::Recipe& recipe,
+                              const std::atomic<bool>& cancel, const ProgressFn& progress = {},
+                              SweepOptions options = {});
+
+}  // namespace echoline::service
