@@ -1,2 +1,81 @@
-// Scaffolding entry point; replaced by the real one.
-int main() { return 1; }
+// echoline: the station's client. `echoline station` is the operator console; the other
+// subcommands are for the test engineer. Dispatches to daemon/client/commands.hpp and turns the
+// edge exceptions (CliExit, ConfigError) into a message on stderr and an exit code.
+#include <iostream>
+#include <map>
+#include <string>
+#include <vector>
+
+#include "daemon/client/cli.hpp"
+#include "daemon/client/commands.hpp"
+#include "daemon/client/exit_codes.hpp"
+#include "drivers/config_error.hpp"
+
+namespace {
+
+using namespace echoline::client;
+
+constexpr const char* kHelp =
+    "usage: echoline COMMAND [options]      (echoline COMMAND --help for each)\n"
+    "\n"
+    "The client of the Echoline test station daemon (echolined).\n"
+    "\n"
+    "operator:\n"
+    "  station        the operator console: scan a serial, read PASS / FAIL / INCONCLUSIVE and\n"
+    "                 what to do with the unit; calibration prompts when it is due\n"
+    "engineer:\n"
+    "  recipe check FILE   check a recipe against the station (offline), findings with file:line\n"
+    "  dry-run RECIPE      the recipe's check, sweep plan and time estimate, no instrument touched\n"
+    "  runs                stored runs of a serial (--serial) or a lot (--lot)\n"
+    "  report              the HTML lot report (--lot, --out)\n"
+    "  export              runs as CSV or JSON (--scope run|serial|lot, --key, --format, --out)\n"
+    "  cal status|history  the calibration in use; the calibrations used so far\n"
+    "  status              the daemon's station, recipe, instruments, calibration, current job\n"
+    "\n"
+    "exit codes:\n"
+    "  0  done (the console session ended normally; no errors found)\n"
+    "  1  a unit or check came out negative: a recipe with errors, nothing stored under the key,\n"
+    "     or the daemon refused the request (busy, calibration due, ...)\n"
+    "  2  usage or configuration error (bad option, bad config file, token refused)\n"
+    "  3  the daemon could not be reached, or the connection to it dropped\n"
+    "  4  instrument trouble: the daemon could not use an instrument\n"
+    "  5  storage error: the run store could not be read or written\n"
+    "\n"
+    "Safety: during a test the antenna under test radiates the source power. Keep it low, use a\n"
+    "shielded enclosure where local rules require one, and stay within the bands you may use.\n";
+
+}  // namespace
+
+int main(int argc, char** argv) {
+  std::vector<std::string> args(argv + 1, argv + argc);
+  if (args.empty()) {
+    std::cerr << kHelp;
+    return kExitUsage;
+  }
+  const std::string command = args.front();
+  if (command == "--help" || command == "-h" || command == "help") {
+    std::cout << kHelp;
+    return kExitOk;
+  }
+  static const std::map<std::string, int (*)(const Argv&)> commands = {
+      {"station", cmd_station}, {"recipe", cmd_recipe}, {"dry-run", cmd_dry_run}, {"runs", cmd_runs},
+      {"report", cmd_report},   {"export", cmd_export}, {"cal", cmd_cal},         {"status", cmd_status},
+  };
+  auto it = commands.find(command);
+  if (it == commands.end()) {
+    std::cerr << "echoline: unknown command \"" << command << "\"\n(see echoline --help)\n";
+    return kExitUsage;
+  }
+  try {
+    return it->second(Argv(args.begin() + 1, args.end()));
+  } catch (const CliExit& e) {
+    if (*e.what()) std::cerr << "echoline: " << e.what() << "\n";
+    return e.code;
+  } catch (const echoline::drivers::ConfigError& e) {
+    std::cerr << "echoline: " << e.what() << "\n";
+    return kExitUsage;
+  } catch (const std::exception& e) {
+    std::cerr << "echoline " << command << ": " << e.what() << "\n";
+    return kExitNegative;
+  }
+}

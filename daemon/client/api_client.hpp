@@ -1,0 +1,56 @@
+// Client side of the daemon's JSON-lines API (daemon/service/API.md, version 1): requests with
+// ids, replies matched by id, events queued in arrival order. Transport problems are Error values
+// (ErrorKind closed/timeout/io); the daemon's refusals are ordinary replies (ApiReply::ok false).
+// One user thread at a time; owns its connection (copy deleted).
+#pragma once
+
+#include <deque>
+#include <memory>
+#include <string>
+#include <string_view>
+
+#include <nlohmann/json.hpp>
+
+#include "daemon/client/line_connection.hpp"
+#include "drivers/result.hpp"
+
+namespace echoline::client {
+
+struct ApiReply {
+  bool ok = false;
+  nlohmann::json result;    // when ok
+  std::string code;         // API error code when !ok ("busy", "calibration_due", ...)
+  std::string message;      // the daemon's message when !ok
+};
+
+class ApiClient {
+ public:
+  explicit ApiClient(std::unique_ptr<LineConnection> connection);
+  ApiClient(const ApiClient&) = delete;
+  ApiClient& operator=(const ApiClient&) = delete;
+
+  // Sends a request and waits up to `timeout` for its reply; events and replies to other
+  // requests that arrive meanwhile are kept for next_message().
+  Result<ApiReply> call(std::string_view name, const nlohmann::json& args, Millis timeout = Millis{30000});
+  // Sends a request; returns its id (the reply arrives through next_message()).
+  Result<long> send(std::string_view name, const nlohmann::json& args);
+  // The next message (reply or event) from the daemon, queued ones first.
+  Result<nlohmann::json> next_message(Millis timeout);
+  // `hello` with a role and an optional token. A refusal comes back as a reply with !ok.
+  Result<ApiReply> hello(std::string_view role, std::string_view token, std::string_view client_name);
+
+  const std::string& address() const { return connection_->address(); }
+  // The id of the last request sent (to match the events of a long call).
+  long last_id() const { return next_id_ - 1; }
+
+ private:
+  Result<nlohmann::json> read_message(Millis timeout);
+  std::unique_ptr<LineConnection> connection_;
+  std::deque<nlohmann::json> pending_;
+  long next_id_ = 1;
+};
+
+// Reads the reply fields of a message (ok/result/error) into an ApiReply.
+ApiReply to_reply(const nlohmann::json& message);
+
+}  // namespace echoline::client

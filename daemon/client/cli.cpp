@@ -1,0 +1,170 @@
+#include "daemon/client/cli.hpp"
+
+#include <cstdlib>
+#include <fstream>
+#include <sstream>
+
+#include <fmt/format.h>
+
+#include "daemon/client/exit_codes.hpp"
+#include "drivers/config_error.hpp"
+
+namespace echoline::client {
+
+const char* const kConnectionHelp =
+    "connection (how to reach echolined):\n"
+    "  --socket PATH        the daemon's Unix socket\n"
+    "  --tcp HOST:PORT      the daemon's TCP listener instead (with --token-file off loopback)\n"
+    "  --token-file FILE    API token for the engineer role and for non-loopback TCP\n"
+    "  --config FILE        station config whose api.unix_socket (and api.token_file) to use;\n"
+    "                       default $ECHOLINE_CONFIG, else config/station.jsonc when present\n"
+    "  ($ECHOLINE_SOCKET is used when neither --socket nor --tcp is given)\n";
+
+Args::Args(const std::vector<std::string>& argv, const std::string& command, std::set<std::string> values,
+           std::set<std::string> flags, std::size_t max_positional)
+    : command_(command) {
+  for (std::size_t i = 0; i < argv.size(); ++i) {
+    std::string a = argv[i];
+    if (a.size() > 2 && a.rfind("--", 0) == 0) {
+      std::string value;
+      bool inline_value = false;
+      if (auto eq = a.find('='); eq != std::string::npos) {
+        value = a.substr(eq + 1);
+        a = a.substr(0, eq);
+        inline_value = true;
+      }
+      if (values.count(a)) {
+        if (!inline_value) {
+          if (i + 1 >= argv.size()) usage_error(fmt::format("{} needs a value", a));
+          value = argv[++i];
+        }
+        values_[a] = value;
+      } else if (flags.count(a) && !inline_value) {
+        flags_set_.insert(a);
+      } else {
+        usage_error(fmt::format("unknown option {}", argv[i]));
+      }
+    } else if (a == "-h") {
+      flags_set_.insert("--help");
+    } else {
+      positional_.push_back(a);
+    }
+  }
+  if (positional_.size() > max_positional && !flag("--help")) {
+    usage_error(fmt::format("unexpected argument \"{}\"", positional_[max_positional]));
+  }
+}
+
+std::optional<std::string> Args::get(const std::string& name) const {
+  auto it = values_.find(name);
+  if (it == values_.end()) return std::nullopt;
+  return it->second;
+}
+
+std::string Args::get_or(const std::string& name, const std::string& fallback) const {
+  auto v = get(name);
+  return v ? *v : fallback;
+}
+
+void Args::usage_error(const std::string& message) const {
+  throw CliExit(kExitUsage, fmt::format("{}: {}\n(see echoline {} --help)", command_, message, command_));
+}
+
+std::optional<drivers::StationConfig> find_station_config(const Args& args, bool required) {
+  std::optional<std::string> explicit_file = args.get("--config");
+  if (!explicit_file) explicit_file = args.get("--station");
+  if (!explicit_file) {
+    if (const char* env = std::getenv("ECHOLINE_CONFIG"); env != nullptr && *env) explicit_file = env;
+  }
+  if (explicit_file) return drivers::load_station_config(*explicit_file);   // throws ConfigError
+  const std::filesystem::path fallback = "config/station.jsonc";
+  std::error_code ec;
+  if (std::filesystem::exists(fallback, ec)) {
+    try {
+      return drivers::load_station_config(fallback);
+    } catch (const drivers::ConfigError& e) {
+      if (required) throw;
+    }
+  }
+  if (required) {
+    throw CliExit(kExitUsage, "no station config: give --config FILE (or set ECHOLINE_CONFIG)");
+  }
+  return std::nullopt;
+}
+
+std::filesystem::path store_file(const drivers::StationConfig& config) {
+  return config.data_dir / (config.station + ".sqlite");
+}
+
+namespace {
+
+std::string read_token(const std::filesystem::path& file, bool must) {
+  std::ifstream in(file);
+  if (!in) {
+    if (must) throw CliExit(kExitUsage, fmt::format("--token-file {}: cannot read", file.string()));
+    return "";
+  }
+  std::stringstream ss;
+  ss << in.rdbuf();
+  std::string t = ss.str();
+  while (!t.empty() && (t.back() == '\n' || t.back() == '\r' || t.back() == ' ' || t.back() == '\t')) t.pop_back();
+  return t;
+}
+
+}  // namespace
+
+std::unique_ptr<ApiClient> connect_daemon(const Args& args, const std::string& role, const std::string& client_name) {
+  std::string address;
+  std::string token;
+  std::optional<drivers::StationConfig> config;
+  if (auto s = args.get("--socket")) {
+    address = "unix:" + *s;
+  } else if (auto t = args.get("--tcp")) {
+    std::string host;
+    int port = 0;
+    if (!split_host_port(*t, host, port)) args.usage_error(fmt::format("--tcp {}: expected HOST:PORT", *t));
+    address = fmt::format("tcp://{}:{}", host, port);
+  } else if (const char* env = std::getenv("ECHOLINE_SOCKET"); env != nullptr && *env) {
+    address = std::string("unix:") + env;
+  } else {
+    config = find_station_config(args, false);
+    if (!config) {
+      throw CliExit(kExitUsage, "no daemon address: give --socket PATH, --tcp HOST:PORT or --config FILE "
+                                "(or set ECHOLINE_SOCKET)");
+    }
+    address = "unix:" + config->api.unix_socket.string();
+  }
+  if (auto tf = args.get("--token-file")) {
+    token = read_token(*tf, true);
+  } else {
+    if (!config && (args.get("--config") || std::getenv("ECHOLINE_CONFIG"))) config = find_station_config(args, false);
+    if (config && !config->api.token_file.empty()) token = read_token(config->api.token_file, false);
+  }
+  auto link = LineConnection::connect_address(address, Millis{5000});
+  if (!link) {
+    throw CliExit(kExitUnreachable, fmt::format("cannot reach the daemon: {}\n"
+                                                "Is echolined running? Start it with: echolined --config <station.jsonc>",
+                                                link.error().message));
+  }
+  auto api = std::make_unique<ApiClient>(std::move(link.value()));
+  auto hello = api->hello(role, token, client_name);
+  if (!hello) {
+    throw CliExit(kExitUnreachable, fmt::format("cannot reach the daemon: {}", hello.error().message));
+  }
+  if (!hello->ok) {
+    throw CliExit(exit_code_for_api_error(hello->code),
+                  fmt::format("the daemon refused the {} role ({}): {}", role, hello->code, hello->message));
+  }
+  return api;
+}
+
+void require_ok(const ApiReply& reply, const std::string& what) {
+  if (!reply.ok) throw CliExit(exit_code_for_api_error(reply.code), fmt::format("{}: {} ({})", what, reply.message, reply.code));
+}
+
+ApiReply require_link(Result<ApiReply> reply, const std::string& what) {
+  if (!reply) throw CliExit(kExitUnreachable, fmt::format("{}: lost the daemon: {}", what, reply.error().message));
+  return std::move(reply.value());
+}
+
+}  // namespace echoline::client

@@ -1,0 +1,72 @@
+// Shared edge code of the `echoline` subcommands: a small option parser, the one exception type
+// that carries an exit code to main(), finding the station config, and connecting to the daemon
+// (Unix socket or TCP, hello with role and token). Exceptions are used here only (edge code).
+// One thread.
+#pragma once
+
+#include <filesystem>
+#include <map>
+#include <memory>
+#include <optional>
+#include <set>
+#include <stdexcept>
+#include <string>
+#include <vector>
+
+#include "daemon/client/api_client.hpp"
+#include "drivers/station_config.hpp"
+
+namespace echoline::client {
+
+// Ends a subcommand with an exit code and a message for stderr ("" = nothing to print).
+struct CliExit : std::runtime_error {
+  CliExit(int code_, const std::string& message) : std::runtime_error(message), code(code_) {}
+  int code;
+};
+
+// Options of one subcommand. Unknown options, missing values and stray arguments throw
+// CliExit(kExitUsage) naming them.
+class Args {
+ public:
+  // `values`: options that take a value ("--lot"); `flags`: options without one ("--help").
+  // `max_positional`: how many plain arguments are allowed.
+  Args(const std::vector<std::string>& argv, const std::string& command, std::set<std::string> values,
+       std::set<std::string> flags, std::size_t max_positional);
+  std::optional<std::string> get(const std::string& name) const;
+  std::string get_or(const std::string& name, const std::string& fallback) const;
+  bool flag(const std::string& name) const { return flags_set_.count(name) != 0; }
+  const std::vector<std::string>& positional() const { return positional_; }
+  [[noreturn]] void usage_error(const std::string& message) const;
+
+ private:
+  std::string command_;
+  std::map<std::string, std::string> values_;
+  std::set<std::string> flags_set_;
+  std::vector<std::string> positional_;
+};
+
+// The options every daemon-talking subcommand accepts.
+inline const std::set<std::string> kConnectionOptions = {"--config", "--socket", "--tcp", "--token-file"};
+extern const char* const kConnectionHelp;
+
+// The station config: --config, else $ECHOLINE_CONFIG, else config/station.jsonc when present.
+// `required`: throw when none can be found. A config named explicitly that does not load throws
+// its ConfigError; the implicit default is skipped quietly when it does not load.
+std::optional<drivers::StationConfig> find_station_config(const Args& args, bool required);
+
+// The run store file of a station: <data_dir>/<station>.sqlite.
+std::filesystem::path store_file(const drivers::StationConfig& config);
+
+// Connects to the daemon and says hello. Address: --socket, else --tcp host:port, else
+// $ECHOLINE_SOCKET, else the station config's api.unix_socket. Token: --token-file, else the
+// config's api.token_file when readable. Throws CliExit: kExitUnreachable when the daemon
+// cannot be reached, kExitUsage when no address is known or the token is refused.
+std::unique_ptr<ApiClient> connect_daemon(const Args& args, const std::string& role, const std::string& client_name);
+
+// Throws CliExit for a refused reply: the exit code from the API error code, the message
+// prefixed with `what`.
+void require_ok(const ApiReply& reply, const std::string& what);
+// Unwraps a transport result or throws CliExit(kExitUnreachable).
+ApiReply require_link(Result<ApiReply> reply, const std::string& what);
+
+}  // namespace echoline::client

@@ -1,0 +1,170 @@
+// `echoline recipe check FILE` and `echoline dry-run RECIPE`: offline, nothing is sent to any
+// instrument (dry-run --select asks the daemon to load the recipe).
+#include <cmath>
+#include <filesystem>
+#include <iostream>
+
+#include <fmt/format.h>
+
+#include "daemon/client/capability.hpp"
+#include "daemon/client/cli.hpp"
+#include "daemon/client/commands.hpp"
+#include "daemon/client/exit_codes.hpp"
+#include "daemon/core/recipe_check.hpp"
+#include "daemon/core/recipe_loader.hpp"
+#include "drivers/config_error.hpp"
+#include "drivers/jsonc.hpp"
+
+namespace echoline::client {
+
+namespace {
+
+constexpr const char* kRecipeHelp =
+    "usage: echoline recipe check FILE [--station CONFIG]\n\n"
+    "Loads the recipe and the station's instrument profiles and checks the recipe against what\n"
+    "the station can do: equipment safety (worst-case power at the receiver against its maximum\n"
+    "safe input), frequency and level ranges, and whether the station can verify the limits\n"
+    "(directivity, noise floor). Prints each finding as FILE:LINE: KEY: error|warning: MESSAGE.\n"
+    "Offline: no daemon and no instrument is involved.\n\n"
+    "  --station CONFIG   station config (default $ECHOLINE_CONFIG, else config/station.jsonc)\n\n"
+    "exit: 0 no errors (warnings allowed), 1 the recipe has errors or does not load,\n"
+    "      2 usage or station config error\n";
+
+constexpr const char* kDryRunHelp =
+    "usage: echoline dry-run RECIPE [--station CONFIG] [--select [connection options]]\n\n"
+    "Shows what the recipe would do on this station without touching any instrument: the\n"
+    "recipe check, the sweep plan (segments, points, frequencies), the source level and the\n"
+    "worst-case power at the receiver, the calibration standards, and an estimate of the sweep\n"
+    "time from the receiver settings (settling + k*span/RBW^2 per reading, k = 2.5; instrument\n"
+    "command overhead not included, so real sweeps take longer).\n\n"
+    "  --station CONFIG   station config (default $ECHOLINE_CONFIG, else config/station.jsonc)\n"
+    "  --select           then ask the running daemon to load the recipe (recipe.select, engineer\n"
+    "                     role); the calibration stays valid only for the same sweep plan.\n"
+    "                     To dry-run on the simulator, start echoline-sim and echolined on it.\n\n"
+    "exit: 0 no errors, 1 the recipe has errors, 2 usage or config error, 3 daemon unreachable\n";
+
+int line_of(const drivers::JsoncDocument* doc, const std::string& key) {
+  if (doc == nullptr) return 0;
+  try {
+    return doc->line_of(nlohmann::json::json_pointer(key.empty() || key[0] != '/' ? "" : key));
+  } catch (const std::exception&) {
+    return 0;
+  }
+}
+
+struct Checked {
+  core::Recipe recipe;
+  std::vector<core::CheckFinding> findings;
+  core::StationCapability capability;
+  bool errors = false;
+};
+
+// Loads and checks; prints findings. Throws CliExit(kExitNegative) when the recipe does not load.
+Checked load_and_check(const std::string& file, const drivers::StationConfig& config) {
+  Checked out;
+  try {
+    out.recipe = core::load_recipe(file);
+  } catch (const drivers::ConfigError& e) {
+    std::cout << e.what() << "\n";
+    throw CliExit(kExitNegative, fmt::format("recipe check: {} does not load (1 error)", file));
+  }
+  std::optional<drivers::JsoncDocument> doc;
+  try {
+    doc = drivers::JsoncDocument::load(file);
+  } catch (const std::exception&) {
+    doc.reset();
+  }
+  out.capability = station_capability(config, out.recipe);
+  out.findings = core::check_recipe(out.recipe, out.capability);
+  for (const auto& f : out.findings) {
+    const int line = line_of(doc ? &*doc : nullptr, f.key);
+    std::cout << fmt::format("{}{}: {}: {}: {}\n", file, line > 0 ? fmt::format(":{}", line) : "", f.key.empty() ? "/" : f.key,
+                             f.severity, f.message);
+  }
+  out.errors = core::has_errors(out.findings);
+  return out;
+}
+
+int count(const std::vector<core::CheckFinding>& fs, const char* severity) {
+  int n = 0;
+  for (const auto& f : fs) n += f.severity == severity;
+  return n;
+}
+
+}  // namespace
+
+int cmd_recipe(const Argv& argv) {
+  Args args(argv, "recipe", {"--station", "--config"}, {"--help"}, 2);
+  if (args.flag("--help")) {
+    std::cout << kRecipeHelp;
+    return kExitOk;
+  }
+  if (args.positional().size() != 2 || args.positional()[0] != "check") args.usage_error("expected: recipe check FILE");
+  const std::string file = args.positional()[1];
+  const drivers::StationConfig config = *find_station_config(args, true);
+  Checked c = load_and_check(file, config);
+  std::cout << fmt::format("recipe check: {} {} on station {}: {} error{}, {} warning{}\n", c.recipe.name, c.recipe.version,
+                           config.station, count(c.findings, "error"), count(c.findings, "error") == 1 ? "" : "s",
+                           count(c.findings, "warning"), count(c.findings, "warning") == 1 ? "" : "s");
+  return c.errors ? kExitNegative : kExitOk;
+}
+
+int cmd_dry_run(const Argv& argv) {
+  std::set<std::string> values = kConnectionOptions;
+  values.insert("--station");
+  Args args(argv, "dry-run", values, {"--help", "--select"}, 1);
+  if (args.flag("--help")) {
+    std::cout << kDryRunHelp << "\n" << kConnectionHelp;
+    return kExitOk;
+  }
+  if (args.positional().size() != 1) args.usage_error("expected: dry-run RECIPE");
+  const std::string file = args.positional()[0];
+  const drivers::StationConfig config = *find_station_config(args, true);
+  std::cout << "Recipe check:\n";
+  Checked c = load_and_check(file, config);
+  if (c.findings.empty()) std::cout << "  no findings\n";
+  const core::Recipe& r = c.recipe;
+  const auto freqs = core::plan_frequencies(r);
+  std::cout << fmt::format("\nPlan of {} {} ({} acceptance), nothing sent to any instrument:\n", r.name, r.version,
+                           core::to_string(r.rule));
+  for (const auto& seg : r.segments) {
+    std::cout << fmt::format("  segment {:.3f} - {:.3f} MHz, {} points\n", seg.start_hz / 1e6, seg.stop_hz / 1e6, seg.points);
+  }
+  std::cout << fmt::format("  {} frequencies in all{}\n", freqs.size(),
+                           freqs.size() > 1 ? fmt::format(", {:.3f} to {:.3f} MHz", freqs.front() / 1e6, freqs.back() / 1e6) : "");
+  std::cout << fmt::format("  source {:.1f} dBm CW, settle {:.4f} s per frequency\n", r.source.power_dbm, r.source.settle_s);
+  const double vbw = r.receiver.vbw_hz > 0 ? r.receiver.vbw_hz : r.receiver.rbw_hz;
+  std::cout << fmt::format("  receiver RBW {:.0f} Hz, VBW {:.0f} Hz, span {:.0f} Hz, {} reading{} per point\n", r.receiver.rbw_hz,
+                           vbw, r.receiver.span_hz, r.receiver.averages, r.receiver.averages == 1 ? "" : "s");
+  const double worst = core::worst_case_receiver_dbm(r.source.power_dbm, c.capability);
+  std::cout << fmt::format("  worst-case power at the receiver {:.1f} dBm (maximum safe input {:.1f} dBm)\n", worst,
+                           c.capability.receiver_max_safe_input_dbm);
+  std::cout << "  calibration standards: " << (r.calibration.use_short ? "OPEN, SHORT, LOAD" : "OPEN, LOAD") << "\n";
+  // Swept-analyzer time per reading: ST = k*span/RBW^2, k in the 2-3 range for near-Gaussian
+  // filters (Agilent AN 150); we take k = 2.5. VBW < RBW lengthens it by RBW/VBW (from memory).
+  double per_reading = 0;
+  if (r.receiver.span_hz > 0 && r.receiver.rbw_hz > 0) {
+    per_reading = 2.5 * r.receiver.span_hz / (r.receiver.rbw_hz * r.receiver.rbw_hz);
+    if (vbw < r.receiver.rbw_hz) per_reading *= r.receiver.rbw_hz / vbw;
+  }
+  const double per_point = r.source.settle_s + per_reading * std::max(r.receiver.averages, 1);
+  const double sweep = per_point * static_cast<double>(freqs.size());
+  std::cout << fmt::format("  estimated sweep time {:.2f} s per unit ({:.4f} s per point, command overhead not included)\n",
+                           sweep, per_point);
+  std::cout << fmt::format("  estimated calibration {:.2f} s of sweeps ({} standards)\n",
+                           sweep * (r.calibration.use_short ? 3 : 2), r.calibration.use_short ? 3 : 2);
+  if (c.errors) {
+    std::cout << "\nThe recipe has errors: it cannot run on this station.\n";
+    return kExitNegative;
+  }
+  if (args.flag("--select")) {
+    auto api = connect_daemon(args, "engineer", "echoline dry-run");
+    const std::string abs = std::filesystem::absolute(file).string();
+    ApiReply reply = require_link(api->call("recipe.select", {{"path", abs}}), "recipe.select");
+    require_ok(reply, "recipe.select");
+    std::cout << "\nThe daemon now runs " << abs << "\n";
+  }
+  return kExitOk;
+}
+
+}  // namespace echoline::client

@@ -1,0 +1,387 @@
+#include "daemon/client/console.hpp"
+
+#include <chrono>
+#include <thread>
+
+#include <fmt/format.h>
+
+#include "daemon/client/exit_codes.hpp"
+#include "daemon/client/progress_bar.hpp"
+#include "daemon/client/unit_advice.hpp"
+#include "daemon/client/verdict_banner.hpp"
+#include "daemon/store/serial.hpp"
+
+namespace echoline::client {
+
+using nlohmann::json;
+
+namespace {
+
+constexpr const char* kSafetyText =
+    "  SAFETY\n"
+    "  * The antenna under test RADIATES while it is measured. Keep the source power low (the\n"
+    "    recipe sets it), test in a shielded enclosure where local rules require one, and\n"
+    "    transmit only in bands you are allowed to use.\n"
+    "  * The analyzer's input is protected by the recipe check: a recipe whose worst-case input\n"
+    "    could exceed the analyzer's maximum safe input is refused. Never connect the generator\n"
+    "    straight to the analyzer.\n";
+
+std::string str(const json& j, const char* key, std::string fallback = "") {
+  if (!j.is_object()) return fallback;
+  auto it = j.find(key);
+  if (it == j.end() || !it->is_string()) return fallback;
+  return it->get<std::string>();
+}
+
+bool is_quit(const std::string& s) { return s == "q" || s == "quit" || s == "Q" || s == "QUIT"; }
+
+}  // namespace
+
+double SessionSummary::yield() const {
+  const int judged = units_judged();
+  if (judged == 0) return 0;
+  int passed = 0;
+  for (const auto& [serial, v] : final_verdict) passed += v == "pass";
+  return static_cast<double>(passed) / judged;
+}
+
+int SessionSummary::units_judged() const {
+  int n = 0;
+  for (const auto& [serial, v] : final_verdict) n += v != "aborted";
+  return n;
+}
+
+Console::Console(ApiClient& api, LineInput& input, std::ostream& out, ConsoleOptions options, PlotSource plot)
+    : api_(api), input_(input), out_(out), options_(std::move(options)), plot_(std::move(plot)) {
+  if (!options_.sim_fixture.empty()) fixture_ = std::make_unique<FixtureControl>(options_.sim_fixture);
+}
+
+Console::Outcome Console::lost(const Error& e) {
+  out_ << "\nLOST THE CONNECTION TO THE DAEMON (" << api_.address() << "): " << e.message << "\n"
+       << "The station cannot test until echolined runs again. Any unit in the fixture was NOT judged.\n"
+       << std::flush;
+  return Outcome::lost;
+}
+
+int Console::run() {
+  Outcome o = first_screen();
+  if (o == Outcome::done) o = scan_loop();
+  print_summary();
+  return o == Outcome::lost ? kExitUnreachable : kExitOk;
+}
+
+Console::Outcome Console::first_screen() {
+  auto st = api_.call("status", json::object());
+  if (!st) return lost(st.error());
+  if (!st->ok) {
+    out_ << "The daemon refused status: " << st->message << "\n";
+    return Outcome::done;
+  }
+  const json& s = st->result;
+  const json& recipe = s.contains("recipe") ? s["recipe"] : json::object();
+  const json& cal = s.contains("calibration") ? s["calibration"] : json::object();
+  out_ << "==============================================================\n";
+  out_ << " ECHOLINE STATION  " << str(s, "station", "?") << "\n";
+  out_ << "==============================================================\n";
+  out_ << fmt::format("  Recipe:      {} {} ({} points, {} acceptance)\n", str(recipe, "name", "?"),
+                      str(recipe, "version"), recipe.value("points", 0), str(recipe, "decision_rule", "?"));
+  if (s.contains("instruments")) {
+    for (const auto& i : s["instruments"]) {
+      const bool healthy = i.value("healthy", false);
+      out_ << fmt::format("  {:<12} {} {} {}{}\n", str(i, "role") + ":", str(i, "name"), str(i, "address"),
+                          healthy ? "ok" : "NOT READY",
+                          healthy || str(i, "last_error").empty() ? "" : " - " + str(i, "last_error"));
+    }
+  }
+  const bool due = cal.value("due", true);
+  if (!cal.value("present", false)) {
+    out_ << "  Calibration: none yet\n";
+  } else {
+    out_ << fmt::format("  Calibration: {} {} from {}, min directivity {:.1f} dB, {} units since\n",
+                        cal.value("valid", false) ? "valid" : "NOT valid", str(cal, "id"), str(cal, "created_utc"),
+                        cal.value("min_directivity_db", 0.0), cal.value("units_since", 0));
+  }
+  if (due) out_ << "               DUE: " << str(cal, "reason", "no calibration") << "\n";
+  if (!options_.lot.empty()) out_ << "  Lot:         " << options_.lot << "\n";
+  if (!options_.operator_name.empty()) out_ << "  Operator:    " << options_.operator_name << "\n";
+  if (fixture_) out_ << "  Fixture:     SIMULATOR " << fixture_->address() << " (units connected automatically)\n";
+  out_ << "--------------------------------------------------------------\n" << kSafetyText;
+  out_ << "--------------------------------------------------------------\n" << std::flush;
+  if (due) {
+    auto ok = calibrate(false);
+    if (!ok) return lost(ok.error());
+  }
+  return Outcome::done;
+}
+
+Console::Outcome Console::scan_loop() {
+  for (;;) {
+    out_ << "\nScan serial: " << std::flush;
+    auto line = input_.next();
+    if (!line) {
+      out_ << "\n";
+      return Outcome::done;
+    }
+    if (!input_.interactive()) out_ << *line << "\n";
+    if (line->empty()) continue;
+    if (is_quit(*line)) return Outcome::done;
+    if (test_unit(*line) == Outcome::lost) return Outcome::lost;
+  }
+}
+
+bool Console::confirm(const std::string& prompt) {
+  out_ << prompt << " " << std::flush;
+  if (input_.interactive()) {
+    for (;;) {
+      auto line = input_.next();
+      if (!line || is_quit(*line) || *line == "cancel") return false;
+      if (line->empty()) return true;
+      out_ << "Press Enter once it is connected (or q to cancel): " << std::flush;
+    }
+  }
+  auto ahead = input_.peek();
+  if (ahead && ahead->empty()) {
+    input_.next();
+    out_ << "(Enter)\n" << std::flush;
+    return true;
+  }
+  if (fixture_) {
+    out_ << "(simulator fixture)\n" << std::flush;
+    return true;
+  }
+  out_ << "\nPiped input: expected an empty line to confirm; cancelled.\n" << std::flush;
+  return false;
+}
+
+Result<json> Console::job_events(long id, const std::string& label) {
+  std::unique_ptr<ProgressDisplay> progress;
+  std::string progress_label;
+  for (;;) {
+    auto m = api_.next_message(options_.job_timeout);
+    if (!m) {
+      if (progress) progress->finish();
+      return m.error();
+    }
+    const json& j = *m;
+    if (!j.contains("id") || !j["id"].is_number_integer() || j["id"].get<long>() != id || !j.contains("event")) continue;
+    const std::string event = str(j, "event");
+    if (event == "progress") {
+      const std::string standard = str(j, "standard");
+      const std::string want = standard.empty() ? label : "measuring " + standard;
+      if (!progress || want != progress_label) {
+        if (progress) progress->finish();
+        progress = std::make_unique<ProgressDisplay>(out_, options_.output_is_tty, want);
+        progress_label = want;
+      }
+      progress->update(j.value("point", 0), j.value("of", 0));
+    } else if (event == "prompt") {
+      if (progress) progress->finish();
+      progress.reset();
+      const std::string standard = str(j, "standard");
+      bool connected = true;
+      if (fixture_) {
+        if (Status s = fixture_->connect_standard(standard); !s) {
+          out_ << "Simulator fixture could not connect " << standard << ": " << s.error().message << "\n";
+          connected = false;
+        }
+      }
+      if (connected) {
+        connected = confirm(fmt::format("\n>>> Connect the {} standard to the test port, then press Enter:", standard));
+      }
+      json args = {{"standard", standard}};
+      if (!connected) args["connected"] = false;
+      auto r = api_.call("cal.answer", args);
+      if (!r) return r.error();
+      if (!r->ok) out_ << "The daemon refused the answer: " << r->message << "\n";
+    } else if (event == "result" || event == "error") {
+      if (progress) progress->finish();
+      return j;
+    }
+  }
+}
+
+Result<bool> Console::calibrate(bool check_only) {
+  out_ << (check_only ? "\n--- CHECK STANDARD: re-measure one standard to confirm the calibration still holds ---\n"
+                      : "\n--- CALIBRATION: connect each standard when asked ---\n")
+       << std::flush;
+  auto reply = api_.call(check_only ? "cal.check" : "cal.start", json::object());
+  if (!reply) return reply.error();
+  if (!reply->ok) {
+    out_ << (check_only ? "Check refused: " : "Calibration refused: ") << reply->message << "\n" << std::flush;
+    return false;
+  }
+  const long id = api_.last_id();
+  auto end = job_events(id, "measuring");
+  if (!end) return end.error();
+  const json& e = *end;
+  if (str(e, "event") == "error") {
+    const json err = e.contains("error") ? e["error"] : json::object();
+    out_ << (check_only ? "CHECK NOT COMPLETED: " : "CALIBRATION NOT COMPLETED: ") << str(err, "message") << "\n";
+    if (str(err, "code") == "instrument") out_ << "Instrument trouble: fix it, then scan a unit to try again.\n";
+    out_ << std::flush;
+    return false;
+  }
+  if (check_only) {
+    const json c = e.contains("check") ? e["check"] : json::object();
+    const bool drifted = c.value("drifted", true);
+    out_ << (drifted ? "Check standard DRIFTED: " : "Check standard ok: ") << str(c, "message") << "\n";
+    if (drifted) out_ << "A new calibration is needed.\n";
+    out_ << std::flush;
+    return !drifted;
+  }
+  const json c = e.contains("calibration") ? e["calibration"] : json::object();
+  const bool valid = c.value("valid", false);
+  out_ << fmt::format("Calibration {}: {}, minimum directivity {:.1f} dB\n", str(c, "id"), valid ? "VALID" : "NOT VALID",
+                      c.value("min_directivity_db", 0.0));
+  if (c.contains("warnings")) {
+    for (const auto& w : c["warnings"]) out_ << "  warning: " << (w.is_string() ? w.get<std::string>() : w.dump()) << "\n";
+  }
+  if (!valid) out_ << "Check the standards and their connections, then scan a unit to calibrate again.\n";
+  out_ << std::flush;
+  return valid;
+}
+
+Console::Outcome Console::test_unit(const std::string& serial) {
+  if (!options_.serial_pattern.empty()) {
+    if (Status s = store::validate_serial(serial, options_.serial_pattern); !s) {
+      out_ << "\nNOT A VALID SERIAL: \"" << serial << "\"\n" << s.error().message << "\nScan the unit's barcode again.\n"
+           << std::flush;
+      return Outcome::done;
+    }
+  }
+  auto history = api_.call("runs.history", {{"serial", serial}});
+  if (!history) return lost(history.error());
+  int tested = 0;
+  if (history->ok && history->result.contains("runs")) tested = static_cast<int>(history->result["runs"].size());
+  if (tested > 0) {
+    out_ << fmt::format("{} already tested {} time{} — retest? [y/N] ", serial, tested, tested == 1 ? "" : "s") << std::flush;
+    auto answer = input_.next();
+    if (answer && !input_.interactive()) out_ << *answer << "\n";
+    if (!answer || (*answer != "y" && *answer != "Y" && *answer != "yes")) {
+      out_ << "Not retested: " << serial << "\n" << std::flush;
+      return Outcome::done;
+    }
+  }
+  int busy_waits = 0;
+  for (int attempt = 0; attempt < 3; ++attempt) {
+    if (fixture_) {
+      if (Status s = fixture_->connect_unit(serial); !s) {
+        out_ << "Simulator fixture: " << s.error().message << "\nUnit not tested.\n" << std::flush;
+        return Outcome::done;
+      }
+    } else if (attempt > 0) {
+      if (!confirm(fmt::format("\n>>> Connect unit {} to the test port again, then press Enter:", serial))) {
+        out_ << "Unit not tested: " << serial << "\n" << std::flush;
+        return Outcome::done;
+      }
+    }
+    json args = {{"serial", serial}};
+    if (!options_.lot.empty()) args["lot"] = options_.lot;
+    if (!options_.operator_name.empty()) args["operator"] = options_.operator_name;
+    if (tested > 0) args["retest"] = true;
+    auto reply = api_.call("test.start", args);
+    if (!reply) return lost(reply.error());
+    if (!reply->ok) {
+      // The daemon may still be closing the previous job for a moment after its result event.
+      if (reply->code == "busy" && busy_waits++ < 50) {
+        std::this_thread::sleep_for(std::chrono::milliseconds(100));
+        --attempt;
+        continue;
+      }
+      if (reply->code == "calibration_due" || reply->code == "check_due") {
+        out_ << "\n" << reply->message << "\n" << std::flush;
+        auto ok = calibrate(reply->code == "check_due");
+        if (!ok) return lost(ok.error());
+        if (!*ok && reply->code == "calibration_due") {
+          out_ << "Unit not tested: " << serial << " (no valid calibration)\n" << std::flush;
+          return Outcome::done;
+        }
+        continue;
+      }
+      if (reply->code == "invalid_serial") {
+        out_ << "\nNOT A VALID SERIAL: \"" << serial << "\"\n" << reply->message
+             << "\nScan the unit's barcode again.\n" << std::flush;
+      } else if (reply->code == "instrument" || reply->code == "unsafe") {
+        out_ << "\nINSTRUMENT TROUBLE: " << reply->message << "\nUnit not judged. Call the test engineer.\n" << std::flush;
+      } else if (reply->code == "busy") {
+        out_ << "\nSTATION BUSY: " << reply->message << "\nWait for it to finish, then scan again.\n" << std::flush;
+      } else {
+        out_ << "\nThe daemon refused the test (" << reply->code << "): " << reply->message << "\n" << std::flush;
+      }
+      return Outcome::done;
+    }
+    const long id = api_.last_id();
+    auto end = job_events(id, "measuring " + serial);
+    if (!end) return lost(end.error());
+    const json& e = *end;
+    if (str(e, "event") == "error" || !e.contains("run")) {
+      out_ << "\nTEST NOT COMPLETED: " << e.dump() << "\n" << std::flush;
+      return Outcome::done;
+    }
+    show_run(e["run"]);
+    return Outcome::done;
+  }
+  out_ << "Unit not tested: " << serial << " (calibration kept being requested)\n" << std::flush;
+  return Outcome::done;
+}
+
+void Console::show_run(const json& run) {
+  const std::string verdict = str(run, "verdict", "aborted");
+  const std::string serial = str(run, "serial");
+  const bool before = inconclusive_count_[serial] > 0;
+  if (verdict == "inconclusive") ++inconclusive_count_[serial];
+  ++summary_.runs;
+  ++summary_.runs_by_verdict[verdict];
+  summary_.final_verdict[serial] = verdict;
+
+  out_ << "\n" << verdict_banner(verdict, options_.colour);
+  out_ << fmt::format("  Unit {}   verdict {}{}   run {}\n", serial, verdict,
+                      str(run, "failure_class").empty() ? "" : " (" + str(run, "failure_class") + ")", str(run, "run_id"));
+  const std::string reason = str(run, "reason");
+  if (!reason.empty()) out_ << "  Why: " << reason << "\n";
+  const std::string metrics = verdict == "aborted" ? "" : metrics_line(run);
+  if (!metrics.empty()) out_ << "  Measured: " << metrics << "\n";
+  if (run.contains("trim") && run["trim"].is_object()) out_ << "  Trim: " << str(run["trim"], "text") << "\n";
+  const UnitAdvice advice = advise(run, before);
+  out_ << "\n  >>> " << advice.action << "\n";
+  if (!advice.detail.empty()) out_ << "      " << advice.detail << "\n";
+  if (run.contains("stored") && !run.value("stored", true)) {
+    out_ << "\n  WARNING: this run was NOT stored: " << str(run, "store_error") << "\n"
+         << "  Set the unit aside and call the test engineer.\n";
+  }
+  if (verdict != "aborted") show_plot(str(run, "run_id"));
+  out_ << std::flush;
+}
+
+void Console::show_plot(const std::string& run_id) {
+  if (!plot_.points) return;
+  auto points = plot_.points(run_id);
+  if (!points) {
+    if (!plot_warned_) out_ << "  (no plot: " << points.error().message << ")\n";
+    plot_warned_ = true;
+    return;
+  }
+  out_ << "\n" << return_loss_plot(*points, plot_.limits);
+}
+
+void Console::print_summary() {
+  if (summary_.runs == 0 && input_.interactive()) return;
+  const auto count = [&](const char* v) {
+    auto it = summary_.runs_by_verdict.find(v);
+    return it == summary_.runs_by_verdict.end() ? 0 : it->second;
+  };
+  out_ << "\n==============================================================\n";
+  out_ << " SESSION SUMMARY\n";
+  out_ << fmt::format("  Units tested: {}   runs: {}\n", summary_.final_verdict.size(), summary_.runs);
+  out_ << fmt::format("  pass {}   fail {}   inconclusive {}   aborted {}   (runs)\n", count("pass"), count("fail"),
+                      count("inconclusive"), count("aborted"));
+  out_ << fmt::format("  Yield: {:.1f} % (units whose latest run passed, of {} judged)\n", 100 * summary_.yield(),
+                      summary_.units_judged());
+  out_ << "==============================================================\n";
+  out_ << fmt::format("summary units={} runs={} pass={} fail={} inconclusive={} aborted={} yield={:.1f}%\n",
+                      summary_.final_verdict.size(), summary_.runs, count("pass"), count("fail"), count("inconclusive"),
+                      count("aborted"), 100 * summary_.yield())
+       << std::flush;
+}
+
+}  // namespace echoline::client

@@ -1,0 +1,85 @@
+// The operator console (`echoline station`): first screen with the safety text, the scan loop,
+// retest question, calibration walk-through, progress, the large verdict with what to do with
+// the unit and a return-loss plot, and the end-of-session summary. Talks to the daemon through
+// ApiClient; reads the operator (or a piped scanner) through LineInput. One thread.
+#pragma once
+
+#include <functional>
+#include <map>
+#include <memory>
+#include <optional>
+#include <ostream>
+#include <string>
+#include <vector>
+
+#include "daemon/client/api_client.hpp"
+#include "daemon/client/fixture_control.hpp"
+#include "daemon/client/line_input.hpp"
+#include "daemon/client/text_plot.hpp"
+
+namespace echoline::client {
+
+struct ConsoleOptions {
+  std::string lot;              // stored with every run ("" = none)
+  std::string operator_name;    // stored with every run ("" = none)
+  std::string serial_pattern;   // station's serial regex, checked before the fixture is touched ("" = daemon checks)
+  std::string sim_fixture;      // SIMULATOR ONLY: fixture control address ("" = a person connects units)
+  bool output_is_tty = false;   // progress in place
+  bool colour = false;          // ANSI colour in the banner
+  Millis job_timeout{600000};   // longest silence from the daemon during a test or calibration
+};
+
+// Where the console finds a run's points for its plot (the API's result event carries none).
+struct PlotSource {
+  std::function<Result<std::vector<PlotPoint>>(const std::string& run_id)> points;   // empty = no plot
+  std::vector<PlotLimit> limits;
+};
+
+struct SessionSummary {
+  int runs = 0;
+  std::map<std::string, int> runs_by_verdict;         // pass/fail/inconclusive/aborted
+  std::map<std::string, std::string> final_verdict;   // serial -> verdict of its latest run
+  // Units whose latest run passed / units with a judged (non-aborted) latest run; 0 when none.
+  double yield() const;
+  int units_judged() const;
+};
+
+class Console {
+ public:
+  // REQUIRES: api, input and out outlive the console; api has said hello.
+  Console(ApiClient& api, LineInput& input, std::ostream& out, ConsoleOptions options, PlotSource plot);
+
+  // Runs until EOF, "q"/"quit", or a lost daemon connection. Returns an exit code
+  // (kExitOk at a normal end, kExitUnreachable when the daemon link dropped).
+  int run();
+  const SessionSummary& summary() const { return summary_; }
+
+ private:
+  enum class Outcome { done, lost };
+  Outcome first_screen();
+  Outcome scan_loop();
+  Outcome test_unit(const std::string& serial);
+  // Walks the operator through cal.start (or cal.check); true when a valid calibration (or a
+  // check within its limit) resulted.
+  Result<bool> calibrate(bool check_only);
+  // Events of request `id` until its result or error event, which is returned.
+  Result<nlohmann::json> job_events(long id, const std::string& label);
+  // Waits for the operator's Enter; false when cancelled. See README for piped input.
+  bool confirm(const std::string& prompt);
+  void show_run(const nlohmann::json& run);
+  void show_plot(const std::string& run_id);
+  void print_summary();
+  Outcome lost(const Error& e);
+
+  ApiClient& api_;
+  LineInput& input_;
+  std::ostream& out_;
+  ConsoleOptions options_;
+  PlotSource plot_;
+  std::unique_ptr<FixtureControl> fixture_;
+  SessionSummary summary_;
+  std::map<std::string, int> inconclusive_count_;
+  bool plot_warned_ = false;
+};
+
+}  // namespace echoline::client

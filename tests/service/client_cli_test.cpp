@@ -1,0 +1,129 @@
+// The `echoline` binary as a user meets it: --help everywhere, usage errors, offline recipe
+// check with file:line findings, and a clear message when the daemon is not there.
+#include <gtest/gtest.h>
+
+#include <fstream>
+#include <string>
+#include <vector>
+
+#include "tests/support/process.hpp"
+
+namespace echoline::testing {
+namespace {
+
+struct Outcome {
+  int code = -1000;
+  std::string output;   // stdout and stderr together
+};
+
+Outcome run_client(std::vector<std::string> args, std::map<std::string, std::string> env = {}) {
+  args.insert(args.begin(), client_binary().string());
+  ChildProcess::Options o;
+  o.merge_stderr = true;
+  o.cwd = source_dir();
+  o.env = std::move(env);
+  ChildProcess p = ChildProcess::start(args, o);
+  Outcome out;
+  while (auto line = p.read_line(20s)) out.output += *line + "\n";
+  auto code = p.wait(20s);
+  out.code = code ? *code : -999;
+  return out;
+}
+
+TEST(ClientCli, HelpOnTheProgramAndEverySubcommandExitsZero) {
+  const Outcome top = run_client({"--help"});
+  EXPECT_EQ(top.code, 0) << top.output;
+  EXPECT_NE(top.output.find("exit codes"), std::string::npos);
+  for (const auto& sub : std::vector<std::vector<std::string>>{{"station", "--help"}, {"recipe", "--help"},
+                                                               {"dry-run", "--help"}, {"runs", "--help"},
+                                                               {"report", "--help"}, {"export", "--help"},
+                                                               {"cal", "--help"},     {"status", "--help"}}) {
+    const Outcome o = run_client(sub);
+    EXPECT_EQ(o.code, 0) << sub[0] << ": " << o.output;
+    EXPECT_NE(o.output.find("usage: echoline " + sub[0]), std::string::npos) << o.output;
+  }
+}
+
+TEST(ClientCli, BadUsageExitsTwoAndSaysWhatIsWrong) {
+  const Outcome none = run_client({});
+  EXPECT_EQ(none.code, 2);
+  const Outcome unknown = run_client({"frobnicate"});
+  EXPECT_EQ(unknown.code, 2);
+  EXPECT_NE(unknown.output.find("unknown command \"frobnicate\""), std::string::npos) << unknown.output;
+  const Outcome option = run_client({"runs", "--lot", "L", "--bogus"});
+  EXPECT_EQ(option.code, 2);
+  EXPECT_NE(option.output.find("--bogus"), std::string::npos) << option.output;
+  const Outcome both = run_client({"runs"});
+  EXPECT_EQ(both.code, 2);
+  EXPECT_NE(both.output.find("--serial"), std::string::npos) << both.output;
+  const Outcome scope = run_client({"export", "--scope", "everything", "--key", "k", "--format", "csv", "--out", "x"});
+  EXPECT_EQ(scope.code, 2) << scope.output;
+}
+
+TEST(ClientCli, ShippedRecipesPassTheCheckOnTheShippedStation) {
+  const Outcome o = run_client({"recipe", "check", "config/recipes/whip915.jsonc", "--station", "config/station.jsonc"});
+  EXPECT_EQ(o.code, 0) << o.output;
+  EXPECT_NE(o.output.find("0 errors"), std::string::npos) << o.output;
+}
+
+TEST(ClientCli, RecipeBeyondTheSourceExitsOneWithFileLineAndKey) {
+  TempDir dir;
+  const auto file = dir / "hot.jsonc";
+  std::ifstream in(source_dir() / "config/recipes/whip915.jsonc");
+  std::string text((std::istreambuf_iterator<char>(in)), std::istreambuf_iterator<char>());
+  const std::string from = "\"power_dbm\": -10";
+  const auto at = text.find(from);
+  ASSERT_NE(at, std::string::npos);
+  // +25 dBm: above the sim source's +20 dBm maximum (config/instruments/sim-source.jsonc).
+  text.replace(at, from.size(), "\"power_dbm\": 25");
+  std::ofstream(file) << text;
+  int line = 1;
+  for (std::size_t i = 0; i < at; ++i) line += text[i] == '\n';
+  const Outcome o = run_client({"recipe", "check", file.string(), "--station", "config/station.jsonc"});
+  EXPECT_EQ(o.code, 1) << o.output;
+  EXPECT_NE(o.output.find(file.string() + ":" + std::to_string(line) + ": /source/power_dbm:"), std::string::npos)
+      << o.output;
+}
+
+TEST(ClientCli, RecipeThatDoesNotParseExitsOneWithFileLine) {
+  TempDir dir;
+  const auto file = dir / "broken.jsonc";
+  std::ofstream(file) << "{\n  \"name\": \"x\",\n  \"version\": \"1\",\n  \"segments\": [ oops ]\n}\n";
+  const Outcome o = run_client({"recipe", "check", file.string(), "--station", "config/station.jsonc"});
+  EXPECT_EQ(o.code, 1) << o.output;
+  EXPECT_NE(o.output.find(file.string() + ":4"), std::string::npos) << o.output;
+}
+
+TEST(ClientCli, DryRunPrintsThePlanWithoutADaemon) {
+  const Outcome o = run_client({"dry-run", "config/recipes/whip915.jsonc", "--station", "config/station.jsonc"});
+  EXPECT_EQ(o.code, 0) << o.output;
+  // whip915: 860-970 MHz in 201 points (config/recipes/whip915.jsonc).
+  EXPECT_NE(o.output.find("201 frequencies"), std::string::npos) << o.output;
+  EXPECT_NE(o.output.find("worst-case power at the receiver"), std::string::npos) << o.output;
+}
+
+TEST(ClientCli, DaemonUnreachableExitsThreeWithAClearMessage) {
+  TempDir dir;
+  const std::string sock = (dir / "nobody.sock").string();
+  for (const auto& args : std::vector<std::vector<std::string>>{{"status", "--socket", sock},
+                                                                {"station", "--socket", sock},
+                                                                {"runs", "--lot", "L", "--socket", sock},
+                                                                {"cal", "status", "--socket", sock}}) {
+    const Outcome o = run_client(args);
+    EXPECT_EQ(o.code, 3) << args[0] << ": " << o.output;
+    EXPECT_NE(o.output.find("cannot reach the daemon"), std::string::npos) << o.output;
+    EXPECT_NE(o.output.find(sock), std::string::npos) << o.output;
+  }
+  const Outcome tcp = run_client({"status", "--tcp", "127.0.0.1:1"});
+  EXPECT_EQ(tcp.code, 3) << tcp.output;
+}
+
+TEST(ClientCli, OfflineCommandsOnAMissingStoreAreStorageErrors) {
+  TempDir dir;
+  const Outcome o = run_client({"runs", "--lot", "L", "--store", (dir / "none.sqlite").string()});
+  EXPECT_EQ(o.code, 5) << o.output;
+  EXPECT_NE(o.output.find("no such store file"), std::string::npos) << o.output;
+}
+
+}  // namespace
+}  // namespace echoline::testing

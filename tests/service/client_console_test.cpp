@@ -1,0 +1,263 @@
+// The operator console end to end: echoline-sim (instant bench, tiny lot) + echolined + the
+// `echoline station` process, fed from a pipe like a scripted barcode scanner, and on a
+// pseudo-terminal like a person. Verdicts are scored against the simulator's ground truth.
+#include <gtest/gtest.h>
+#include <poll.h>
+#include <pty.h>
+#include <sys/wait.h>
+#include <unistd.h>
+
+#include <cstring>
+#include <fstream>
+#include <map>
+#include <memory>
+#include <regex>
+
+#include <fmt/format.h>
+#include <nlohmann/json.hpp>
+
+#include "daemon/client/line_connection.hpp"
+#include "tests/support/process.hpp"
+
+namespace echoline::testing {
+namespace {
+
+using nlohmann::json;
+
+class ConsoleBench : public ::testing::Test {
+ protected:
+  void SetUp() override {
+    dir_ = std::make_unique<TempDir>("echoline-console");
+    const auto src = source_dir();
+    ChildProcess::Options so;
+    sim_ = std::make_unique<ChildProcess>(ChildProcess::start(
+        {sim_binary().string(), "--config", (src / "config/sim/instant.jsonc").string(), "--lot",
+         (src / "config/sim/lots/tiny-lot.jsonc").string(), "--log-file", (*dir_ / "sim.log").string()},
+        so));
+    std::map<std::string, std::string> addr;
+    for (;;) {
+      auto line = sim_->read_line(20s);
+      ASSERT_TRUE(line.has_value()) << "echoline-sim did not print ready";
+      if (*line == "ready") break;
+      auto f = parse_fields(*line);
+      if (f.count("role")) addr[f["role"]] = f["address"];
+    }
+    ASSERT_TRUE(addr.count("source") && addr.count("receiver") && addr.count("control"));
+    control_ = addr["control"];
+    config_ = (*dir_ / "station.jsonc").string();
+    std::ofstream(config_) << json{
+        {"station", "test-bench"},
+        {"data_dir", (*dir_ / "data").string()},
+        {"recipe", (src / "config/recipes/whip915.jsonc").string()},
+        {"instruments",
+         json::array({{{"role", "source"}, {"name", "siggen"}, {"address", addr["source"]},
+                       {"profile", (src / "config/instruments/sim-source.jsonc").string()}},
+                      {{"role", "receiver"}, {"name", "analyzer"}, {"address", addr["receiver"]},
+                       {"profile", (src / "config/instruments/sim-receiver.jsonc").string()}}})},
+        {"api", {{"unix_socket", (*dir_ / "d.sock").string()}}}}
+                                  .dump(2);
+    daemon_ = std::make_unique<ChildProcess>(
+        ChildProcess::start({daemon_binary().string(), "--config", config_, "--log-level", "warn"}, ChildProcess::Options{}));
+    ASSERT_TRUE(daemon_->wait_for_line("listening", 30s).has_value()) << "echolined did not start";
+  }
+
+  void TearDown() override {
+    if (daemon_) {
+      EXPECT_EQ(daemon_->terminate(10s), 0);
+    }
+    if (sim_) sim_->terminate(5s);
+  }
+
+  struct Session {
+    int code = -1000;
+    std::string text;
+    std::vector<std::string> lines;
+  };
+
+  // Runs the console fed `input` through a pipe until it exits.
+  Session console(const std::string& input, std::vector<std::string> extra = {}) {
+    std::vector<std::string> args = {client_binary().string(), "station", "--config", config_, "--sim-fixture", control_,
+                                     "--lot", "TINY", "--operator", "ci"};
+    args.insert(args.end(), extra.begin(), extra.end());
+    ChildProcess::Options o;
+    o.pipe_stdin = true;
+    o.merge_stderr = true;
+    ChildProcess p = ChildProcess::start(args, o);
+    p.write_stdin(input);
+    p.close_stdin();
+    Session s;
+    while (auto line = p.read_line(60s)) {
+      s.lines.push_back(*line);
+      s.text += *line + "\n";
+    }
+    auto code = p.wait(30s);
+    s.code = code ? *code : -999;
+    return s;
+  }
+
+  // serial -> verdict from the console's "Unit <serial>   verdict <v>" lines.
+  static std::map<std::string, std::string> verdicts(const Session& s) {
+    std::map<std::string, std::string> out;
+    static const std::regex re(R"(^\s+Unit (\S+)\s+verdict (\w+))");
+    for (const auto& l : s.lines) {
+      std::smatch m;
+      if (std::regex_search(l, m, re)) out[m[1]] = m[2];
+    }
+    return out;
+  }
+
+  json truth(const std::string& serial) {
+    auto c = client::LineConnection::connect_address(control_, client::Millis{3000});
+    EXPECT_TRUE(c.ok());
+    if (!c) return json::object();
+    EXPECT_TRUE((*c)->write_line(json{{"cmd", "truth"}, {"unit", serial}}.dump()).ok());
+    auto line = (*c)->read_line(client::Millis{5000});
+    EXPECT_TRUE(line.ok());
+    return line ? json::parse(*line) : json::object();
+  }
+
+  std::unique_ptr<TempDir> dir_;
+  std::unique_ptr<ChildProcess> sim_, daemon_;
+  std::string control_, config_;
+};
+
+TEST_F(ConsoleBench, PipedLotIsCalibratedJudgedAndSummarised) {
+  std::string input = "\n\n\n";
+  std::vector<std::string> serials;
+  for (int i = 1; i <= 12; ++i) {
+    serials.push_back(fmt::format("TINY-{:02d}", i));
+    input += serials.back() + "\n";
+  }
+  const Session s = console(input);
+  EXPECT_EQ(s.code, 0) << s.text;
+  for (const char* standard : {"OPEN", "SHORT", "LOAD"}) {
+    EXPECT_NE(s.text.find(fmt::format("Connect the {} standard to the test port, then press Enter", standard)),
+              std::string::npos)
+        << s.text;
+  }
+  EXPECT_NE(s.text.find(": VALID, minimum directivity"), std::string::npos) << s.text;
+  EXPECT_NE(s.text.find("SAFETY"), std::string::npos);
+  EXPECT_NE(s.text.find("RADIATES"), std::string::npos);
+  EXPECT_EQ(s.text.find('\x1b'), std::string::npos) << "control codes on a pipe";
+
+  const auto v = verdicts(s);
+  ASSERT_EQ(v.size(), 12u) << s.text;
+  std::map<std::string, int> counts;
+  for (const auto& [serial, verdict] : v) ++counts[verdict];
+  EXPECT_EQ(counts["aborted"], 0) << s.text;
+  // The summary line matches the verdicts shown.
+  const std::string summary = fmt::format("summary units=12 runs=12 pass={} fail={} inconclusive={} aborted=0",
+                                          counts["pass"], counts["fail"], counts["inconclusive"]);
+  EXPECT_NE(s.text.find(summary), std::string::npos) << summary << "\n" << s.text;
+
+  // Ground truth: a broken feed reflects everything; such a unit must never pass, and every unit
+  // whose true return loss clears 10 dB with margin over 902-928 MHz must not fail.
+  int defects_checked = 0;
+  for (const auto& serial : serials) {
+    const json t = truth(serial);
+    const std::string defect = t.value("defect", "");
+    if (defect == "open-feed" || defect == "shorted-feed") {
+      EXPECT_EQ(v.at(serial), "fail") << serial << " " << defect;
+      ++defects_checked;
+    }
+  }
+  EXPECT_EQ(defects_checked, 2) << "tiny-lot has one open-feed and one shorted-feed unit";
+  // What to do with each unit is printed.
+  EXPECT_NE(s.text.find(">>> Put it in the"), std::string::npos);
+  // A plot with the limit line for judged units.
+  EXPECT_NE(s.text.find("limit line (minimum return loss)"), std::string::npos) << s.text;
+}
+
+TEST_F(ConsoleBench, RetestQuestionIsAskedAndAnswered) {
+  const Session s = console("\n\n\nTINY-01\nTINY-01\ny\nTINY-01\nn\n");
+  EXPECT_EQ(s.code, 0) << s.text;
+  EXPECT_NE(s.text.find("TINY-01 already tested 1 time — retest? [y/N] y"), std::string::npos) << s.text;
+  EXPECT_NE(s.text.find("TINY-01 already tested 2 times — retest? [y/N] n"), std::string::npos) << s.text;
+  EXPECT_NE(s.text.find("Not retested: TINY-01"), std::string::npos) << s.text;
+  EXPECT_NE(s.text.find("summary units=1 runs=2"), std::string::npos) << s.text;
+}
+
+TEST_F(ConsoleBench, InvalidSerialIsShownPlainlyAndQuitEndsTheSession) {
+  const Session s = console("\n\n\nbad serial!\nq\nTINY-01\n");
+  EXPECT_EQ(s.code, 0) << s.text;
+  EXPECT_NE(s.text.find("NOT A VALID SERIAL: \"bad serial!\""), std::string::npos) << s.text;
+  EXPECT_EQ(s.text.find("Unit TINY-01"), std::string::npos) << "lines after q must not be tested\n" << s.text;
+  EXPECT_NE(s.text.find("summary units=0 runs=0"), std::string::npos) << s.text;
+}
+
+TEST_F(ConsoleBench, WithoutTheFixtureAPipeMustConfirmEachStandard) {
+  // No --sim-fixture: a serial where an Enter is expected cancels the calibration; nothing is tested.
+  std::vector<std::string> args = {client_binary().string(), "station", "--config", config_};
+  ChildProcess::Options o;
+  o.pipe_stdin = true;
+  o.merge_stderr = true;
+  ChildProcess p = ChildProcess::start(args, o);
+  p.write_stdin("TINY-01\n");
+  p.close_stdin();
+  std::string text;
+  while (auto line = p.read_line(60s)) text += *line + "\n";
+  EXPECT_EQ(p.wait(30s).value_or(-1), 0) << text;
+  EXPECT_NE(text.find("expected an empty line to confirm; cancelled"), std::string::npos) << text;
+  EXPECT_NE(text.find("CALIBRATION NOT COMPLETED"), std::string::npos) << text;
+  EXPECT_NE(text.find("Unit not tested: TINY-01"), std::string::npos) << text;
+}
+
+// Runs the console on a pseudo-terminal; returns everything it wrote.
+std::string run_on_pty(const std::vector<std::string>& args, const std::string& input,
+                       const std::map<std::string, std::string>& env) {
+  int master = -1;
+  const pid_t pid = ::forkpty(&master, nullptr, nullptr, nullptr);
+  if (pid < 0) return "forkpty failed";
+  if (pid == 0) {
+    for (const auto& [k, v] : env) ::setenv(k.c_str(), v.c_str(), 1);
+    if (!env.count("NO_COLOR")) ::unsetenv("NO_COLOR");
+    std::vector<char*> argv;
+    for (const auto& a : args) argv.push_back(const_cast<char*>(a.c_str()));
+    argv.push_back(nullptr);
+    ::execv(argv[0], argv.data());
+    ::_exit(127);
+  }
+  std::string out;
+  (void)!::write(master, input.data(), input.size());
+  const auto deadline = std::chrono::steady_clock::now() + 60s;
+  while (std::chrono::steady_clock::now() < deadline) {
+    pollfd p{master, POLLIN, 0};
+    if (::poll(&p, 1, 200) > 0) {
+      char buf[4096];
+      const ssize_t n = ::read(master, buf, sizeof buf);
+      if (n <= 0) break;   // EIO: the console exited
+      out.append(buf, static_cast<std::size_t>(n));
+    }
+  }
+  ::close(master);
+  int status = 0;
+  ::waitpid(pid, &status, 0);
+  return out;
+}
+
+TEST_F(ConsoleBench, OnATerminalTheVerdictIsABigColouredBannerWithItsReason) {
+  const std::vector<std::string> args = {client_binary().string(), "station", "--config", config_, "--sim-fixture",
+                                         control_};
+  const std::string screen = run_on_pty(args, "\n\n\nTINY-07\nq\n", {{"TERM", "xterm"}});
+  EXPECT_NE(screen.find("Scan serial:"), std::string::npos) << screen;
+  // The banner: a rule and rows of block letters, coloured (SGR) on a terminal.
+  EXPECT_NE(screen.find("=========================="), std::string::npos) << screen;
+  EXPECT_NE(screen.find("#   #"), std::string::npos) << screen;
+  EXPECT_NE(screen.find("\x1b[1;"), std::string::npos) << "no colour on a terminal";
+  EXPECT_NE(screen.find("Unit TINY-07"), std::string::npos) << screen;
+  EXPECT_NE(screen.find("Why: "), std::string::npos) << screen;
+  EXPECT_NE(screen.find(">>> "), std::string::npos) << screen;
+  // Progress drawn in place.
+  EXPECT_NE(screen.find("\r  measuring TINY-07 ["), std::string::npos) << screen;
+}
+
+TEST_F(ConsoleBench, NoColorIsRespectedOnATerminal) {
+  const std::vector<std::string> args = {client_binary().string(), "station", "--config", config_, "--sim-fixture",
+                                         control_};
+  const std::string screen = run_on_pty(args, "\n\n\nTINY-07\nq\n", {{"TERM", "xterm"}, {"NO_COLOR", "1"}});
+  EXPECT_NE(screen.find("Unit TINY-07"), std::string::npos) << screen;
+  EXPECT_EQ(screen.find("\x1b["), std::string::npos) << "colour despite NO_COLOR";
+}
+
+}  // namespace
+}  // namespace echoline::testing
