@@ -1,2 +1,217 @@
-// Scaffolding entry point; replaced by the real one.
-int main() { return 1; }
+// echolined: the station daemon. Loads the station config, connects the instruments, serves the
+// JSON-lines API (daemon/service/API.md) on a Unix socket and optional TCP, and stops cleanly on
+// SIGTERM/SIGINT: stop accepting, abort (or finish) the current run, close the store, exit 0.
+#include <signal.h>
+#include <unistd.h>
+
+#include <cstdio>
+#include <fstream>
+#include <iostream>
+#include <sstream>
+#include <string>
+#include <thread>
+#include <vector>
+
+#include <fmt/format.h>
+#include <spdlog/sinks/rotating_file_sink.h>
+#include <spdlog/sinks/stdout_color_sinks.h>
+#include <spdlog/spdlog.h>
+
+#include "daemon/service/api_handler.hpp"
+#include "daemon/service/api_server.hpp"
+#include "daemon/service/sd_notify.hpp"
+#include "daemon/service/station.hpp"
+#include "drivers/config_error.hpp"
+#include "drivers/station_config.hpp"
+
+namespace {
+
+using namespace echoline;
+
+constexpr const char* kUsage = R"(usage: echolined --config FILE [options]
+
+Runs the Echoline test station: instruments from the station config, the API on a Unix socket
+(and TCP when configured). Prints "listening unix=<path> tcp=<addr>" when ready.
+
+options:
+  --config FILE            station config (JSON with comments), required
+  --override ROLE=ADDRESS  use ADDRESS for the instrument with ROLE (repeatable), e.g.
+                           --override source=tcp://127.0.0.1:5025
+  --data-dir DIR           run store folder (overrides data_dir)
+  --log-dir DIR            log folder (overrides log_dir)
+  --recipe FILE            recipe to load (overrides recipe)
+  --socket PATH            Unix socket path (overrides api.unix_socket)
+  --tcp-port N             TCP port on api.tcp_host (0 = off, overrides api.tcp_port)
+  --on-stop abort|finish   on SIGTERM: abort the running test (default, stored as aborted
+                           with reason "daemon stopping") or let it finish first
+  --log-level LEVEL        trace, debug, info (default), warn, error
+  --help                   this text
+
+RF exposure: during a test the source output is ON and an antenna under test radiates.
+)";
+
+struct Args {
+  std::string config;
+  std::vector<std::pair<std::string, std::string>> overrides;
+  std::string data_dir, log_dir, recipe, socket, log_level = "info", on_stop = "abort";
+  std::optional<int> tcp_port;
+};
+
+[[noreturn]] void usage_error(const std::string& message) {
+  std::cerr << "echolined: " << message << "\n(see echolined --help)\n";
+  std::exit(2);
+}
+
+Args parse_args(int argc, char** argv) {
+  Args a;
+  auto value = [&](int& i) -> std::string {
+    if (i + 1 >= argc) usage_error(fmt::format("{} needs a value", argv[i]));
+    return argv[++i];
+  };
+  for (int i = 1; i < argc; ++i) {
+    const std::string arg = argv[i];
+    if (arg == "--help" || arg == "-h") {
+      std::cout << kUsage;
+      std::exit(0);
+    } else if (arg == "--config") {
+      a.config = value(i);
+    } else if (arg == "--override") {
+      std::string v = value(i);
+      auto eq = v.find('=');
+      if (eq == std::string::npos || eq == 0) usage_error(fmt::format("--override {}: expected ROLE=ADDRESS", v));
+      a.overrides.emplace_back(v.substr(0, eq), v.substr(eq + 1));
+    } else if (arg == "--data-dir") {
+      a.data_dir = value(i);
+    } else if (arg == "--log-dir") {
+      a.log_dir = value(i);
+    } else if (arg == "--recipe") {
+      a.recipe = value(i);
+    } else if (arg == "--socket") {
+      a.socket = value(i);
+    } else if (arg == "--tcp-port") {
+      std::string v = value(i);
+      try {
+        a.tcp_port = std::stoi(v);
+      } catch (...) {
+        usage_error(fmt::format("--tcp-port {}: not a number", v));
+      }
+    } else if (arg == "--on-stop") {
+      a.on_stop = value(i);
+      if (a.on_stop != "abort" && a.on_stop != "finish") usage_error("--on-stop must be abort or finish");
+    } else if (arg == "--log-level") {
+      a.log_level = value(i);
+    } else {
+      usage_error(fmt::format("unknown option {}", arg));
+    }
+  }
+  if (a.config.empty()) usage_error("--config FILE is required");
+  return a;
+}
+
+void setup_logging(const drivers::StationConfig& config, const std::string& level) {
+  auto console = std::make_shared<spdlog::sinks::stderr_color_sink_mt>();
+  std::vector<spdlog::sink_ptr> sinks{console};
+  if (!config.log_dir.empty()) {
+    auto file = (config.log_dir / "echolined.log").string();
+    sinks.push_back(std::make_shared<spdlog::sinks::rotating_file_sink_mt>(file, 10u << 20, 5));
+  }
+  auto logger = std::make_shared<spdlog::logger>("echolined", sinks.begin(), sinks.end());
+  const auto lvl = spdlog::level::from_str(level);
+  if (lvl == spdlog::level::off && level != "off") usage_error(fmt::format("--log-level {}: unknown level", level));
+  logger->set_level(lvl);
+  logger->flush_on(spdlog::level::info);
+  spdlog::set_default_logger(logger);
+}
+
+std::string read_token(const std::filesystem::path& file) {
+  if (file.empty()) return "";
+  std::ifstream in(file);
+  if (!in) throw std::runtime_error(fmt::format("api.token_file {}: cannot read", file.string()));
+  std::stringstream ss;
+  ss << in.rdbuf();
+  std::string t = ss.str();
+  while (!t.empty() && (t.back() == '\n' || t.back() == '\r' || t.back() == ' ' || t.back() == '\t')) t.pop_back();
+  if (t.size() < 16) throw std::runtime_error(fmt::format("api.token_file {}: token shorter than 16 characters", file.string()));
+  return t;
+}
+
+int run(const Args& args) {
+  drivers::StationConfig config = drivers::load_station_config(args.config);
+  for (const auto& [role, address] : args.overrides) {
+    bool found = false;
+    for (auto& inst : config.instruments) {
+      if (inst.role == role) {
+        inst.address = address;
+        found = true;
+      }
+    }
+    if (!found) usage_error(fmt::format("--override {}: the station config has no instrument with role {}", role, role));
+  }
+  if (!args.data_dir.empty()) config.data_dir = std::filesystem::absolute(args.data_dir);
+  if (!args.log_dir.empty()) config.log_dir = std::filesystem::absolute(args.log_dir);
+  if (!args.recipe.empty()) config.recipe = std::filesystem::absolute(args.recipe);
+  if (!args.socket.empty()) config.api.unix_socket = std::filesystem::absolute(args.socket);
+  if (args.tcp_port) config.api.tcp_port = *args.tcp_port;
+
+  setup_logging(config, args.log_level);
+  spdlog::info("echolined 0.1.0 starting: station {} config {}", config.station, config.file);
+
+  // Signals are taken by sigwait() on this thread; block them before any thread starts.
+  sigset_t signals;
+  sigemptyset(&signals);
+  sigaddset(&signals, SIGTERM);
+  sigaddset(&signals, SIGINT);
+  pthread_sigmask(SIG_BLOCK, &signals, nullptr);
+  ::signal(SIGPIPE, SIG_IGN);
+
+  const std::string token = read_token(config.api.token_file);
+  service::Station station(config);
+  station.connect_instruments();
+  service::ApiHandler handler(station, token);
+  service::ServerOptions so;
+  so.unix_socket = config.api.unix_socket;
+  so.tcp_host = config.api.tcp_host;
+  so.tcp_port = config.api.tcp_port;
+  so.token_configured = !token.empty();
+  auto server = service::ApiServer::create(handler, so);
+  std::thread io([&] { server->run(); });
+
+  std::cout << "listening unix=" << server->unix_path() << " tcp=" << server->tcp_address() << std::endl;
+  spdlog::info("listening unix={} tcp={}", server->unix_path(), server->tcp_address());
+  service::sd_notify_state("READY=1");
+
+  int sig = 0;
+  sigwait(&signals, &sig);
+  spdlog::info("signal {} received: stopping", sig);
+  service::sd_notify_state("STOPPING=1");
+  server->stop_accepting();
+  if (args.on_stop == "finish") {
+    handler.finish_and_stop();
+  }
+  handler.stop("daemon stopping");
+  server->stop();
+  io.join();
+  server.reset();
+  station.shutdown();
+  spdlog::info("stopped");
+  return 0;
+}
+
+}  // namespace
+
+int main(int argc, char** argv) {
+  const Args args = parse_args(argc, argv);
+  int code = 1;
+  try {
+    code = run(args);
+  } catch (const drivers::ConfigError& e) {
+    std::cerr << "echolined: " << e.what() << "\n";
+    code = 2;
+  } catch (const std::exception& e) {
+    std::cerr << "echolined: " << e.what() << "\n";
+    spdlog::error("{}", e.what());
+    code = 1;
+  }
+  spdlog::shutdown();
+  return code;
+}

@@ -1,0 +1,394 @@
+// API calls: roles, the one-job rule, jobs on the worker thread, events to the requester.
+#include "daemon/service/api_handler.hpp"
+
+#include <chrono>
+#include <set>
+#include <variant>
+
+#include <fmt/format.h>
+#include <spdlog/spdlog.h>
+
+#include "daemon/store/export.hpp"
+#include "daemon/store/lot_report.hpp"
+#include "daemon/service/clock.hpp"
+#include "drivers/config_error.hpp"
+
+namespace echoline::service {
+namespace {
+
+using nlohmann::json;
+
+const std::set<std::string>& engineer_calls() {
+  static const std::set<std::string> calls = {"recipe.select", "report.lot", "export"};
+  return calls;
+}
+
+std::string code_for(ErrorKind kind) {
+  switch (kind) {
+    case ErrorKind::storage: return "storage";
+    case ErrorKind::config: return "config";
+    case ErrorKind::unsafe: return "unsafe";
+    case ErrorKind::cancelled: return "cancelled";
+    case ErrorKind::invalid_argument: return "bad_request";
+    case ErrorKind::io: return "storage";
+    case ErrorKind::internal: return "internal";
+    default: return "instrument";
+  }
+}
+
+}  // namespace
+
+bool constant_time_equal(std::string_view a, std::string_view b) {
+  const std::size_t n = std::max(a.size(), b.size());
+  unsigned diff = a.size() == b.size() ? 0u : 1u;
+  for (std::size_t i = 0; i < n; ++i) {
+    const unsigned char x = i < a.size() ? static_cast<unsigned char>(a[i]) : 0;
+    const unsigned char y = i < b.size() ? static_cast<unsigned char>(b[i]) : 0;
+    diff |= static_cast<unsigned>(x ^ y);
+  }
+  return diff == 0;
+}
+
+// Sends the prompt event and waits for cal.answer (or cancellation, or the requester leaving).
+class ApiHandler::CalPrompter : public Prompter {
+ public:
+  CalPrompter(ApiHandler& h, std::shared_ptr<ClientLink> link, json id) : h_(h), link_(std::move(link)), id_(std::move(id)) {}
+  bool wait_connected(const std::string& standard) override {
+    std::unique_lock lock(h_.mu_);
+    h_.awaiting_standard_ = standard;
+    h_.answered_ = false;
+    h_.busy_info_["standard"] = standard;
+    h_.busy_info_["waiting"] = true;
+    link_->send(event_line(id_, "prompt",
+                           {{"standard", standard},
+                            {"message", fmt::format("connect the {} standard to the test port, then answer", standard)}}));
+    while (!h_.answered_ && !h_.cancel_.cancelled()) {
+      if (!link_->alive()) {
+        lock.unlock();
+        h_.cancel_.cancel("calibration cancelled: the client that started it disconnected");
+        lock.lock();
+        break;
+      }
+      h_.cv_.wait_for(lock, std::chrono::milliseconds(200));
+    }
+    h_.awaiting_standard_.clear();
+    h_.busy_info_["waiting"] = false;
+    return h_.answered_ && !h_.cancel_.cancelled();
+  }
+
+ private:
+  ApiHandler& h_;
+  std::shared_ptr<ClientLink> link_;
+  json id_;
+};
+
+ApiHandler::ApiHandler(Station& station, std::string token) : station_(station), token_(std::move(token)) {}
+
+ApiHandler::~ApiHandler() { stop("daemon stopping"); }
+
+void ApiHandler::stop(const std::string& reason) {
+  {
+    std::lock_guard lock(mu_);
+    stopping_ = true;
+    if (busy_) cancel_.cancel(reason);
+  }
+  cv_.notify_all();
+  if (worker_.joinable()) worker_.join();
+}
+
+void ApiHandler::finish_and_stop() {
+  {
+    std::lock_guard lock(mu_);
+    stopping_ = true;
+    if (busy_ && busy_info_.value("kind", "") != "test") cancel_.cancel("daemon stopping");
+  }
+  cv_.notify_all();
+  if (worker_.joinable()) worker_.join();
+}
+
+void ApiHandler::reply(const std::shared_ptr<ClientLink>& link, const json& id, json result) {
+  link->send(reply_ok(id, std::move(result)));
+}
+
+void ApiHandler::fail(const std::shared_ptr<ClientLink>& link, const json& id, std::string_view code,
+                      std::string_view message) {
+  link->send(reply_error(id, code, message));
+}
+
+std::optional<std::string> ApiHandler::busy_text() const {
+  std::lock_guard lock(mu_);
+  if (!busy_) return std::nullopt;
+  if (busy_info_.value("kind", "") == "test") return fmt::format("test of {}", busy_info_.value("serial", "?"));
+  return std::string(busy_info_.value("kind", "job"));
+}
+
+json ApiHandler::busy_json() const {
+  std::lock_guard lock(mu_);
+  return busy_ ? busy_info_ : json(nullptr);
+}
+
+bool ApiHandler::start_job(std::string kind, json busy, std::shared_ptr<ClientLink> link, std::string accepted,
+                           std::function<std::string()> job) {
+  std::lock_guard lock(mu_);
+  if (busy_ || stopping_) return false;
+  if (worker_.joinable()) worker_.join();   // the previous job has finished (busy_ is false)
+  busy_ = true;
+  busy_info_ = std::move(busy);
+  busy_info_["kind"] = std::move(kind);
+  cancel_.reset();
+  link->send(std::move(accepted));
+  worker_ = std::thread([this, link = std::move(link), job = std::move(job)] {
+    std::string final_event = job();
+    {
+      std::lock_guard l(mu_);
+      busy_ = false;
+      busy_info_ = nullptr;
+    }
+    link->send(std::move(final_event));
+  });
+  return true;
+}
+
+void ApiHandler::set_progress(int point, int of, const std::string& standard) {
+  std::lock_guard lock(mu_);
+  busy_info_["point"] = point;
+  busy_info_["of"] = of;
+  if (!standard.empty()) busy_info_["standard"] = standard;
+}
+
+bool ApiHandler::handle_line(const std::shared_ptr<ClientLink>& link, ConnectionState& state, std::string_view line) {
+  auto parsed = parse_request(line);
+  if (auto* err = std::get_if<RequestError>(&parsed)) {
+    fail(link, err->id, err->code, err->message);
+    return err->code != "too_large";
+  }
+  const Request& req = std::get<Request>(parsed);
+  try {
+    dispatch(link, state, req);
+  } catch (const std::exception& e) {
+    // Edge: anything thrown by a library call becomes an error reply; the daemon keeps going.
+    spdlog::error("{}: {}", req.call, e.what());
+    fail(link, req.id, "internal", fmt::format("{}: {}", req.call, e.what()));
+  }
+  return true;
+}
+
+void ApiHandler::dispatch(const std::shared_ptr<ClientLink>& link, ConnectionState& state, const Request& req) {
+  const std::string& call = req.call;
+  if (call == "hello") return call_hello(link, state, req);
+  if (state.role == Role::none) {
+    return fail(link, req.id, "unauthorized", fmt::format("{}: send hello with the station token first", call));
+  }
+  if (engineer_calls().count(call) && state.role != Role::engineer) {
+    return fail(link, req.id, "forbidden", fmt::format("{}: needs the engineer role (hello with role engineer)", call));
+  }
+  if (call == "status") {
+    json s = station_.status_json();
+    s["busy"] = busy_json();
+    return reply(link, req.id, std::move(s));
+  }
+  if (call == "cal.status") return reply(link, req.id, station_.calibration_json());
+  if (call == "test.start") return call_test_start(link, req);
+  if (call == "cal.start") return call_cal_start(link, req, false);
+  if (call == "cal.check") return call_cal_start(link, req, true);
+  if (call == "cal.answer") return call_cal_answer(link, req);
+  if (call == "cancel") return call_cancel(link, req);
+  if (call == "runs.history" || call == "runs.lot") return call_runs(link, req);
+  if (call == "report.lot") return call_report_lot(link, req);
+  if (call == "export") return call_export(link, req);
+  if (call == "recipe.select") return call_recipe_select(link, req);
+  fail(link, req.id, "unknown_call", fmt::format("request: unknown call \"{}\"", call));
+}
+
+void ApiHandler::call_hello(const std::shared_ptr<ClientLink>& link, ConnectionState& state, const Request& req) {
+  const std::string role = req.args.value("role", "operator");
+  if (role != "operator" && role != "engineer") {
+    return fail(link, req.id, "bad_request", fmt::format("hello: role must be operator or engineer, not \"{}\"", role));
+  }
+  const bool needs_token = !token_.empty() && (role == "engineer" || !state.loopback);
+  if (needs_token) {
+    const std::string given = req.args.value("token", "");
+    if (given.empty() || !constant_time_equal(given, token_)) {
+      return fail(link, req.id, "unauthorized", fmt::format("hello: role {} needs the station token; the token given is {}",
+                                                            role, given.empty() ? "missing" : "wrong"));
+    }
+  }
+  state.role = role == "engineer" ? Role::engineer : Role::operator_;
+  reply(link, req.id,
+        {{"api", kApiVersion}, {"daemon", "echolined 0.1.0"}, {"station", station_.config().station}, {"role", role}});
+}
+
+void ApiHandler::call_test_start(const std::shared_ptr<ClientLink>& link, const Request& req) {
+  TestRequest t;
+  t.serial = req.args["serial"].get<std::string>();
+  t.lot = req.args.value("lot", "");
+  t.operator_name = req.args.value("operator", "");
+  t.retest = req.args.value("retest", false);
+  if (auto busy = busy_text()) return fail(link, req.id, "busy", fmt::format("busy: {} is running", *busy));
+  if (auto refusal = station_.precheck_test(t)) return fail(link, req.id, refusal->code, refusal->message);
+  const int points = station_.plan_points();
+  json id = req.id;
+  bool started = start_job("test", {{"serial", t.serial}, {"point", 0}, {"of", points}}, link,
+                           reply_ok(req.id, {{"serial", t.serial}, {"points", points}}), [this, link, id, t] {
+    TestOutcome out = station_.run_test(t, cancel_, [&](int i, int n) {
+      set_progress(i, n, "");
+      link->send(event_line(id, "progress", {{"point", i}, {"of", n}}));
+    });
+    json run = run_json(out.run);
+    run["stored"] = static_cast<bool>(out.stored);
+    if (!out.stored) run["store_error"] = out.stored.error().message;
+    return event_line(id, "result", {{"run", run}});
+  });
+  if (!started) {
+    if (auto busy = busy_text()) return fail(link, req.id, "busy", fmt::format("busy: {} is running", *busy));
+    return fail(link, req.id, "shutting_down", "test.start: the daemon is stopping");
+  }
+}
+
+void ApiHandler::call_cal_start(const std::shared_ptr<ClientLink>& link, const Request& req, bool check_only) {
+  if (auto busy = busy_text()) return fail(link, req.id, "busy", fmt::format("busy: {} is running", *busy));
+  auto standards = station_.standards();
+  if (check_only) {
+    json cal = station_.calibration_json();
+    if (!cal["present"].get<bool>()) return fail(link, req.id, "calibration_due", "cal.check: no calibration yet; run cal.start");
+    standards = {cal["check"]["standard"].get<std::string>()};
+  }
+  const int points = station_.plan_points();
+  json id = req.id;
+  const std::string kind = check_only ? "check" : "calibration";
+  bool started = start_job(kind, {{"standard", standards.front()}, {"waiting", false}}, link,
+                           reply_ok(req.id, {{"standards", standards}, {"points", points}}), [this, link, id, check_only] {
+    CalPrompter prompter(*this, link, id);
+    auto progress = [&](const std::string& standard, int i, int n) {
+      set_progress(i, n, standard);
+      link->send(event_line(id, "progress", {{"standard", standard}, {"point", i}, {"of", n}}));
+    };
+    if (check_only) {
+      CheckOutcome out = station_.run_check(prompter, cancel_, progress);
+      if (out.error) {
+        return event_line(id, "error", {{"error", {{"code", code_for(out.error->kind)}, {"message", out.error->message}}}});
+      }
+      return event_line(id, "result", {{"check", {{"drifted", out.drifted}, {"message", out.message}}}});
+    }
+    CalibrationOutcome out = station_.run_calibration(prompter, cancel_, progress);
+    if (out.error) {
+      return event_line(id, "error", {{"error", {{"code", code_for(out.error->kind)}, {"message", out.error->message}}}});
+    }
+    return event_line(id, "result", {{"calibration", calibration_summary_json(*out.record)}});
+  });
+  if (!started) {
+    if (auto busy = busy_text()) return fail(link, req.id, "busy", fmt::format("busy: {} is running", *busy));
+    return fail(link, req.id, "shutting_down", "the daemon is stopping");
+  }
+}
+
+void ApiHandler::call_cal_answer(const std::shared_ptr<ClientLink>& link, const Request& req) {
+  const std::string standard = req.args["standard"].get<std::string>();
+  const bool connected = req.args.value("connected", true);
+  {
+    std::lock_guard lock(mu_);
+    if (awaiting_standard_.empty()) {
+      return fail(link, req.id, "idle", "cal.answer: no calibration is waiting for a standard");
+    }
+    if (standard != awaiting_standard_) {
+      return fail(link, req.id, "wrong_standard",
+                  fmt::format("cal.answer: waiting for {}, not {}", awaiting_standard_, standard));
+    }
+    if (connected) {
+      answered_ = true;
+    } else {
+      cancel_.cancel(fmt::format("calibration cancelled: {} not connected", standard));
+    }
+  }
+  cv_.notify_all();
+  reply(link, req.id, {{"standard", standard}, {"measuring", connected}});
+}
+
+void ApiHandler::call_cancel(const std::shared_ptr<ClientLink>& link, const Request& req) {
+  auto busy = busy_text();
+  if (!busy) return fail(link, req.id, "idle", "cancel: nothing is running");
+  cancel_.cancel("cancelled by request");
+  cv_.notify_all();
+  reply(link, req.id, {{"cancelled", *busy}});
+}
+
+void ApiHandler::call_runs(const std::shared_ptr<ClientLink>& link, const Request& req) {
+  const bool by_serial = req.call == "runs.history";
+  const std::string key = req.args[by_serial ? "serial" : "lot"].get<std::string>();
+  auto runs = by_serial ? station_.store().history(key) : station_.store().lot_runs(key, false);
+  if (!runs) return fail(link, req.id, "storage", runs.error().message);
+  json list = json::array();
+  for (const auto& r : *runs) list.push_back(run_json(r));
+  reply(link, req.id, {{by_serial ? "serial" : "lot", key}, {"runs", list}});
+}
+
+void ApiHandler::call_report_lot(const std::shared_ptr<ClientLink>& link, const Request& req) {
+  const std::string lot = req.args["lot"].get<std::string>();
+  const std::string path = req.args["path"].get<std::string>();
+  auto runs = station_.store().lot_runs(lot, true);
+  if (!runs) return fail(link, req.id, "storage", runs.error().message);
+  if (runs->empty()) return fail(link, req.id, "not_found", fmt::format("report.lot: no runs stored for lot \"{}\"", lot));
+  std::vector<core::CalibrationRecord> cals;
+  std::set<std::string> ids;
+  for (const auto& r : *runs) {
+    if (!r.calibration_id.empty() && ids.insert(r.calibration_id).second) {
+      auto c = station_.store().load_calibration(r.calibration_id);
+      if (c && c->has_value()) cals.push_back(c->value());
+    }
+  }
+  store::LotReportOptions opts;
+  opts.generated_utc = utc_iso8601(unix_now_s());
+  auto recipe = station_.recipe();
+  std::string html = store::build_lot_report(lot, *runs, cals, recipe->limits, opts);
+  if (Status s = store::write_text_file(path, html); !s) return fail(link, req.id, "storage", s.error().message);
+  reply(link, req.id, {{"path", path}, {"runs", runs->size()}});
+}
+
+void ApiHandler::call_export(const std::shared_ptr<ClientLink>& link, const Request& req) {
+  const std::string scope = req.args["scope"].get<std::string>();
+  const std::string key = req.args["key"].get<std::string>();
+  const std::string format = req.args["format"].get<std::string>();
+  const std::string path = req.args["path"].get<std::string>();
+  if (format != "csv" && format != "json") {
+    return fail(link, req.id, "bad_request", fmt::format("export: format must be csv or json, not \"{}\"", format));
+  }
+  std::vector<core::RunResult> runs;
+  if (scope == "run") {
+    auto r = station_.store().load_run(key);
+    if (!r) return fail(link, req.id, "not_found", r.error().message);
+    runs.push_back(std::move(r.value()));
+  } else if (scope == "serial" || scope == "lot") {
+    auto r = scope == "serial" ? station_.store().history(key, true) : station_.store().lot_runs(key, true);
+    if (!r) return fail(link, req.id, "storage", r.error().message);
+    runs = std::move(r.value());
+  } else {
+    return fail(link, req.id, "bad_request", fmt::format("export: scope must be run, serial or lot, not \"{}\"", scope));
+  }
+  if (runs.empty()) return fail(link, req.id, "not_found", fmt::format("export: no runs stored for {} \"{}\"", scope, key));
+  std::string text;
+  if (format == "csv") {
+    text = store::csv_points(runs);
+  } else if (scope == "run") {
+    text = store::json_run(runs.front());
+  } else if (scope == "serial") {
+    text = store::json_serial(key, runs);
+  } else {
+    text = store::json_lot(key, runs);
+  }
+  if (Status s = store::write_text_file(path, text); !s) return fail(link, req.id, "storage", s.error().message);
+  reply(link, req.id, {{"path", path}, {"runs", runs.size()}});
+}
+
+void ApiHandler::call_recipe_select(const std::shared_ptr<ClientLink>& link, const Request& req) {
+  if (auto busy = busy_text()) return fail(link, req.id, "busy", fmt::format("busy: {} is running", *busy));
+  const std::string path = req.args["path"].get<std::string>();
+  try {
+    auto r = station_.select_recipe(path);
+    if (!r) return fail(link, req.id, "config", r.error().message);
+    reply(link, req.id, std::move(r.value()));
+  } catch (const drivers::ConfigError& e) {
+    fail(link, req.id, "config", e.what());
+  }
+}
+
+}  // namespace echoline::service

@@ -1,0 +1,101 @@
+// The meaning of API requests (API.md): roles, the one-job-at-a-time rule, the worker thread
+// that runs tests and calibrations, events back to the requesting connection. No sockets here.
+// Threading: handle_line() is called from the server's one io thread; jobs run on one worker
+// thread; ClientLink::send must be thread-safe. stop() may be called from any thread but the worker.
+#pragma once
+
+#include <atomic>
+#include <condition_variable>
+#include <memory>
+#include <mutex>
+#include <optional>
+#include <string>
+#include <string_view>
+#include <thread>
+
+#include <nlohmann/json.hpp>
+
+#include "daemon/service/api_protocol.hpp"
+#include "daemon/service/station.hpp"
+
+namespace echoline::service {
+
+// One client connection as the handler sees it.
+class ClientLink {
+ public:
+  virtual ~ClientLink() = default;
+  virtual void send(std::string line) = 0;   // thread-safe; dropped once the connection closed
+  virtual bool alive() const = 0;            // false once the peer has gone
+};
+
+enum class Role { none, operator_, engineer };
+
+// Per-connection state kept by the server and passed back with every line.
+struct ConnectionState {
+  Role role = Role::operator_;   // non-loopback TCP starts at Role::none
+  bool loopback = true;
+};
+
+// Compares two secrets in time that depends only on their lengths' maximum.
+bool constant_time_equal(std::string_view a, std::string_view b);
+
+class ApiHandler {
+ public:
+  // token: the configured token ("" = none). REQUIRES: station outlives the handler.
+  ApiHandler(Station& station, std::string token);
+  ~ApiHandler();   // stops and joins the worker
+  ApiHandler(const ApiHandler&) = delete;
+  ApiHandler& operator=(const ApiHandler&) = delete;
+
+  // Handles one request line; the reply goes to `link` (events later, from the worker).
+  // Returns false when the connection must be closed after the reply (oversized line).
+  bool handle_line(const std::shared_ptr<ClientLink>& link, ConnectionState& state, std::string_view line);
+
+  // Refuses new jobs, cancels the running one with `reason`, waits for it to end (its run is
+  // stored as aborted). Idempotent.
+  void stop(const std::string& reason);
+  // Refuses new jobs and lets a running test finish (a calibration is cancelled: nobody will
+  // answer its prompts); returns when the worker is idle.
+  void finish_and_stop();
+
+ private:
+  class CalPrompter;
+  using Json = nlohmann::json;
+  void dispatch(const std::shared_ptr<ClientLink>& link, ConnectionState& state, const Request& req);
+  void reply(const std::shared_ptr<ClientLink>& link, const Json& id, Json result);
+  void fail(const std::shared_ptr<ClientLink>& link, const Json& id, std::string_view code, std::string_view message);
+  std::optional<std::string> busy_text() const;
+  Json busy_json() const;
+  // Starts `job` on the worker thread when idle; false when busy or stopping. The job returns
+  // its final event line, sent to `link` only after the handler is idle again (so a client
+  // may start the next job as soon as it reads the result).
+  // `accepted` (the reply line) is sent before the job starts, so it precedes every event.
+  bool start_job(std::string kind, Json busy, std::shared_ptr<ClientLink> link, std::string accepted,
+                 std::function<std::string()> job);
+  void set_progress(int point, int of, const std::string& standard);
+
+  void call_hello(const std::shared_ptr<ClientLink>&, ConnectionState&, const Request&);
+  void call_test_start(const std::shared_ptr<ClientLink>&, const Request&);
+  void call_cal_start(const std::shared_ptr<ClientLink>&, const Request&, bool check_only);
+  void call_cal_answer(const std::shared_ptr<ClientLink>&, const Request&);
+  void call_cancel(const std::shared_ptr<ClientLink>&, const Request&);
+  void call_runs(const std::shared_ptr<ClientLink>&, const Request&);
+  void call_report_lot(const std::shared_ptr<ClientLink>&, const Request&);
+  void call_export(const std::shared_ptr<ClientLink>&, const Request&);
+  void call_recipe_select(const std::shared_ptr<ClientLink>&, const Request&);
+
+  Station& station_;
+  std::string token_;
+
+  mutable std::mutex mu_;            // guards the job state below
+  std::condition_variable cv_;       // calibration answers, cancellation
+  std::thread worker_;
+  bool busy_ = false;
+  bool stopping_ = false;
+  Json busy_info_;                   // API.md "busy" object
+  std::string awaiting_standard_;    // calibration prompt outstanding ("" = none)
+  bool answered_ = false;
+  CancelToken cancel_;
+};
+
+}  // namespace echoline::service

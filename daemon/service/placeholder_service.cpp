@@ -1,1 +1,0 @@
-// Scaffolding so the folder builds before its module lands; delete when the folder has real sources.

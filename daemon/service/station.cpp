@@ -1,0 +1,440 @@
+// The station's jobs: unit test, calibration, check standard; and its state for status.
+#include "daemon/service/station.hpp"
+
+#include <chrono>
+#include <cmath>
+#include <filesystem>
+#include <limits>
+#include <random>
+#include <stdexcept>
+
+#include <fmt/format.h>
+#include <spdlog/spdlog.h>
+
+#include "daemon/core/judge.hpp"
+#include "daemon/core/recipe_loader.hpp"
+#include "daemon/core/rf_math.hpp"
+#include "daemon/service/clock.hpp"
+#include "daemon/service/fast_capture.hpp"
+#include "daemon/store/export.hpp"
+#include "daemon/store/serial.hpp"
+
+namespace echoline::service {
+namespace {
+
+using nlohmann::json;
+using Clock = std::chrono::steady_clock;
+
+double seconds_since(Clock::time_point t0) { return std::chrono::duration<double>(Clock::now() - t0).count(); }
+
+json recipe_json(const core::Recipe& r) {
+  return {{"name", r.name},
+          {"version", r.version},
+          {"content_hash", r.content_hash},
+          {"path", r.source_path},
+          {"points", core::plan_frequencies(r).size()},
+          {"decision_rule", core::to_string(r.rule)}};
+}
+
+json findings_json(const std::vector<core::CheckFinding>& findings) {
+  json out = json::array();
+  for (const auto& f : findings) out.push_back({{"severity", f.severity}, {"key", f.key}, {"message", f.message}});
+  return out;
+}
+
+std::string random_hex4() {
+  static thread_local std::mt19937 rng{std::random_device{}()};
+  return fmt::format("{:04x}", rng() & 0xffffu);
+}
+
+// The recipe's sweep mode picks the engine; both return the same SweepOutcome.
+SweepOutcome run_sweep(Instruments& instruments, const core::Recipe& recipe, const drivers::FixtureConfig& fixture,
+                       const std::atomic<bool>& cancel, const ProgressFn& progress) {
+  SweepOptions so;
+  so.coupling_db = fixture.coupling_db;
+  if (recipe.mode == core::SweepMode::fast_capture) {
+    return run_fast_capture(instruments.source(), instruments.receiver(), recipe, cancel, progress, so);
+  }
+  SweepEngine engine(instruments.source(), instruments.receiver(), so);
+  return engine.run(recipe, cancel, progress);
+}
+
+}  // namespace
+
+// ---- CancelToken ----
+void CancelToken::cancel(std::string reason) {
+  {
+    std::lock_guard lock(mu_);
+    if (!flag_.load()) reason_ = std::move(reason);
+  }
+  flag_.store(true);
+}
+void CancelToken::reset() {
+  std::lock_guard lock(mu_);
+  reason_.clear();
+  flag_.store(false);
+}
+std::string CancelToken::reason() const {
+  std::lock_guard lock(mu_);
+  return reason_;
+}
+
+// ---- JSON views ----
+json run_json(const core::RunResult& run) {
+  json j = store::run_to_json(run, /*with_points=*/false);
+  if (!j.contains("points_count")) j["points_count"] = run.points.size();
+  return j;
+}
+
+json calibration_summary_json(const core::CalibrationRecord& cal) {
+  return {{"id", cal.id},
+          {"created_utc", cal.created_utc},
+          {"valid", cal.valid},
+          {"warnings", cal.warnings},
+          {"min_directivity_db", cal.min_directivity_db},
+          {"noise_margin_db", cal.noise_margin_db},
+          {"recipe", {{"name", cal.recipe.name}, {"version", cal.recipe.version}}},
+          {"units_since", cal.units_since}};
+}
+
+// ---- Station ----
+Station::Station(drivers::StationConfig config) : config_(std::move(config)) {
+  auto recipe = std::make_shared<core::Recipe>(core::load_recipe(config_.recipe));
+  instruments_ = std::make_unique<Instruments>(config_);
+  auto findings = core::check_recipe(*recipe, capability(*recipe));
+  for (const auto& f : findings) spdlog::log(f.severity == "error" ? spdlog::level::err : spdlog::level::warn,
+                                             "recipe {}: {}: {}", recipe->source_path, f.key, f.message);
+  if (core::has_errors(findings)) {
+    for (const auto& f : findings) {
+      if (f.severity == "error") {
+        throw std::runtime_error(fmt::format("recipe {} cannot run on station {}: {}: {}", recipe->source_path,
+                                             config_.station, f.key, f.message));
+      }
+    }
+  }
+  recipe_ = recipe;
+
+  std::error_code ec;
+  std::filesystem::create_directories(config_.data_dir, ec);
+  const auto db = config_.data_dir / (config_.station + ".sqlite");
+  store::StoreOptions so;
+  so.serial_pattern = config_.serial_pattern;
+  auto opened = store::RunStore::open(db, so);
+  if (!opened) throw std::runtime_error(opened.error().message);
+  store_ = std::move(opened.value());
+
+  auto latest = store_->latest_calibration();
+  if (!latest) throw std::runtime_error(latest.error().message);
+  if (latest->has_value() && latest->value().valid) {
+    calibration_ = latest->value();
+    calibration_created_s_ = parse_utc_iso8601(calibration_->created_utc).value_or(0);
+    spdlog::info("calibration {} from {} loaded ({} units since)", calibration_->id, calibration_->created_utc,
+                 calibration_->units_since);
+  }
+}
+
+Station::~Station() = default;
+
+void Station::connect_instruments() {
+  if (Status s = instruments_->ensure_ready(1); !s) {
+    spdlog::warn("instruments not all ready at start: {}", s.error().message);
+  }
+}
+
+void Station::shutdown() {
+  instruments_->close_all();
+  store_.reset();
+}
+
+std::shared_ptr<const core::Recipe> Station::recipe() const {
+  std::lock_guard lock(mu_);
+  return recipe_;
+}
+
+core::StationCapability Station::capability(const core::Recipe& recipe) const {
+  core::StationCapability c;
+  const auto& fx = config_.fixture;
+  const auto& sp = instruments_->source_profile();
+  const auto& rp = instruments_->receiver_profile();
+  c.directivity_db = fx.nominal_directivity_db;
+  c.source_match_db = fx.source_match_db;
+  c.coupling_db = fx.coupling_db;
+  c.mainline_loss_db = fx.mainline_loss_db;
+  c.cable_loss_db = fx.cable_loss_db;
+  c.noise_floor_dbm = core::thermal_noise_floor_dbm(recipe.receiver.rbw_hz, rp.noise_figure_db);
+  c.receiver_max_safe_input_dbm = rp.max_safe_input_dbm;
+  c.source_min_hz = sp.min_frequency_hz;
+  c.source_max_hz = sp.max_frequency_hz;
+  c.receiver_min_hz = rp.min_frequency_hz;
+  c.receiver_max_hz = rp.max_frequency_hz;
+  c.source_max_power_dbm = sp.max_power_dbm;
+  return c;
+}
+
+std::vector<std::string> Station::standards() const {
+  auto r = recipe();
+  if (r->calibration.use_short) return {"OPEN", "SHORT", "LOAD"};
+  return {"OPEN", "LOAD"};
+}
+
+int Station::plan_points() const { return static_cast<int>(core::plan_frequencies(*recipe()).size()); }
+
+json Station::calibration_json() const {
+  std::lock_guard lock(mu_);
+  json j = {{"present", calibration_.has_value()}};
+  core::CalibrationState st = core::calibration_due(calibration_ ? &*calibration_ : nullptr, *recipe_, unix_now_s(),
+                                                    calibration_created_s_, std::nullopt);
+  if (!check_failure_.empty()) st = {true, check_failure_};
+  if (calibration_) {
+    j.update(calibration_summary_json(*calibration_));
+  }
+  j["due"] = st.due;
+  j["reason"] = st.reason;
+  const int every = recipe_->calibration.check_every_units;
+  j["check"] = {{"standard", recipe_->calibration.check_standard},
+                {"every_units", every},
+                {"units_since", units_since_check_},
+                {"due", every > 0 && calibration_ && units_since_check_ >= every}};
+  return j;
+}
+
+json Station::status_json() const {
+  json instruments = json::array();
+  for (const auto& h : instruments_->health()) {
+    instruments.push_back({{"role", h.role},
+                           {"name", h.name},
+                           {"address", h.address},
+                           {"identity", h.identity},
+                           {"healthy", h.healthy},
+                           {"last_error", h.last_error}});
+  }
+  auto r = recipe();
+  return {{"station", config_.station},
+          {"version", "0.1.0"},
+          {"recipe", recipe_json(*r)},
+          {"instruments", instruments},
+          {"calibration", calibration_json()}};
+}
+
+std::optional<Refusal> Station::precheck_test(const TestRequest& request) const {
+  if (Status s = store::validate_serial(request.serial, config_.serial_pattern); !s) {
+    return Refusal{"invalid_serial", s.error().message};
+  }
+  json cal = calibration_json();
+  if (cal["due"].get<bool>()) {
+    return Refusal{"calibration_due",
+                   fmt::format("calibration due: {}; run a calibration (cal.start) before testing", cal["reason"].get<std::string>())};
+  }
+  if (cal["check"]["due"].get<bool>()) {
+    return Refusal{"check_due", fmt::format("check standard {} due after {} units; measure it (cal.check) before testing",
+                                            cal["check"]["standard"].get<std::string>(), cal["check"]["every_units"].get<int>())};
+  }
+  return std::nullopt;
+}
+
+std::string Station::next_run_id(double now_s) {
+  std::lock_guard lock(mu_);
+  ++run_counter_;
+  return fmt::format("{}-{}-{:04}-{}", compact_utc(now_s), config_.station, run_counter_ % 10000, random_hex4());
+}
+
+TestOutcome Station::run_test(const TestRequest& request, const CancelToken& cancel, const ProgressFn& progress) {
+  const auto t0 = Clock::now();
+  const double start_s = unix_now_s();
+  std::shared_ptr<const core::Recipe> recipe;
+  std::optional<core::CalibrationRecord> cal;
+  {
+    std::lock_guard lock(mu_);
+    recipe = recipe_;
+    cal = calibration_;
+  }
+  core::RunResult run;
+  run.run_id = next_run_id(start_s);
+  run.serial = request.serial;
+  run.lot = request.lot;
+  run.station = config_.station;
+  run.operator_name = request.operator_name;
+  run.recipe = {recipe->name, recipe->version, recipe->content_hash};
+  run.decision_rule = core::to_string(recipe->rule);
+  run.started_utc = utc_iso8601(start_s);
+  run.calibration_id = cal ? cal->id : "";
+  run.verdict = core::Verdict::aborted;
+
+  auto history = store_->history(request.serial);
+  run.retest = request.retest || (history && !history->empty());
+
+  auto finish = [&]() {
+    run.ended_utc = utc_iso8601(unix_now_s());
+    run.timings.total_s = seconds_since(t0);
+    run.instruments = instruments_->identities();
+    TestOutcome out{run, store_->save_run(run)};
+    if (!out.stored) spdlog::error("run {} of {} NOT stored: {}", run.run_id, run.serial, out.stored.error().message);
+    if (run.verdict != core::Verdict::aborted) {
+      std::lock_guard lock(mu_);
+      ++units_since_check_;
+      if (calibration_) {
+        ++calibration_->units_since;
+        (void)store_->set_calibration_units(calibration_->id, calibration_->units_since);
+      }
+    }
+    spdlog::info("run {} serial {}: {}{}{}", run.run_id, run.serial, core::to_string(run.verdict),
+                 run.reason.empty() ? "" : " - ", run.reason);
+    return out;
+  };
+
+  if (!cal) {
+    run.reason = "no calibration";
+    return finish();
+  }
+  if (Status s = instruments_->ensure_ready(); !s) {
+    run.reason = fmt::format("instrument not ready: {}", s.error().message);
+    return finish();
+  }
+  if (auto* sw = instruments_->switch_()) {
+    if (Status s = sw->select("DUT"); !s) {
+      instruments_->invalidate();
+      run.reason = s.error().message;
+      return finish();
+    }
+  }
+  SweepOutcome sweep = run_sweep(*instruments_, *recipe, config_.fixture, cancel.flag(), progress);
+  run.timings.sweep_s = sweep.sweep_s;
+  if (!sweep.completed()) {
+    if (sweep.error->kind == ErrorKind::cancelled) {
+      std::string why = cancel.reason();
+      run.reason = why.empty() ? sweep.error->message : fmt::format("{} ({})", why, sweep.error->message);
+    } else {
+      instruments_->invalidate();
+      run.reason = sweep.error->message;
+    }
+    for (const auto& r : sweep.readings) {
+      const double nan = std::numeric_limits<double>::quiet_NaN();
+      run.points.push_back(core::PointResult{r.frequency_hz, r.raw_dbm, nan, nan, nan});
+    }
+    return finish();
+  }
+  const auto ta = Clock::now();
+  core::Judgement j = core::judge(*recipe, *cal, sweep.readings, config_.fixture.source_match_db);
+  run.timings.analysis_s = seconds_since(ta);
+  run.points = std::move(j.points);
+  if (run.points.empty()) {
+    for (const auto& r : sweep.readings) {
+      const double nan = std::numeric_limits<double>::quiet_NaN();
+      run.points.push_back(core::PointResult{r.frequency_hz, r.raw_dbm, nan, nan, nan});
+    }
+  }
+  run.metrics = j.metrics;
+  run.verdict = j.verdict;
+  run.failure_class = j.failure_class;
+  run.reason = j.reason;
+  run.trim = j.trim;
+  return finish();
+}
+
+Result<std::vector<core::Reading>> Station::sweep_standard(const std::string& standard, const core::Recipe& recipe,
+                                                           Prompter& prompter, const CancelToken& cancel,
+                                                           const StandardProgressFn& progress) {
+  if (auto* sw = instruments_->switch_()) {
+    if (Status s = sw->select(standard); !s) return s.error();
+  } else if (!prompter.wait_connected(standard)) {
+    std::string why = cancel.reason();
+    return make_error(ErrorKind::cancelled, why.empty() ? "calibration cancelled" : why);
+  }
+  if (cancel.cancelled()) return make_error(ErrorKind::cancelled, cancel.reason());
+  if (Status s = instruments_->ensure_ready(); !s) return s.error();
+  SweepOutcome sweep = run_sweep(*instruments_, recipe, config_.fixture, cancel.flag(), [&](int i, int n) {
+    if (progress) progress(standard, i, n);
+  });
+  if (!sweep.completed()) {
+    if (sweep.error->kind != ErrorKind::cancelled) instruments_->invalidate();
+    std::string why = cancel.reason();
+    Error e = *sweep.error;
+    if (e.kind == ErrorKind::cancelled && !why.empty()) e.message = fmt::format("{} ({})", why, e.message);
+    return e.with_context(fmt::format("measuring {}", standard));
+  }
+  return std::move(sweep.readings);
+}
+
+CalibrationOutcome Station::run_calibration(Prompter& prompter, const CancelToken& cancel,
+                                            const StandardProgressFn& progress) {
+  CalibrationOutcome out;
+  auto recipe = this->recipe();
+  std::map<std::string, std::vector<core::Reading>> traces;
+  for (const auto& standard : standards()) {
+    auto r = sweep_standard(standard, *recipe, prompter, cancel, progress);
+    if (!r) {
+      out.error = r.error().with_context("calibration");
+      return out;
+    }
+    traces[standard] = std::move(r.value());
+  }
+  const double now = unix_now_s();
+  std::string id = fmt::format("cal-{}-{}-{}", compact_utc(now), config_.station, random_hex4());
+  core::CalibrationRecord rec = core::build_calibration(*recipe, traces, capability(*recipe), id, utc_iso8601(now));
+  rec.station = config_.station;
+  rec.instruments = instruments_->identities();
+  rec.recipe = {recipe->name, recipe->version, recipe->content_hash};
+  rec.units_since = 0;
+  if (Status s = store_->save_calibration(rec); !s) {
+    out.error = s.error().with_context("calibration: store");
+    return out;
+  }
+  if (rec.valid) {
+    std::lock_guard lock(mu_);
+    calibration_ = rec;
+    calibration_created_s_ = now;
+    units_since_check_ = 0;
+    check_failure_.clear();
+  }
+  spdlog::info("calibration {}: {} (min directivity {:.1f} dB, {} warnings)", rec.id, rec.valid ? "valid" : "NOT valid",
+               rec.min_directivity_db, rec.warnings.size());
+  out.record = std::move(rec);
+  return out;
+}
+
+CheckOutcome Station::run_check(Prompter& prompter, const CancelToken& cancel, const StandardProgressFn& progress) {
+  CheckOutcome out;
+  auto recipe = this->recipe();
+  std::optional<core::CalibrationRecord> cal;
+  {
+    std::lock_guard lock(mu_);
+    cal = calibration_;
+  }
+  if (!cal) {
+    out.error = make_error(ErrorKind::invalid_argument, "check standard: no calibration to compare with; calibrate first");
+    return out;
+  }
+  const std::string standard = recipe->calibration.check_standard;
+  auto r = sweep_standard(standard, *recipe, prompter, cancel, progress);
+  if (!r) {
+    out.error = r.error().with_context("check standard");
+    return out;
+  }
+  std::string why;
+  out.drifted = core::check_standard_drifted(*cal, standard, *r, recipe->calibration.check_drift_limit_db, &why);
+  out.message = out.drifted ? why : fmt::format("check standard {} within {} dB of the calibration", standard,
+                                                recipe->calibration.check_drift_limit_db);
+  std::lock_guard lock(mu_);
+  units_since_check_ = 0;
+  if (out.drifted) check_failure_ = fmt::format("check standard drifted: {}", why);
+  return out;
+}
+
+Result<json> Station::select_recipe(const std::filesystem::path& path) {
+  auto loaded = std::make_shared<core::Recipe>(core::load_recipe(path));
+  auto findings = core::check_recipe(*loaded, capability(*loaded));
+  json out = {{"recipe", recipe_json(*loaded)}, {"findings", findings_json(findings)}};
+  if (core::has_errors(findings)) {
+    for (const auto& f : findings) {
+      if (f.severity == "error") {
+        return make_error(ErrorKind::config, fmt::format("recipe {} refused on this station: {}: {}", path.string(), f.key, f.message));
+      }
+    }
+  }
+  std::lock_guard lock(mu_);
+  recipe_ = loaded;
+  spdlog::info("recipe selected: {} {} ({})", loaded->name, loaded->version, path.string());
+  return out;
+}
+
+}  // namespace echoline::service

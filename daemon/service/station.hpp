@@ -1,0 +1,138 @@
+// The station: instruments, active recipe, calibration state and run store, and the three jobs
+// run against them — a unit test, a calibration, a check-standard measurement.
+// Threading: run_* are synchronous and must be called from ONE worker thread at a time (the API
+// handler guarantees it); status/precheck/history calls are safe from any thread (state copied
+// under a mutex; the RunStore serialises itself).
+#pragma once
+
+#include <atomic>
+#include <functional>
+#include <memory>
+#include <mutex>
+#include <optional>
+#include <string>
+#include <vector>
+
+#include <nlohmann/json.hpp>
+
+#include "daemon/core/calibration.hpp"
+#include "daemon/core/recipe.hpp"
+#include "daemon/core/recipe_check.hpp"
+#include "daemon/core/run_result.hpp"
+#include "daemon/service/instruments.hpp"
+#include "daemon/service/sweep_engine.hpp"
+#include "daemon/store/run_store.hpp"
+#include "drivers/station_config.hpp"
+
+namespace echoline::service {
+
+// Cancels the job in progress; the reason ends up in the aborted run. Thread-safe.
+class CancelToken {
+ public:
+  void cancel(std::string reason);
+  void reset();
+  bool cancelled() const { return flag_.load(); }
+  std::string reason() const;
+  const std::atomic<bool>& flag() const { return flag_; }
+
+ private:
+  std::atomic<bool> flag_{false};
+  mutable std::mutex mu_;
+  std::string reason_;
+};
+
+// Asks the operator to connect a standard. Returns false when the job was cancelled instead.
+class Prompter {
+ public:
+  virtual ~Prompter() = default;
+  virtual bool wait_connected(const std::string& standard) = 0;
+};
+
+struct TestRequest {
+  std::string serial, lot, operator_name;
+  bool retest = false;
+};
+
+// A request the station will not start, with its API error code (API.md).
+struct Refusal {
+  std::string code;
+  std::string message;
+};
+
+struct TestOutcome {
+  core::RunResult run;
+  Status stored;   // the store's answer; the run is reported either way
+};
+
+struct CalibrationOutcome {
+  std::optional<core::CalibrationRecord> record;   // set when measured (valid or not)
+  std::optional<Error> error;                      // set when it could not complete
+};
+
+struct CheckOutcome {
+  bool drifted = false;
+  std::string message;
+  std::optional<Error> error;
+};
+
+using StandardProgressFn = std::function<void(const std::string& standard, int point, int of)>;
+
+class Station {
+ public:
+  // Loads the recipe and profiles, opens the store (data_dir/<station>.sqlite) and loads the
+  // latest calibration. Throws (ConfigError / std::runtime_error) naming what is wrong.
+  explicit Station(drivers::StationConfig config);
+  ~Station();
+  Station(const Station&) = delete;
+  Station& operator=(const Station&) = delete;
+
+  // Connects the instruments once (worker thread or before the API starts); failures are
+  // logged and shown in status, and retried before each job.
+  void connect_instruments();
+  // Closes the instrument links and the store (shutdown; no job may run).
+  void shutdown();
+
+  // --- any thread ---
+  nlohmann::json status_json() const;
+  nlohmann::json calibration_json() const;
+  std::optional<Refusal> precheck_test(const TestRequest& request) const;
+  std::vector<std::string> standards() const;        // calibration order
+  int plan_points() const;
+  const drivers::StationConfig& config() const { return config_; }
+  store::RunStore& store() { return *store_; }
+  std::shared_ptr<const core::Recipe> recipe() const;
+
+  // --- the worker thread ---
+  TestOutcome run_test(const TestRequest& request, const CancelToken& cancel, const ProgressFn& progress);
+  CalibrationOutcome run_calibration(Prompter& prompter, const CancelToken& cancel, const StandardProgressFn& progress);
+  CheckOutcome run_check(Prompter& prompter, const CancelToken& cancel, const StandardProgressFn& progress);
+  // Loads and checks another recipe; the calibration stays only when made for the same plan.
+  // Throws drivers::ConfigError for a bad file; returns findings (errors refuse the recipe).
+  Result<nlohmann::json> select_recipe(const std::filesystem::path& path);
+
+ private:
+  core::StationCapability capability(const core::Recipe& recipe) const;
+  std::string next_run_id(double now_s);
+  Result<std::vector<core::Reading>> sweep_standard(const std::string& standard, const core::Recipe& recipe,
+                                                    Prompter& prompter, const CancelToken& cancel,
+                                                    const StandardProgressFn& progress);
+
+  drivers::StationConfig config_;
+  std::unique_ptr<Instruments> instruments_;
+  std::unique_ptr<store::RunStore> store_;
+
+  mutable std::mutex mu_;   // guards everything below
+  std::shared_ptr<const core::Recipe> recipe_;
+  std::optional<core::CalibrationRecord> calibration_;
+  double calibration_created_s_ = 0;
+  int units_since_check_ = 0;
+  std::string check_failure_;   // set when the check standard drifted: calibration due
+  std::uint64_t run_counter_ = 0;
+};
+
+// The run as the API shows it (the store's JSON without points; "points_count" = stored points).
+nlohmann::json run_json(const core::RunResult& run);
+// A calibration record's summary (no traces).
+nlohmann::json calibration_summary_json(const core::CalibrationRecord& cal);
+
+}  // namespace echoline::service

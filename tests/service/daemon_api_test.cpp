@@ -1,0 +1,276 @@
+// echolined over its Unix socket against a real echoline-sim (instant profile): hello, status,
+// calibration with prompts, unit tests with verdicts, refusals, bad requests, roles, faults.
+#include <sys/socket.h>
+#include <sys/un.h>
+
+#include <fstream>
+#include <iterator>
+#include <thread>
+
+#include <gtest/gtest.h>
+
+#include "tests/core/e2e_station.hpp"
+
+namespace echoline::e2e {
+namespace {
+
+class DaemonApi : public ::testing::Test {
+ protected:
+  void SetUp() override {
+    sim_.emplace("tiny-lot.jsonc");
+    config_ = write_station_config(dir_.path(), *sim_);
+    daemon_.emplace(config_);
+  }
+  Api connect() { return Api::connect(*daemon_); }
+
+  testing::TempDir dir_{"echoline-daemon"};
+  std::optional<Sim> sim_;
+  std::filesystem::path config_;
+  std::optional<Daemon> daemon_;
+};
+
+TEST_F(DaemonApi, HelloNamesStationAndStatusShowsHealthyInstruments) {
+  Api api = connect();
+  json h = api.call("hello", {{"role", "operator"}, {"client", "test"}});
+  ASSERT_TRUE(h["ok"].get<bool>()) << h.dump();
+  EXPECT_EQ(h["result"]["station"], "e2e-bench");
+  EXPECT_EQ(h["result"]["api"], 1);
+  EXPECT_EQ(h["id"], 1);
+
+  json s = api.call("status");
+  ASSERT_TRUE(s["ok"].get<bool>()) << s.dump();
+  ASSERT_EQ(s["result"]["instruments"].size(), 2u);
+  for (const auto& i : s["result"]["instruments"]) {
+    EXPECT_TRUE(i["healthy"].get<bool>()) << i.dump();
+    EXPECT_NE(i["identity"].get<std::string>().find("Echoline"), std::string::npos);   // sim *IDN? manufacturer
+  }
+  EXPECT_TRUE(s["result"]["calibration"]["due"].get<bool>());   // fresh store: no calibration
+  EXPECT_TRUE(s["result"]["busy"].is_null());
+  EXPECT_EQ(s["result"]["recipe"]["name"], "whip915");
+}
+
+TEST_F(DaemonApi, TestIsRefusedUntilCalibrated) {
+  Api api = connect();
+  sim_->connect_unit("TINY-01");
+  json r = api.call("test.start", {{"serial", "TINY-01"}});
+  ASSERT_FALSE(r["ok"].get<bool>());
+  EXPECT_EQ(r["error"]["code"], "calibration_due");
+  EXPECT_NE(r["error"]["message"].get<std::string>().find("cal.start"), std::string::npos);
+}
+
+TEST_F(DaemonApi, CalibrationPromptsEachStandardThenUnitsGetVerdicts) {
+  Api api = connect();
+  json r = api.call("cal.start");
+  ASSERT_TRUE(r["ok"].get<bool>()) << r.dump();
+  const int points = r["result"]["points"];
+  std::vector<std::string> prompted;
+  json last;
+  for (;;) {
+    json e = api.next_event();
+    if (e["event"] == "prompt") {
+      prompted.push_back(e["standard"]);
+      sim_->connect_standard(e["standard"]);
+      ASSERT_TRUE(api.call("cal.answer", {{"standard", e["standard"]}})["ok"].get<bool>());
+    } else if (e["event"] == "result" || e["event"] == "error") {
+      last = e;
+      break;
+    }
+  }
+  // whip915 uses OPEN+SHORT reference (calibration.use_short true), then LOAD.
+  EXPECT_EQ(prompted, (std::vector<std::string>{"OPEN", "SHORT", "LOAD"}));
+  ASSERT_EQ(last["event"], "result") << last.dump();
+  EXPECT_TRUE(last["calibration"]["valid"].get<bool>()) << last.dump();
+
+  std::map<std::string, std::string> verdicts;
+  for (const std::string serial : {"TINY-01", "TINY-02", "TINY-05"}) {
+    int progress = 0;
+    json run = test_unit(api, *sim_, serial, "TINY", &progress);
+    EXPECT_EQ(progress, points) << serial;   // one progress event per plan point
+    EXPECT_EQ(run["serial"], serial);
+    EXPECT_EQ(run["calibration_id"], last["calibration"]["id"]);
+    verdicts[serial] = run["verdict"];
+    EXPECT_NE(run["verdict"], "aborted") << run.dump();
+  }
+  // TINY-02 is cut too long and TINY-05 has a shorted feed in the tiny lot (sim truth).
+  EXPECT_EQ(sim_->control({{"cmd", "truth"}, {"unit", "TINY-02"}, {"frequencies_hz", {915e6}}})["defect"], "too-long");
+  EXPECT_EQ(verdicts["TINY-02"], "fail");
+  EXPECT_EQ(verdicts["TINY-05"], "fail");
+
+  // A second test of the same serial is a retest; history keeps both.
+  json again = test_unit(api, *sim_, "TINY-01", "TINY");
+  EXPECT_TRUE(again["retest"].get<bool>());
+  json h = api.call("runs.history", {{"serial", "TINY-01"}});
+  ASSERT_TRUE(h["ok"].get<bool>());
+  EXPECT_EQ(h["result"]["runs"].size(), 2u);
+  json lot = api.call("runs.lot", {{"lot", "TINY"}});
+  EXPECT_EQ(lot["result"]["runs"].size(), 4u);
+}
+
+TEST_F(DaemonApi, EngineerExportsAndLotReportWriteFilesNamingTheUnits) {
+  Api api = connect();
+  ASSERT_EQ(calibrate(api, *sim_)["event"], "result");
+  json run = test_unit(api, *sim_, "TINY-01", "TINY");
+  ASSERT_TRUE(api.call("hello", {{"role", "engineer"}})["ok"].get<bool>());
+  const auto csv = dir_ / "lot.csv";
+  const auto js = dir_ / "run.json";
+  const auto html = dir_ / "lot.html";
+  json r = api.call("export", {{"scope", "lot"}, {"key", "TINY"}, {"format", "csv"}, {"path", csv.string()}});
+  ASSERT_TRUE(r["ok"].get<bool>()) << r.dump();
+  r = api.call("export", {{"scope", "run"}, {"key", run["run_id"]}, {"format", "json"}, {"path", js.string()}});
+  ASSERT_TRUE(r["ok"].get<bool>()) << r.dump();
+  r = api.call("report.lot", {{"lot", "TINY"}, {"path", html.string()}});
+  ASSERT_TRUE(r["ok"].get<bool>()) << r.dump();
+  for (const auto& f : {csv, js, html}) {
+    std::ifstream in(f);
+    std::string text((std::istreambuf_iterator<char>(in)), std::istreambuf_iterator<char>());
+    EXPECT_NE(text.find("TINY-01"), std::string::npos) << f;
+  }
+  EXPECT_EQ(api.call("report.lot", {{"lot", "NO-SUCH-LOT"}, {"path", html.string()}})["error"]["code"], "not_found");
+}
+
+TEST_F(DaemonApi, BadRequestsGetErrorRepliesAndTheConnectionStaysUsable) {
+  Api api = connect();
+  struct Case {
+    std::string line, code;
+  };
+  const std::vector<Case> cases = {
+      {"this is not json", "bad_request"},
+      {"[1,2,3]", "bad_request"},
+      {R"({"v":1,"call":"status"})", "bad_request"},                      // no id
+      {R"({"v":1,"id":5})", "bad_request"},                               // no call
+      {R"({"v":1,"id":{"a":1},"call":"status"})", "bad_request"},         // id of the wrong type
+      {R"({"v":1,"id":6,"call":"self.destruct"})", "unknown_call"},
+      {R"({"v":1,"id":7,"call":"test.start","args":{"serial":42}})", "bad_request"},
+      {R"({"v":1,"id":8,"call":"test.start","args":"x"})", "bad_request"},
+      {R"({"v":2,"id":9,"call":"status"})", "unsupported_version"},
+      {R"({"v":1,"id":10,"call":"test.start","args":{"serial":"bad/serial"}})", "invalid_serial"},
+      {"{\"v\":1,\"id\":11,\"call\":\"runs.history\",\"args\":{\"serial\":\"\xff\xfe\"}}", "bad_request"},   // not UTF-8
+  };
+  for (const auto& c : cases) {
+    api.send_raw(c.line + "\n");
+    json reply = api.next_message(10s);
+    ASSERT_TRUE(reply.contains("ok")) << c.line;
+    EXPECT_FALSE(reply["ok"].get<bool>()) << c.line;
+    EXPECT_EQ(reply["error"]["code"], c.code) << c.line << " -> " << reply.dump();
+    EXPECT_FALSE(reply["error"]["message"].get<std::string>().empty());
+  }
+  EXPECT_TRUE(api.call("status")["ok"].get<bool>());   // still usable
+}
+
+TEST_F(DaemonApi, OversizedLineIsRefusedAndTheConnectionClosed) {
+  Api api = connect();
+  std::string huge = R"({"v":1,"id":1,"call":"status","args":{"pad":")" + std::string(70 * 1024, 'x') + "\"}}\n";
+  api.send_raw(huge);
+  json reply = api.next_message(10s);
+  EXPECT_EQ(reply["error"]["code"], "too_large");
+  EXPECT_FALSE(api.read_line(5s).has_value());   // closed
+  // The daemon itself is fine.
+  Api other = connect();
+  EXPECT_TRUE(other.call("status")["ok"].get<bool>());
+}
+
+TEST_F(DaemonApi, EngineerCallsAreForbiddenToOperators) {
+  Api api = connect();
+  json r = api.call("recipe.select", {{"path", (testing::source_dir() / "config/recipes/whip915.jsonc").string()}});
+  EXPECT_EQ(r["error"]["code"], "forbidden");
+  r = api.call("export", {{"scope", "lot"}, {"key", "X"}, {"format", "csv"}, {"path", "/tmp/x.csv"}});
+  EXPECT_EQ(r["error"]["code"], "forbidden");
+  // No token file configured: engineer role is granted on the local socket.
+  ASSERT_TRUE(api.call("hello", {{"role", "engineer"}})["ok"].get<bool>());
+  r = api.call("recipe.select", {{"path", (testing::source_dir() / "config/recipes/whip915.jsonc").string()}});
+  EXPECT_TRUE(r["ok"].get<bool>()) << r.dump();
+  r = api.call("recipe.select", {{"path", (dir_.path() / "missing.jsonc").string()}});
+  EXPECT_EQ(r["error"]["code"], "config");
+}
+
+TEST_F(DaemonApi, BusyWhileCalibratingStatusStillAnswersAndCancelEndsIt) {
+  Api api = connect();
+  json r = api.call("cal.start");
+  ASSERT_TRUE(r["ok"].get<bool>());
+  json prompt = api.next_event();
+  ASSERT_EQ(prompt["event"], "prompt");
+
+  Api second = connect();
+  json busy = second.call("test.start", {{"serial", "TINY-01"}});
+  EXPECT_EQ(busy["error"]["code"], "busy");
+  EXPECT_NE(busy["error"]["message"].get<std::string>().find("calibration"), std::string::npos);
+  json s = second.call("status");
+  EXPECT_EQ(s["result"]["busy"]["kind"], "calibration");
+  EXPECT_EQ(second.call("cal.answer", {{"standard", "LOAD"}})["error"]["code"], "wrong_standard");
+
+  EXPECT_TRUE(second.call("cancel")["ok"].get<bool>());
+  json end = api.next_event();
+  EXPECT_EQ(end["event"], "error");
+  EXPECT_TRUE(second.call("cal.status")["result"]["due"].get<bool>());   // nothing stored as valid
+  EXPECT_EQ(second.call("cancel")["error"]["code"], "idle");
+}
+
+TEST_F(DaemonApi, InstrumentDroppingMidRunAbortsTheRunAndTheNextUnitWorks) {
+  Api api = connect();
+  ASSERT_EQ(calibrate(api, *sim_)["event"], "result");
+  sim_->connect_unit("TINY-01");
+  json r = api.call("test.start", {{"serial", "TINY-01"}});
+  ASSERT_TRUE(r["ok"].get<bool>());
+  json e = api.next_event();
+  ASSERT_EQ(e["event"], "progress");
+  // Mid-run: the source now hangs up instead of replying.
+  ASSERT_TRUE(sim_->control({{"cmd", "fault"}, {"role", "source"}, {"kind", "drop"}, {"probability", 1}})["ok"].get<bool>());
+  json run;
+  for (;;) {
+    e = api.next_event();
+    if (e["event"] == "result") {
+      run = e["run"];
+      break;
+    }
+  }
+  EXPECT_EQ(run["verdict"], "aborted");   // never a pass
+  EXPECT_NE(run["reason"].get<std::string>().find("siggen"), std::string::npos) << run["reason"];   // names the instrument
+  EXPECT_LT(run["points_count"].get<int>(), r["result"]["points"].get<int>());
+
+  ASSERT_TRUE(sim_->control({{"cmd", "clear-faults"}})["ok"].get<bool>());
+  json next = test_unit(api, *sim_, "TINY-03");
+  EXPECT_NE(next["verdict"], "aborted") << next.dump();
+  json h = api.call("runs.history", {{"serial", "TINY-01"}});
+  ASSERT_EQ(h["result"]["runs"].size(), 1u);   // the aborted run is stored too
+  EXPECT_EQ(h["result"]["runs"][0]["verdict"], "aborted");
+}
+
+TEST_F(DaemonApi, SigtermStopsCleanlyAndRemovesTheSocket) {
+  Api api = connect();
+  ASSERT_TRUE(api.call("cal.start")["ok"].get<bool>());
+  ASSERT_EQ(api.next_event()["event"], "prompt");   // a job is waiting when the signal comes
+  EXPECT_EQ(daemon_->process().terminate(10s), 0);
+  EXPECT_FALSE(std::filesystem::exists(daemon_->unix_path()));
+}
+
+TEST(DaemonStart, StaleSocketIsReplacedAndTokenGuardsEngineerRole) {
+  testing::TempDir dir{"echoline-daemon"};
+  Sim sim("tiny-lot.jsonc");
+  const auto token_file = dir / "token";
+  std::ofstream(token_file) << "0123456789abcdef0123\n";
+  auto config = write_station_config(dir.path(), sim, "whip915.jsonc",
+                                     json({{"token_file", token_file.string()}, {"tcp_port", 0}}).dump());
+  // A socket file nobody listens on, as a crashed daemon leaves it.
+  {
+    int fd = ::socket(AF_UNIX, SOCK_STREAM, 0);
+    sockaddr_un addr{};
+    addr.sun_family = AF_UNIX;
+    std::strncpy(addr.sun_path, (dir / "echolined.sock").c_str(), sizeof(addr.sun_path) - 1);
+    ASSERT_EQ(::bind(fd, reinterpret_cast<sockaddr*>(&addr), sizeof(addr)), 0);
+    ::close(fd);
+  }
+  Daemon daemon(config, {"--tcp-port", "-1"});
+  Api api = Api::connect(daemon);
+  EXPECT_TRUE(api.call("status")["ok"].get<bool>());
+  EXPECT_EQ(api.call("hello", {{"role", "engineer"}})["error"]["code"], "unauthorized");
+  EXPECT_EQ(api.call("hello", {{"role", "engineer"}, {"token", "0123456789abcdef0124"}})["error"]["code"], "unauthorized");
+  EXPECT_TRUE(api.call("hello", {{"role", "engineer"}, {"token", "0123456789abcdef0123"}})["ok"].get<bool>());
+
+  // Loopback TCP carries the same protocol.
+  ASSERT_FALSE(daemon.tcp_address().empty());
+  Api tcp(LineSocket::tcp(daemon.tcp_address()));
+  EXPECT_EQ(tcp.call("status")["result"]["station"], "e2e-bench");
+}
+
+}  // namespace
+}  // namespace echoline::e2e
