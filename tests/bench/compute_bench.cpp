@@ -1,0 +1,148 @@
+// Benchmarks of the pure computation and the run store: calibration build and judging per run
+// (201 and 1601 points), one synchronous store commit per 201-point run, and the lot report
+// over 10 000 runs. Prints numbers only (Google Benchmark); asserts nothing about time.
+// Single-threaded. Store files live in a temp folder removed at exit.
+#include <unistd.h>
+
+#include <cstdlib>
+#include <filesystem>
+#include <memory>
+#include <stdexcept>
+#include <string>
+#include <vector>
+
+#include <benchmark/benchmark.h>
+#include <fmt/format.h>
+
+#include "daemon/core/calibration.hpp"
+#include "daemon/core/judge.hpp"
+#include "daemon/store/lot_report.hpp"
+#include "daemon/store/run_store.hpp"
+#include "tests/bench/bench_data.hpp"
+
+namespace {
+
+using namespace echoline;
+
+std::filesystem::path temp_folder() {
+  static const std::filesystem::path dir = [] {
+    auto d = std::filesystem::temp_directory_path() / fmt::format("echoline-bench-{}", ::getpid());
+    std::filesystem::create_directories(d);
+    std::atexit([] { std::error_code ec; std::filesystem::remove_all(std::filesystem::temp_directory_path() / fmt::format("echoline-bench-{}", ::getpid()), ec); });
+    return d;
+  }();
+  return dir;
+}
+
+core::CalibrationRecord calibrate(const core::Recipe& recipe) {
+  return core::build_calibration(recipe, bench::standard_traces(recipe), bench::station_capability(), "cal-bench",
+                                 "2026-03-02T07:00:00.000Z");
+}
+
+void BM_BuildCalibration(benchmark::State& state) {
+  const core::Recipe recipe = bench::whip_recipe(static_cast<int>(state.range(0)));
+  const auto traces = bench::standard_traces(recipe);
+  const auto cap = bench::station_capability();
+  for (auto _ : state) {
+    auto cal = core::build_calibration(recipe, traces, cap, "cal-bench", "2026-03-02T07:00:00.000Z");
+    benchmark::DoNotOptimize(cal);
+  }
+  if (!calibrate(recipe).valid) state.SkipWithError("the synthetic calibration is not valid");
+}
+BENCHMARK(BM_BuildCalibration)->Arg(201)->Arg(1601)->Unit(benchmark::kMicrosecond);
+
+void BM_Judge(benchmark::State& state) {
+  const core::Recipe recipe = bench::whip_recipe(static_cast<int>(state.range(0)));
+  const auto cal = calibrate(recipe);
+  const auto dut = bench::dut_readings(recipe, 912e6);
+  for (auto _ : state) {
+    auto j = core::judge(recipe, cal, dut, recipe.source_match_db);
+    benchmark::DoNotOptimize(j);
+  }
+  if (core::judge(recipe, cal, dut, recipe.source_match_db).verdict == core::Verdict::aborted)
+    state.SkipWithError("the synthetic run was judged aborted");
+}
+BENCHMARK(BM_Judge)->Arg(201)->Arg(1601)->Unit(benchmark::kMicrosecond);
+
+// One synchronous commit (WAL, synchronous=FULL as shipped) of a 201-point run with its points.
+void BM_StoreCommitRun(benchmark::State& state) {
+  const core::Recipe recipe = bench::whip_recipe(201);
+  const auto cal = calibrate(recipe);
+  static int file_counter = 0;
+  auto store = store::RunStore::open(temp_folder() / fmt::format("commit-{}.sqlite", ++file_counter));
+  if (!store) {
+    state.SkipWithError(store.error().message.c_str());
+    return;
+  }
+  core::RunResult run = bench::make_run(recipe, cal, "LOT-A", 1);
+  long n = 0;
+  for (auto _ : state) {
+    run.run_id = fmt::format("bench-commit-{:08d}", ++n);
+    if (Status s = (*store)->save_run(run); !s) {
+      state.SkipWithError(s.error().message.c_str());
+      break;
+    }
+  }
+  state.SetItemsProcessed(n);
+}
+BENCHMARK(BM_StoreCommitRun)->Unit(benchmark::kMicrosecond)->MinTime(1.0);
+
+const std::vector<core::RunResult>& lot_runs_10k() {
+  static const std::vector<core::RunResult> runs = [] {
+    const core::Recipe recipe = bench::whip_recipe(201);
+    const auto cal = calibrate(recipe);
+    std::vector<core::RunResult> v;
+    v.reserve(10000);
+    for (int i = 0; i < 10000; ++i) v.push_back(bench::make_run(recipe, cal, "LOT-A", i));
+    return v;
+  }();
+  return runs;
+}
+
+// The HTML lot report (stats, overlay of every unit, histogram) from 10 000 runs in memory.
+void BM_LotReportBuild(benchmark::State& state) {
+  const core::Recipe recipe = bench::whip_recipe(201);
+  const std::vector<core::CalibrationRecord> cals{calibrate(recipe)};
+  const auto& runs = lot_runs_10k();
+  std::size_t bytes = 0;
+  for (auto _ : state) {
+    std::string html = store::build_lot_report("LOT-A", runs, cals, recipe.limits);
+    bytes = html.size();
+    benchmark::DoNotOptimize(html);
+  }
+  state.counters["html_MB"] = static_cast<double>(bytes) / 1e6;
+}
+BENCHMARK(BM_LotReportBuild)->Unit(benchmark::kMillisecond)->Iterations(3);
+
+// Loading those 10 000 runs with their points back from the store (what report.lot does first).
+void BM_LotRunsLoad(benchmark::State& state) {
+  const auto& runs = lot_runs_10k();
+  auto store = store::RunStore::open(temp_folder() / "lot10k.sqlite");
+  if (!store) {
+    state.SkipWithError(store.error().message.c_str());
+    return;
+  }
+  if (auto count = (*store)->run_count(runs.front().serial); count && *count == 0) {
+    for (const auto& run : runs) {
+      if (Status s = (*store)->save_run(run); !s) {
+        state.SkipWithError(s.error().message.c_str());
+        return;
+      }
+    }
+  }
+  std::size_t loaded = 0;
+  for (auto _ : state) {
+    auto got = (*store)->lot_runs("LOT-A", true);
+    if (!got) {
+      state.SkipWithError(got.error().message.c_str());
+      break;
+    }
+    loaded = got->size();
+  }
+  if (loaded != runs.size()) state.SkipWithError("lot_runs did not return every stored run");
+}
+BENCHMARK(BM_LotRunsLoad)->Unit(benchmark::kMillisecond)->Iterations(3);
+
+}  // namespace
+
+BENCHMARK_MAIN();
