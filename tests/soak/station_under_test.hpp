@@ -1,0 +1,115 @@
+// A whole station on loopback for reliability runs: echoline-sim (instant profile, a generated
+// lot), echolined pointed at the simulator's endpoints, an API client on the daemon's Unix
+// socket, the simulator's fixture control port, and read-only access to the run store file.
+// Throws std::runtime_error for set-up failures (an edge). Not thread-safe: one driving thread.
+#pragma once
+
+#include <filesystem>
+#include <functional>
+#include <memory>
+#include <optional>
+#include <random>
+#include <string>
+#include <vector>
+
+#include <nlohmann/json.hpp>
+
+#include "daemon/client/api_client.hpp"
+#include "daemon/client/line_connection.hpp"
+#include "tests/soak/truth_check.hpp"
+#include "tests/support/process.hpp"
+
+namespace echoline::soak {
+
+struct StationSetup {
+  std::filesystem::path work_dir;   // REQUIRES: exists; gets the lot, configs, store and logs
+  int lot_size = 240;               // units in the generated lot (serials SOAK915-00001 ...)
+  std::uint64_t lot_seed = 915777;
+  std::string lot_name = "SOAK-LOT";
+};
+
+// What one test of one unit came to, as the API reported it.
+struct UnitOutcome {
+  std::string verdict;     // pass | fail | inconclusive | aborted; "" when no result arrived
+  std::string reason;
+  std::string run_id;
+  bool lost_daemon = false;   // the API link dropped before the result
+  std::string refusal;        // test.start refused: the API error code
+};
+
+// A run as it is stored (read straight from the SQLite file).
+struct StoredRun {
+  std::string run_id, serial, verdict;
+  int points_count = 0;       // the runs table's own count
+  int readings = 0;           // rows in the readings table
+  std::vector<StoredPoint> points;
+};
+
+class StationUnderTest {
+ public:
+  explicit StationUnderTest(StationSetup setup);
+  ~StationUnderTest();
+  StationUnderTest(const StationUnderTest&) = delete;
+  StationUnderTest& operator=(const StationUnderTest&) = delete;
+
+  void start_simulator();
+  void start_daemon();             // writes the station config on first use; waits for "listening"
+  void kill_daemon();              // SIGKILL, reaped
+  int stop_daemon();               // SIGTERM; exit code
+  int daemon_pid() const;
+  bool daemon_running();
+  std::string daemon_unix_socket() const;
+
+  // --- API (the daemon) ---
+  void connect_api();              // new connection + hello (operator)
+  client::ApiClient& api();
+  nlohmann::json status();         // throws when the daemon does not answer
+  // cal.start and every prompt answered after connecting the standard on the fixture. Returns
+  // the calibration object, or nullopt (reason in *why) when the calibration ended in error.
+  std::optional<nlohmann::json> calibrate(std::string* why);
+  // cal.check (the check standard). True when it completed (drifted or not: see *why).
+  bool check_standard(std::string* why);
+  // Connects the unit at the test port, test.start, waits for its result event. When
+  // `on_progress` returns true the wait stops early (the caller kills the daemon): the
+  // outcome then has no verdict.
+  UnitOutcome test_unit(const std::string& serial, const std::function<bool(int point)>& on_progress = {});
+  std::vector<nlohmann::json> lot_runs();   // runs.lot of the soak lot
+
+  // --- simulator fixture control port ---
+  nlohmann::json control(const nlohmann::json& request);   // throws on transport failure or ok:false
+  std::vector<std::string> units();
+  nlohmann::json truth(const std::string& serial, const std::vector<double>& frequencies_hz);
+  nlohmann::json arm_fault(const std::string& role, const std::string& kind, double probability, std::uint64_t seed,
+                           double delay_ms = 0);
+  void clear_faults();
+  // One SCPI query on a separate connection to the simulated source (e.g. "OUTP?"): the
+  // harness's own look at the instrument, independent of the daemon.
+  std::string query_source(const std::string& query);
+
+  // --- the run store file, read-only ---
+  std::filesystem::path store_file() const;
+  std::string integrity_check() const;                 // "ok" when PRAGMA integrity_check is clean
+  std::vector<StoredRun> stored_runs(bool with_points) const;
+
+  const StationSetup& setup() const { return setup_; }
+  const std::string& lot_name() const { return setup_.lot_name; }
+  std::filesystem::path log_dir() const { return setup_.work_dir / "log"; }
+
+ private:
+  void write_lot();
+  void write_station_config();
+  nlohmann::json wait_job_end(long id, std::string* why, const std::function<bool(int)>& on_progress, bool* stopped);
+
+  StationSetup setup_;
+  std::optional<testing::ChildProcess> sim_;
+  std::optional<testing::ChildProcess> daemon_;
+  std::string source_address_, receiver_address_, control_address_;
+  std::unique_ptr<client::ApiClient> api_;
+  std::unique_ptr<client::LineConnection> control_;
+  std::string unix_socket_;
+};
+
+// Resident set size of a process in kB (VmRSS of /proc/<pid>/status); -1 when unreadable.
+long resident_kb(int pid);
+
+}  // namespace echoline::soak
