@@ -180,7 +180,10 @@ class LineScanner {
       if (c == ':') { ++i; continue; }
       // number, true, false, null
       value_start();
+      const std::size_t start = i;
       while (i < n && std::string_view(",]}/ \t\r\n").find(text_[i]) == std::string_view::npos) ++i;
+      // A lone '/' that opens no comment: step over it (nlohmann reports the syntax error).
+      if (i == start) ++i;
     }
   }
 

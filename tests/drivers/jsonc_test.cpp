@@ -170,3 +170,12 @@ TEST(Jsonc, KeyPathOfRootIsSlash) {
 
 }  // namespace
 }  // namespace echoline::drivers
+
+// Regression (found by recipe_fuzz): a '/' that opens no comment used to stall the line scanner
+// forever; it must be an ordinary syntax error with the file and line.
+TEST(Jsonc, StraySlashIsASyntaxErrorNotAHang) {
+  ConfigError e = parse_error("{\n  \"name\": 860/2\n}\n");
+  EXPECT_EQ(e.line, 2);
+  ConfigError lone = parse_error("/");
+  EXPECT_NE(std::string(lone.what()).find("t.jsonc"), std::string::npos) << lone.what();
+}
