@@ -34,22 +34,46 @@ ApiReply to_reply(const json& message) {
   return r;
 }
 
-ApiClient::ApiClient(std::unique_ptr<LineConnection> connection) : connection_(std::move(connection)) {}
+ApiClient::ApiClient(std::unique_ptr<LineConnection> connection)
+    : connection_(std::move(connection)), address_(connection_->address()) {}
+
+Status ApiClient::reconnect(Millis timeout) {
+  pending_.clear();
+  connection_.reset();
+  auto link = LineConnection::connect_address(address_, timeout);
+  if (!link) return link.error();
+  connection_ = std::move(link.value());
+  if (!said_hello_) return Status::success();
+  const std::string role = hello_role_, token = hello_token_, client = hello_client_;   // hello() rewrites them
+  auto reply = hello(role, token, client);
+  if (!reply) {
+    connection_.reset();
+    return reply.error();
+  }
+  if (!reply->ok) {
+    connection_.reset();
+    return make_error(reply->code == "shutting_down" ? ErrorKind::closed : ErrorKind::config,
+                      fmt::format("daemon {}: hello refused ({}): {}", address_, reply->code, reply->message));
+  }
+  return Status::success();
+}
 
 Result<long> ApiClient::send(std::string_view name, const json& args) {
   const long id = next_id_++;
+  if (!connection_) return make_error(ErrorKind::closed, fmt::format("daemon {}: {}: not connected", address_, name));
   json request = {{"v", 1}, {"id", id}, {"call", name}, {"args", args.is_null() ? json::object() : args}};
   if (Status s = connection_->write_line(request.dump()); !s) return s.error().with_context(fmt::format("daemon {}", name));
   return id;
 }
 
 Result<json> ApiClient::read_message(Millis timeout) {
+  if (!connection_) return make_error(ErrorKind::closed, fmt::format("daemon {}: not connected", address_));
   auto line = connection_->read_line(timeout);
   if (!line) return line.error();
   json j = json::parse(*line, nullptr, false);
   if (j.is_discarded() || !j.is_object()) {
     return make_error(ErrorKind::protocol, fmt::format("{}: the daemon sent a line that is not a JSON object: {}",
-                                                       connection_->address(), line->substr(0, 200)));
+                                                       address_, line->substr(0, 200)));
   }
   return j;
 }
@@ -62,7 +86,7 @@ Result<ApiReply> ApiClient::call(std::string_view name, const json& args, Millis
     const auto left = std::chrono::duration_cast<Millis>(deadline - std::chrono::steady_clock::now());
     if (left.count() <= 0) {
       return make_error(ErrorKind::timeout, fmt::format("daemon {}: no reply to {} within {} ms",
-                                                        connection_->address(), name, timeout.count()));
+                                                        address_, name, timeout.count()));
     }
     auto m = read_message(left);
     if (!m) return m.error().with_context(fmt::format("daemon {}", name));
@@ -83,6 +107,10 @@ Result<json> ApiClient::next_message(Millis timeout) {
 }
 
 Result<ApiReply> ApiClient::hello(std::string_view role, std::string_view token, std::string_view client_name) {
+  said_hello_ = true;
+  hello_role_ = role;
+  hello_token_ = token;
+  hello_client_ = client_name;
   json args = {{"role", role}, {"client", client_name}};
   if (!token.empty()) args["token"] = token;
   return call("hello", args);

@@ -1,7 +1,8 @@
 // Client side of the daemon's JSON-lines API (daemon/service/API.md, version 1): requests with
 // ids, replies matched by id, events queued in arrival order. Transport problems are Error values
 // (ErrorKind closed/timeout/io); the daemon's refusals are ordinary replies (ApiReply::ok false).
-// One user thread at a time; owns its connection (copy deleted).
+// After a lost link, reconnect() opens a new connection to the same address and says the same
+// hello again. One user thread at a time; owns its connection (copy deleted).
 #pragma once
 
 #include <deque>
@@ -39,14 +40,23 @@ class ApiClient {
   // `hello` with a role and an optional token. A refusal comes back as a reply with !ok.
   Result<ApiReply> hello(std::string_view role, std::string_view token, std::string_view client_name);
 
-  const std::string& address() const { return connection_->address(); }
+  // Drops the current connection (and every queued message), connects again to the same address
+  // and repeats the last hello (role, token, client name). Errors: the connect or hello failed
+  // (transport kinds), or the daemon refused the hello (closed when it is shutting down, else
+  // config; the message has its code and message).
+  Status reconnect(Millis timeout);
+
+  const std::string& address() const { return address_; }
   // The id of the last request sent (to match the events of a long call).
   long last_id() const { return next_id_ - 1; }
 
  private:
   Result<nlohmann::json> read_message(Millis timeout);
   std::unique_ptr<LineConnection> connection_;
+  std::string address_;
   std::deque<nlohmann::json> pending_;
+  bool said_hello_ = false;
+  std::string hello_role_, hello_token_, hello_client_;
   long next_id_ = 1;
 };
 

@@ -1,6 +1,7 @@
 // `echoline station`: wires the operator console to the daemon, the terminal and the store.
 #include <unistd.h>
 
+#include <charconv>
 #include <cstdlib>
 #include <iostream>
 
@@ -19,7 +20,8 @@ namespace echoline::client {
 namespace {
 
 constexpr const char* kHelp =
-    "usage: echoline station [--lot LOT] [--operator NAME] [connection options]\n"
+    "usage: echoline station [--lot LOT] [--operator NAME] [--reconnect-timeout SECONDS]\n"
+    "                        [connection options]\n"
     "\n"
     "The operator console. Shows the station, recipe, calibration state and the safety notes,\n"
     "then asks \"Scan serial:\" again and again: scan a unit's barcode (or type the serial and\n"
@@ -31,6 +33,11 @@ constexpr const char* kHelp =
     "Input from a pipe works too (a scripted scanner): serials line by line, empty lines\n"
     "ignored, a \"y\" line answers a retest question, an empty line confirms a standard.\n"
     "\n"
+    "When the station service stops answering (a crash or a restart), the console says so,\n"
+    "retries and, once the service is back, carries on at the serial prompt. The unit whose\n"
+    "test was cut off was NOT judged: scan it again (with piped input it is tested again by\n"
+    "itself, once). Its cut-off run is stored as aborted or not at all.\n"
+    "\n"
     "options:\n"
     "  --lot LOT             lot name stored with every run\n"
     "  --operator NAME       operator name stored with every run\n"
@@ -39,6 +46,11 @@ constexpr const char* kHelp =
     "                        measurement the console connects the scanned unit or the prompted\n"
     "                        standard there, as an operator does by hand.\n"
     "  --no-color            no colour even on a terminal (NO_COLOR in the environment also works)\n"
+    "  --reconnect-timeout SECONDS\n"
+    "                        when the link to the station service (echolined) is lost, retry\n"
+    "                        after 1 s, 2 s, 4 s, then every 5 s for this long, then end with\n"
+    "                        exit code 3. 0 = keep retrying until it is back. Default: 0 when\n"
+    "                        the input is a terminal, 60 when it is a pipe or file.\n"
     "\n"
     "RF exposure: during a test the antenna under test radiates the source power.\n";
 
@@ -65,7 +77,7 @@ Result<std::vector<PlotPoint>> load_points(std::unique_ptr<store::RunStore>& sto
 
 int cmd_station(const Argv& argv) {
   std::set<std::string> values = kConnectionOptions;
-  values.insert({"--lot", "--operator", "--sim-fixture"});
+  values.insert({"--lot", "--operator", "--sim-fixture", "--reconnect-timeout"});
   Args args(argv, "station", values, {"--help", "--no-color"}, 0);
   if (args.flag("--help")) {
     std::cout << kHelp << "\n" << kConnectionHelp;
@@ -77,6 +89,16 @@ int cmd_station(const Argv& argv) {
   options.sim_fixture = args.get_or("--sim-fixture", "");
   if (!options.sim_fixture.empty() && options.sim_fixture.rfind("tcp://", 0) != 0) {
     args.usage_error(fmt::format("--sim-fixture {}: expected tcp://HOST:PORT", options.sim_fixture));
+  }
+  const bool input_is_tty = ::isatty(STDIN_FILENO) == 1;
+  options.reconnect_timeout = Seconds{input_is_tty ? 0 : 60};
+  if (auto t = args.get("--reconnect-timeout")) {
+    long long seconds = -1;
+    const auto [end, ec] = std::from_chars(t->data(), t->data() + t->size(), seconds);
+    if (ec != std::errc() || end != t->data() + t->size() || seconds < 0 || seconds > 7 * 24 * 3600) {
+      args.usage_error(fmt::format("--reconnect-timeout {}: expected whole seconds from 0 to 604800 (0 = forever)", *t));
+    }
+    options.reconnect_timeout = Seconds{seconds};
   }
   options.output_is_tty = ::isatty(STDOUT_FILENO) == 1;
   const char* no_color = std::getenv("NO_COLOR");
@@ -110,7 +132,7 @@ int cmd_station(const Argv& argv) {
   const std::filesystem::path file = config ? store_file(*config) : std::filesystem::path();
   plot.points = [store_holder, file](const std::string& run_id) { return load_points(*store_holder, file, run_id); };
 
-  LineInput input(std::cin, ::isatty(STDIN_FILENO) == 1);
+  LineInput input(std::cin, input_is_tty);
   Console console(*api, input, std::cout, options, plot);
   return console.run();
 }

@@ -57,14 +57,43 @@ Console::Console(ApiClient& api, LineInput& input, std::ostream& out, ConsoleOpt
 }
 
 Console::Outcome Console::lost(const Error& e) {
-  out_ << "\nLOST THE CONNECTION TO THE DAEMON (" << api_.address() << "): " << e.message << "\n"
-       << "The station cannot test until echolined runs again. Any unit in the fixture was NOT judged.\n"
-       << std::flush;
+  lost_error_ = e;
   return Outcome::lost;
+}
+
+bool Console::recover(const std::string& serial) {
+  const bool tty = options_.output_is_tty;
+  out_ << "\nLOST THE CONNECTION TO THE STATION SERVICE (echolined at " << api_.address() << "): " << lost_error_.message
+       << "\nstation service not reachable — retrying after 1 s, 2 s, 4 s, then every 5 s";
+  if (options_.reconnect_timeout.count() > 0) out_ << fmt::format(" for up to {} s", options_.reconnect_timeout.count());
+  if (!serial.empty()) {
+    out_ << fmt::format("; the unit in the fixture ({}) was NOT judged, test it again", serial);
+  }
+  out_ << "\n";
+  if (!serial.empty()) {
+    out_ << "  SAFETY: if the service stopped in the middle of a measurement, the generator's output may still\n"
+            "  be ON and the antenna in the fixture may still radiate. If the service stays away, switch the\n"
+            "  generator's RF output off at the instrument.\n";
+  }
+  out_ << std::flush;
+  const ReconnectOutcome o = wait_for_daemon(api_, out_, {options_.reconnect_timeout, tty});
+  if (!o.back) {
+    out_ << fmt::format("\nstation service still not reachable after {} s ({} attempts) — giving up.\n", o.waited.count(),
+                        o.attempts)
+         << "The station cannot test until echolined runs again. Any unit in the fixture was NOT judged.\n"
+         << std::flush;
+    return false;
+  }
+  out_ << fmt::format("station service back ({}, after {} s)\n", api_.address(), o.waited.count()) << std::flush;
+  return true;
 }
 
 int Console::run() {
   Outcome o = first_screen();
+  while (o == Outcome::lost) {
+    if (!recover("")) break;
+    o = first_screen();
+  }
   if (o == Outcome::done) o = scan_loop();
   print_summary();
   return o == Outcome::lost ? kExitUnreachable : kExitOk;
@@ -116,16 +145,39 @@ Console::Outcome Console::first_screen() {
 
 Console::Outcome Console::scan_loop() {
   for (;;) {
-    out_ << "\nScan serial: " << std::flush;
-    auto line = input_.next();
-    if (!line) {
-      out_ << "\n";
-      return Outcome::done;
+    std::string serial;
+    bool again = false;
+    if (requeued_) {
+      serial = *requeued_;
+      requeued_.reset();
+      again = true;
+      out_ << "\nScan serial: " << serial << "   (tested again: its test was interrupted)\n" << std::flush;
+    } else {
+      out_ << "\nScan serial: " << std::flush;
+      auto line = input_.next();
+      if (!line) {
+        out_ << "\n";
+        return Outcome::done;
+      }
+      if (!input_.interactive()) out_ << *line << "\n";
+      if (line->empty()) continue;
+      if (is_quit(*line)) return Outcome::done;
+      serial = *line;
     }
-    if (!input_.interactive()) out_ << *line << "\n";
-    if (line->empty()) continue;
-    if (is_quit(*line)) return Outcome::done;
-    if (test_unit(*line) == Outcome::lost) return Outcome::lost;
+    if (test_unit(serial, again) == Outcome::done) continue;
+    ++summary_.interrupted;
+    if (!recover(serial)) return Outcome::lost;
+    if (again) {
+      // Interrupted twice in a row: a unit that keeps the service from answering is not fed to it
+      // a third time by itself.
+      out_ << fmt::format("Unit {} was interrupted twice and is NOT judged: set it aside and call the test engineer.\n",
+                          serial)
+           << std::flush;
+    } else if (input_.interactive()) {
+      out_ << fmt::format("Unit {} was NOT judged: scan it again.\n", serial) << std::flush;
+    } else {
+      requeued_ = serial;
+    }
   }
 }
 
@@ -206,6 +258,9 @@ Result<bool> Console::calibrate(bool check_only) {
        << std::flush;
   auto reply = api_.call(check_only ? "cal.check" : "cal.start", json::object());
   if (!reply) return reply.error();
+  if (!reply->ok && reply->code == "shutting_down") {
+    return make_error(ErrorKind::closed, fmt::format("the daemon is stopping: {}", reply->message));
+  }
   if (!reply->ok) {
     out_ << (check_only ? "Check refused: " : "Calibration refused: ") << reply->message << "\n" << std::flush;
     return false;
@@ -241,7 +296,7 @@ Result<bool> Console::calibrate(bool check_only) {
   return valid;
 }
 
-Console::Outcome Console::test_unit(const std::string& serial) {
+Console::Outcome Console::test_unit(const std::string& serial, bool again) {
   if (!options_.serial_pattern.empty()) {
     if (Status s = store::validate_serial(serial, options_.serial_pattern); !s) {
       out_ << "\nNOT A VALID SERIAL: \"" << serial << "\"\n" << s.error().message << "\nScan the unit's barcode again.\n"
@@ -249,10 +304,12 @@ Console::Outcome Console::test_unit(const std::string& serial) {
       return Outcome::done;
     }
   }
-  auto history = api_.call("runs.history", {{"serial", serial}});
-  if (!history) return lost(history.error());
   int tested = 0;
-  if (history->ok && history->result.contains("runs")) tested = static_cast<int>(history->result["runs"].size());
+  if (!again) {
+    auto history = api_.call("runs.history", {{"serial", serial}});
+    if (!history) return lost(history.error());
+    if (history->ok && history->result.contains("runs")) tested = static_cast<int>(history->result["runs"].size());
+  }
   if (tested > 0) {
     out_ << fmt::format("{} already tested {} time{} — retest? [y/N] ", serial, tested, tested == 1 ? "" : "s") << std::flush;
     auto answer = input_.next();
@@ -281,6 +338,9 @@ Console::Outcome Console::test_unit(const std::string& serial) {
     if (tested > 0) args["retest"] = true;
     auto reply = api_.call("test.start", args);
     if (!reply) return lost(reply.error());
+    if (!reply->ok && reply->code == "shutting_down") {
+      return lost(make_error(ErrorKind::closed, fmt::format("the daemon is stopping: {}", reply->message)));
+    }
     if (!reply->ok) {
       // The daemon may still be closing the previous job for a moment after its result event.
       if (reply->code == "busy" && busy_waits++ < 50) {
@@ -319,6 +379,11 @@ Console::Outcome Console::test_unit(const std::string& serial) {
       return Outcome::done;
     }
     show_run(e["run"]);
+    // A daemon that is being stopped aborts the running test (API.md, Shutdown): the unit was not
+    // judged, and the link is about to close.
+    if (str(e["run"], "verdict") == "aborted" && str(e["run"], "reason").find("daemon stopping") != std::string::npos) {
+      return lost(make_error(ErrorKind::closed, "the daemon is stopping (the test was aborted)"));
+    }
     return Outcome::done;
   }
   out_ << "Unit not tested: " << serial << " (calibration kept being requested)\n" << std::flush;
@@ -377,6 +442,9 @@ void Console::print_summary() {
                       count("inconclusive"), count("aborted"));
   out_ << fmt::format("  Yield: {:.1f} % (units whose latest run passed, of {} judged)\n", 100 * summary_.yield(),
                       summary_.units_judged());
+  if (summary_.interrupted > 0) {
+    out_ << fmt::format("  Tests interrupted by a lost station service: {} \n", summary_.interrupted);
+  }
   out_ << "==============================================================\n";
   out_ << fmt::format("summary units={} runs={} pass={} fail={} inconclusive={} aborted={} yield={:.1f}%\n",
                       summary_.final_verdict.size(), summary_.runs, count("pass"), count("fail"), count("inconclusive"),

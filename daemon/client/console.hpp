@@ -1,6 +1,7 @@
 // The operator console (`echoline station`): first screen with the safety text, the scan loop,
 // retest question, calibration walk-through, progress, the large verdict with what to do with
-// the unit and a return-loss plot, and the end-of-session summary. Talks to the daemon through
+// the unit and a return-loss plot, and the end-of-session summary. A lost daemon link is waited
+// out (reconnect_wait.hpp) and the interrupted unit tested again. Talks to the daemon through
 // ApiClient; reads the operator (or a piped scanner) through LineInput. One thread.
 #pragma once
 
@@ -15,6 +16,7 @@
 #include "daemon/client/api_client.hpp"
 #include "daemon/client/fixture_control.hpp"
 #include "daemon/client/line_input.hpp"
+#include "daemon/client/reconnect_wait.hpp"
 #include "daemon/client/text_plot.hpp"
 
 namespace echoline::client {
@@ -27,6 +29,7 @@ struct ConsoleOptions {
   bool output_is_tty = false;   // progress in place
   bool colour = false;          // ANSI colour in the banner
   Millis job_timeout{600000};   // longest silence from the daemon during a test or calibration
+  Seconds reconnect_timeout{0}; // how long to wait for a lost daemon before ending with exit 3; 0 = forever
 };
 
 // Where the console finds a run's points for its plot (the API's result event carries none).
@@ -39,6 +42,7 @@ struct SessionSummary {
   int runs = 0;
   std::map<std::string, int> runs_by_verdict;         // pass/fail/inconclusive/aborted
   std::map<std::string, std::string> final_verdict;   // serial -> verdict of its latest run
+  int interrupted = 0;                                // tests cut off by a lost daemon link (no result)
   // Units whose latest run passed / units with a judged (non-aborted) latest run; 0 when none.
   double yield() const;
   int units_judged() const;
@@ -49,8 +53,8 @@ class Console {
   // REQUIRES: api, input and out outlive the console; api has said hello.
   Console(ApiClient& api, LineInput& input, std::ostream& out, ConsoleOptions options, PlotSource plot);
 
-  // Runs until EOF, "q"/"quit", or a lost daemon connection. Returns an exit code
-  // (kExitOk at a normal end, kExitUnreachable when the daemon link dropped).
+  // Runs until EOF, "q"/"quit", or a daemon link that stays lost past the reconnect timeout.
+  // Returns an exit code (kExitOk at a normal end, kExitUnreachable when the daemon stayed away).
   int run();
   const SessionSummary& summary() const { return summary_; }
 
@@ -58,7 +62,8 @@ class Console {
   enum class Outcome { done, lost };
   Outcome first_screen();
   Outcome scan_loop();
-  Outcome test_unit(const std::string& serial);
+  // `again`: the serial is re-queued after an interrupted test (no history question).
+  Outcome test_unit(const std::string& serial, bool again);
   // Walks the operator through cal.start (or cal.check); true when a valid calibration (or a
   // check within its limit) resulted.
   Result<bool> calibrate(bool check_only);
@@ -70,6 +75,9 @@ class Console {
   void show_plot(const std::string& run_id);
   void print_summary();
   Outcome lost(const Error& e);
+  // After a lost link: says so, waits for the daemon (policy from the options) and says when it
+  // is back. `serial`: the unit whose test was cut off ("" = none). False when it stayed away.
+  bool recover(const std::string& serial);
 
   ApiClient& api_;
   LineInput& input_;
@@ -78,6 +86,8 @@ class Console {
   PlotSource plot_;
   std::unique_ptr<FixtureControl> fixture_;
   SessionSummary summary_;
+  Error lost_error_;                         // why the link was lost (set by lost())
+  std::optional<std::string> requeued_;      // interrupted serial to test before the next input line
   std::map<std::string, int> inconclusive_count_;
   bool plot_warned_ = false;
 };

@@ -23,17 +23,50 @@ struct CalibratedTrace {
 CalibratedTrace calibrate_points(const CalibrationRecord& cal, const std::vector<Reading>& dut,
                                  double source_match_db);
 
-// Return-loss maximum refined by the parabola through it and its two neighbours.
+// A frequency interval around the resonance; an edge that reaches the end of the sweep without
+// crossing its level is "open" (the true interval is at least that wide there).
+struct Band {
+  double low_hz = 0;
+  double high_hz = 0;
+  bool low_open = false;
+  bool high_open = false;
+  double width_hz() const { return high_hz - low_hz; }
+};
+
+// Return-loss maximum refined by the parabola through it and its two neighbours, and the
+// interval where the TRUE maximum can lie given the points' [worst, best] bounds.
 struct Resonance {
   double frequency_hz = 0;   // refined vertex (or the sample itself when not refined)
   double depth_db = 0;       // RL at frequency_hz (parabola value when refined)
   std::size_t index = 0;     // sample with the largest measured RL
   bool refined = false;
   bool at_edge = false;      // maximum on the first or last point: may lie outside the sweep
-  double uncertainty_hz = 0; // half the local point spacing (see analysis.cpp)
+  // Bound interval of the true resonance (see resonance_interval in analysis.cpp):
+  // low_hz <= frequency_hz <= high_hz. An open side reaches the sweep edge: the true maximum may
+  // lie beyond it (low_hz / high_hz then hold the sweep edge frequency).
+  double low_hz = 0;
+  double high_hz = 0;
+  bool low_open = false;
+  bool high_open = false;
 };
 // Empty when there are no points.
 std::optional<Resonance> find_resonance(const std::vector<PointResult>& points);
+
+// Contiguous region around sample `peak` where the best-case RL reaches the worst-case RL of
+// the peak sample, edges linearly interpolated and widened by half the local point step, and
+// reaching the sweep edge ("open") when the region does. Used by find_resonance.
+// REQUIRES: peak < points.size().
+Band resonance_interval(const std::vector<PointResult>& points, std::size_t peak);
+
+// Half-width of the interval the true resonance can lie in when the error terms (directivity
+// leakage, source match) are smooth over the dip, as a coupler's and a cable's are: a complex
+// error e of magnitude <= eps added to the DUT's reflection moves the |Γ| minimum by at most
+// eps/|dΓ/df| to first order. |dΓ/df| is the square root of the curvature of |Γ_m|² near the
+// peak (least-squares quadratic over the points within 6 dB of it); eps is read from the
+// peak's worst-case bound. Includes a 1.25 safety factor (error rotation, trajectory curvature,
+// noise) and half the local point step. Empty when the dip is too shallow or too sparse to fit.
+// REQUIRES: peak < points.size().
+std::optional<double> resonance_shift_bound_hz(const std::vector<PointResult>& points, std::size_t peak);
 
 // Vertex of the parabola through three points (x strictly increasing). Empty when the three
 // points are collinear or the parabola opens upward (no maximum).
@@ -48,15 +81,7 @@ enum class TraceValue { measured, worst, best };
 double value_of(const PointResult& p, TraceValue which);
 
 // Band around the resonance where RL >= threshold, each edge linearly interpolated between the
-// last point at or above and the first point below. An edge that reaches the end of the sweep
-// without crossing is "open" (the true band is at least that wide there).
-struct Band {
-  double low_hz = 0;
-  double high_hz = 0;
-  bool low_open = false;
-  bool high_open = false;
-  double width_hz() const { return high_hz - low_hz; }
-};
+// last point at or above and the first point below; open at a sweep end reached without crossing.
 // Empty when the chosen trace is below the threshold at `center_index`.
 std::optional<Band> find_band(const std::vector<PointResult>& points, std::size_t center_index,
                               double threshold_db, TraceValue which = TraceValue::measured);

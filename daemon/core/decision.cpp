@@ -89,6 +89,25 @@ LimitCheck check_mask(DecisionRule rule, const std::vector<PointResult>& points,
   return c;
 }
 
+// The interval the true resonance lies in, in words: "anywhere in 921.8–926.9 MHz", "anywhere
+// below 906.2 MHz, down to and beyond the sweep start at 860.0 MHz".
+std::string interval_text(const Resonance& r) {
+  if (r.low_open && r.high_open) {
+    return fmt::format("anywhere in the sweep ({:.1f}\u2013{:.1f} MHz) or beyond it", r.low_hz / 1e6, r.high_hz / 1e6);
+  }
+  if (r.low_open) return fmt::format("anywhere below {}, down to and beyond the sweep start at {}", format_mhz(r.high_hz), format_mhz(r.low_hz));
+  if (r.high_open) return fmt::format("anywhere above {}, up to and beyond the sweep end at {}", format_mhz(r.low_hz), format_mhz(r.high_hz));
+  return fmt::format("anywhere in {:.1f}\u2013{:.1f} MHz", r.low_hz / 1e6, r.high_hz / 1e6);
+}
+
+// Resonance window.
+//   simple:  the measured (parabola-refined) resonance against the window (JCGM 106 §8.2).
+//   guarded: the bound interval of the true resonance (analysis.cpp, resonance_interval: from
+//            the one-port error bounds of REFERENCE.md §2) must lie wholly inside the window to
+//            pass, wholly outside to fail; otherwise inconclusive (JCGM 106:2012 §8.3.2 guarded
+//            acceptance, ILAC-G8 §4.2.3 conditional zone; clause numbers from memory).
+// A half-step interval was used here before; it ignored the directivity error, whose phase
+// turns with frequency and tilts the measured curve, moving the apparent peak by megahertz.
 LimitCheck check_window(DecisionRule rule, const Recipe& recipe, const Analysis& a) {
   LimitCheck c;
   c.kind = "resonance";
@@ -101,24 +120,28 @@ LimitCheck check_window(DecisionRule rule, const Recipe& recipe, const Analysis&
     return c;
   }
   const Resonance& r = *a.resonance;
-  double low = r.frequency_hz - r.uncertainty_hz;
-  double high = r.frequency_hz + r.uncertainty_hz;
-  if (r.at_edge) {
-    // The true maximum may lie beyond the sweep edge it sits on.
-    if (r.index == 0) low = -kInf;
-    else high = kInf;
-  }
+  const double low = r.low_open ? -kInf : r.low_hz;
+  const double high = r.high_open ? kInf : r.high_hz;
   c.verdict = decide_window(rule, r.frequency_hz, low, high, lo, hi);
+  const bool guarded = rule == DecisionRule::guarded;
   const std::string at = format_mhz(r.frequency_hz);
+  const std::string where = interval_text(r);
   if (c.verdict == Verdict::pass) {
     c.detail = fmt::format("resonance at {} is inside the {} window", at, window);
+    if (guarded) c.detail += fmt::format(" (with the coupler's directivity it lies {})", where);
   } else if (c.verdict == Verdict::inconclusive) {
-    c.detail = fmt::format("resonance at {} (\u00b1{:.2f} MHz) is too close to the edge of the {} window to decide",
-                           at, r.uncertainty_hz / 1e6, window);
+    const bool crosses_low = low < lo;
+    const bool crosses_high = high > hi;
+    const char* edge = crosses_low && crosses_high ? "both edges" : "the edge";
+    c.detail = fmt::format("resonance {}, but with the coupler's directivity it may lie {}, which crosses {} of the {} "
+                           "window",
+                           at, where, edge, window);
   } else if (r.frequency_hz < lo) {
     c.detail = fmt::format("resonance at {} is below the {} window (element too long)", at, window);
+    if (guarded) c.detail += fmt::format("; with the coupler's directivity it lies {}", where);
   } else {
     c.detail = fmt::format("resonance at {} is above the {} window (element too short)", at, window);
+    if (guarded) c.detail += fmt::format("; with the coupler's directivity it lies {}", where);
   }
   if (r.at_edge) c.detail += "; the maximum is on the sweep edge, so the resonance may lie outside the sweep";
   return c;

@@ -74,6 +74,8 @@ Judgement judge(const Recipe& recipe, const CalibrationRecord& cal, const std::v
     m.depth_db = analysis.resonance->depth_db;
     m.vswr_at_resonance = vswr_from_return_loss(m.depth_db);
     m.mismatch_loss_db = mismatch_loss_from_return_loss(m.depth_db);
+    if (!analysis.resonance->low_open) m.resonance_low_hz = analysis.resonance->low_hz;
+    if (!analysis.resonance->high_open) m.resonance_high_hz = analysis.resonance->high_hz;
   }
   if (analysis.band) {
     m.bandwidth_hz = analysis.band->width_hz();
@@ -91,8 +93,11 @@ Judgement judge(const Recipe& recipe, const CalibrationRecord& cal, const std::v
   // Trim advice when the tuning is what is wrong (or cannot be decided).
   if (recipe.trim && analysis.resonance && j.verdict != Verdict::pass) {
     bool tuning = j.failure_class == FailureClass::tuned_low || j.failure_class == FailureClass::tuned_high;
+    // An undecided window also gets advice, unless the unit failed for its match (a shallow dip
+    // or none at all): there the resonance interval is wide because the dip is, not the tuning.
+    const bool match_problem = j.failure_class == FailureClass::shallow || j.failure_class == FailureClass::no_response;
     for (const LimitCheck& c : decision.checks) {
-      if (c.kind == "resonance" && c.verdict == Verdict::inconclusive) tuning = true;
+      if (c.kind == "resonance" && c.verdict == Verdict::inconclusive && !match_problem) tuning = true;
     }
     if (tuning) j.trim = trim_advice(*recipe.trim, analysis.resonance->frequency_hz, analysis.resonance->at_edge);
   }

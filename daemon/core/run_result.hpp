@@ -41,6 +41,11 @@ struct Metrics {
   double vswr_at_resonance = 0;
   double mismatch_loss_db = 0;            // at resonance
   double directivity_db = 0;              // effective directivity (minimum over the band)
+  // Where the TRUE resonance can lie given the directivity / source-match bounds (analysis.cpp,
+  // resonance_interval). Absent on a side where the interval reaches the sweep edge (the true
+  // resonance may lie beyond the sweep) and when there is no resonance.
+  std::optional<double> resonance_low_hz;
+  std::optional<double> resonance_high_hz;
 };
 
 struct TrimAdvice {

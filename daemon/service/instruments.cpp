@@ -101,8 +101,16 @@ Status Instruments::ensure_ready(int attempts) {
   return first_failure;
 }
 
-void Instruments::invalidate() {
-  for (auto& e : entries_) e->ready = false;
+void Instruments::invalidate(const std::string& reason) {
+  for (auto& e : entries_) {
+    e->ready = false;
+    // Errors name the instrument and its address first ("siggen (tcp://...): ..."): the one
+    // named is reported unhealthy until the next bring-up succeeds.
+    if (!reason.empty() && (reason.find(e->config.name) != std::string::npos ||
+                            reason.find(e->config.address) != std::string::npos)) {
+      set_health(*e, false, "", reason);
+    }
+  }
 }
 
 void Instruments::close_all() {

@@ -39,8 +39,9 @@ class Instruments {
   // Connects, verifies identity and initialises every instrument not ready; a failing one is
   // retried with backoff (attempts, first delay doubling). Returns the first failure.
   Status ensure_ready(int attempts = 3);
-  // Marks every instrument for a fresh connect on the next ensure_ready (after an error).
-  void invalidate();
+  // Marks every instrument for a fresh connect on the next ensure_ready (after an error); the
+  // instrument the reason names is reported unhealthy with it until it is back.
+  void invalidate(const std::string& reason = "");
   // Closes every session (source output is the engine's job; this only drops links).
   void close_all();
 

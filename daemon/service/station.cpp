@@ -130,6 +130,12 @@ Station::Station(drivers::StationConfig config) : config_(std::move(config)) {
     calibration_created_s_ = parse_utc_iso8601(calibration_->created_utc).value_or(0);
     spdlog::info("calibration {} from {} loaded ({} units since)", calibration_->id, calibration_->created_utc,
                  calibration_->units_since);
+  } else if (latest->has_value()) {
+    // Not loaded; say why (e.g. invalidated by a drifted check standard before a restart).
+    const auto& errors = latest->value().errors;
+    check_failure_ = fmt::format("calibration {} is not valid: {}", latest->value().id,
+                                 errors.empty() ? std::string("sanity checks failed") : errors.back());
+    spdlog::warn("{}", check_failure_);
   }
 }
 
@@ -292,7 +298,7 @@ TestOutcome Station::run_test(const TestRequest& request, const CancelToken& can
   }
   if (auto* sw = instruments_->switch_()) {
     if (Status s = sw->select("DUT"); !s) {
-      instruments_->invalidate();
+      instruments_->invalidate(s.error().message);
       run.reason = s.error().message;
       return finish();
     }
@@ -304,7 +310,7 @@ TestOutcome Station::run_test(const TestRequest& request, const CancelToken& can
       std::string why = cancel.reason();
       run.reason = why.empty() ? sweep.error->message : fmt::format("{} ({})", why, sweep.error->message);
     } else {
-      instruments_->invalidate();
+      instruments_->invalidate(sweep.error->message);
       run.reason = sweep.error->message;
     }
     for (const auto& r : sweep.readings) {
@@ -346,7 +352,7 @@ Result<std::vector<core::Reading>> Station::sweep_standard(const std::string& st
     if (progress) progress(standard, i, n);
   });
   if (!sweep.completed()) {
-    if (sweep.error->kind != ErrorKind::cancelled) instruments_->invalidate();
+    if (sweep.error->kind != ErrorKind::cancelled) instruments_->invalidate(sweep.error->message);
     std::string why = cancel.reason();
     Error e = *sweep.error;
     if (e.kind == ErrorKind::cancelled && !why.empty()) e.message = fmt::format("{} ({})", why, e.message);
@@ -414,6 +420,13 @@ CheckOutcome Station::run_check(Prompter& prompter, const CancelToken& cancel, c
   out.drifted = core::check_standard_drifted(*cal, standard, *r, recipe->calibration.check_drift_limit_db, &why);
   out.message = out.drifted ? why : fmt::format("check standard {} within {} dB of the calibration", standard,
                                                 recipe->calibration.check_drift_limit_db);
+  if (out.drifted) {
+    // Persist it: after a restart the drifted calibration must not load as valid again.
+    const std::string reason = fmt::format("check standard drifted: {}", why);
+    if (Status s = store_->invalidate_calibration(cal->id, reason); !s) {
+      spdlog::error("calibration {} stays due in memory only: {}", cal->id, s.error().message);
+    }
+  }
   std::lock_guard lock(mu_);
   units_since_check_ = 0;
   if (out.drifted) check_failure_ = fmt::format("check standard drifted: {}", why);

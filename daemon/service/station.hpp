@@ -126,7 +126,7 @@ class Station {
   std::optional<core::CalibrationRecord> calibration_;
   double calibration_created_s_ = 0;
   int units_since_check_ = 0;
-  std::string check_failure_;   // set when the check standard drifted: calibration due
+  std::string check_failure_;   // check standard drifted, or the stored calibration is not valid: calibration due
   std::uint64_t run_counter_ = 0;
 };
 

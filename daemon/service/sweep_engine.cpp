@@ -1,9 +1,14 @@
-// Step sweep: configure, then per point set source and receiver (pipelined), settle, trigger,
-// synchronise, read the peak; output OFF on every way out.
+// Step sweep: configure, then per point trigger the receiver and wait for it (*OPC?), read the
+// marker while the source already moves to the next frequency on its own connection, settle;
+// errors drained once per point (each-step) or once per sweep (end-of-sweep); output OFF on
+// every way out.
 #include "daemon/service/sweep_engine.hpp"
 
 #include <chrono>
 #include <cmath>
+#include <condition_variable>
+#include <memory>
+#include <mutex>
 #include <thread>
 
 #include <fmt/format.h>
@@ -32,6 +37,73 @@ bool settle(double seconds, const std::atomic<bool>& cancel) {
     std::this_thread::sleep_for(std::min<Clock::duration>(left, std::chrono::milliseconds(5)));
   }
   return !cancel.load();
+}
+
+// Runs one job at a time on its own thread so the source's round trip overlaps the receiver's.
+// Jobs end on their own (every session call has a timeout); the destructor waits for a running one.
+class Lane {
+ public:
+  Lane() : thread_([this] { loop(); }) {}
+  ~Lane() {
+    {
+      std::lock_guard<std::mutex> lock(mu_);
+      stop_ = true;
+    }
+    wake_.notify_all();
+    thread_.join();
+  }
+  Lane(const Lane&) = delete;
+  Lane& operator=(const Lane&) = delete;
+
+  // REQUIRES: !busy().
+  void start(std::function<Status()> job) {
+    {
+      std::lock_guard<std::mutex> lock(mu_);
+      job_ = std::move(job);
+      busy_ = true;
+    }
+    wake_.notify_all();
+  }
+  // Waits for the job started last and returns its status (success when none is running).
+  Status finish() {
+    std::unique_lock<std::mutex> lock(mu_);
+    done_.wait(lock, [&] { return !busy_; });
+    Status r = std::move(result_);
+    result_ = Status{};
+    return r;
+  }
+
+ private:
+  void loop() {
+    std::unique_lock<std::mutex> lock(mu_);
+    for (;;) {
+      wake_.wait(lock, [&] { return stop_ || job_ != nullptr; });
+      if (job_ == nullptr) return;   // stop requested and nothing left to run
+      auto job = std::move(job_);
+      job_ = nullptr;
+      lock.unlock();
+      Status r = job();
+      lock.lock();
+      result_ = std::move(r);
+      busy_ = false;
+      done_.notify_all();
+    }
+  }
+
+  std::mutex mu_;
+  std::condition_variable wake_, done_;
+  std::function<Status()> job_;
+  Status result_;
+  bool busy_ = false;
+  bool stop_ = false;
+  std::thread thread_;   // last: starts after every member above exists
+};
+
+// "A" and "B?" as one program message "A;:B?" (IEEE 488.2-1992 7.4.1: program message units are
+// separated by ';'; SCPI-1999 Vol 1 6.2.4: a leading ':' returns the header path to the root).
+std::string compound(const std::string& first, const std::string& second) {
+  if (second.empty() || second.front() == ':' || second.front() == '*') return first + ";" + second;
+  return first + ";:" + second;
 }
 
 bool checks_each_step(const drivers::Profile& p) { return p.check_errors == "each-step"; }
@@ -87,44 +159,42 @@ Status SweepEngine::configure(const core::Recipe& recipe) {
   if (Status s = receiver_.configure(setup); !s) return s;
   if (Status s = source_.set_power(recipe.source.power_dbm); !s) return s;
   if (Status s = source_.set_frequency(plan.front()); !s) return s;
-  if (checks_at_end(source_.profile())) {
+  // Setup errors are read once here (each-step drivers already read them per command).
+  if (!checks_each_step(source_.profile()) && checks_at_end(source_.profile())) {
     if (Status s = source_.session().drain_errors(); !s) return s;
   }
-  if (checks_at_end(receiver_.profile())) {
+  if (!checks_each_step(receiver_.profile()) && checks_at_end(receiver_.profile())) {
     if (Status s = receiver_.session().drain_errors(); !s) return s;
   }
-  return source_.set_output(true);
+  if (Status s = source_.set_output(true); !s) return s;
+  return source_.sync();   // the first point is measured only once the source has taken it all
 }
 
-Status SweepEngine::move_to(double frequency_hz) {
-  // Two instruments on two connections: send both commands, then wait for each.
+Status SweepEngine::source_move(double frequency_hz) {
   if (Status s = source_.post_frequency(frequency_hz); !s) return s;
-  if (Status s = receiver_.post_center(frequency_hz); !s) return s;
   if (Status s = source_.sync(); !s) return s;
+  if (checks_each_step(source_.profile())) return source_.session().drain_errors();
+  return {};
+}
+
+Status SweepEngine::receiver_sweep() {
+  // The *OPC? after INIT completes only when the sweep has ended, which also covers any center
+  // change sent before the INIT (IEEE 488.2-1992 12.5.3: *OPC? answers once every pending
+  // operation is complete).
+  if (Status s = receiver_.trigger(); !s) return s;
   return receiver_.session().wait_complete();
 }
 
-Result<double> SweepEngine::measure_point(const core::Recipe& recipe) {
-  const int n = std::max(1, recipe.receiver.averages);
-  std::vector<double> values;
-  values.reserve(static_cast<std::size_t>(n));
-  for (int k = 0; k < n; ++k) {
-    if (Status s = receiver_.trigger(); !s) return s.error();
-    if (Status s = receiver_.wait_sweep(); !s) return s.error();
-    Result<double> peak = receiver_.read_peak_dbm();
-    if (!peak) return peak.error();
-    if (!std::isfinite(*peak)) {
-      return make_error(ErrorKind::protocol, fmt::format("{}: peak reading is not a finite number", receiver_.session().name()));
-    }
-    values.push_back(*peak);
+Result<double> SweepEngine::receiver_peak() {
+  const drivers::Profile& p = receiver_.profile();
+  auto peak = p.command("peak_search").expand({});
+  if (!peak) return peak.error().with_context(receiver_.session().name());
+  Result<double> y = receiver_.session().query_number(compound(*peak, p.command("read_marker_y").text()));
+  if (!y) return y;
+  if (!std::isfinite(*y)) {
+    return make_error(ErrorKind::protocol, fmt::format("{}: peak reading is not a finite number", receiver_.session().name()));
   }
-  if (checks_each_step(source_.profile())) {
-    if (Status s = source_.session().drain_errors(); !s) return s.error();
-  }
-  if (checks_each_step(receiver_.profile())) {
-    if (Status s = receiver_.session().drain_errors(); !s) return s.error();
-  }
-  return average_dbm(values);
+  return y;
 }
 
 void SweepEngine::output_off_best_effort() {
@@ -154,41 +224,73 @@ SweepOutcome SweepEngine::run(const core::Recipe& recipe, const std::atomic<bool
     return out;
   }
   out.readings.reserve(plan.size());
+  const int averages = std::max(1, recipe.receiver.averages);
+
+  // The source moves to the next frequency on this lane while the receiver's marker is read.
+  std::unique_ptr<Lane> lane;
+  if (n > 1) lane = std::make_unique<Lane>();
+  bool source_moving = false;
+  auto join_source = [&]() -> Status {
+    if (!source_moving) return {};
+    source_moving = false;
+    return lane->finish();
+  };
 
   auto fail = [&](Error e) {
+    (void)join_source();   // the source session is used again below, on this thread only
     out.error = std::move(e);
     output_off_best_effort();
     out.sweep_s = seconds_since(t0);
     return out;
   };
+  auto at_point = [&](int i) { return fmt::format("sweep point {} of {} at {:.6f} MHz", i + 1, n, plan[static_cast<std::size_t>(i)] / 1e6); };
 
   if (cancel.load()) return fail(cancelled_at(1, n));
   if (Status s = configure(recipe); !s) return fail(s.error().with_context("sweep setup"));
 
   for (int i = 0; i < n; ++i) {
     const double f = plan[static_cast<std::size_t>(i)];
+    const bool has_next = i + 1 < n;
+    if (Status s = join_source(); !s) return fail(s.error().with_context(at_point(i)));
     if (cancel.load()) return fail(cancelled_at(i + 1, n));
-    Result<double> v = [&]() -> Result<double> {
-      if (i > 0) {
-        if (Status s = move_to(f); !s) return s.error();
+    if (!settle(recipe.source.settle_s, cancel)) return fail(cancelled_at(i + 1, n));
+
+    std::vector<double> values;
+    values.reserve(static_cast<std::size_t>(averages));
+    for (int k = 0; k < averages; ++k) {
+      if (Status s = receiver_sweep(); !s) return fail(s.error().with_context(at_point(i)));
+      if (k + 1 == averages && has_next) {
+        // The sweep is over, so the source may leave f while the stored trace is read.
+        const double next = plan[static_cast<std::size_t>(i + 1)];
+        lane->start([this, next] { return source_move(next); });
+        source_moving = true;
       }
-      if (!settle(recipe.source.settle_s, cancel)) return cancelled_at(i + 1, n);
-      return measure_point(recipe);
-    }();
-    if (!v) {
-      if (v.error().kind == ErrorKind::cancelled) return fail(v.error());
-      return fail(v.error().with_context(fmt::format("sweep point {} of {} at {:.6f} MHz", i + 1, n, f / 1e6)));
+      Result<double> peak = receiver_peak();
+      if (!peak) return fail(peak.error().with_context(at_point(i)));
+      values.push_back(*peak);
     }
-    out.readings.push_back(core::Reading{f, *v});
+    if (checks_each_step(receiver_.profile())) {
+      if (Status s = receiver_.session().drain_errors(); !s) return fail(s.error().with_context(at_point(i)));
+    }
+    if (has_next) {
+      // Not waited for: the next INIT's *OPC? completes only after it.
+      if (Status s = receiver_.post_center(plan[static_cast<std::size_t>(i + 1)]); !s) {
+        return fail(s.error().with_context(at_point(i + 1)));
+      }
+    }
+    out.readings.push_back(core::Reading{f, average_dbm(values)});
     if (progress) progress(i + 1, n);
   }
+  if (Status s = join_source(); !s) return fail(s.error().with_context("sweep end"));
 
-  Status end_checks;
-  if (checks_at_end(source_.profile()) && !checks_each_step(source_.profile())) end_checks = source_.session().drain_errors();
-  if (end_checks && checks_at_end(receiver_.profile()) && !checks_each_step(receiver_.profile())) {
-    end_checks = receiver_.session().drain_errors();
+  // end-of-sweep policy: one error read per instrument per sweep; an error found here aborts
+  // the run (the readings may be wrong), never lets it pass.
+  if (!checks_each_step(source_.profile()) && checks_at_end(source_.profile())) {
+    if (Status s = source_.session().drain_errors(); !s) return fail(s.error().with_context("sweep end error check"));
   }
-  if (!end_checks) return fail(end_checks.error().with_context("sweep end error check"));
+  if (!checks_each_step(receiver_.profile()) && checks_at_end(receiver_.profile())) {
+    if (Status s = receiver_.session().drain_errors(); !s) return fail(s.error().with_context("sweep end error check"));
+  }
 
   Status off = source_.set_output(false);
   if (!off) return fail(off.error().with_context("sweep end: source output off"));

@@ -1,6 +1,8 @@
 // The step sweep engine: executes a recipe's frequency plan through the source and receiver
 // drivers and returns the raw readings. The only code that touches instruments during a run.
-// Threading: synchronous; call from one worker thread. cancel may be set from any thread.
+// Threading: run() is synchronous, called from one worker thread; inside it a helper thread
+// drives the source session while the caller's thread reads the receiver (never the same
+// session on two threads). cancel may be set from any thread.
 // Safety: the source output is switched OFF at the end and on every abort path.
 #pragma once
 
@@ -49,8 +51,9 @@ class SweepEngine {
 
  private:
   Status configure(const core::Recipe& recipe);
-  Status move_to(double frequency_hz);                        // source + receiver center, pipelined
-  Result<double> measure_point(const core::Recipe& recipe);   // trigger, sync, peak; averaged
+  Status source_move(double frequency_hz);     // set frequency, *OPC? [, errors when each-step]
+  Status receiver_sweep();                     // INIT:IMM, *OPC? (covers a preceding center change)
+  Result<double> receiver_peak();              // marker peak and Y? in one program message
   void output_off_best_effort();
 
   drivers::Source& source_;

@@ -27,7 +27,7 @@ constexpr std::string_view kRunColumns =
     "instruments_json, started_utc, ended_utc, temperature_c, calibration_id, retest, verdict, failure_class, "
     "reason, resonance_hz, depth_db, bandwidth_hz, band_low_hz, band_high_hz, min_margin_db, vswr_at_resonance, "
     "mismatch_loss_db, directivity_db, trim_element_length_mm, trim_change_mm, trim_measured_hz, trim_target_hz, "
-    "trim_text, total_s, sweep_s, analysis_s, points_count";
+    "trim_text, total_s, sweep_s, analysis_s, points_count, resonance_low_hz, resonance_high_hz";
 
 core::Verdict verdict_from(std::string_view s) {
   if (s == "pass") return core::Verdict::pass;
@@ -114,6 +114,9 @@ core::RunResult run_from_row(const Statement& s) {
   r.timings.total_s = s.real(c++);
   r.timings.sweep_s = s.real(c++);
   r.timings.analysis_s = s.real(c++);
+  ++c;   // points_count: the points themselves are loaded on demand
+  m.resonance_low_hz = s.optional_real(c++);
+  m.resonance_high_hz = s.optional_real(c++);
   return r;
 }
 
@@ -186,7 +189,7 @@ Status RunStore::save_run(const core::RunResult& run) {
     if (auto s = unit->run(); !s.ok()) return impl_->fail(s.error(), doing);
 
     auto ins = db.prepare(fmt::format("INSERT INTO runs({}) VALUES(?1,?2,?3,?4,?5,?6,?7,?8,?9,?10,?11,?12,?13,?14,?15,"
-                                      "?16,?17,?18,?19,?20,?21,?22,?23,?24,?25,?26,?27,?28,?29,?30,?31,?32,?33,?34,?35,?36)",
+                                      "?16,?17,?18,?19,?20,?21,?22,?23,?24,?25,?26,?27,?28,?29,?30,?31,?32,?33,?34,?35,?36,?37,?38)",
                                       kRunColumns));
     if (!ins.ok()) return ins.error();
     Statement& s = *ins;
@@ -210,6 +213,7 @@ Status RunStore::save_run(const core::RunResult& run) {
     }
     b(run.timings.total_s); b(run.timings.sweep_s); b(run.timings.analysis_s);
     b(static_cast<long long>(run.points.size()));
+    b(m.resonance_low_hz); b(m.resonance_high_hz);
     if (auto st = s.run(); !st.ok()) {
       if (st.error().instrument_code == SQLITE_CONSTRAINT_UNIQUE) {
         return make_error(ErrorKind::invalid_argument,
@@ -288,6 +292,34 @@ Status RunStore::set_calibration_units(std::string_view calibration_id, int unit
     return make_error(ErrorKind::invalid_argument,
                       fmt::format("run store {}: no calibration '{}'", impl_->file.string(), calibration_id));
   }
+  return Status::success();
+}
+
+Status RunStore::invalidate_calibration(std::string_view id, std::string_view reason) {
+  std::lock_guard lock(impl_->mutex);
+  if (reason.empty()) {
+    return make_error(ErrorKind::invalid_argument,
+                      fmt::format("run store {}: invalidating calibration '{}': the reason is empty", impl_->file.string(), id));
+  }
+  const std::string doing = fmt::format("invalidating calibration '{}'", id);
+  {
+    auto exists = impl_->db.prepare("SELECT invalidated_reason FROM calibrations WHERE id = ?1");
+    if (!exists.ok()) return impl_->fail(exists.error(), doing);
+    exists->bind(1, id);
+    auto row = exists->step();
+    if (!row.ok()) return impl_->fail(row.error(), doing);
+    if (!*row) {
+      return make_error(ErrorKind::invalid_argument, fmt::format("run store {}: no calibration '{}'", impl_->file.string(), id));
+    }
+    if (!exists->is_null(0)) return Status::success();   // already invalid: the first reason stands
+  }
+  // The time in the station's form, "YYYY-MM-DDTHH:MM:SS.fffZ" (SQLite's clock is UTC).
+  auto st = impl_->db.prepare(
+      "UPDATE calibrations SET invalidated_reason = ?2, invalidated_utc = strftime('%Y-%m-%dT%H:%M:%fZ', 'now') "
+      "WHERE id = ?1 AND invalidated_reason IS NULL");
+  if (!st.ok()) return impl_->fail(st.error(), doing);
+  st->bind(1, id).bind(2, reason);
+  if (auto s = st->run(); !s.ok()) return impl_->fail(s.error(), doing);
   return Status::success();
 }
 
@@ -387,7 +419,8 @@ Result<std::optional<core::CalibrationRecord>> RunStore::Impl::select_calibratio
   auto st = db.prepare(fmt::format(
       "SELECT id, created_utc, recipe_name, recipe_version, recipe_hash, station, instruments_json, temperature_c, "
       "reference_json, directivity_json, min_directivity_db, warnings_json, valid, max_age_s, max_units, "
-      "max_temperature_change_c, noise_margin_db, units_since, errors_json FROM calibrations {} ORDER BY created_utc DESC, seq DESC "
+      "max_temperature_change_c, noise_margin_db, units_since, errors_json, invalidated_reason, invalidated_utc "
+      "FROM calibrations {} ORDER BY created_utc DESC, seq DESC "
       "LIMIT 1",
       where));
   if (!st.ok()) return st.error();
@@ -422,6 +455,12 @@ Result<std::optional<core::CalibrationRecord>> RunStore::Impl::select_calibratio
     for (auto& x : errs) {
       if (x.is_string()) c.errors.push_back(x.get<std::string>());
     }
+  }
+  if (!st->is_null(19)) {
+    // Invalidated after it was made (e.g. check-standard drift): never usable again.
+    c.valid = false;
+    c.errors.push_back(fmt::format("invalidated at {}: {}", st->is_null(20) ? std::string("an unknown time") : st->text(20),
+                                   st->text(19)));
   }
   auto tr = db.prepare(
       "SELECT standard, frequency_hz, raw_dbm FROM calibration_traces WHERE calibration_id = ?1 ORDER BY standard, idx");

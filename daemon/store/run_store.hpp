@@ -20,7 +20,7 @@ namespace echoline::store {
 
 // Schema version this code writes (PRAGMA user_version). Older files are migrated on open;
 // newer files are refused (ErrorKind::storage, message names both versions).
-inline constexpr int kSchemaVersion = 3;
+inline constexpr int kSchemaVersion = 5;
 
 struct StoreOptions {
   int busy_timeout_ms = 5000;                           // wait this long for another writer
@@ -80,6 +80,11 @@ class RunStore {
   Status save_calibration(const core::CalibrationRecord& cal);
   // Updates the units-since counter the service maintains.
   Status set_calibration_units(std::string_view calibration_id, int units_since);
+  // Marks a stored calibration as no longer usable (e.g. the check standard drifted), with the
+  // reason and the time (UTC, station form). Persisted: every later load returns valid=false
+  // with "invalidated at <utc>: <reason>" appended to errors. Invalidating again keeps the first
+  // reason. Unknown id or empty reason: ErrorKind::invalid_argument; SQLite failure: storage.
+  Status invalidate_calibration(std::string_view id, std::string_view reason);
 
   // Loads one run with its points. Unknown id: ErrorKind::invalid_argument.
   Result<core::RunResult> load_run(std::string_view run_id);

@@ -107,6 +107,16 @@ constexpr std::string_view kVersion3 = R"sql(
 ALTER TABLE calibrations ADD COLUMN errors_json TEXT NOT NULL DEFAULT '[]';
 )sql";
 
+constexpr std::string_view kVersion4 = R"sql(
+ALTER TABLE runs ADD COLUMN resonance_low_hz REAL;
+ALTER TABLE runs ADD COLUMN resonance_high_hz REAL;
+)sql";
+
+constexpr std::string_view kVersion5 = R"sql(
+ALTER TABLE calibrations ADD COLUMN invalidated_reason TEXT;
+ALTER TABLE calibrations ADD COLUMN invalidated_utc TEXT;
+)sql";
+
 }  // namespace
 
 const std::vector<Migration>& migrations() {
@@ -114,6 +124,8 @@ const std::vector<Migration>& migrations() {
       {1, "units, runs, readings, calibrations, calibration traces", kVersion1},
       {2, "calibration noise margin and unit counter; indexes by serial, lot and start time", kVersion2},
       {3, "calibration errors (why a record is not valid)", kVersion3},
+      {4, "bound interval of the true resonance per run", kVersion4},
+      {5, "calibration invalidated after it was made (check-standard drift), with reason and time", kVersion5},
   };
   return steps;
 }

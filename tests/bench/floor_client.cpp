@@ -60,32 +60,23 @@ double FloorClient::sweep(const std::vector<double>& plan_hz, double settle_s, F
     const std::string ftext = scpi::format_number(f);
     if (mode == FloorPlan::engine_exchanges) {
       check(source_->write("FREQ:CW " + ftext));
-      check(receiver_->write("FREQ:CENT " + ftext));
       check(source_->wait_complete());
-      check(receiver_->wait_complete());
       settle(settle_s);
+      check(receiver_->write("FREQ:CENT " + ftext));
       check(receiver_->write("INIT:IMM"));
       check(receiver_->wait_complete());
-      check(receiver_->drain_errors());
-      check(receiver_->write("CALC:MARK1:MAX"));
-      (void)check(receiver_->query_number("CALC:MARK1:Y?"));
-      check(receiver_->drain_errors());
-      check(source_->drain_errors());
-      check(receiver_->drain_errors());
+      (void)check(receiver_->query_number("CALC:MARK1:MAX;:CALC:MARK1:Y?"));
     } else {
       check(source_->write("FREQ:CW " + ftext));
-      check(receiver_->write("FREQ:CENT " + ftext));
       check(source_->wait_complete());
       settle(settle_s);
-      (void)check(receiver_->query("INIT:IMM;*OPC?"));
-      (void)check(receiver_->query_number("CALC:MARK1:MAX;CALC:MARK1:Y?"));
+      (void)check(receiver_->query("FREQ:CENT " + ftext + ";:INIT:IMM;*OPC?"));
+      (void)check(receiver_->query_number("CALC:MARK1:MAX;:CALC:MARK1:Y?"));
     }
   }
   const double seconds = std::chrono::duration<double>(Clock::now() - t0).count();
-  if (mode == FloorPlan::lean) {
-    check(source_->drain_errors());
-    check(receiver_->drain_errors());
-  }
+  check(source_->drain_errors());
+  check(receiver_->drain_errors());
   check(source_->write("OUTP OFF"));
   check(source_->wait_complete());
   return seconds;

@@ -12,11 +12,13 @@
 namespace echoline::bench {
 
 enum class FloorPlan {
-  // Exactly what the sweep engine sends per point with the sim profiles (each-step error
-  // checks): 4 writes and 8 queries (source 2, receiver 6).
+  // What the sweep engine sends per point with the sim profiles (end-of-sweep error checks),
+  // one exchange after the other: source FREQ:CW + *OPC?; receiver FREQ:CENT, INIT:IMM, *OPC?,
+  // CALC:MARK1:MAX;:CALC:MARK1:Y? -> 3 writes, 3 queries; errors read once after the sweep.
+  // (The engine overlaps the source's exchange with the receiver's marker query; this does not.)
   engine_exchanges,
-  // Only what a point cannot do without: source set + *OPC?, receiver center + INIT + *OPC?,
-  // peak + marker Y? as one message each: 3 queries, errors checked once at the end.
+  // The same 3 queries in the fewest messages (FREQ:CENT;:INIT:IMM;*OPC? as one): 1 write,
+  // 3 queries per point.
   lean,
 };
 

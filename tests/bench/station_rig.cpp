@@ -178,7 +178,9 @@ UnitTiming DaemonProcess::test_unit(const std::string& sim_unit, const std::stri
     UnitTiming t;
     t.seconds = std::chrono::duration<double>(Clock::now() - t0).count();
     t.verdict = m["run"].value("verdict", std::string());
-    t.points = m["run"].value("point_count", m["run"].value("points", 0));
+    // The run summary (daemon/service/station.cpp run_json) names the count "points_count".
+    const nlohmann::json& run = m["run"];
+    t.points = run.value("points_count", run.value("point_count", run.contains("points") && run["points"].is_number() ? run["points"].get<int>() : 0));
     if (t.verdict == "aborted") throw std::runtime_error("test aborted: " + m["run"].value("reason", std::string()));
     return t;
   }

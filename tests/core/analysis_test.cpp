@@ -42,7 +42,69 @@ TEST(Analysis, ResonanceRefinementIsExactOnAParabola) {
   EXPECT_FALSE(r->at_edge);
   EXPECT_NEAR(r->frequency_hz, f0, 1.0);
   EXPECT_NEAR(r->depth_db, 20.0, 1e-9);
-  EXPECT_NEAR(r->uncertainty_hz, 0.275e6, 1e-3);   // half the point step
+  // Bound interval (analysis.cpp, resonance_interval): where the best-case RL reaches the
+  // worst-case RL of the peak sample. D = 30 dB, RL 20 dB: worst 17.6134 dB (REFERENCE.md §2
+  // table). Best-case RL = −20·log10(|Γ_m| − ρ_D) (§2 model) reaches it where
+  // |Γ_m| = 10^(−17.6134/20) + 10^(−30/20), i.e. at RL_m = 15.743 dB: x = ±sqrt((20 − 15.743)/0.02)
+  // MHz from f0, then widened by half the 0.55 MHz step. Linear interpolation between samples
+  // costs far less than 0.05 MHz on this smooth trace.
+  const double rl_edge = -20 * std::log10(std::pow(10.0, -17.6134 / 20) + std::pow(10.0, -30.0 / 20));
+  EXPECT_NEAR(rl_edge, 15.743, 1e-3);   // computed: 0.131622 + 0.031623 = 0.163245
+  const double half = std::sqrt((20.0 - rl_edge) / 0.02) * 1e6;
+  const Band b = resonance_interval(pts, r->index);
+  EXPECT_FALSE(b.low_open);
+  EXPECT_FALSE(b.high_open);
+  EXPECT_NEAR(b.low_hz, f0 - half - 0.275e6, 0.05e6);
+  EXPECT_NEAR(b.high_hz, f0 + half + 0.275e6, 0.05e6);
+  // find_resonance keeps the tighter smooth-error interval inside it (resonance_shift_test.cpp).
+  EXPECT_GE(r->low_hz, b.low_hz);
+  EXPECT_LE(r->high_hz, b.high_hz);
+  EXPECT_LT(r->low_hz, f0);
+  EXPECT_GT(r->high_hz, f0);
+}
+
+// A tilted dip: the bound interval is set by the bounds around the measured peak, not by the
+// peak's position. RL = 20 − 0.05·x² − 0.25·x (x in MHz from 926 MHz) peaks at 923.5 MHz,
+// 20.3125 dB deep (vertex of the parabola, analytic geometry).
+TEST(Analysis, BoundIntervalOfATiltedDipContainsTheMeasuredPeak) {
+  auto rl = [](double f) {
+    const double x = (f - 926e6) / 1e6;
+    return 20.0 - 0.05 * x * x - 0.25 * x;
+  };
+  auto pts = trace(860e6, 0.55e6, 201, rl, 35);
+  auto r = find_resonance(pts);
+  ASSERT_TRUE(r);
+  EXPECT_NEAR(r->frequency_hz, 923.5e6, 1.0);
+  EXPECT_LT(r->low_hz, r->frequency_hz);
+  EXPECT_GT(r->high_hz, r->frequency_hz);
+  // Each edge's best-case RL equals the peak's worst-case RL (the interval's definition), within
+  // what half a point step of widening and linear interpolation move it.
+  const double level = pts[r->index].return_loss_worst_db;
+  auto best_at = [&](double f) { return return_loss_bounds(rl(f), 35, kInf).best_db; };
+  const Band b = resonance_interval(pts, r->index);
+  EXPECT_NEAR(best_at(b.low_hz + 0.275e6), level, 0.05);
+  EXPECT_NEAR(best_at(b.high_hz - 0.275e6), level, 0.05);
+  // Inside the interval the best case clears the level; half a step beyond each edge it does not.
+  EXPECT_GT(best_at(r->frequency_hz), level);
+  EXPECT_LT(best_at(b.low_hz - 0.3e6), level);
+  EXPECT_LT(best_at(b.high_hz + 0.3e6), level);
+  EXPECT_GE(r->low_hz, b.low_hz);
+  EXPECT_LE(r->high_hz, b.high_hz);
+}
+
+// The interval reaching the sweep edge is open on that side.
+TEST(Analysis, BoundIntervalReachingTheSweepEdgeIsOpen) {
+  auto pts = trace(860e6, 1e6, 50, [](double f) { return std::max(0.5, 30.0 - (f - 860e6) / 1e6); });
+  auto r = find_resonance(pts);
+  ASSERT_TRUE(r);
+  EXPECT_TRUE(r->at_edge);
+  EXPECT_TRUE(r->low_open);
+  EXPECT_DOUBLE_EQ(r->low_hz, 860e6);
+  EXPECT_FALSE(r->high_open);
+  // D = 30 dB, RL 30 dB: worst 23.979 dB (REFERENCE.md §2 grid); the best case falls to it
+  // between RL_m 20 dB (best 23.302) and 21 dB: between 869 and 870 MHz, plus half a step.
+  EXPECT_GT(r->high_hz, 869.5e6);
+  EXPECT_LT(r->high_hz, 870.5e6);
 }
 
 // Unequal spacing around the maximum (a joint between segments) still gives the exact vertex.

@@ -96,8 +96,8 @@ TEST(PhysicsLot, LengthSpreadMatchesTheLotFile) {
   for (const SimUnit& u : lot.units) {
     if (!u.defect.empty()) continue;
     lengths.push_back(u.antenna.element_length_mm);
-    // more than ~29 MHz off 915 MHz: a Q 9 whip misses VSWR 2 at a band edge (902-928 MHz)
-    if (std::abs(antenna_f0_hz(u.antenna) - 915e6) > 29e6) ++tuned_off;
+    // more than 10 MHz off 915 MHz: outside the whip915 recipe's 905-925 MHz resonance window
+    if (std::abs(antenna_f0_hz(u.antenna) - 915e6) > 10e6) ++tuned_off;
   }
   const double mean = std::accumulate(lengths.begin(), lengths.end(), 0.0) / static_cast<double>(lengths.size());
   double var = 0;
@@ -105,10 +105,11 @@ TEST(PhysicsLot, LengthSpreadMatchesTheLotFile) {
   const double sd = std::sqrt(var / static_cast<double>(lengths.size() - 1));
   // 231 normal draws: sample mean within ~3 standard errors, sample sd within ~20 % (sampling statistics)
   EXPECT_NEAR(mean, 78.0, 0.2);
-  EXPECT_NEAR(sd, 1.0, 0.2);
-  // "a few percent" tuned off among good-feed units
-  EXPECT_GE(tuned_off, 2);
-  EXPECT_LE(tuned_off, 25);
+  EXPECT_NEAR(sd, 0.5, 0.1);
+  // a few percent tuned off among good-feed units: 0.5 mm is 5.9 MHz at 78 mm / 915 MHz, so
+  // 10 MHz is 1.7 sd, about 9 % of a normal population (231 draws: 21 expected)
+  EXPECT_GE(tuned_off, 8);
+  EXPECT_LE(tuned_off, 40);
 }
 
 TEST(PhysicsLot, WhipNominalLengthIsAShortenedQuarterWave) {

@@ -10,6 +10,7 @@
 #include <chrono>
 #include <cstdio>
 #include <cstdlib>
+#include <functional>
 #include <random>
 #include <string>
 #include <thread>
@@ -106,7 +107,8 @@ int check(bool ok, const std::string& what) {
 }
 
 json instrument_health(StationUnderTest& st, const std::string& role) {
-  for (const auto& i : st.status()["instruments"]) {
+  const json status = st.status();
+  for (const auto& i : status["instruments"]) {
     if (i.value("role", "") == role) return i;
   }
   return json::object();
@@ -161,9 +163,10 @@ int run_faults(StationUnderTest& st, const Options& o) {
 }
 
 // ---- crash ----
-// The console (echoline station) while the daemon is killed: it must say so and exit with
-// kExitUnreachable (3) at its next request instead of hanging or claiming a verdict.
-int console_sees_daemon_loss(StationUnderTest& st, const std::string& serial) {
+// The operator console (echoline station) across a daemon crash: it must tell the operator the
+// link is lost and the unit was NOT judged, keep retrying, and come back on its own once the
+// daemon runs again. `restart` (start the daemon again) runs between the two halves.
+int console_rides_out_crash(StationUnderTest& st, const std::string& serial, const std::function<void()>& restart) {
   testing::ChildProcess::Options po;
   po.pipe_stdin = true;
   po.merge_stderr = true;
@@ -177,15 +180,22 @@ int console_sees_daemon_loss(StationUnderTest& st, const std::string& serial) {
   }
   int broken = check(first_screen && console.running(), "console showed its first screen and waits for a scan");
   st.kill_daemon();
-  console.write_stdin(serial + "\n");
+  // The serial, then Enter for "connect the unit" (an operator presses it once the unit is on).
+  console.write_stdin(serial + "\n\n");
+  const bool said_lost = console.wait_for_line("NOT judged", std::chrono::seconds(30)).has_value();
+  broken += check(said_lost, "console told the operator the link was lost and the unit in the fixture was NOT judged");
+  restart();
+  const bool back = console.wait_for_line("station service back", std::chrono::seconds(60)).has_value();
+  broken += check(back, "console reconnected on its own once the daemon ran again");
+  console.close_stdin();
   auto code = console.wait(std::chrono::seconds(30));
-  while (console.read_line(std::chrono::milliseconds(200))) {
+  broken += check(code.has_value(), fmt::format("console ended at the end of its input (exit {})",
+                                                code ? std::to_string(*code) : "none: still running"));
+  if (!said_lost || !back) {
+    const auto& t = console.transcript();
+    for (std::size_t i = t.size() > 12 ? t.size() - 12 : 0; i < t.size(); ++i) std::printf("  console: %s\n", t[i].c_str());
   }
-  bool said_lost = false;
-  for (const auto& l : console.transcript()) said_lost |= l.find("LOST THE CONNECTION") != std::string::npos;
-  broken += check(code && *code == 3, fmt::format("console exited with 3 (daemon unreachable) after the daemon was killed; got {}",
-                                                  code ? std::to_string(*code) : "still running"));
-  broken += check(said_lost, "console told the operator the connection was lost");
+  if (console.running()) console.kill_now();
   return broken;
 }
 
@@ -210,21 +220,24 @@ int run_crash(StationUnderTest& st, const Options& o) {
     // run's transaction has committed) when the drawn point is past the plan's end.
     const int point = std::uniform_int_distribution<int>(1, 220)(rng);
     std::string verdict = runner.test(serials[i], point);
+    const std::string when = verdict.empty() ? fmt::format("point {}", point) : "after its result (" + verdict + ")";
+    auto restart = [&] {
+      ++restarts;
+      std::printf("kill %d: unit %s at %s\n", restarts, serials[i].c_str(), when.c_str());
+      // SAFETY: a killed daemon cannot switch the source off; whatever it left stays on the
+      // antenna until the next start initialises the source. Observed, not asserted.
+      const std::string left_on = st.query_source("OUTP?");
+      std::printf("kill %d: source output after SIGKILL: %s\n", restarts, left_on.c_str());
+      const auto tr = Clock::now();
+      st.start_daemon();
+      std::printf("restart %d: daemon listening again after %.2f s\n", restarts, seconds_since(tr));
+    };
     if (restarts == 0) {
-      broken += console_sees_daemon_loss(st, serials[i]);
+      broken += console_rides_out_crash(st, serials[i], restart);
     } else {
       st.kill_daemon();
+      restart();
     }
-    std::printf("kill %d: unit %s at %s\n", restarts + 1, serials[i].c_str(),
-                verdict.empty() ? fmt::format("point {}", point).c_str() : ("after its result (" + verdict + ")").c_str());
-    ++restarts;
-    // SAFETY: a killed daemon cannot switch the source off; whatever it left stays on the
-    // antenna until the next start initialises the source. Observed, not asserted.
-    const std::string left_on = st.query_source("OUTP?");
-    std::printf("kill %d: source output after SIGKILL: %s\n", restarts, left_on.c_str());
-    const auto tr = Clock::now();
-    st.start_daemon();
-    std::printf("restart %d: daemon listening again after %.2f s\n", restarts, seconds_since(tr));
     const std::string after = st.query_source("OUTP?");
     broken += check(after == "0" || after == "OFF", "the restarted daemon left the source output OFF (OUTP? " + after + ")");
     broken += print_audit(audit_store(st, AuditOptions{}), fmt::format("after kill {}", restarts).c_str());

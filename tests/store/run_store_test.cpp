@@ -72,6 +72,7 @@ TEST_F(RunStoreTest, RunRoundTripsWithEveryField) {
   ASSERT_TRUE(back->trim.has_value());
   EXPECT_EQ(back->trim->text, run.trim->text);
   EXPECT_EQ(back->metrics.resonance_hz, run.metrics.resonance_hz);
+  EXPECT_FALSE(back->metrics.resonance_low_hz);   // not set by make_run: stays absent (NULL)
   ASSERT_EQ(back->points.size(), 201u);
   for (std::size_t i = 0; i < run.points.size(); ++i) {
     EXPECT_EQ(back->points[i].frequency_hz, run.points[i].frequency_hz);
@@ -210,6 +211,68 @@ TEST_F(RunStoreTest, LatestCalibrationWithTraces) {
   EXPECT_FALSE(store_->save_calibration(testdata::make_calibration("cal-2", "z")).ok());
 }
 
+// The resonance bound interval (schema version 4) is stored and read back; an open side is NULL.
+TEST_F(RunStoreTest, ResonanceIntervalRoundTrips) {
+  auto run = make_run("WH915A-0002", "L1", 0, 924.4e6, core::Verdict::inconclusive);
+  run.metrics.resonance_low_hz = 921.8e6;
+  run.metrics.resonance_high_hz = 926.9e6;
+  ASSERT_TRUE(store_->save_run(run).ok());
+  auto open_high = make_run("WH915A-0003", "L1", 1, 968e6, core::Verdict::fail, core::FailureClass::tuned_high);
+  open_high.metrics.resonance_low_hz = 955.25e6;
+  ASSERT_TRUE(store_->save_run(open_high).ok());
+  auto back = store_->load_run(run.run_id);
+  ASSERT_TRUE(back.ok()) << back.error().message;
+  EXPECT_EQ(back->metrics.resonance_low_hz, 921.8e6);
+  EXPECT_EQ(back->metrics.resonance_high_hz, 926.9e6);
+  auto lot = store_->lot_runs("L1", false);
+  ASSERT_TRUE(lot.ok());
+  ASSERT_EQ(lot->size(), 2u);
+  EXPECT_EQ((*lot)[1].metrics.resonance_low_hz, 955.25e6);
+  EXPECT_FALSE((*lot)[1].metrics.resonance_high_hz);
+  EXPECT_EQ(sql("SELECT count(*) FROM runs WHERE resonance_high_hz IS NULL"), "1");
+}
+
+// A calibration invalidated after it was made (check-standard drift) stays invalid across a
+// close and reopen of the file, with the reason among its errors; the other records are untouched.
+TEST_F(RunStoreTest, InvalidatedCalibrationStaysInvalidAfterReopen) {
+  ASSERT_TRUE(store_->save_calibration(testdata::make_calibration("cal-1", "2026-03-02T07:00:00.000Z")).ok());
+  ASSERT_TRUE(store_->save_calibration(testdata::make_calibration("cal-2", "2026-03-02T09:00:00.000Z")).ok());
+  auto before = store_->latest_calibration();
+  ASSERT_TRUE(before.ok() && before->has_value());
+  ASSERT_TRUE((**before).valid);
+  const std::string why = "check standard drifted: OPEN moved 0.8 dB at 915.0 MHz (limit 0.3 dB)";
+  ASSERT_TRUE(store_->invalidate_calibration("cal-2", why).ok());
+  // A second invalidation keeps the first reason.
+  ASSERT_TRUE(store_->invalidate_calibration("cal-2", "later reason").ok());
+
+  store_.reset();
+  auto reopened = RunStore::open(file_);
+  ASSERT_TRUE(reopened.ok()) << reopened.error().message;
+  store_ = std::move(*reopened);
+  auto latest = store_->latest_calibration();
+  ASSERT_TRUE(latest.ok() && latest->has_value());
+  const auto& c = **latest;
+  EXPECT_EQ(c.id, "cal-2");
+  EXPECT_FALSE(c.valid);
+  ASSERT_EQ(c.errors.size(), 1u);
+  EXPECT_NE(c.errors[0].find("invalidated at 20"), std::string::npos) << c.errors[0];
+  EXPECT_NE(c.errors[0].find(why), std::string::npos) << c.errors[0];
+  EXPECT_EQ(c.errors[0].find("later reason"), std::string::npos) << c.errors[0];
+  EXPECT_EQ(c.traces.size(), 3u);   // the record itself is kept for the audit trail
+  // The time is in the station's form YYYY-MM-DDTHH:MM:SS.fffZ (24 characters).
+  EXPECT_EQ(sql("SELECT length(invalidated_utc) FROM calibrations WHERE id = 'cal-2'"), "24");
+  auto other = store_->load_calibration("cal-1");
+  ASSERT_TRUE(other.ok() && other->has_value());
+  EXPECT_TRUE((**other).valid);
+  EXPECT_TRUE((**other).errors.empty());
+
+  auto unknown = store_->invalidate_calibration("cal-9", why);
+  ASSERT_FALSE(unknown.ok());
+  EXPECT_EQ(unknown.error().kind, ErrorKind::invalid_argument);
+  EXPECT_NE(unknown.error().message.find("no calibration 'cal-9'"), std::string::npos) << unknown.error().message;
+  EXPECT_FALSE(store_->invalidate_calibration("cal-1", "").ok());
+}
+
 TEST_F(RunStoreTest, YieldCountsFirstPassAndFinal) {
   using core::Verdict;
   using core::FailureClass;
@@ -304,6 +367,8 @@ TEST(RunStoreSchema, Version1FileIsMigratedToCurrent) {
   EXPECT_EQ((**cal).units_since, 0);   // column added by version 2 with its default
   EXPECT_EQ((**cal).noise_margin_db, 0);
   EXPECT_TRUE((**cal).errors.empty());   // column added by version 3
+  EXPECT_TRUE((**cal).valid);             // version 5's invalidation columns start NULL
+  EXPECT_FALSE(old->metrics.resonance_low_hz);   // version 4's columns start NULL
   EXPECT_TRUE((*store)->save_run(make_run("NEW-1", "L0", 1, 915e6)).ok());
   store->reset();
 
