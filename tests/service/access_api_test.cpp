@@ -235,7 +235,7 @@ TEST(AccessTcp, NonLoopbackListenerWithoutTokenIsRefusedAtStart) {
   ASSERT_TRUE(code.has_value()) << "the daemon kept running";
   EXPECT_NE(*code, 0);
   bool named = false;
-  for (const auto& l : d.process().transcript()) named |= l.find("token_file") != std::string::npos;
+  for (const auto& l : d.process().output_lines()) named |= l.find("token_file") != std::string::npos;
   EXPECT_TRUE(named) << "the refusal should name api.token_file";
 }
 

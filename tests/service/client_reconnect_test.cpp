@@ -96,7 +96,7 @@ class ReconnectBench : public ::testing::Test {
   static int finish(ChildProcess& p, std::string& text) {
     while (p.read_line(60s)) {
     }
-    for (const auto& l : p.transcript()) text += l + "\n";
+    for (const auto& l : p.output_lines()) text += l + "\n";
     return p.wait(30s).value_or(-999);
   }
 
@@ -157,9 +157,9 @@ TEST_F(ReconnectBench, KilledMidTestTheConsoleWaitsRetestsTheUnitAndFinishesTheL
 
   ASSERT_TRUE(console.wait_for_line("station service not reachable", 30s).has_value());
   // Plain words: the unit in the fixture was not judged.
-  ASSERT_FALSE(console.transcript().empty());
-  EXPECT_NE(console.transcript().back().find("(TINY-02) was NOT judged, test it again"), std::string::npos)
-      << console.transcript().back();
+  ASSERT_FALSE(console.output_lines().empty());
+  EXPECT_NE(console.output_lines().back().find("(TINY-02) was NOT judged, test it again"), std::string::npos)
+      << console.output_lines().back();
   // Retries on a pipe: one line per attempt.
   ASSERT_TRUE(console.wait_for_line("attempt 1 after", 30s).has_value());
 

@@ -192,7 +192,7 @@ int console_rides_out_crash(StationUnderTest& st, const std::string& serial, con
   broken += check(code.has_value(), fmt::format("console ended at the end of its input (exit {})",
                                                 code ? std::to_string(*code) : "none: still running"));
   if (!said_lost || !back) {
-    const auto& t = console.transcript();
+    const auto& t = console.output_lines();
     for (std::size_t i = t.size() > 12 ? t.size() - 12 : 0; i < t.size(); ++i) std::printf("  console: %s\n", t[i].c_str());
   }
   if (console.running()) console.kill_now();

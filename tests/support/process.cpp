@@ -89,7 +89,7 @@ ChildProcess& ChildProcess::operator=(ChildProcess&& other) noexcept {
     out_fd_ = std::exchange(other.out_fd_, -1);
     in_fd_ = std::exchange(other.in_fd_, -1);
     buffer_ = std::move(other.buffer_);
-    transcript_ = std::move(other.transcript_);
+    output_lines_ = std::move(other.output_lines_);
     status_ = std::exchange(other.status_, std::nullopt);
   }
   return *this;
@@ -117,7 +117,7 @@ std::optional<std::string> ChildProcess::read_line(std::chrono::milliseconds tim
     if (nl != std::string::npos) {
       std::string line = buffer_.substr(0, nl);
       buffer_.erase(0, nl + 1);
-      transcript_.push_back(line);
+      output_lines_.push_back(line);
       return line;
     }
     if (out_fd_ < 0) return std::nullopt;
@@ -136,7 +136,7 @@ std::optional<std::string> ChildProcess::read_line(std::chrono::milliseconds tim
       if (!buffer_.empty()) {  // last line without a newline
         std::string line = std::move(buffer_);
         buffer_.clear();
-        transcript_.push_back(line);
+        output_lines_.push_back(line);
         return line;
       }
       return std::nullopt;

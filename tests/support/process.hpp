@@ -37,10 +37,10 @@ class ChildProcess {
   // Next line of stdout (without the newline), or nullopt at EOF or when the timeout passes.
   std::optional<std::string> read_line(std::chrono::milliseconds timeout = 10s);
   // Reads lines until one contains `needle`; returns it, or nullopt (EOF or timeout).
-  // Every line read on the way is appended to transcript().
+  // Every line read on the way is appended to output_lines().
   std::optional<std::string> wait_for_line(std::string_view needle, std::chrono::milliseconds timeout = 10s);
   // Everything read from stdout so far, line by line.
-  const std::vector<std::string>& transcript() const { return transcript_; }
+  const std::vector<std::string>& output_lines() const { return output_lines_; }
 
   // Writes to the child's stdin (Options::pipe_stdin). Returns false on error.
   bool write_stdin(std::string_view text);
@@ -62,7 +62,7 @@ class ChildProcess {
   int out_fd_ = -1;
   int in_fd_ = -1;
   std::string buffer_;
-  std::vector<std::string> transcript_;
+  std::vector<std::string> output_lines_;
   std::optional<int> status_;
 };
 
