@@ -168,9 +168,6 @@ TEST(Jsonc, KeyPathOfRootIsSlash) {
   EXPECT_EQ(key_path(JsonPointer("/commands/set_frequency")), "/commands/set_frequency");
 }
 
-}  // namespace
-}  // namespace echoline::drivers
-
 // Regression (found by recipe_fuzz): a '/' that opens no comment used to stall the line scanner
 // forever; it must be an ordinary syntax error with the file and line.
 TEST(Jsonc, StraySlashIsASyntaxErrorNotAHang) {
@@ -179,3 +176,6 @@ TEST(Jsonc, StraySlashIsASyntaxErrorNotAHang) {
   ConfigError lone = parse_error("/");
   EXPECT_NE(std::string(lone.what()).find("t.jsonc"), std::string::npos) << lone.what();
 }
+
+}  // namespace
+}  // namespace echoline::drivers
