@@ -18,8 +18,13 @@ namespace {
 
 using Lines = std::vector<std::string>;
 
+// The shipped sim profiles check errors once per sweep (the lean engine); these tests pin the
+// drivers' per-step behaviour, so they ask for it explicitly (tests that need another policy
+// set their own).
 Profile sim_profile(const char* name) {
-  return load_profile(testing::source_dir() / "config" / "instruments" / name);
+  Profile p = load_profile(testing::source_dir() / "config" / "instruments" / name);
+  p.check_errors = "each-step";
+  return p;
 }
 
 // A scripted instrument: answers the queries the drivers send, queues errors on request.
