@@ -1,5 +1,6 @@
 // Receiver role driver: range checks, template expansion, trace reading, error policy.
 #include "drivers/receiver.hpp"
+#include "drivers/role_operation.hpp"
 
 #include <cmath>
 
@@ -9,22 +10,13 @@ namespace echoline::drivers {
 
 Receiver::Receiver(ScpiSession& session, const Profile& profile) : session_(session), profile_(profile) {}
 
-Status Receiver::check_range(std::string_view what, double value, double min, double max, std::string_view unit) const {
-  if (std::isfinite(value) && value >= min && value <= max) return Status::success();
-  return make_error(ErrorKind::invalid_argument,
-                    fmt::format("{}: {}: {} {} is outside the range of profile {} ({} to {} {}); nothing sent",
-                                session_.name(), what, value, unit, profile_.name, min, max, unit));
+Status Receiver::check_range(std::string_view what, double value, double min, double max,
+                           std::string_view unit) const {
+  return check_operation_range(session_, profile_, what, value, min, max, unit);
 }
 
 Status Receiver::send(std::string_view operation, std::initializer_list<TemplateArg> args, bool check) {
-  if (!profile_.has(operation))
-    return make_error(ErrorKind::config, fmt::format("{}: profile {} has no operation {}", session_.name(), profile_.name, operation));
-  auto command = profile_.command(operation).expand(args);
-  if (!command.ok()) return command.error().with_context(session_.name());
-  Status s = session_.write(command.value());
-  if (!s.ok()) return s;
-  if (check && profile_.check_errors == "each-step") return session_.drain_errors();
-  return Status::success();
+  return send_operation(session_, profile_, operation, args, check);
 }
 
 Status Receiver::initialize() {

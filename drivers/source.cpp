@@ -1,5 +1,6 @@
 // Source role driver: range checks, template expansion, error policy.
 #include "drivers/source.hpp"
+#include "drivers/role_operation.hpp"
 
 #include <cmath>
 
@@ -11,21 +12,11 @@ Source::Source(ScpiSession& session, const Profile& profile) : session_(session)
 
 Status Source::check_range(std::string_view operation, double value, double min, double max,
                            std::string_view unit) const {
-  if (std::isfinite(value) && value >= min && value <= max) return Status::success();
-  return make_error(ErrorKind::invalid_argument,
-                    fmt::format("{}: {}: {} {} is outside the range of profile {} ({} to {} {}); nothing sent",
-                                session_.name(), operation, value, unit, profile_.name, min, max, unit));
+  return check_operation_range(session_, profile_, operation, value, min, max, unit);
 }
 
 Status Source::send(std::string_view operation, std::initializer_list<TemplateArg> args, bool check) {
-  if (!profile_.has(operation))
-    return make_error(ErrorKind::config, fmt::format("{}: profile {} has no operation {}", session_.name(), profile_.name, operation));
-  auto command = profile_.command(operation).expand(args);
-  if (!command.ok()) return command.error().with_context(session_.name());
-  Status s = session_.write(command.value());
-  if (!s.ok()) return s;
-  if (check && profile_.check_errors == "each-step") return session_.drain_errors();
-  return Status::success();
+  return send_operation(session_, profile_, operation, args, check);
 }
 
 Status Source::initialize() {
