@@ -82,6 +82,26 @@ Status Receiver::set_max_hold(bool on) {
 
 Status Receiver::trigger() { return send("trigger", {}, false); }
 
+Status Receiver::sweep_and_wait(std::optional<double> center_hz) {
+  std::string message;
+  if (center_hz) {
+    if (Status s = check_range("set_center", *center_hz, profile_.min_frequency_hz, profile_.max_frequency_hz, "Hz"); !s.ok()) return s;
+    auto center = expand_operation(session_, profile_, "set_center", {{"frequency_hz", *center_hz}});
+    if (!center.ok()) return center.error();
+    message = center.value();
+  }
+  auto trigger = expand_operation(session_, profile_, "trigger", {});
+  if (!trigger.ok()) return trigger.error();
+  // "A;:B" (SCPI-1999 Vol 1 6.2.4: the leading ':' returns B's header to the root).
+  const std::string& t = trigger.value();
+  if (message.empty()) {
+    message = t;
+  } else {
+    message += (!t.empty() && (t.front() == ':' || t.front() == '*')) ? ";" + t : ";:" + t;
+  }
+  return session_.wait_complete_after(message);
+}
+
 Status Receiver::wait_sweep() {
   if (Status s = session_.wait_complete(); !s.ok()) return s;
   if (profile_.check_errors == "each-step") return session_.drain_errors();

@@ -5,6 +5,7 @@
 // worst-case power at the input below it (the daemon refuses recipes that could exceed it).
 #pragma once
 
+#include <optional>
 #include <vector>
 
 #include "drivers/profile.hpp"
@@ -37,6 +38,9 @@ class Receiver {
   Status set_max_hold(bool on);       // REQUIRES profile operation set_max_hold (error otherwise)
   Status trigger();                   // start one single sweep (e.g. INIT:IMM), no wait
   Status wait_sweep();                // *OPC?
+  // One message: [set_center;]trigger;*OPC? -- moves (when center_hz is given, range-checked),
+  // sweeps once and waits for the sweep's end. No error check.
+  Status sweep_and_wait(std::optional<double> center_hz);
   Result<double> read_peak_dbm();     // peak_search then read_marker_y
   Result<std::vector<double>> read_trace_dbm();   // read_trace, ASCII list or REAL,32 block per profile
   Status check_errors();

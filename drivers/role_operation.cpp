@@ -15,14 +15,21 @@ Status check_operation_range(const ScpiSession& session, const Profile& profile,
                                 session.name(), operation, value, unit, profile.name, min, max, unit));
 }
 
-Status send_operation(ScpiSession& session, const Profile& profile, std::string_view operation,
-                      std::initializer_list<TemplateArg> args, bool check) {
+Result<std::string> expand_operation(const ScpiSession& session, const Profile& profile, std::string_view operation,
+                                     std::initializer_list<TemplateArg> args) {
   if (!profile.has(operation)) {
     return make_error(ErrorKind::config,
                       fmt::format("{}: profile {} has no operation {}", session.name(), profile.name, operation));
   }
   auto command = profile.command(operation).expand(args);
   if (!command.ok()) return command.error().with_context(session.name());
+  return command;
+}
+
+Status send_operation(ScpiSession& session, const Profile& profile, std::string_view operation,
+                      std::initializer_list<TemplateArg> args, bool check) {
+  auto command = expand_operation(session, profile, operation, args);
+  if (!command.ok()) return command.error();
   Status s = session.write(command.value());
   if (!s.ok()) return s;
   if (check && profile.check_errors == "each-step") return session.drain_errors();

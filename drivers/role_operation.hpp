@@ -18,6 +18,10 @@ namespace echoline::drivers {
 Status check_operation_range(const ScpiSession& session, const Profile& profile, std::string_view operation,
                              double value, double min, double max, std::string_view unit);
 
+// The command text of `operation` expanded with `args`; config error when the profile lacks it.
+Result<std::string> expand_operation(const ScpiSession& session, const Profile& profile, std::string_view operation,
+                                     std::initializer_list<TemplateArg> args);
+
 // Expands `operation` from the profile and writes it; drains the error queue afterwards when
 // `check` and the profile's policy is "each-step". config error when the profile lacks it.
 Status send_operation(ScpiSession& session, const Profile& profile, std::string_view operation,

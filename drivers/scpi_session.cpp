@@ -194,13 +194,18 @@ Result<scpi::Identity> ScpiSession::identify() {
   return id;
 }
 
-Status ScpiSession::wait_complete() {
-  auto reply = exchange(wire::kOperationCompleteQuery, options_.opc_timeout);
+Status ScpiSession::wait_complete() { return wait_complete_after({}); }
+
+Status ScpiSession::wait_complete_after(std::string_view commands) {
+  // IEEE 488.2-1992 7.4.1: program message units in one message are separated by ';'; a common
+  // command (*OPC?) does not change the SCPI header path (SCPI-1999 Vol 1 6.2.5).
+  const std::string message = commands.empty() ? std::string(wire::kOperationCompleteQuery)
+                                               : fmt::format("{};{}", commands, wire::kOperationCompleteQuery);
+  auto reply = exchange(message, options_.opc_timeout);
   if (!reply) return reply.error();
   auto value = scpi::parse_number(*reply);
   if (!value || *value != 1.0) {
-    return describe(make_error(ErrorKind::protocol, fmt::format("expected \"1\", got {}", scpi::quote(*reply))),
-                    wire::kOperationCompleteQuery);
+    return describe(make_error(ErrorKind::protocol, fmt::format("expected \"1\", got {}", scpi::quote(*reply))), message);
   }
   return {};
 }

@@ -45,6 +45,9 @@ class ScpiSession {
   Result<std::vector<double>> query_real_block(std::string_view command, int bits, scpi::ByteOrder order);
   Result<scpi::Identity> identify();          // *IDN?
   Status wait_complete();                     // *OPC? with opc_timeout
+  // `commands` and *OPC? sent as ONE program message ("A;*OPC?"), answered like wait_complete.
+  // One write and one reply instead of two writes: the pipelined form of "send, then wait".
+  Status wait_complete_after(std::string_view commands);
   Status drain_errors();                      // SYST:ERR? until 0; first error -> ErrorKind::instrument, instrument_code set
   Status clear();                             // *CLS
   Status reset();                             // *RST

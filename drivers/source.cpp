@@ -51,6 +51,13 @@ Status Source::post_frequency(double hz) {
 
 Status Source::sync() { return session_.wait_complete(); }
 
+Status Source::move_and_sync(double hz) {
+  if (Status s = check_range("set_frequency", hz, profile_.min_frequency_hz, profile_.max_frequency_hz, "Hz"); !s.ok()) return s;
+  auto command = expand_operation(session_, profile_, "set_frequency", {{"frequency_hz", hz}});
+  if (!command.ok()) return command.error();
+  return session_.wait_complete_after(command.value());
+}
+
 Status Source::check_errors() {
   if (profile_.check_errors == "never") return Status::success();
   return session_.drain_errors();

@@ -24,6 +24,7 @@ class Source {
   Status set_output(bool on);           // RF on/off at the output connector
   Status post_frequency(double hz);     // range-checked, then sent without waiting or checking (pipelined); caller syncs later
   Status sync();                        // *OPC?
+  Status move_and_sync(double hz);      // range-checked; set_frequency and *OPC? as one message, waits
   Status check_errors();                // SYST:ERR? until empty, unless the profile's policy is "never"
 
   const Profile& profile() const { return profile_; }

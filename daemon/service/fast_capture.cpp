@@ -210,8 +210,7 @@ SweepOutcome run_fast_capture(drivers::Source& source, drivers::Receiver& receiv
 
   for (int k = 0; k < plan->receiver_sweeps; ++k) {
     if (cancel.load()) return fail(cancelled(fmt::format("before receiver sweep {} of {}", k + 1, plan->receiver_sweeps)));
-    Status s = receiver.trigger();
-    if (s) s = receiver.wait_sweep();
+    Status s = receiver.sweep_and_wait(std::nullopt);   // INIT and *OPC? as one message
     if (!s) return fail(s.error().with_context(fmt::format("fast capture receiver sweep {} of {}", k + 1, plan->receiver_sweeps)));
     if (progress) progress(n * (k + 1) / plan->receiver_sweeps, n);
   }

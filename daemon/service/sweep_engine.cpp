@@ -1,5 +1,5 @@
-// Step sweep: configure, then per point trigger the receiver and wait for it (*OPC?), read the
-// marker while the source already moves to the next frequency on its own connection, settle;
+// Step sweep: configure, then per point one receiver message (center, INIT, *OPC?), then the
+// marker read while the source moves to the next frequency and settles on its own connection;
 // errors drained once per point (each-step) or once per sweep (end-of-sweep); output OFF on
 // every way out.
 #include "daemon/service/sweep_engine.hpp"
@@ -9,6 +9,7 @@
 #include <condition_variable>
 #include <memory>
 #include <mutex>
+#include <optional>
 #include <thread>
 
 #include <fmt/format.h>
@@ -27,16 +28,18 @@ Error cancelled_at(int point, int of) {
   return make_error(ErrorKind::cancelled, fmt::format("sweep cancelled before point {} of {}", point, of));
 }
 
-// Sleeps `seconds`, waking early when cancelled. Returns false when cancelled.
-bool settle(double seconds, const std::atomic<bool>& cancel) {
-  if (seconds <= 0) return !cancel.load();
-  const auto until = Clock::now() + std::chrono::duration_cast<Clock::duration>(std::chrono::duration<double>(seconds));
-  while (Clock::now() < until) {
+// Sleeps until `deadline`, waking early when cancelled. Returns false when cancelled.
+bool settle_until(Clock::time_point deadline, const std::atomic<bool>& cancel) {
+  while (Clock::now() < deadline) {
     if (cancel.load()) return false;
-    auto left = until - Clock::now();
+    auto left = deadline - Clock::now();
     std::this_thread::sleep_for(std::min<Clock::duration>(left, std::chrono::milliseconds(5)));
   }
   return !cancel.load();
+}
+
+Clock::duration to_duration(double seconds) {
+  return std::chrono::duration_cast<Clock::duration>(std::chrono::duration<double>(std::max(0.0, seconds)));
 }
 
 // Runs one job at a time on its own thread so the source's round trip overlaps the receiver's.
@@ -171,18 +174,15 @@ Status SweepEngine::configure(const core::Recipe& recipe) {
 }
 
 Status SweepEngine::source_move(double frequency_hz) {
-  if (Status s = source_.post_frequency(frequency_hz); !s) return s;
-  if (Status s = source_.sync(); !s) return s;
+  if (Status s = source_.move_and_sync(frequency_hz); !s) return s;
   if (checks_each_step(source_.profile())) return source_.session().drain_errors();
   return {};
 }
 
-Status SweepEngine::receiver_sweep() {
-  // The *OPC? after INIT completes only when the sweep has ended, which also covers any center
-  // change sent before the INIT (IEEE 488.2-1992 12.5.3: *OPC? answers once every pending
-  // operation is complete).
-  if (Status s = receiver_.trigger(); !s) return s;
-  return receiver_.session().wait_complete();
+Status SweepEngine::receiver_sweep(std::optional<double> center_hz) {
+  // One message "FREQ:CENT f;:INIT:IMM;*OPC?": the *OPC? answers only when the sweep has ended
+  // (IEEE 488.2-1992 12.5.3: *OPC? answers once every pending operation is complete).
+  return receiver_.sweep_and_wait(center_hz);
 }
 
 Result<double> SweepEngine::receiver_peak() {
@@ -248,21 +248,32 @@ SweepOutcome SweepEngine::run(const core::Recipe& recipe, const std::atomic<bool
   if (cancel.load()) return fail(cancelled_at(1, n));
   if (Status s = configure(recipe); !s) return fail(s.error().with_context("sweep setup"));
 
+  // Per point: the receiver sweeps at f (one message with the pending center move and *OPC?);
+  // then the source moves to the next frequency on the lane while the marker is read here. The
+  // settling time counts from the source's *OPC? reply (its stamp `moved_at`), so it overlaps
+  // the marker read too; this thread sleeps out what is left, one wake-up per point.
+  std::optional<double> pending_center;   // configure() already centred the receiver on plan[0]
+  const Clock::duration settle_time = to_duration(recipe.source.settle_s);
+  Clock::time_point moved_at = Clock::now();   // configure() ended with the source's *OPC?
   for (int i = 0; i < n; ++i) {
     const double f = plan[static_cast<std::size_t>(i)];
     const bool has_next = i + 1 < n;
     if (Status s = join_source(); !s) return fail(s.error().with_context(at_point(i)));
-    if (cancel.load()) return fail(cancelled_at(i + 1, n));
-    if (!settle(recipe.source.settle_s, cancel)) return fail(cancelled_at(i + 1, n));
+    if (!settle_until(moved_at + settle_time, cancel)) return fail(cancelled_at(i + 1, n));
 
     std::vector<double> values;
     values.reserve(static_cast<std::size_t>(averages));
     for (int k = 0; k < averages; ++k) {
-      if (Status s = receiver_sweep(); !s) return fail(s.error().with_context(at_point(i)));
+      if (Status s = receiver_sweep(pending_center); !s) return fail(s.error().with_context(at_point(i)));
+      pending_center.reset();
       if (k + 1 == averages && has_next) {
         // The sweep is over, so the source may leave f while the stored trace is read.
         const double next = plan[static_cast<std::size_t>(i + 1)];
-        lane->start([this, next] { return source_move(next); });
+        lane->start([this, next, &moved_at]() -> Status {
+          Status s = source_move(next);
+          moved_at = Clock::now();   // read by this thread only after lane->finish()
+          return s;
+        });
         source_moving = true;
       }
       Result<double> peak = receiver_peak();
@@ -272,12 +283,7 @@ SweepOutcome SweepEngine::run(const core::Recipe& recipe, const std::atomic<bool
     if (checks_each_step(receiver_.profile())) {
       if (Status s = receiver_.session().drain_errors(); !s) return fail(s.error().with_context(at_point(i)));
     }
-    if (has_next) {
-      // Not waited for: the next INIT's *OPC? completes only after it.
-      if (Status s = receiver_.post_center(plan[static_cast<std::size_t>(i + 1)]); !s) {
-        return fail(s.error().with_context(at_point(i + 1)));
-      }
-    }
+    if (has_next) pending_center = plan[static_cast<std::size_t>(i + 1)];
     out.readings.push_back(core::Reading{f, average_dbm(values)});
     if (progress) progress(i + 1, n);
   }

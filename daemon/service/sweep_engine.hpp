@@ -51,8 +51,8 @@ class SweepEngine {
 
  private:
   Status configure(const core::Recipe& recipe);
-  Status source_move(double frequency_hz);     // set frequency, *OPC? [, errors when each-step]
-  Status receiver_sweep();                     // INIT:IMM, *OPC? (covers a preceding center change)
+  Status source_move(double frequency_hz);     // "set frequency;*OPC?" [, errors when each-step]
+  Status receiver_sweep(std::optional<double> center_hz);   // "[center;]INIT:IMM;*OPC?" as one message
   Result<double> receiver_peak();              // marker peak and Y? in one program message
   void output_off_best_effort();
 

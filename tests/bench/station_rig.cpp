@@ -181,6 +181,10 @@ UnitTiming DaemonProcess::test_unit(const std::string& sim_unit, const std::stri
     // The run summary (daemon/service/station.cpp run_json) names the count "points_count".
     const nlohmann::json& run = m["run"];
     t.points = run.value("points_count", run.value("point_count", run.contains("points") && run["points"].is_number() ? run["points"].get<int>() : 0));
+    if (run.contains("timings")) {
+      t.sweep_s = run["timings"].value("sweep_s", 0.0);
+      t.run_s = run["timings"].value("total_s", 0.0);
+    }
     if (t.verdict == "aborted") throw std::runtime_error("test aborted: " + m["run"].value("reason", std::string()));
     return t;
   }

@@ -47,6 +47,8 @@ struct UnitTiming {
   double seconds = 0;      // test.start sent -> result event received
   std::string verdict;
   int points = 0;
+  double sweep_s = 0;      // the daemon's own timing of the sweep (run.timings.sweep_s)
+  double run_s = 0;        // the daemon's own timing of the run before the store commit (total_s)
 };
 
 class DaemonProcess {

@@ -85,7 +85,9 @@ TEST_F(DaemonApi, CalibrationPromptsEachStandardThenUnitsGetVerdicts) {
   for (const std::string serial : {"TINY-01", "TINY-02", "TINY-05"}) {
     int progress = 0;
     json run = test_unit(api, *sim_, serial, "TINY", &progress);
-    EXPECT_EQ(progress, points) << serial;   // one progress event per plan point
+    // First and last point always, the rest at most every 40 ms (API.md, "progress").
+    EXPECT_GE(progress, 2) << serial;
+    EXPECT_LE(progress, points) << serial;
     EXPECT_EQ(run["serial"], serial);
     EXPECT_EQ(run["calibration_id"], last["calibration"]["id"]);
     verdicts[serial] = run["verdict"];

@@ -294,7 +294,9 @@ int run_loss(StationUnderTest& st, const Options& o) {
     }
     const json& j = *m;
     if (!j.contains("event") || j.value("id", json(0)) != json(id)) continue;
-    if (j["event"] == "progress" && !armed && j.value("point", 0) >= 50) {
+    // The first progress event (point 1) comes at once; later ones at most every 40 ms, so arm
+    // on the first: the rest of the sweep still lies ahead.
+    if (j["event"] == "progress" && !armed && j.value("point", 0) >= 1) {
       st.arm_fault("source", "drop", 1.0, o.seed);
       armed = true;
     }
