@@ -19,6 +19,7 @@
 
 #include "daemon/service/api_handler.hpp"
 #include "daemon/service/api_server.hpp"
+#include "daemon/service/instruments.hpp"
 #include "daemon/service/sd_notify.hpp"
 #include "daemon/service/station.hpp"
 #include "drivers/config_error.hpp"
@@ -45,6 +46,10 @@ options:
   --on-stop abort|finish   on SIGTERM: abort the running test (default, stored as aborted
                            with reason "daemon stopping") or let it finish first
   --log-level LEVEL        trace, debug, info (default), warn, error
+  --rf-off                 do not serve: connect the configured source alone, switch its RF
+                           output OFF, confirm with *OPC? and exit (0 = confirmed OFF, 1 = not
+                           confirmed, 2 = bad config). For the service manager after a crash
+                           (ExecStopPost in config/echolined.service) and for the bench.
   --help                   this text
 
 RF exposure: during a test the source output is ON and an antenna under test radiates.
@@ -55,6 +60,7 @@ struct Args {
   std::vector<std::pair<std::string, std::string>> overrides;
   std::string data_dir, log_dir, recipe, socket, log_level = "info", on_stop = "abort";
   std::optional<int> tcp_port;
+  bool rf_off = false;
 };
 
 [[noreturn]] void usage_error(const std::string& message) {
@@ -98,6 +104,8 @@ Args parse_args(int argc, char** argv) {
     } else if (arg == "--on-stop") {
       a.on_stop = value(i);
       if (a.on_stop != "abort" && a.on_stop != "finish") usage_error("--on-stop must be abort or finish");
+    } else if (arg == "--rf-off") {
+      a.rf_off = true;
     } else if (arg == "--log-level") {
       a.log_level = value(i);
     } else {
@@ -135,6 +143,22 @@ std::string read_token(const std::filesystem::path& file) {
   return t;
 }
 
+// SAFETY: the source's RF output OFF without serving; see --rf-off in the usage text.
+int rf_off(const drivers::StationConfig& config) {
+  service::Instruments instruments(config);
+  const std::string who = fmt::format("source {} ({})", instruments.source().session().name(),
+                                      instruments.source().session().address());
+  if (Status s = instruments.source_output_off(); !s) {
+    spdlog::error("--rf-off: {}: RF output NOT confirmed off: {}", who, s.error().message);
+    std::cerr << "echolined: --rf-off: " << who << ": RF output NOT confirmed off: " << s.error().message
+              << "\nSwitch the source's RF output off at its front panel.\n";
+    return 1;
+  }
+  spdlog::info("--rf-off: {}: RF output off, confirmed", who);
+  std::cout << who << ": RF output off, confirmed\n";
+  return 0;
+}
+
 int run(const Args& args) {
   drivers::StationConfig config = drivers::load_station_config(args.config);
   for (const auto& [role, address] : args.overrides) {
@@ -154,6 +178,7 @@ int run(const Args& args) {
   if (args.tcp_port) config.api.tcp_port = *args.tcp_port;
 
   setup_logging(config, args.log_level);
+  if (args.rf_off) return rf_off(config);
   spdlog::info("echolined 0.1.0 starting: station {} config {}", config.station, config.file);
 
   // Signals are taken by sigwait() on this thread; block them before any thread starts.

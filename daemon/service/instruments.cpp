@@ -44,6 +44,15 @@ Instruments::Instruments(const drivers::StationConfig& config) {
 
 Instruments::~Instruments() { close_all(); }
 
+Status Instruments::source_output_off() {
+  drivers::ScpiSession& session = source_->session();
+  if (!session.is_open()) {
+    if (Status s = session.connect(); !s) return s;
+  }
+  if (Status s = source_->set_output(false); !s) return s;
+  return session.wait_complete();
+}
+
 const drivers::Profile& Instruments::source_profile() const { return *source_profile_; }
 const drivers::Profile& Instruments::receiver_profile() const { return *receiver_profile_; }
 

@@ -44,6 +44,10 @@ class Instruments {
   void invalidate(const std::string& reason = "");
   // Closes every session (source output is the engine's job; this only drops links).
   void close_all();
+  // SAFETY: connects the source alone and switches its RF output OFF, confirmed by *OPC?. For
+  // when no daemon drives the station (after a crash, from the service manager); touches no
+  // other instrument and no other setting.
+  Status source_output_off();
 
   drivers::Source& source() { return *source_; }
   drivers::Receiver& receiver() { return *receiver_; }

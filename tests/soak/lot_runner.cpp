@@ -51,7 +51,7 @@ bool LotRunner::handle_refusal(const UnitOutcome& o) {
   return false;
 }
 
-std::string LotRunner::test(const std::string& serial, int kill_at_point) {
+std::string LotRunner::test(const std::string& serial, double kill_after_s) {
   if (!seen_[serial]) {
     seen_[serial] = true;
     order_.push_back(serial);
@@ -59,9 +59,7 @@ std::string LotRunner::test(const std::string& serial, int kill_at_point) {
   }
   int attempts = 0;
   for (int guard = 0; guard < 20; ++guard) {
-    std::function<bool(int)> hook;
-    if (kill_at_point > 0) hook = [kill_at_point](int point) { return point >= kill_at_point; };
-    UnitOutcome o = st_.test_unit(serial, hook);
+    UnitOutcome o = st_.test_unit(serial, kill_after_s);
     if (!o.refusal.empty()) {
       if (!handle_refusal(o)) {
         c_.problems.push_back(fmt::format("{}: test.start refused ({}: {}) and the refusal could not be cleared", serial,
@@ -72,7 +70,7 @@ std::string LotRunner::test(const std::string& serial, int kill_at_point) {
     }
     if (o.verdict.empty()) {
       // Stopped early on purpose (kill point) or the link dropped: the caller decides.
-      if (!(kill_at_point > 0)) {
+      if (!(kill_after_s > 0)) {
         ++c_.lost_links;
         c_.problems.push_back(fmt::format("{}: no result from the daemon: {}", serial, o.reason));
       }

@@ -48,10 +48,10 @@ class LotRunner {
 
   // Calibrates, retrying up to `attempts` times. False when no valid calibration resulted.
   bool calibrate(int attempts = 5);
-  // Tests one unit; retests an aborted run up to twice. `kill_at_point` (> 0) stops waiting
-  // once that point's progress arrived (the caller kills the daemon): returns false then.
-  // Returns the final verdict ("" when the link was lost).
-  std::string test(const std::string& serial, int kill_at_point = 0);
+  // Tests one unit; retests an aborted run up to twice. `kill_after_s` (> 0) stops waiting that
+  // long after test.start unless the result came first (the caller kills the daemon).
+  // Returns the final verdict ("" when the link was lost or the wait was stopped).
+  std::string test(const std::string& serial, double kill_after_s = 0);
 
   // Arms the plan's faults on source and receiver, converting per-unit rates with the replies
   // and messages one unit's run takes (measured by measure_unit_traffic).

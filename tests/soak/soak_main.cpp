@@ -210,24 +210,34 @@ int run_crash(StationUnderTest& st, const Options& o) {
   for (int k = 0; k < o.kills; ++k) kill_units.push_back((k + 1) * o.units / (o.kills + 1));
   const auto t0 = Clock::now();
   int restarts = 0;
+  double unit_s = 0.5;   // the last undisturbed unit's test time, for drawing kill moments
   for (int i = 0; i < o.units && i < static_cast<int>(serials.size()); ++i) {
     const bool kill_here = std::find(kill_units.begin(), kill_units.end(), i) != kill_units.end();
     if (!kill_here) {
-      runner.test(serials[i]);
+      const auto tu = Clock::now();
+      if (!runner.test(serials[i]).empty()) unit_s = seconds_since(tu);
       continue;
     }
-    // A random moment: during the sweep (a progress point), or just after the result (the
-    // run's transaction has committed) when the drawn point is past the plan's end.
-    const int point = std::uniform_int_distribution<int>(1, 220)(rng);
-    std::string verdict = runner.test(serials[i], point);
-    const std::string when = verdict.empty() ? fmt::format("point {}", point) : "after its result (" + verdict + ")";
+    // A random moment over 110 % of a unit's test time: mostly during the sweep, sometimes just
+    // after the result (the run's transaction has committed).
+    const double after_s = std::uniform_real_distribution<double>(0.0, 1.1 * unit_s)(rng);
+    std::string verdict = runner.test(serials[i], after_s);
+    const std::string when = verdict.empty() ? fmt::format("{:.0f} ms after test.start", 1e3 * after_s)
+                                             : "after its result (" + verdict + ")";
     auto restart = [&] {
       ++restarts;
       std::printf("kill %d: unit %s at %s\n", restarts, serials[i].c_str(), when.c_str());
       // SAFETY: a killed daemon cannot switch the source off; whatever it left stays on the
-      // antenna until the next start initialises the source. Observed, not asserted.
+      // antenna until something does. The service manager runs `echolined --rf-off` after any
+      // stop (ExecStopPost in config/echolined.service); this does the same and checks it.
       const std::string left_on = st.query_source("OUTP?");
       std::printf("kill %d: source output after SIGKILL: %s\n", restarts, left_on.c_str());
+      std::string rf_text;
+      const int rf_code = st.rf_off(&rf_text);
+      const std::string off = st.query_source("OUTP?");
+      broken += check(rf_code == 0 && (off == "0" || off == "OFF"),
+                      fmt::format("echolined --rf-off switched the source off after the crash (exit {}, OUTP? {}): {}", rf_code,
+                                  off, rf_text.substr(0, rf_text.find('\n'))));
       const auto tr = Clock::now();
       st.start_daemon();
       std::printf("restart %d: daemon listening again after %.2f s\n", restarts, seconds_since(tr));

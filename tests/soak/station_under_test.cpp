@@ -3,6 +3,7 @@
 
 #include <sqlite3.h>
 
+#include <algorithm>
 #include <chrono>
 #include <cmath>
 #include <fstream>
@@ -182,6 +183,22 @@ void StationUnderTest::kill_daemon() {
   if (daemon_) daemon_->kill_now();
 }
 
+int StationUnderTest::rf_off(std::string* output) {
+  testing::ChildProcess::Options po;
+  po.merge_stderr = true;
+  auto child = testing::ChildProcess::start(
+      {testing::daemon_binary().string(), "--config", (setup_.work_dir / "station.jsonc").string(), "--rf-off"}, po);
+  std::string text;
+  while (auto line = child.read_line(30s)) text += *line + "\n";   // until EOF: the process ended
+  auto code = child.wait(5s);
+  if (output) *output = text;
+  if (!code) {
+    child.kill_now();
+    return -1;
+  }
+  return *code;
+}
+
 int StationUnderTest::stop_daemon() {
   api_.reset();
   return daemon_ ? daemon_->terminate(30s) : -1;
@@ -213,9 +230,21 @@ json StationUnderTest::status() {
   return r->result;
 }
 
-json StationUnderTest::wait_job_end(long id, std::string* why, const std::function<bool(int)>& on_progress, bool* stopped) {
+json StationUnderTest::wait_job_end(long id, std::string* why, double stop_after_s, bool* stopped) {
+  using SteadyClock = std::chrono::steady_clock;
+  const auto start = SteadyClock::now();
+  const auto stop_at = start + std::chrono::duration_cast<SteadyClock::duration>(std::chrono::duration<double>(stop_after_s));
   for (;;) {
-    auto m = api().next_message(kJobSilence);
+    client::Millis wait = kJobSilence;
+    if (stop_after_s > 0) {
+      const auto left = std::chrono::duration_cast<client::Millis>(stop_at - SteadyClock::now());
+      wait = std::clamp(left, client::Millis{0}, kJobSilence);
+    }
+    auto m = api().next_message(wait);
+    if (!m && stop_after_s > 0 && m.error().kind == ErrorKind::timeout && SteadyClock::now() >= stop_at) {
+      if (stopped) *stopped = true;
+      return nullptr;
+    }
     if (!m) {
       if (why) *why = m.error().message;
       return nullptr;
@@ -223,10 +252,6 @@ json StationUnderTest::wait_job_end(long id, std::string* why, const std::functi
     const json& j = *m;
     if (!j.contains("event") || !j.contains("id") || !j["id"].is_number_integer() || j["id"].get<long>() != id) continue;
     const std::string ev = j["event"].get<std::string>();
-    if (ev == "progress" && on_progress && on_progress(j.value("point", 0))) {
-      if (stopped) *stopped = true;
-      return nullptr;
-    }
     if (ev == "result") return j;
     if (ev == "error") {
       if (why) *why = j["error"].value("message", "error event without message");
@@ -258,7 +283,7 @@ std::optional<json> StationUnderTest::calibrate(std::string* why) {
     if (why) *why = r->code + ": " + r->message;
     return std::nullopt;
   }
-  json end = wait_job_end(api().last_id(), why, {}, nullptr);
+  json end = wait_job_end(api().last_id(), why);
   if (end.is_null() || !end.contains("calibration")) return std::nullopt;
   return end["calibration"];
 }
@@ -273,13 +298,13 @@ bool StationUnderTest::check_standard(std::string* why) {
     if (why) *why = r->code + ": " + r->message;
     return false;
   }
-  json end = wait_job_end(api().last_id(), why, {}, nullptr);
+  json end = wait_job_end(api().last_id(), why);
   if (end.is_null()) return false;
   if (why) *why = end.contains("check") ? end["check"].value("message", "") : "";
   return true;
 }
 
-UnitOutcome StationUnderTest::test_unit(const std::string& serial, const std::function<bool(int)>& on_progress) {
+UnitOutcome StationUnderTest::test_unit(const std::string& serial, double stop_after_s) {
   UnitOutcome out;
   control({{"cmd", "connect"}, {"unit", serial}});
   auto r = api().call("test.start", {{"serial", serial}, {"lot", setup_.lot_name}, {"operator", "soak"}});
@@ -294,7 +319,7 @@ UnitOutcome StationUnderTest::test_unit(const std::string& serial, const std::fu
     return out;
   }
   bool stopped = false;
-  json end = wait_job_end(api().last_id(), &out.reason, on_progress, &stopped);
+  json end = wait_job_end(api().last_id(), &out.reason, stop_after_s, &stopped);
   if (stopped) return out;
   if (end.is_null()) {
     out.lost_daemon = true;

@@ -55,6 +55,9 @@ class StationUnderTest {
   void start_simulator();
   void start_daemon();             // writes the station config on first use; waits for "listening"
   void kill_daemon();              // SIGKILL, reaped
+  // Runs `echolined --config <station> --rf-off` (what the service manager does after a crash);
+  // returns its exit code, its output in *output.
+  int rf_off(std::string* output);
   int stop_daemon();               // SIGTERM; exit code
   int daemon_pid() const;
   bool daemon_running();
@@ -69,10 +72,10 @@ class StationUnderTest {
   std::optional<nlohmann::json> calibrate(std::string* why);
   // cal.check (the check standard). True when it completed (drifted or not: see *why).
   bool check_standard(std::string* why);
-  // Connects the unit at the test port, test.start, waits for its result event. When
-  // `on_progress` returns true the wait stops early (the caller kills the daemon): the
-  // outcome then has no verdict.
-  UnitOutcome test_unit(const std::string& serial, const std::function<bool(int point)>& on_progress = {});
+  // Connects the unit at the test port, test.start, waits for its result event. With
+  // `stop_after_s` > 0 the wait stops that long after test.start unless the result came first
+  // (the caller kills the daemon): the outcome then has no verdict.
+  UnitOutcome test_unit(const std::string& serial, double stop_after_s = 0);
   std::vector<nlohmann::json> lot_runs();   // runs.lot of the soak lot
 
   // --- simulator fixture control port ---
@@ -98,7 +101,7 @@ class StationUnderTest {
  private:
   void write_lot();
   void write_station_config();
-  nlohmann::json wait_job_end(long id, std::string* why, const std::function<bool(int)>& on_progress, bool* stopped);
+  nlohmann::json wait_job_end(long id, std::string* why, double stop_after_s = 0, bool* stopped = nullptr);
 
   StationSetup setup_;
   std::optional<testing::ChildProcess> sim_;
