@@ -5,6 +5,8 @@
 #include <unistd.h>
 
 #include <atomic>
+#include <cerrno>
+#include <cstring>
 #include <deque>
 #include <set>
 #include <stdexcept>
@@ -196,10 +198,17 @@ class AsioServer final : public ApiServer {
     stream_local::endpoint ep(path.string());
     unix_acceptor_->open(ep.protocol(), ec);
     if (!ec) unix_acceptor_->bind(ep, ec);
-    if (!ec) unix_acceptor_->listen(asio::socket_base::max_listen_connections, ec);
-    if (ec) throw std::runtime_error(fmt::format("api: cannot listen on {}: {}", path.string(), ec.message()));
-    ::chmod(path.c_str(), static_cast<mode_t>(options_.socket_mode));
+    if (ec) throw std::runtime_error(fmt::format("api: cannot bind {}: {}", path.string(), ec.message()));
     socket_file_ = path;
+    // Permissions before listen(): until then a connect() is refused, so no client ever reaches
+    // the socket with the looser mode bind() gave it.
+    if (::chmod(path.c_str(), static_cast<mode_t>(options_.socket_mode)) != 0) {
+      const int err = errno;
+      throw std::runtime_error(fmt::format("api: cannot set mode {:o} on {}: {}", options_.socket_mode, path.string(),
+                                           std::strerror(err)));
+    }
+    unix_acceptor_->listen(asio::socket_base::max_listen_connections, ec);
+    if (ec) throw std::runtime_error(fmt::format("api: cannot listen on {}: {}", path.string(), ec.message()));
   }
 
   void open_tcp() {

@@ -40,7 +40,7 @@ void append_row(std::string& out, const std::vector<std::string>& fields) {
 const std::vector<std::string> kRunCsvColumns = {
     "run_id", "serial", "lot", "station", "operator", "recipe", "recipe_version", "recipe_hash", "decision_rule",
     "started_utc", "ended_utc", "temperature_c", "calibration_id", "retest", "verdict", "failure_class", "reason",
-    "resonance_hz", "depth_db", "bandwidth_hz", "band_low_hz", "band_high_hz", "min_margin_db", "vswr_at_resonance",
+    "resonance_hz", "resonance_low_hz", "resonance_high_hz", "depth_db", "bandwidth_hz", "band_low_hz", "band_high_hz", "min_margin_db", "vswr_at_resonance",
     "mismatch_loss_db", "directivity_db", "trim_element_length_mm", "trim_change_mm", "trim_text", "total_s", "sweep_s",
     "analysis_s", "points"};
 
@@ -76,7 +76,7 @@ std::string csv_runs(const std::vector<core::RunResult>& runs) {
     append_row(out, {r.run_id, r.serial, r.lot, r.station, r.operator_name, r.recipe.name, r.recipe.version,
                      r.recipe.content_hash, r.decision_rule, r.started_utc, r.ended_utc, num(r.temperature_c),
                      r.calibration_id, r.retest ? "1" : "0", core::to_string(r.verdict), core::to_string(r.failure_class),
-                     r.reason, num(m.resonance_hz), num(m.depth_db), num(m.bandwidth_hz), num(m.band_low_hz),
+                     r.reason, num(m.resonance_hz), num(m.resonance_low_hz), num(m.resonance_high_hz), num(m.depth_db), num(m.bandwidth_hz), num(m.band_low_hz),
                      num(m.band_high_hz), num(m.min_margin_db), num(m.vswr_at_resonance), num(m.mismatch_loss_db),
                      num(m.directivity_db), r.trim ? num(r.trim->element_length_mm) : "",
                      r.trim ? num(r.trim->change_mm) : "", r.trim ? r.trim->text : "", num(r.timings.total_s),
@@ -223,6 +223,8 @@ Result<core::RunResult> run_from_json(const json& j) {
     r.reason = j.at("reason").get<std::string>();
     const json& m = j.at("metrics");
     r.metrics.resonance_hz = get_opt(m, "resonance_hz");
+    r.metrics.resonance_low_hz = get_opt(m, "resonance_low_hz");     // absent in exports before schema 5
+    r.metrics.resonance_high_hz = get_opt(m, "resonance_high_hz");
     r.metrics.depth_db = get_num(m, "depth_db");
     r.metrics.bandwidth_hz = get_opt(m, "bandwidth_hz");
     r.metrics.band_low_hz = get_opt(m, "band_low_hz");

@@ -34,6 +34,8 @@ class ExportTest : public ::testing::Test {
     auto a = testdata::make_run("WH915A-0001", "L7", 1, 915e6);
     a.reason = "has, a comma and \"quotes\"\nand a line break";
     a.points[7].return_loss_best_db = std::numeric_limits<double>::infinity();
+    a.metrics.resonance_low_hz = 913.5e6;    // the guarded window around the resonance
+    a.metrics.resonance_high_hz = 916.25e6;
     auto b = testdata::make_run("WH915A-0002", "L7", 2, 931.7e6, core::Verdict::fail, core::FailureClass::tuned_high);
     b.temperature_c.reset();
     ASSERT_TRUE(store_->save_run(a).ok());
@@ -101,6 +103,9 @@ TEST_F(ExportTest, RunsCsvRoundTripsReasonAndMetrics) {
   };
   EXPECT_EQ((*rows)[1][col("reason")], runs_[0].reason);
   EXPECT_EQ(parse_double((*rows)[1][col("resonance_hz")]), *runs_[0].metrics.resonance_hz);
+  EXPECT_EQ(parse_double((*rows)[1][col("resonance_low_hz")]), 913.5e6);
+  EXPECT_EQ(parse_double((*rows)[1][col("resonance_high_hz")]), 916.25e6);
+  EXPECT_EQ((*rows)[2][col("resonance_low_hz")], "");   // b has no window: empty cell
   EXPECT_EQ((*rows)[2][col("temperature_c")], "");
   EXPECT_EQ((*rows)[2][col("failure_class")], "tuned-high");
   EXPECT_EQ((*rows)[2][col("trim_text")], runs_[1].trim->text);
@@ -124,6 +129,8 @@ TEST_F(ExportTest, JsonLotDocumentRoundTripsEveryRun) {
     EXPECT_EQ(b.verdict, a.verdict);
     EXPECT_EQ(b.failure_class, a.failure_class);
     EXPECT_EQ(b.metrics.resonance_hz, a.metrics.resonance_hz);
+    EXPECT_EQ(b.metrics.resonance_low_hz, a.metrics.resonance_low_hz);
+    EXPECT_EQ(b.metrics.resonance_high_hz, a.metrics.resonance_high_hz);
     EXPECT_EQ(b.trim.has_value(), a.trim.has_value());
     ASSERT_EQ(b.points.size(), a.points.size());
     for (std::size_t i = 0; i < a.points.size(); ++i) {
