@@ -14,6 +14,7 @@
 #include "daemon/core/judge.hpp"
 #include "daemon/core/recipe_loader.hpp"
 #include "daemon/core/rf_math.hpp"
+#include "daemon/core/station_capability.hpp"
 #include "daemon/service/clock.hpp"
 #include "daemon/service/fast_capture.hpp"
 #include "daemon/store/export.hpp"
@@ -158,23 +159,7 @@ std::shared_ptr<const core::Recipe> Station::recipe() const {
 }
 
 core::StationCapability Station::capability(const core::Recipe& recipe) const {
-  core::StationCapability c;
-  const auto& fx = config_.fixture;
-  const auto& sp = instruments_->source_profile();
-  const auto& rp = instruments_->receiver_profile();
-  c.directivity_db = fx.nominal_directivity_db;
-  c.source_match_db = fx.source_match_db;
-  c.coupling_db = fx.coupling_db;
-  c.mainline_loss_db = fx.mainline_loss_db;
-  c.cable_loss_db = fx.cable_loss_db;
-  c.noise_floor_dbm = core::thermal_noise_floor_dbm(recipe.receiver.rbw_hz, rp.noise_figure_db);
-  c.receiver_max_safe_input_dbm = rp.max_safe_input_dbm;
-  c.source_min_hz = sp.min_frequency_hz;
-  c.source_max_hz = sp.max_frequency_hz;
-  c.receiver_min_hz = rp.min_frequency_hz;
-  c.receiver_max_hz = rp.max_frequency_hz;
-  c.source_max_power_dbm = sp.max_power_dbm;
-  return c;
+  return core::station_capability(config_.fixture, instruments_->source_profile(), instruments_->receiver_profile(), recipe);
 }
 
 std::vector<std::string> Station::standards() const {

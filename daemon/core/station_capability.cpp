@@ -1,0 +1,26 @@
+// Station capability from fixture figures and profiles.
+#include "daemon/core/station_capability.hpp"
+
+#include "daemon/core/rf_math.hpp"
+
+namespace echoline::core {
+
+StationCapability station_capability(const drivers::FixtureConfig& fixture, const drivers::Profile& source,
+                                     const drivers::Profile& receiver, const Recipe& recipe) {
+  StationCapability c;
+  c.directivity_db = fixture.nominal_directivity_db;
+  c.source_match_db = fixture.source_match_db;
+  c.coupling_db = fixture.coupling_db;
+  c.mainline_loss_db = fixture.mainline_loss_db;
+  c.cable_loss_db = fixture.cable_loss_db;
+  c.noise_floor_dbm = thermal_noise_floor_dbm(recipe.receiver.rbw_hz, receiver.noise_figure_db);
+  c.receiver_max_safe_input_dbm = receiver.max_safe_input_dbm;
+  c.source_min_hz = source.min_frequency_hz;
+  c.source_max_hz = source.max_frequency_hz;
+  c.receiver_min_hz = receiver.min_frequency_hz;
+  c.receiver_max_hz = receiver.max_frequency_hz;
+  c.source_max_power_dbm = source.max_power_dbm;
+  return c;
+}
+
+}  // namespace echoline::core
