@@ -5,7 +5,7 @@
 //     script (scripts/plain_sweep.py), on the `instant` latency profile;
 //   - the cycle time on the `bench` latency profile against the time the instruments impose
 //     (replies x command time + sweeps x sweep time + points x settle), from the sim's counters;
-//   - the daemon's resident memory after 100, 1000 (and optionally more) units.
+//   - the daemon's resident memory after 100, 1000 and 10 000 units (--memory-units).
 // Prints progress on stderr and one JSON document (raw samples) on stdout or --json FILE.
 // Asserts nothing about time. Single-threaded.
 #include <unistd.h>
@@ -251,7 +251,7 @@ json memory_growth(const std::filesystem::path& dir, SimProcess& sim, const std:
 
 int main(int argc, char** argv) try {
   bool quick = false;
-  int reps = 0, memory_units = 1000;
+  int reps = 0, memory_units = 10000;
   std::string json_file;
   std::vector<std::string> skip;
   for (int i = 1; i < argc; ++i) {
@@ -294,6 +294,7 @@ int main(int argc, char** argv) try {
     }
     if (!skipped("memory")) {
       std::vector<int> checkpoints{100};
+      if (memory_units > 1000) checkpoints.push_back(1000);
       if (memory_units > 100) checkpoints.push_back(memory_units);
       if (quick) checkpoints = {50, 200};
       std::cerr << "daemon memory (instant profile, settle 0):\n";
