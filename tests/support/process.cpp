@@ -122,7 +122,9 @@ std::optional<std::string> ChildProcess::read_line(std::chrono::milliseconds tim
     }
     if (out_fd_ < 0) return std::nullopt;
     auto left = std::chrono::duration_cast<std::chrono::milliseconds>(deadline - std::chrono::steady_clock::now());
-    if (left.count() <= 0) return std::nullopt;
+    // Poll at least once, also with no time left: a zero timeout reads what is already there
+    // (a caller draining a child's output must empty the pipe, or the child blocks on write).
+    if (left.count() < 0) left = std::chrono::milliseconds(0);
     pollfd pfd{out_fd_, POLLIN, 0};
     int r = poll(&pfd, 1, static_cast<int>(left.count()));
     if (r < 0 && errno == EINTR) continue;
