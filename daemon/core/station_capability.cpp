@@ -1,6 +1,8 @@
 // Station capability from fixture figures and profiles.
 #include "daemon/core/station_capability.hpp"
 
+#include <algorithm>
+
 #include "daemon/core/rf_math.hpp"
 
 namespace echoline::core {
@@ -13,7 +15,11 @@ StationCapability station_capability(const drivers::FixtureConfig& fixture, cons
   c.coupling_db = fixture.coupling_db;
   c.mainline_loss_db = fixture.mainline_loss_db;
   c.cable_loss_db = fixture.cable_loss_db;
-  c.noise_floor_dbm = thermal_noise_floor_dbm(recipe.receiver.rbw_hz, receiver.noise_figure_db);
+  // The RBW the readings are taken with (fast capture has its own), and the input attenuator:
+  // the displayed noise level referred to the input rises dB for dB with it (from memory:
+  // Agilent AN 150, "Spectrum Analysis Basics"; common practice). "auto" (-1) counts as 0.
+  const double rbw_hz = recipe.mode == SweepMode::fast_capture ? recipe.fast_capture.rbw_hz : recipe.receiver.rbw_hz;
+  c.noise_floor_dbm = thermal_noise_floor_dbm(rbw_hz, receiver.noise_figure_db) + std::max(0.0, recipe.receiver.attenuation_db);
   c.receiver_max_safe_input_dbm = receiver.max_safe_input_dbm;
   c.source_min_hz = source.min_frequency_hz;
   c.source_max_hz = source.max_frequency_hz;

@@ -11,7 +11,7 @@
 namespace echoline::core {
 
 // Nominal capability: the coupler's datasheet directivity (calibration measures the real one);
-// the noise floor is kTB + NF at the recipe's RBW.
+// the noise floor is kTB + NF at the RBW the recipe measures with, plus its input attenuation.
 StationCapability station_capability(const drivers::FixtureConfig& fixture, const drivers::Profile& source,
                                      const drivers::Profile& receiver, const Recipe& recipe);
 
