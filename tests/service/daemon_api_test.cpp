@@ -276,3 +276,33 @@ TEST(DaemonStart, StaleSocketIsReplacedAndTokenGuardsEngineerRole) {
 
 }  // namespace
 }  // namespace echoline::e2e
+
+namespace echoline::e2e {
+namespace {
+
+// Fast capture through the daemon: calibration and a unit in the same mode, one trace per sweep.
+TEST(DaemonFastCapture, CalibratesAndJudgesAUnitFromOneTrace) {
+  testing::TempDir dir("echoline-daemon-fast");
+  Sim sim("tiny-lot.jsonc");
+  Daemon daemon(write_station_config(dir.path(), sim, "whip915-fast.jsonc"));
+  Api api = Api::connect(daemon);
+  json status = api.call("status");
+  ASSERT_EQ(status["result"]["recipe"]["name"], "whip915-fast") << status.dump();
+  json cal = calibrate(api, sim);
+  ASSERT_EQ(cal["event"], "result") << cal.dump();
+  EXPECT_TRUE(cal["calibration"]["valid"].get<bool>()) << cal.dump();
+
+  const json before = sim.control({{"cmd", "status"}});
+  json run = test_unit(api, sim, "TINY-01", "TINY");
+  const json after = sim.control({{"cmd", "status"}});
+  EXPECT_NE(run["verdict"], "aborted") << run.dump();
+  EXPECT_EQ(run["points_count"], 201) << run.dump();
+  // One trace read instead of a marker query per point: the receiver answers a handful of
+  // queries per unit (sweep *OPC?, trace, error checks), not the step sweep's 400.
+  const double replies = after["instruments"]["receiver"]["replies"].get<double>() -
+                         before["instruments"]["receiver"]["replies"].get<double>();
+  EXPECT_LT(replies, 10) << replies;
+}
+
+}  // namespace
+}  // namespace echoline::e2e
