@@ -14,13 +14,13 @@
 
 #include <fmt/format.h>
 #include <spdlog/sinks/rotating_file_sink.h>
-#include <spdlog/sinks/stdout_color_sinks.h>
 #include <spdlog/spdlog.h>
 
 #include "daemon/service/api_handler.hpp"
 #include "daemon/service/api_server.hpp"
 #include "daemon/service/instruments.hpp"
 #include "daemon/service/sd_notify.hpp"
+#include "daemon/service/stderr_sink.hpp"
 #include "daemon/service/station.hpp"
 #include "drivers/config_error.hpp"
 #include "drivers/station_config.hpp"
@@ -117,7 +117,8 @@ Args parse_args(int argc, char** argv) {
 }
 
 void setup_logging(const drivers::StationConfig& config, const std::string& level) {
-  auto console = std::make_shared<spdlog::sinks::stderr_color_sink_mt>();
+  // SAFETY: never blocks on stderr (a paused terminal must not stall a sweep with RF on).
+  auto console = std::make_shared<service::DroppingStderrSink>();
   std::vector<spdlog::sink_ptr> sinks{console};
   if (!config.log_dir.empty()) {
     auto file = (config.log_dir / "echolined.log").string();
