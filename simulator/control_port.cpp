@@ -5,6 +5,7 @@
 #include <spdlog/spdlog.h>
 
 #include "simulator/physics/dut_models.hpp"
+#include "simulator/physics/truth.hpp"
 #include "simulator/sim_config.hpp"
 
 namespace echoline::sim {
@@ -33,9 +34,8 @@ json fault_to_json(const FaultSpec& spec) {
 }  // namespace
 
 ControlService::ControlService(World& world, const Lot* lot, std::map<std::string, InstrumentHost*> hosts,
-                               const SimClock& clock, std::string profile_name, double load_return_loss_db)
-    : world_(world), lot_(lot), hosts_(std::move(hosts)), clock_(clock), profile_name_(std::move(profile_name)),
-      load_return_loss_db_(load_return_loss_db) {}
+                               const SimClock& clock, std::string profile_name)
+    : world_(world), lot_(lot), hosts_(std::move(hosts)), clock_(clock), profile_name_(std::move(profile_name)) {}
 
 std::vector<Outgoing> ControlService::on_line(std::string_view line, const std::string& peer) {
   json reply = handle(line);
@@ -98,11 +98,11 @@ json ControlService::connect(const json& req) {
   if (req.contains("standard")) {
     const std::string standard = string_field(req, "standard");
     if (standard == "OPEN") {
-      world_.connected = make_open();
+      world_.connected = make_open(world_.standards);
     } else if (standard == "SHORT") {
-      world_.connected = make_short();
+      world_.connected = make_short(world_.standards);
     } else if (standard == "LOAD") {
-      world_.connected = make_load(load_return_loss_db_);
+      world_.connected = make_load(world_.standards);
     } else {
       return fail("connect: standard must be OPEN, SHORT or LOAD");
     }
@@ -136,13 +136,16 @@ json ControlService::truth(const json& req) {
       rl.push_back(std::isfinite(v) ? json(v) : json(nullptr));
     }
   }
+  const UnitTruth t = unit_truth(*unit);
   return json{{"ok", true},
               {"unit", unit->serial},
+              {"model", std::string(model_name(unit->model))},
               {"return_loss_db", rl},
               {"defect", unit->defect},
-              {"element_length_mm", unit->antenna.element_length_mm},
-              {"nominal_length_mm", unit->antenna.nominal_length_mm},
-              {"f0_hz", antenna_f0_hz(unit->antenna)}};
+              {"element_length_mm", element_length_mm(*unit)},
+              {"nominal_length_mm", nominal_length_mm(*unit)},
+              {"f0_hz", t.f0_hz},
+              {"depth_db", std::isfinite(t.depth_db) ? json(t.depth_db) : json(nullptr)}};
 }
 
 json ControlService::fault(const json& req) {

@@ -25,8 +25,9 @@ namespace echoline::sim {
 class ControlService final : public LineService {
  public:
   // REQUIRES: world, hosts, clock outlive the service; lot may be null (no lot loaded).
+  // The standards it connects are World::standards.
   ControlService(World& world, const Lot* lot, std::map<std::string, InstrumentHost*> hosts,
-                 const SimClock& clock, std::string profile_name, double load_return_loss_db = 42);
+                 const SimClock& clock, std::string profile_name);
 
   std::vector<Outgoing> on_line(std::string_view line, const std::string& peer) override;
   const std::string& role() const override { return role_; }
@@ -48,7 +49,6 @@ class ControlService final : public LineService {
   std::map<std::string, InstrumentHost*> hosts_;
   const SimClock& clock_;
   std::string profile_name_;
-  double load_return_loss_db_;
   std::uint64_t requests_ = 0;
 };
 

@@ -83,7 +83,9 @@ class SimInstrument {
 //                                 channel number -> what it connects: OPEN|SHORT|LOAD connect
 //                                 that standard; DUT leaves the World's connected DUT alone
 //                                 (the server's control port connects units)
-//   "load_return_loss_db" number  42               RL of the LOAD standard, dB
+//   "load_return_loss_db" number  (none)           RL of the LOAD standard at 1 GHz, dB (6 .. 80);
+//                                 when given it sets World::standards.load_return_loss_db
+//                                 (the bench file's "standards" key, which must then agree)
 std::unique_ptr<SimInstrument> make_source_instrument(World& world, const nlohmann::json& config);
 std::unique_ptr<SimInstrument> make_receiver_instrument(World& world, const nlohmann::json& config);
 std::unique_ptr<SimInstrument> make_switch_instrument(World& world, const nlohmann::json& config);

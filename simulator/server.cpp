@@ -74,20 +74,17 @@ struct Server::Impl {
 Server::Server(SimConfig config, std::optional<Lot> lot) : impl_(std::make_unique<Impl>(std::move(config), std::move(lot))) {
   Impl& s = *impl_;
   s.world.bench = s.config.bench;
+  s.world.standards = s.config.standards;  // a switch's "load_return_loss_db" may replace the LOAD's (it agrees)
   s.world.lot = s.lot ? &*s.lot : nullptr;
 
   std::map<std::string, InstrumentHost*> by_role;
-  double load_rl_db = 42;
   for (const auto& inst : s.config.instruments) {
     auto host = std::make_unique<InstrumentHost>(make_instrument(s.world, s.config, inst), s.world, s.clock, s.config.latency);
     for (const auto& spec : inst.faults) host->faults().arm(spec);
     by_role[inst.role] = host.get();
-    if (inst.role == "switch" && inst.settings.contains("load_return_loss_db") && inst.settings["load_return_loss_db"].is_number()) {
-      load_rl_db = inst.settings["load_return_loss_db"].get<double>();
-    }
     s.hosts.push_back(std::move(host));
   }
-  s.control = std::make_unique<ControlService>(s.world, s.world.lot, by_role, s.clock, s.config.latency.name, load_rl_db);
+  s.control = std::make_unique<ControlService>(s.world, s.world.lot, by_role, s.clock, s.config.latency.name);
 
   for (std::size_t i = 0; i < s.hosts.size(); ++i) s.open_endpoints(*s.hosts[i], s.config.instruments[i].endpoints);
   s.open_endpoints(*s.control, s.config.control);

@@ -53,6 +53,35 @@ BenchParams read_bench(const JsoncDocument& doc, const JsonPointer& at) {
   return b;
 }
 
+// "standards": every key optional, defaults in StandardsParams. A switch's older
+// "load_return_loss_db" setting still works; given in both places, the two must agree.
+StandardsParams read_standards(const JsoncDocument& doc, const JsonPointer& at) {
+  StandardsParams s;
+  if (!doc.has(at)) return s;
+  doc.require_object(at);
+  doc.check_keys(at, {"open_gamma_magnitude", "open_capacitance_ff", "short_gamma_magnitude", "short_inductance_ph",
+                      "load_return_loss_db"});
+  s.open_gamma_magnitude = doc.number_in(at / "open_gamma_magnitude", s.open_gamma_magnitude, 0.5, 1, "");
+  s.open_capacitance_ff = doc.number_in(at / "open_capacitance_ff", s.open_capacitance_ff, 0, 1000, "fF");
+  s.short_gamma_magnitude = doc.number_in(at / "short_gamma_magnitude", s.short_gamma_magnitude, 0.5, 1, "");
+  s.short_inductance_ph = doc.number_in(at / "short_inductance_ph", s.short_inductance_ph, 0, 1000, "pH");
+  s.load_return_loss_db = doc.number_in(at / "load_return_loss_db", s.load_return_loss_db, 6, 80, "dB");
+  return s;
+}
+
+void check_switch_load(const JsoncDocument& doc, const SimConfig& cfg) {
+  const JsonPointer standards_load = JsonPointer() / "standards" / "load_return_loss_db";
+  if (!doc.has(standards_load)) return;
+  for (const auto& inst : cfg.instruments) {
+    if (inst.role != "switch" || !inst.settings.contains("load_return_loss_db")) continue;
+    const auto& v = inst.settings["load_return_loss_db"];
+    if (!v.is_number() || v.get<double>() != cfg.standards.load_return_loss_db) {
+      doc.fail(JsonPointer() / "instruments" / "switch" / "settings" / "load_return_loss_db",
+               "differs from /standards/load_return_loss_db; give the LOAD's return loss in one place");
+    }
+  }
+}
+
 LatencyProfile read_latency(const JsoncDocument& doc, const JsonPointer& at) {
   const std::string name = doc.enum_or(at / "profile", "instant", {"instant", "bench"});
   LatencyProfile p = *latency_profile(name);
@@ -90,9 +119,10 @@ SimConfig from_document(const JsoncDocument& doc) {
   SimConfig cfg;
   cfg.file = doc.file();
   doc.require_object(root);
-  doc.check_keys(root, {"name", "bench", "latency", "lot", "control", "instruments"});
+  doc.check_keys(root, {"name", "bench", "standards", "latency", "lot", "control", "instruments"});
   cfg.name = doc.string_or(root / "name", "");
   cfg.bench = read_bench(doc, root / "bench");
+  cfg.standards = read_standards(doc, root / "standards");
   cfg.latency = read_latency(doc, root / "latency");
   if (auto lot = doc.optional_string(root / "lot")) {
     std::filesystem::path p(*lot);
@@ -113,6 +143,7 @@ SimConfig from_document(const JsoncDocument& doc) {
   for (const char* role : {"source", "receiver", "switch"}) {
     if (doc.has(insts / role)) cfg.instruments.push_back(read_instrument(doc, insts / role, role));
   }
+  check_switch_load(doc, cfg);
   return cfg;
 }
 

@@ -1,6 +1,6 @@
-// The echoline-sim configuration file (config/sim/*.jsonc): bench physics, the instruments with
-// their endpoints, settings and faults, the control port, the latency profile and the default
-// lot. Loading throws drivers::ConfigError ("<file>:<line>: <key>: <message>") at start-up;
+// The echoline-sim configuration file (config/sim/*.jsonc): bench physics, the calibration
+// standards, the instruments with their endpoints, settings and faults, the control port, the
+// latency profile and the default lot. Loading throws drivers::ConfigError ("<file>:<line>: <key>: <message>") at start-up;
 // the result is plain data. Threading: none (load once, then read).
 #pragma once
 
@@ -15,6 +15,7 @@
 #include "simulator/faults.hpp"
 #include "simulator/latency.hpp"
 #include "simulator/physics/bench.hpp"
+#include "simulator/physics/standards.hpp"
 
 namespace echoline::sim {
 
@@ -41,6 +42,7 @@ struct SimConfig {
   std::string file;                       // as given
   std::string name;                       // "name": free text for logs
   BenchParams bench;                      // "bench": fixture physics (BenchParams fields)
+  StandardsParams standards;              // "standards": OPEN/SHORT/LOAD (StandardsParams fields)
   LatencyProfile latency;                 // "latency": {"profile", "command_ms", "delay_scale", "instant_step_s"}
   std::optional<std::filesystem::path> lot;   // "lot": default lot file, relative to this file
   EndpointConfig control;                 // "control": the control port (TCP only)

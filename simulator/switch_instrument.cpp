@@ -15,7 +15,12 @@ namespace echoline::sim {
 SwitchConfig switch_config_from_json(const nlohmann::json& config) {
   SwitchConfig c;
   c.identity = detail::config_identity(config, c.identity);
-  c.load_return_loss_db = detail::config_number(config, "load_return_loss_db", c.load_return_loss_db);
+  if (config.is_object() && config.contains("load_return_loss_db")) {
+    c.load_return_loss_db = detail::config_number(config, "load_return_loss_db", 42);
+    if (!(*c.load_return_loss_db >= 6 && *c.load_return_loss_db <= 80)) {
+      throw std::invalid_argument("instrument settings: \"load_return_loss_db\": must be 6 .. 80 dB");
+    }
+  }
   if (config.is_object() && config.contains("positions")) {
     const auto& p = config.at("positions");
     if (!p.is_object() || p.empty()) throw std::invalid_argument("instrument settings: \"positions\": must be an object {\"<channel>\": \"OPEN|SHORT|LOAD|DUT\"}");
@@ -40,6 +45,7 @@ namespace {
 class SwitchInstrument final : public SimInstrument {
  public:
   SwitchInstrument(World& world, SwitchConfig config) : world_(world), config_(std::move(config)) {
+    if (config_.load_return_loss_db) world_.standards.load_return_loss_db = *config_.load_return_loss_db;
     add_common_commands(tree_, status_, CommonHooks{[this] { return config_.identity; }, [] { /* *RST keeps the position */ }});
     add_commands();
   }
@@ -69,9 +75,9 @@ class SwitchInstrument final : public SimInstrument {
         parked_ = std::move(world_.connected);
         parked_name_ = world_.connected_name;
       }
-      if (what == "OPEN") world_.connected = make_open();
-      else if (what == "SHORT") world_.connected = make_short();
-      else world_.connected = make_load(config_.load_return_loss_db);
+      if (what == "OPEN") world_.connected = make_open(world_.standards);
+      else if (what == "SHORT") world_.connected = make_short(world_.standards);
+      else world_.connected = make_load(world_.standards);
       world_.connected_name = what;
       placed_name_ = what;
     }

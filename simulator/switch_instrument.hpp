@@ -5,6 +5,7 @@
 #pragma once
 
 #include <map>
+#include <optional>
 #include <string>
 
 #include <nlohmann/json_fwd.hpp>
@@ -15,7 +16,9 @@ namespace echoline::sim {
 struct SwitchConfig {
   std::string identity = "Echoline,SIM-SW,SW0001,1.0";
   std::map<int, std::string> positions{{1, "OPEN"}, {2, "SHORT"}, {3, "LOAD"}, {4, "DUT"}};
-  double load_return_loss_db = 42;
+  // "load_return_loss_db": the LOAD's return loss; when given it replaces
+  // World::standards.load_return_loss_db (the bench file's "standards" object) at creation.
+  std::optional<double> load_return_loss_db;
 };
 
 // Throws std::invalid_argument naming the key ("positions" values must be OPEN|SHORT|LOAD|DUT).

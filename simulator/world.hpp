@@ -9,6 +9,7 @@
 #include <string>
 
 #include "simulator/physics/bench.hpp"
+#include "simulator/physics/standards.hpp"
 
 namespace echoline::sim {
 
@@ -16,6 +17,7 @@ struct Lot;  // simulator/physics/lot.hpp
 
 struct World {
   BenchParams bench;                    // fixture between source, DUT and receiver
+  StandardsParams standards;            // the OPEN/SHORT/LOAD that the switch and the control port connect
 
   // Source state as the receiver sees it (written by the source instrument).
   double source_frequency_hz = 915e6;   // CW frequency, Hz

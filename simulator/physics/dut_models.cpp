@@ -1,4 +1,4 @@
-// Calibration standards, the series-RLC antenna and broken feeds as reflection coefficients.
+// The series-RLC antenna and broken feeds as reflection coefficients.
 #include "simulator/physics/dut_models.hpp"
 
 #include <cmath>
@@ -13,47 +13,6 @@ namespace {
 
 constexpr double kZ0 = 50.0;
 constexpr double kTwoPi = 2.0 * std::numbers::pi;
-
-// OPEN standard: an open end with fringing capacitance, |Gamma| = 1, phase -2*atan(w*C*Z0).
-class OpenStandard final : public Dut {
- public:
-  Complex gamma(double f) const override {
-    const Complex z = 1.0 / Complex(0.0, kTwoPi * f * kFringeFarad);
-    return gamma_of_impedance(z, kZ0);
-  }
-  std::string describe() const override { return "OPEN standard (10 fF fringing)"; }
-
- private:
-  static constexpr double kFringeFarad = 10e-15;
-};
-
-// SHORT standard: a short with a little series inductance, |Gamma| = 1.
-class ShortStandard final : public Dut {
- public:
-  Complex gamma(double f) const override {
-    return gamma_of_impedance(Complex(0.0, kTwoPi * f * kInductanceHenry), kZ0);
-  }
-  std::string describe() const override { return "SHORT standard (10 pH)"; }
-
- private:
-  static constexpr double kInductanceHenry = 10e-12;
-};
-
-// LOAD standard: a good termination whose match degrades slowly with frequency
-// (|Gamma| grows 10 % per GHz above 1 GHz), phase near +90 degrees (residual inductance).
-class LoadStandard final : public Dut {
- public:
-  explicit LoadStandard(double return_loss_db) : rl_db_(return_loss_db), rho_1ghz_(std::pow(10.0, -return_loss_db / 20.0)) {}
-  Complex gamma(double f) const override {
-    const double slope = std::max(0.5, 1.0 + 0.1 * (f / 1e9 - 1.0));
-    return std::polar(rho_1ghz_ * slope, std::numbers::pi / 2.0 - kTwoPi * f * 15e-12);
-  }
-  std::string describe() const override { return fmt::format("LOAD standard ({:.1f} dB at 1 GHz)", rl_db_); }
-
- private:
-  double rl_db_;
-  double rho_1ghz_;
-};
 
 class Antenna final : public Dut {
  public:
@@ -115,9 +74,6 @@ Complex antenna_impedance(const AntennaParams& p, double frequency_hz) {
   return {rlc.r_ohm, w * rlc.l_henry - 1.0 / (w * rlc.c_farad)};
 }
 
-std::unique_ptr<Dut> make_open() { return std::make_unique<OpenStandard>(); }
-std::unique_ptr<Dut> make_short() { return std::make_unique<ShortStandard>(); }
-std::unique_ptr<Dut> make_load(double return_loss_db) { return std::make_unique<LoadStandard>(return_loss_db); }
 std::unique_ptr<Dut> make_antenna(const AntennaParams& p) { return std::make_unique<Antenna>(p); }
 std::unique_ptr<Dut> make_open_feed(double loss_db) { return std::make_unique<BrokenFeed>(true, loss_db); }
 std::unique_ptr<Dut> make_shorted_feed(double loss_db) { return std::make_unique<BrokenFeed>(false, loss_db); }

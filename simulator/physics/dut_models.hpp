@@ -1,28 +1,23 @@
-// Models of what can sit at the simulated test port: the OPEN/SHORT/LOAD standards and a
-// series-RLC antenna around its resonance. Pure functions of frequency; a Dut is immutable
-// after construction except for on_sweep() (intermittent units), called from one thread.
+// Models of what can sit at the simulated test port: a series-RLC antenna around its
+// resonance and broken feeds (the standards are in standards.hpp, the wire monopole in
+// wire_monopole.hpp). Pure functions of frequency; a Dut is immutable after construction
+// except for on_sweep() (intermittent units), called from one thread.
 #pragma once
 
 #include <memory>
 
 #include "simulator/physics/bench.hpp"
+#include "simulator/physics/standards.hpp"
 
 namespace echoline::sim {
 
-// OPEN standard: Gamma = +1 with a small fringing capacitance (tiny phase turn).
-std::unique_ptr<Dut> make_open();
-// SHORT standard: Gamma = -1 with a small series inductance.
-std::unique_ptr<Dut> make_short();
-// LOAD standard: |Gamma| = 10^(-return_loss_db/20) at 1 GHz with a slight frequency slope.
-std::unique_ptr<Dut> make_load(double return_loss_db = 42);
-
 // A series RLC around resonance: Z = R + extra + j(wL - 1/(wC)), L = Q*R/w0, C = 1/(w0*Q*R).
 struct AntennaParams {
-  double element_length_mm;      // this unit's radiating element
-  double nominal_length_mm;      // the design length
-  double nominal_f0_hz;          // resonance of an element of nominal length
-  double q;                      // loaded Q at resonance (uses resistance_ohm)
-  double resistance_ohm;         // radiation + loss resistance at resonance
+  double element_length_mm = 0;  // this unit's radiating element
+  double nominal_length_mm = 0;  // the design length
+  double nominal_f0_hz = 0;      // resonance of an element of nominal length
+  double q = 0;                  // loaded Q at resonance (uses resistance_ohm)
+  double resistance_ohm = 0;     // radiation + loss resistance at resonance
   double extra_series_ohm = 0;   // corrosion / lossy joint, added in series
 };
 

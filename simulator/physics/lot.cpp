@@ -1,13 +1,11 @@
-// Lot files -> reproducible simulated units; the DUT each unit presents at the test port.
+// Lot files -> reproducible simulated units of either antenna model; the DUT each unit
+// presents at the test port.
 #include "simulator/physics/lot.hpp"
 
 #include <algorithm>
 #include <cmath>
 #include <fstream>
 #include <limits>
-#include <map>
-#include <numbers>
-#include <optional>
 #include <set>
 #include <sstream>
 #include <stdexcept>
@@ -15,10 +13,14 @@
 #include <fmt/format.h>
 #include <nlohmann/json.hpp>
 
+#include "simulator/physics/lot_file.hpp"
+
 namespace echoline::sim {
 namespace {
 
-using nlohmann::json;
+using lot_file::json;
+using lot_file::Reader;
+using lot_file::Rng;
 
 const std::vector<std::string>& defect_names() {
   static const std::vector<std::string> names = {"open-feed", "shorted-feed", "too-long",
@@ -26,109 +28,21 @@ const std::vector<std::string>& defect_names() {
   return names;
 }
 
-// SplitMix64 (Steele, Lea & Flood 2014): a portable generator, so the same seed gives the same
-// units with any standard library (std:: distributions are implementation-defined).
-std::uint64_t splitmix64(std::uint64_t& state) {
-  std::uint64_t z = (state += 0x9E3779B97F4A7C15ull);
-  z = (z ^ (z >> 30)) * 0xBF58476D1CE4E5B9ull;
-  z = (z ^ (z >> 27)) * 0x94D049BB133111EBull;
-  return z ^ (z >> 31);
-}
-
-std::uint64_t mix(std::uint64_t value) { return splitmix64(value); }
-
-class Rng {
- public:
-  explicit Rng(std::uint64_t seed) : state_(seed) {}
-  double uniform() { return static_cast<double>(splitmix64(state_) >> 11) * 0x1.0p-53; }  // [0, 1)
-  double uniform(double lo, double hi) { return lo + (hi - lo) * uniform(); }
-  double normal() {  // Box-Muller, one value per call
-    const double u1 = 1.0 - uniform();  // (0, 1]
-    const double u2 = uniform();
-    return std::sqrt(-2.0 * std::log(u1)) * std::cos(2.0 * std::numbers::pi * u2);
-  }
-  std::size_t below(std::size_t n) { return static_cast<std::size_t>(uniform() * static_cast<double>(n)); }
-
- private:
-  std::uint64_t state_;
-};
-
-std::uint64_t fnv1a(std::string_view text) {
-  std::uint64_t h = 0xcbf29ce484222325ull;
-  for (unsigned char c : text) h = (h ^ c) * 0x100000001b3ull;
-  return h;
-}
-
-// Reads typed keys from the lot object; every failure names the file and the key.
-class Reader {
- public:
-  Reader(const json& root, std::string file) : root_(root), file_(std::move(file)) {}
-
-  [[noreturn]] void fail(const std::string& key, const std::string& message) const {
-    throw std::runtime_error(fmt::format("{}: {}: {}", file_, key, message));
-  }
-
-  const json* find(const std::string& key) const {
-    const auto it = root_.find(key);
-    return it == root_.end() ? nullptr : &*it;
-  }
-  const json& need(const std::string& key) const {
-    const json* v = find(key);
-    if (v == nullptr) fail(key, "missing (required)");
-    return *v;
-  }
-  std::string string(const std::string& key) const {
-    const json& v = need(key);
-    if (!v.is_string() || v.get<std::string>().empty()) fail(key, "expected a non-empty string");
-    return v.get<std::string>();
-  }
-  double number(const std::string& key, double lo, double hi, std::optional<double> fallback = std::nullopt) const {
-    const json* v = find(key);
-    if (v == nullptr) {
-      if (fallback) return *fallback;
-      fail(key, "missing (required)");
-    }
-    return checked_number(*v, key, lo, hi);
-  }
-  double checked_number(const json& v, const std::string& key, double lo, double hi) const {
-    if (!v.is_number()) fail(key, "expected a number");
-    const double x = v.get<double>();
-    if (!(x >= lo && x <= hi)) fail(key, fmt::format("{} is outside {} .. {}", x, lo, hi));
-    return x;
-  }
-  std::uint64_t unsigned_integer(const std::string& key, std::uint64_t lo, std::uint64_t hi,
-                                 std::optional<std::uint64_t> fallback = std::nullopt) const {
-    const json* v = find(key);
-    if (v == nullptr) {
-      if (fallback) return *fallback;
-      fail(key, "missing (required)");
-    }
-    if (!v->is_number_unsigned()) fail(key, "expected a whole number >= 0");
-    const auto x = v->get<std::uint64_t>();
-    if (x < lo || x > hi) fail(key, fmt::format("{} is outside {} .. {}", x, lo, hi));
-    return x;
-  }
-  // [min, max] with lo <= min <= max <= hi; `fallback` when absent.
-  std::pair<double, double> range(const std::string& key, double lo, double hi, std::pair<double, double> fallback) const {
-    const json* v = find(key);
-    if (v == nullptr) return fallback;
-    if (!v->is_array() || v->size() != 2) fail(key, "expected [min, max]");
-    const double a = checked_number((*v)[0], key + "[0]", lo, hi);
-    const double b = checked_number((*v)[1], key + "[1]", lo, hi);
-    if (a > b) fail(key, "min is greater than max");
-    return {a, b};
-  }
-
- private:
-  const json& root_;
-  std::string file_;
-};
-
-const std::set<std::string>& known_keys() {
+// Keys every lot may have, and the keys of each model (a key of the other model is refused
+// by name, so a series-RLC "q" in a wire lot cannot be silently ignored).
+const std::set<std::string>& common_keys() {
   static const std::set<std::string> keys = {
-      "name", "count", "serial_pattern", "first_number", "seed", "nominal_length_mm", "nominal_f0_hz",
-      "length_spread_mm", "q", "q_spread", "resistance_ohm", "resistance_spread_ohm", "defects",
-      "too_long_mm", "too_short_mm", "lossy_extra_ohm", "description"};
+      "name", "description", "model", "count", "serial_pattern", "first_number", "seed", "nominal_length_mm",
+      "length_spread_mm", "defects", "too_long_mm", "too_short_mm", "lossy_extra_ohm"};
+  return keys;
+}
+const std::set<std::string>& rlc_keys() {
+  static const std::set<std::string> keys = {"nominal_f0_hz", "q", "q_spread", "resistance_ohm", "resistance_spread_ohm"};
+  return keys;
+}
+const std::set<std::string>& wire_keys() {
+  static const std::set<std::string> keys = {"wire_diameter_mm", "wire_diameter_spread_mm", "loss_resistance_ohm",
+                                             "loss_resistance_spread_ohm", "feed_inductance_nh"};
   return keys;
 }
 
@@ -141,15 +55,17 @@ int line_of_byte(std::string_view text, std::size_t byte) {
 // (seed, serial, sweep index) so a rerun of the same sweeps sees the same pattern.
 class IntermittentUnit final : public Dut {
  public:
-  IntermittentUnit(const AntennaParams& p, std::uint64_t key)
-      : good_(make_antenna(p)), open_(make_open_feed()), key_(key) {
+  IntermittentUnit(std::unique_ptr<Dut> good, std::uint64_t key)
+      : good_(std::move(good)), open_(make_open_feed()), key_(key) {
     on_sweep(0);
   }
   Complex gamma(double f) const override { return (is_open_ ? open_ : good_)->gamma(f); }
   std::string describe() const override {
     return fmt::format("intermittent feed (now {}): {}", is_open_ ? "open" : "good", good_->describe());
   }
-  void on_sweep(std::uint64_t sweep_index) override { is_open_ = (mix(key_ ^ mix(sweep_index)) >> 63) != 0; }
+  void on_sweep(std::uint64_t sweep_index) override {
+    is_open_ = (lot_file::mix(key_ ^ lot_file::mix(sweep_index)) >> 63) != 0;
+  }
 
  private:
   std::unique_ptr<Dut> good_;
@@ -158,7 +74,27 @@ class IntermittentUnit final : public Dut {
   bool is_open_ = false;
 };
 
+// The model-specific part of a lot file, read once; draw() makes one unit's antenna from
+// four normal/uniform draws taken in a fixed order (length, then two model parameters, then
+// the defect's extent) whatever the model and the defect.
+struct RlcDesign {
+  double nominal_f0, q, q_spread, resistance, resistance_spread;
+};
+struct WireDesign {
+  double diameter, diameter_spread, loss, loss_spread, feed_nh;
+};
+
 }  // namespace
+
+std::string_view model_name(AntennaModel m) { return m == AntennaModel::wire_monopole ? "wire-monopole" : "series-rlc"; }
+
+double element_length_mm(const SimUnit& u) {
+  return u.model == AntennaModel::wire_monopole ? u.wire.element_length_mm : u.antenna.element_length_mm;
+}
+
+double nominal_length_mm(const SimUnit& u) {
+  return u.model == AntennaModel::wire_monopole ? u.wire.nominal_length_mm : u.antenna.nominal_length_mm;
+}
 
 const SimUnit* Lot::find(std::string_view serial) const {
   for (const SimUnit& u : units) {
@@ -176,8 +112,23 @@ Lot parse_lot(std::string_view text, const std::string& file_name) {
   }
   if (!root.is_object()) throw std::runtime_error(fmt::format("{}: (top level): expected an object", file_name));
   const Reader r(root, file_name);
+
+  AntennaModel model = AntennaModel::series_rlc;
+  if (const json* m = r.find("model")) {
+    const std::string name = m->is_string() ? m->get<std::string>() : std::string();
+    if (name == "wire-monopole") {
+      model = AntennaModel::wire_monopole;
+    } else if (name != "series-rlc") {
+      r.fail("model", "expected \"series-rlc\" (the default) or \"wire-monopole\"");
+    }
+  }
+  const bool wire = model == AntennaModel::wire_monopole;
   for (const auto& [key, value] : root.items()) {
-    if (!known_keys().contains(key)) r.fail(key, "unknown key");
+    if (common_keys().contains(key) || (wire ? wire_keys() : rlc_keys()).contains(key)) continue;
+    if ((wire ? rlc_keys() : wire_keys()).contains(key)) {
+      r.fail(key, fmt::format("a key of model {}, not of model {}", wire ? "series-rlc" : "wire-monopole", model_name(model)));
+    }
+    r.fail(key, "unknown key");
   }
 
   Lot lot;
@@ -187,15 +138,29 @@ Lot parse_lot(std::string_view text, const std::string& file_name) {
   const std::uint64_t first = r.unsigned_integer("first_number", 0, 1'000'000'000, 1);
   lot.seed = r.unsigned_integer("seed", 0, std::numeric_limits<std::uint64_t>::max());
   const double nominal_length = r.number("nominal_length_mm", 1e-3, 1e5);
-  const double nominal_f0 = r.number("nominal_f0_hz", 1e3, 1e12);
-  const double spread = r.number("length_spread_mm", 0, nominal_length / 10);
-  const double q = r.number("q", 0.5, 1000);
-  const double q_spread = r.number("q_spread", 0, 0.3, 0.0);
-  const double resistance = r.number("resistance_ohm", 0.1, 1e4);
-  const double resistance_spread = r.number("resistance_spread_ohm", 0, resistance / 4, 0.0);
+  RlcDesign rlc{};
+  WireDesign wd{};
+  double spread = 0;
+  std::pair<double, double> lossy;
+  if (wire) {
+    spread = r.number("length_spread_mm", 0, nominal_length / 10);
+    wd.diameter = r.number("wire_diameter_mm", 1e-3, nominal_length / 1.5);
+    wd.diameter_spread = r.number("wire_diameter_spread_mm", 0, wd.diameter / 4, 0.0);
+    wd.loss = r.number("loss_resistance_ohm", 0, 1e3, 0.0);
+    wd.loss_spread = r.number("loss_resistance_spread_ohm", 0, std::max(wd.loss, 0.0), 0.0);
+    wd.feed_nh = r.number("feed_inductance_nh", 0, 1e3, 0.0);
+    lossy = r.range("lossy_extra_ohm", 0, 1e5, {80.0, 160.0});
+  } else {
+    rlc.nominal_f0 = r.number("nominal_f0_hz", 1e3, 1e12);
+    spread = r.number("length_spread_mm", 0, nominal_length / 10);
+    rlc.q = r.number("q", 0.5, 1000);
+    rlc.q_spread = r.number("q_spread", 0, 0.3, 0.0);
+    rlc.resistance = r.number("resistance_ohm", 0.1, 1e4);
+    rlc.resistance_spread = r.number("resistance_spread_ohm", 0, rlc.resistance / 4, 0.0);
+    lossy = r.range("lossy_extra_ohm", 0, 1e5, {2 * rlc.resistance, 4 * rlc.resistance});
+  }
   const auto too_long = r.range("too_long_mm", 0, nominal_length, {4 * spread, 6 * spread});
   const auto too_short = r.range("too_short_mm", 0, nominal_length / 2, {4 * spread, 6 * spread});
-  const auto lossy = r.range("lossy_extra_ohm", 0, 1e5, {2 * resistance, 4 * resistance});
 
   // Defect labels: round(fraction * count) units of each, placed at shuffled positions.
   std::vector<std::string> labels;
@@ -229,24 +194,38 @@ Lot parse_lot(std::string_view text, const std::string& file_name) {
       r.fail("serial_pattern", fmt::format("gives serial \"{}\" twice; it needs a number placeholder like {{:04d}}", u.serial));
     }
     u.defect = labels[i];
-    // Fixed draw order per unit (length, Q, R, defect extent) whatever the defect.
+    u.model = model;
+    // Fixed draw order per unit (length, two model parameters, defect extent) whatever the defect.
     const double length_draw = rng.normal();
-    const double q_draw = rng.normal();
-    const double r_draw = rng.normal();
+    const double second_draw = rng.normal();
+    const double third_draw = rng.normal();
     const double defect_draw = rng.uniform();
-    u.antenna.nominal_length_mm = nominal_length;
-    u.antenna.nominal_f0_hz = nominal_f0;
-    u.antenna.element_length_mm = nominal_length + spread * length_draw;
-    u.antenna.q = std::max(0.5, q * (1.0 + q_spread * q_draw));
-    u.antenna.resistance_ohm = std::max(0.1, resistance + resistance_spread * r_draw);
+    double length = nominal_length + spread * length_draw;
     if (u.defect == "too-long") {
-      u.antenna.element_length_mm = nominal_length + too_long.first + (too_long.second - too_long.first) * defect_draw;
+      length = nominal_length + too_long.first + (too_long.second - too_long.first) * defect_draw;
     } else if (u.defect == "too-short") {
-      u.antenna.element_length_mm = nominal_length - too_short.first - (too_short.second - too_short.first) * defect_draw;
-    } else if (u.defect == "lossy") {
-      u.antenna.extra_series_ohm = lossy.first + (lossy.second - lossy.first) * defect_draw;
+      length = nominal_length - too_short.first - (too_short.second - too_short.first) * defect_draw;
     }
-    if (!(u.antenna.element_length_mm > 0)) r.fail("too_short_mm", fmt::format("unit {} would have no element left", u.serial));
+    const double extra = u.defect == "lossy" ? lossy.first + (lossy.second - lossy.first) * defect_draw : 0.0;
+    if (!(length > 0)) r.fail("too_short_mm", fmt::format("unit {} would have no element left", u.serial));
+    if (wire) {
+      u.wire.nominal_length_mm = nominal_length;
+      u.wire.element_length_mm = length;
+      u.wire.wire_diameter_mm = std::max(0.1 * wd.diameter, wd.diameter + wd.diameter_spread * second_draw);
+      u.wire.loss_resistance_ohm = std::max(0.0, wd.loss + wd.loss_spread * third_draw);
+      u.wire.extra_loss_ohm = extra;
+      u.wire.feed_inductance_nh = wd.feed_nh;
+      if (!(length / u.wire.wire_diameter_mm > 1.4)) {
+        r.fail("wire_diameter_mm", fmt::format("unit {}: the element must be longer than 1.4 wire diameters", u.serial));
+      }
+    } else {
+      u.antenna.nominal_length_mm = nominal_length;
+      u.antenna.nominal_f0_hz = rlc.nominal_f0;
+      u.antenna.element_length_mm = length;
+      u.antenna.q = std::max(0.5, rlc.q * (1.0 + rlc.q_spread * second_draw));
+      u.antenna.resistance_ohm = std::max(0.1, rlc.resistance + rlc.resistance_spread * third_draw);
+      u.antenna.extra_series_ohm = extra;
+    }
     lot.units.push_back(std::move(u));
   }
   return lot;
@@ -260,16 +239,22 @@ Lot load_lot(const std::filesystem::path& file) {
   return parse_lot(text.str(), file.string());
 }
 
+std::unique_ptr<Dut> make_unit_antenna(const SimUnit& unit) {
+  if (unit.model == AntennaModel::wire_monopole) return make_wire_monopole(unit.wire);
+  return make_antenna(unit.antenna);
+}
+
 std::unique_ptr<Dut> make_unit_dut(const SimUnit& unit, std::uint64_t seed) {
   if (unit.defect == "open-feed") return make_open_feed();
   if (unit.defect == "shorted-feed") return make_shorted_feed();
-  if (unit.defect == "intermittent") return std::make_unique<IntermittentUnit>(unit.antenna, mix(seed ^ fnv1a(unit.serial)));
-  return make_antenna(unit.antenna);  // good, too-long, too-short, lossy: the parameters say it all
+  if (unit.defect == "intermittent") {
+    return std::make_unique<IntermittentUnit>(make_unit_antenna(unit), lot_file::mix(seed ^ lot_file::fnv1a(unit.serial)));
+  }
+  return make_unit_antenna(unit);  // good, too-long, too-short, lossy: the parameters say it all
 }
 
 double true_return_loss_db(const SimUnit& unit, double frequency_hz) {
-  const std::unique_ptr<Dut> dut =
-      unit.defect == "intermittent" ? make_antenna(unit.antenna) : make_unit_dut(unit, 0);
+  const std::unique_ptr<Dut> dut = unit.defect == "intermittent" ? make_unit_antenna(unit) : make_unit_dut(unit, 0);
   return -20.0 * std::log10(std::abs(dut->gamma(frequency_hz)));
 }
 

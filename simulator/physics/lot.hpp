@@ -1,6 +1,7 @@
 // Simulated production lots: a lot file (config/sim/lots/*.jsonc) seeds a reproducible list of
-// units, each with its antenna parameters and an optional defect. load_lot() reads a file
-// (throws at this edge); everything else is pure. A Lot is immutable and may be shared read-only.
+// units, each with its antenna model ("series-rlc" or "wire-monopole"), its parameters and an
+// optional defect. load_lot() reads a file (throws at this edge); everything else is pure.
+// A Lot is immutable and may be shared read-only.
 #pragma once
 
 #include <cstdint>
@@ -11,14 +12,29 @@
 #include <vector>
 
 #include "simulator/physics/dut_models.hpp"
+#include "simulator/physics/wire_monopole.hpp"
 
 namespace echoline::sim {
 
+// The antenna physics of a lot: the lot file's "model" key.
+enum class AntennaModel { series_rlc, wire_monopole };
+std::string_view model_name(AntennaModel);  // "series-rlc" | "wire-monopole"
+
 struct SimUnit {
   std::string serial;
-  AntennaParams antenna;
-  std::string defect;  // "", "open-feed", "shorted-feed", "too-long", "too-short", "lossy", "intermittent"
+  AntennaParams antenna;  // series-rlc units (all zero for wire-monopole units)
+  std::string defect;     // "", "open-feed", "shorted-feed", "too-long", "too-short", "lossy", "intermittent"
+  AntennaModel model = AntennaModel::series_rlc;
+  WireMonopoleParams wire;  // wire-monopole units (all zero for series-rlc units)
 };
+
+// The unit's element and design lengths, whatever its model (mm).
+double element_length_mm(const SimUnit&);
+double nominal_length_mm(const SimUnit&);
+
+// The unit's antenna with its length and loss, as if its feed were sound (open-feed,
+// shorted-feed and intermittent units: the antenna behind the feed).
+std::unique_ptr<Dut> make_unit_antenna(const SimUnit&);
 
 struct Lot {
   std::string name;

@@ -114,13 +114,14 @@ TEST(PhysicsDutModels, ExtraSeriesResistanceMakesTheDipShallow) {
   EXPECT_GT(return_loss_db(make_antenna(good)->gamma(915e6)), 20.0);
 }
 
-TEST(PhysicsDutModels, OpenAndShortReflectFullyWithTinyPhase) {
+TEST(PhysicsDutModels, OpenAndShortReflectAlmostFullyWithTinyPhase) {
   const auto open = make_open();
   const auto shrt = make_short();
   for (const double f : {100e6, 915e6, 2.44e9, 6e9}) {
-    // lossless standards: |Gamma| = 1 (common practice, no source)
-    EXPECT_NEAR(std::abs(open->gamma(f)), 1.0, 1e-12);
-    EXPECT_NEAR(std::abs(shrt->gamma(f)), 1.0, 1e-12);
+    // the default standards lose a little: |Gamma| = 0.998, 0.017 dB (common practice, no
+    // source: a good connector-type OPEN or SHORT reflects within a few thousandths of 1)
+    EXPECT_NEAR(std::abs(open->gamma(f)), 0.998, 1e-12);
+    EXPECT_NEAR(std::abs(shrt->gamma(f)), 0.998, 1e-12);
     // 10 fF fringing: phase = -2*atan(w*C*Z0) (closed form of (Z - Z0)/(Z + Z0), Z = 1/(jwC))
     EXPECT_NEAR(std::arg(open->gamma(f)), -2 * std::atan(2 * kPi * f * 10e-15 * 50), 1e-12);
     EXPECT_LT(std::abs(std::arg(open->gamma(f))), 0.05);
