@@ -10,6 +10,7 @@
 #include "daemon/client/commands.hpp"
 #include "daemon/client/exit_codes.hpp"
 #include "drivers/config_error.hpp"
+#include "echoline/version.hpp"
 
 namespace {
 
@@ -31,6 +32,9 @@ constexpr const char* kHelp =
     "  export              runs as CSV or JSON (--scope run|serial|lot, --key, --format, --out)\n"
     "  cal status|history  the calibration in use; the calibrations used so far\n"
     "  status              the daemon's station, recipe, instruments, calibration, current job\n"
+    "\n"
+    "  --version           print the version and the commit it was built from, as in\n"
+    "                      echoline 0.2.0 (g1234abc), and exit\n"
     "\n"
     "exit codes:\n"
     "  0  done (the console session ended normally; no errors found)\n"
@@ -55,6 +59,10 @@ int main(int argc, char** argv) {
   const std::string command = args.front();
   if (command == "--help" || command == "-h" || command == "help") {
     std::cout << kHelp;
+    return kExitOk;
+  }
+  if (command == "--version") {
+    std::cout << echoline::version_line("echoline") << "\n";
     return kExitOk;
   }
   static const std::map<std::string, int (*)(const Argv&)> commands = {

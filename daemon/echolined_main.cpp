@@ -24,6 +24,7 @@
 #include "daemon/service/station.hpp"
 #include "drivers/config_error.hpp"
 #include "drivers/station_config.hpp"
+#include "echoline/version.hpp"
 
 namespace {
 
@@ -50,6 +51,8 @@ options:
                            output OFF, confirm with *OPC? and exit (0 = confirmed OFF, 1 = not
                            confirmed, 2 = bad config). For the service manager after a crash
                            (ExecStopPost in config/echolined.service) and for the bench.
+  --version                print the version and the commit it was built from, as in
+                           echolined 0.2.0 (g1234abc), and exit
   --help                   this text
 
 RF exposure: during a test the source output is ON and an antenna under test radiates.
@@ -78,6 +81,9 @@ Args parse_args(int argc, char** argv) {
     const std::string arg = argv[i];
     if (arg == "--help" || arg == "-h") {
       std::cout << kUsage;
+      std::exit(0);
+    } else if (arg == "--version") {
+      std::cout << version_line("echolined") << "\n";
       std::exit(0);
     } else if (arg == "--config") {
       a.config = value(i);
@@ -180,7 +186,7 @@ int run(const Args& args) {
 
   setup_logging(config, args.log_level);
   if (args.rf_off) return rf_off(config);
-  spdlog::info("echolined 0.1.0 starting: station {} config {}", config.station, config.file);
+  spdlog::info("{} starting: station {} config {}", version_line("echolined"), config.station, config.file);
 
   // Signals are taken by sigwait() on this thread; block them before any thread starts.
   sigset_t signals;

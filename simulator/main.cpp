@@ -15,6 +15,7 @@
 #include <spdlog/spdlog.h>
 
 #include "drivers/config_error.hpp"
+#include "echoline/version.hpp"
 #include "simulator/faults.hpp"
 #include "simulator/physics/lot.hpp"
 #include "simulator/server.hpp"
@@ -32,7 +33,7 @@ void print_help() {
 Usage:
   echoline-sim --config <bench.jsonc> [--lot <lot.jsonc>] [--profile instant|bench]
                [--log-file <file>] [--log-level trace|debug|info|warn|error]
-  echoline-sim --help
+  echoline-sim --help | --version
 
 Options:
   --config F     simulated bench (required): physics, instruments, endpoints, faults, latency.
@@ -47,6 +48,8 @@ Options:
                             processing time (latency.command_ms, default 3 ms)
   --log-file F   log every command received (with role and endpoint) to F instead of stderr.
   --log-level L  default info (every command); debug adds every reply.
+  --version      print the version and the commit it was built from, as in
+                 echoline-sim 0.2.0 (g1234abc), and exit.
   --help         this text.
 
 On start it prints one line per endpoint, then "ready", on stdout:
@@ -80,6 +83,7 @@ struct Args {
   std::optional<std::filesystem::path> log_file;
   std::string log_level = "info";
   bool help = false;
+  bool version = false;
 };
 
 // Returns an error message, or "" on success.
@@ -96,6 +100,8 @@ std::string parse_args(int argc, char** argv, Args& args) {
     std::string err;
     if (opt == "--help" || opt == "-h") {
       args.help = true;
+    } else if (opt == "--version") {
+      args.version = true;
     } else if (opt == "--config") {
       err = value(v);
       args.config = v;
@@ -120,7 +126,7 @@ std::string parse_args(int argc, char** argv, Args& args) {
     }
     if (!err.empty()) return err;
   }
-  if (!args.help && args.config.empty()) return "--config <bench.jsonc> is required";
+  if (!args.help && !args.version && args.config.empty()) return "--config <bench.jsonc> is required";
   return "";
 }
 
@@ -148,6 +154,10 @@ int main(int argc, char** argv) {
   }
   if (args.help) {
     print_help();
+    return kExitOk;
+  }
+  if (args.version) {
+    std::cout << echoline::version_line("echoline-sim") << "\n";
     return kExitOk;
   }
   std::signal(SIGPIPE, SIG_IGN);

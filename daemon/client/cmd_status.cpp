@@ -65,7 +65,8 @@ int cmd_status(const Argv& argv) {
   ApiReply r = require_link(api->call("status", json::object()), "status");
   require_ok(r, "status");
   const json& st = r.result;
-  std::cout << "station: " << s(st, "station") << " (echolined " << s(st, "version") << ")\n";
+  std::cout << "station: " << s(st, "station") << " (echolined " << s(st, "version")
+            << (s(st, "commit").empty() ? "" : " " + s(st, "commit")) << ")\n";
   if (st.contains("recipe")) {
     const json& rc = st["recipe"];
     std::cout << fmt::format("recipe: {} {} ({} points, {} acceptance) {}\n", s(rc, "name"), s(rc, "version"),

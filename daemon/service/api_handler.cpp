@@ -12,6 +12,7 @@
 #include "daemon/store/lot_report.hpp"
 #include "daemon/service/clock.hpp"
 #include "drivers/config_error.hpp"
+#include "echoline/version.hpp"
 
 namespace echoline::service {
 namespace {
@@ -200,6 +201,7 @@ void ApiHandler::dispatch(const std::shared_ptr<ClientLink>& link, ConnectionSta
   }
   if (call == "status") {
     json s = station_.status_json();
+    s["commit"] = std::string(commit());
     s["busy"] = busy_json();
     return reply(link, req.id, std::move(s));
   }
@@ -231,7 +233,7 @@ void ApiHandler::call_hello(const std::shared_ptr<ClientLink>& link, ConnectionS
   }
   state.role = role == "engineer" ? Role::engineer : Role::operator_;
   reply(link, req.id,
-        {{"api", kApiVersion}, {"daemon", "echolined 0.1.0"}, {"station", station_.config().station}, {"role", role}});
+        {{"api", kApiVersion}, {"daemon", version_line("echolined")}, {"station", station_.config().station}, {"role", role}});
 }
 
 void ApiHandler::call_test_start(const std::shared_ptr<ClientLink>& link, const Request& req) {

@@ -19,6 +19,7 @@
 #include "daemon/service/fast_capture.hpp"
 #include "daemon/store/export.hpp"
 #include "daemon/store/serial.hpp"
+#include "echoline/version.hpp"
 
 namespace echoline::service {
 namespace {
@@ -201,7 +202,7 @@ json Station::status_json() const {
   }
   auto r = recipe();
   return {{"station", config_.station},
-          {"version", "0.1.0"},
+          {"version", std::string(version())},
           {"recipe", recipe_json(*r)},
           {"instruments", instruments},
           {"calibration", calibration_json()}};
