@@ -22,12 +22,14 @@ std::filesystem::path resolve(const std::filesystem::path& base, const std::stri
 
 void load_fixture(const JsoncDocument& doc, FixtureConfig& f) {
   const JsonPointer at = kRoot / "fixture";
-  doc.check_keys(at, {"coupling_db", "mainline_loss_db", "cable_loss_db", "source_match_db", "nominal_directivity_db"});
+  doc.check_keys(at, {"coupling_db", "mainline_loss_db", "cable_loss_db", "source_match_db", "nominal_directivity_db",
+                      "test_port_delay_ns"});
   f.coupling_db = doc.number_in(at / "coupling_db", f.coupling_db, 1, 60, "dB");
   f.mainline_loss_db = doc.number_in(at / "mainline_loss_db", f.mainline_loss_db, 0, 10, "dB");
   f.cable_loss_db = doc.number_in(at / "cable_loss_db", f.cable_loss_db, 0, 20, "dB");
   f.source_match_db = doc.number_in(at / "source_match_db", f.source_match_db, 0, 80, "dB");
   f.nominal_directivity_db = doc.number_in(at / "nominal_directivity_db", f.nominal_directivity_db, 0, 80, "dB");
+  f.test_port_delay_ns = doc.number_in(at / "test_port_delay_ns", f.test_port_delay_ns, 0, 1000, "ns");
 }
 
 void load_api(const JsoncDocument& doc, const std::filesystem::path& base, const std::filesystem::path& data_dir, ApiConfig& a) {
@@ -85,7 +87,8 @@ void load_instruments(const JsoncDocument& doc, const std::filesystem::path& bas
 StationConfig load_station_config(const std::filesystem::path& file) {
   JsoncDocument doc = JsoncDocument::load(file);
   if (!doc.root().is_object()) doc.fail(kRoot, "a station config is a JSON object {...}");
-  doc.check_keys(kRoot, {"station", "data_dir", "log_dir", "recipe", "instruments", "fixture", "api", "serial_pattern"});
+  doc.check_keys(kRoot, {"station", "data_dir", "log_dir", "recipe", "instruments", "fixture", "api", "serial_pattern",
+                        "calibration_kit"});
   const std::filesystem::path base = std::filesystem::absolute(file).parent_path();
   StationConfig c;
   c.file = doc.file();
@@ -96,6 +99,13 @@ StationConfig load_station_config(const std::filesystem::path& file) {
   c.recipe = doc.has(kRoot / "recipe") ? resolve(base, doc.require_string(kRoot / "recipe")) : std::filesystem::path{};
   load_instruments(doc, base, c.instruments);
   load_fixture(doc, c.fixture);
+  if (doc.has(kRoot / "calibration_kit")) {
+    c.calibration_kit = resolve(base, doc.require_string(kRoot / "calibration_kit"));
+    std::error_code ec;
+    if (!std::filesystem::is_regular_file(c.calibration_kit, ec)) {
+      doc.fail(kRoot / "calibration_kit", fmt::format("calibration-kit file \"{}\" does not exist", c.calibration_kit.string()));
+    }
+  }
   load_api(doc, base, c.data_dir, c.api);
   c.serial_pattern = doc.string_or(kRoot / "serial_pattern", c.serial_pattern);
   try {

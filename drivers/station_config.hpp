@@ -23,6 +23,7 @@ struct FixtureConfig {
   double cable_loss_db = 0.3;          // test-port cable loss, one way (dB)
   double source_match_db = 25;         // test-port source match as return loss (dB)
   double nominal_directivity_db = 30;  // coupler directivity from its datasheet (dB); calibration measures the effective one
+  double test_port_delay_ns = 2.5;     // one-way electrical delay coupler -> test port (cable and adapters), ns
 };
 
 struct ApiConfig {
@@ -37,6 +38,7 @@ struct StationConfig {
   std::filesystem::path data_dir, log_dir, recipe;   // absolute after loading
   std::vector<InstrumentConfig> instruments;
   FixtureConfig fixture;
+  std::filesystem::path calibration_kit;                    // kit definition file (absolute); "" = built-in conservative kit
   ApiConfig api;
   std::string serial_pattern = "^[A-Za-z0-9._-]{1,64}$";   // ECMAScript regex for unit serials
   std::string file;                                         // the file it was loaded from

@@ -1,5 +1,6 @@
 #include "daemon/client/capability.hpp"
 
+#include "daemon/core/cal_kit_loader.hpp"
 #include "daemon/core/station_capability.hpp"
 #include "drivers/config_error.hpp"
 #include "drivers/profile.hpp"
@@ -14,7 +15,9 @@ core::StationCapability station_capability(const drivers::StationConfig& config,
   }
   const drivers::Profile sp = drivers::load_profile(src->profile);
   const drivers::Profile rp = drivers::load_profile(rcv->profile);
-  return core::station_capability(config.fixture, sp, rp, recipe);
+  if (config.calibration_kit.empty()) return core::station_capability(config.fixture, sp, rp, recipe);
+  const core::CalKit kit = core::load_cal_kit(config.calibration_kit);
+  return core::station_capability(config.fixture, sp, rp, recipe, &kit);
 }
 
 }  // namespace echoline::client

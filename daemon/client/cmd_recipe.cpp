@@ -10,6 +10,7 @@
 #include "daemon/client/cli.hpp"
 #include "daemon/client/commands.hpp"
 #include "daemon/client/exit_codes.hpp"
+#include "daemon/core/centring_prediction.hpp"
 #include "daemon/core/recipe_check.hpp"
 #include "daemon/core/recipe_loader.hpp"
 #include "drivers/config_error.hpp"
@@ -85,6 +86,20 @@ Checked load_and_check(const std::string& file, const drivers::StationConfig& co
   return out;
 }
 
+// The centring prediction in words (recipes with a resonance window and a nominal unit).
+void print_centring(const core::Recipe& r, const core::StationCapability& cap, const char* indent = "") {
+  auto p = core::predict_centring(r, cap);
+  if (!p) return;
+  std::cout << indent << fmt::format(
+      "centring: the resonance can be placed to about \u00b1{:.2f} MHz on this station ({}); predicted inconclusive for "
+      "the resonance window: {:.1f} % of {}",
+      p->half_width_hz / 1e6, p->basis, 100 * p->inconclusive_fraction, p->of_all_units ? "all units" : "well-centred units");
+  if (p->directivity_for_5_percent_db) {
+    std::cout << fmt::format("; 5 % needs a coupler of {:.1f} dB directivity", *p->directivity_for_5_percent_db);
+  }
+  std::cout << "\n";
+}
+
 int count(const std::vector<core::CheckFinding>& fs, const char* severity) {
   int n = 0;
   for (const auto& f : fs) n += f.severity == severity;
@@ -103,6 +118,7 @@ int cmd_recipe(const Argv& argv) {
   const std::string file = args.positional()[1];
   const drivers::StationConfig config = *find_station_config(args, true);
   Checked c = load_and_check(file, config);
+  print_centring(c.recipe, c.capability);
   std::cout << fmt::format("recipe check: {} {} on station {}: {} error{}, {} warning{}\n", c.recipe.name, c.recipe.version,
                            config.station, count(c.findings, "error"), count(c.findings, "error") == 1 ? "" : "s",
                            count(c.findings, "warning"), count(c.findings, "warning") == 1 ? "" : "s");
@@ -139,7 +155,10 @@ int cmd_dry_run(const Argv& argv) {
   const double worst = core::worst_case_receiver_dbm(r.source.power_dbm, c.capability);
   std::cout << fmt::format("  worst-case power at the receiver {:.1f} dBm (maximum safe input {:.1f} dBm)\n", worst,
                            c.capability.receiver_max_safe_input_dbm);
-  std::cout << "  calibration standards: " << (r.calibration.use_short ? "OPEN, SHORT, LOAD" : "OPEN, LOAD") << "\n";
+  std::cout << "  calibration standards: " << (r.calibration.use_short ? "OPEN, SHORT, LOAD" : "OPEN, LOAD")
+            << " (OPEN and LOAD swept twice: the repeat measures the reading noise)\n";
+  std::cout << fmt::format("  calibration kit: {} serial {}\n", c.capability.kit.identity, c.capability.kit.serial);
+  print_centring(r, c.capability, "  ");
   // Swept-analyzer time per reading: ST = k*span/RBW^2, k in the 2-3 range for near-Gaussian
   // filters (Agilent AN 150); we take k = 2.5. VBW < RBW lengthens it by RBW/VBW (from memory).
   double per_reading = 0;
@@ -151,8 +170,8 @@ int cmd_dry_run(const Argv& argv) {
   const double sweep = per_point * static_cast<double>(freqs.size());
   std::cout << fmt::format("  estimated sweep time {:.2f} s per unit ({:.4f} s per point, command overhead not included)\n",
                            sweep, per_point);
-  std::cout << fmt::format("  estimated calibration {:.2f} s of sweeps ({} standards)\n",
-                           sweep * (r.calibration.use_short ? 3 : 2), r.calibration.use_short ? 3 : 2);
+  std::cout << fmt::format("  estimated calibration {:.2f} s of sweeps ({} standards, 2 repeats)\n",
+                           sweep * (r.calibration.use_short ? 5 : 4), r.calibration.use_short ? 3 : 2);
   if (c.errors) {
     std::cout << "\nThe recipe has errors: it cannot run on this station.\n";
     return kExitNegative;

@@ -4,8 +4,10 @@
 #include <algorithm>
 #include <cmath>
 #include <limits>
+#include <numbers>
 
 #include "daemon/core/rf_math.hpp"
+#include "daemon/core/uncertainty.hpp"
 
 namespace echoline::core {
 namespace {
@@ -14,25 +16,30 @@ constexpr double kInf = std::numeric_limits<double>::infinity();
 constexpr double kEdgeToleranceHz = 1e-3;
 }  // namespace
 
-CalibratedTrace calibrate_points(const CalibrationRecord& cal, const std::vector<Reading>& dut,
-                                 double source_match_db) {
+CalibratedTrace calibrate_points(const CalibrationRecord& cal, const std::vector<Reading>& dut) {
   CalibratedTrace out;
   out.points.reserve(dut.size());
+  out.shift.coverage_factor = cal.budget.coverage_factor;
+  out.shift.error_delay_s = cal.budget.error_delay_s;
   for (std::size_t i = 0; i < dut.size(); ++i) {
     PointResult p;
     p.frequency_hz = dut[i].frequency_hz;
     p.raw_dbm = dut[i].raw_dbm;
     double rl = cal.reference_dbm[i] - dut[i].raw_dbm;
-    ReturnLossBounds b = return_loss_bounds(rl, cal.directivity_db[i], source_match_db);
+    const ReturnLossBounds b = budget_bounds(cal.budget, i, cal.reference_dbm[i], dut[i].raw_dbm);
     if (b.clamped) {
       // Above the |Γ| = 1 reference: noise or drift; a passive DUT cannot reflect more than all.
       ++out.clamped_points;
       rl = 0;
     }
     p.return_loss_db = rl;
-    p.return_loss_worst_db = b.worst_db;
-    p.return_loss_best_db = b.best_db;
+    p.return_loss_worst_db = std::min(b.worst_db, rl);
+    p.return_loss_best_db = std::max(b.best_db, rl);
     out.points.push_back(p);
+    out.shift.gamma_error.push_back(gamma_error_radius(cal.budget, i, cal.reference_dbm[i], dut[i].raw_dbm));
+    const double s_d = reading_sigma_db(cal.budget, i, dut[i].raw_dbm);
+    const double s_r = cal.budget.reference_noise_db[i];
+    out.shift.sigma_db.push_back(std::sqrt(s_d * s_d + s_r * s_r));
   }
   return out;
 }
@@ -93,51 +100,142 @@ Band resonance_interval(const std::vector<PointResult>& points, std::size_t peak
   return b;
 }
 
-std::optional<double> resonance_shift_bound_hz(const std::vector<PointResult>& points, std::size_t peak) {
-  // Derivation (one-port model of REFERENCE.md §2, first order; derived here, no published
-  // source): near resonance Γ_t(f) ≈ Γ0 + k·(f − f0) with Re(conj(Γ0)·k) = 0 at the true
-  // minimum. The reading is Γ_m = Γ_t + e with |e| <= eps, e nearly constant across the dip.
-  // d|Γ_m|²/df = 0 gives (f_m − f0)·|k|² = −Re(conj(e)·k), so |f_m − f0| <= eps/|k|; and the
-  // quadratic coefficient of |Γ_m(f)|² is |k|², whatever e is.
+namespace {
+
+// Least squares of y on 1, x, …, x^(m−1) (m = 3 or 4) by the normal equations, Gaussian
+// elimination with partial pivoting. x in MHz from the peak keeps them well conditioned.
+// Returns false when singular. `inverse` (optional) gets (XᵀX)⁻¹ for the covariance.
+bool least_squares(const std::vector<double>& x, const std::vector<double>& y, int m, double* coef,
+                   double (*inverse)[4] = nullptr) {
+  double a[4][9] = {};
+  for (std::size_t i = 0; i < x.size(); ++i) {
+    double p[4] = {1, x[i], x[i] * x[i], x[i] * x[i] * x[i]};
+    for (int r = 0; r < m; ++r) {
+      for (int c = 0; c < m; ++c) a[r][c] += p[r] * p[c];
+      a[r][m] += p[r] * y[i];
+    }
+  }
+  // Augment with the identity for the inverse: columns m+1 .. 2m.
+  for (int r = 0; r < m; ++r) a[r][m + 1 + r] = 1;
+  const int cols = 2 * m + 1;
+  for (int c = 0; c < m; ++c) {
+    int piv = c;
+    for (int r = c + 1; r < m; ++r) {
+      if (std::fabs(a[r][c]) > std::fabs(a[piv][c])) piv = r;
+    }
+    if (std::fabs(a[piv][c]) < 1e-300) return false;
+    if (piv != c) {
+      for (int k = 0; k < cols; ++k) std::swap(a[c][k], a[piv][k]);
+    }
+    for (int r = 0; r < m; ++r) {
+      if (r == c) continue;
+      const double f = a[r][c] / a[c][c];
+      for (int k = 0; k < cols; ++k) a[r][k] -= f * a[c][k];
+    }
+  }
+  for (int r = 0; r < m; ++r) {
+    coef[r] = a[r][m] / a[r][r];
+    if (inverse) {
+      for (int k = 0; k < m; ++k) inverse[r][k] = a[r][m + 1 + k] / a[r][r];
+    }
+  }
+  return true;
+}
+
+}  // namespace
+
+ShiftContext context_from_bounds(const std::vector<PointResult>& points, double error_delay_s) {
+  ShiftContext c;
+  c.error_delay_s = error_delay_s;
+  c.coverage_factor = 0;
+  for (const PointResult& p : points) {
+    const double gm = std::pow(10.0, -p.return_loss_db / 20.0);
+    const double hi = std::isfinite(p.return_loss_worst_db) ? std::pow(10.0, -p.return_loss_worst_db / 20.0) : 1.0;
+    const double lo = std::isfinite(p.return_loss_best_db) ? std::pow(10.0, -p.return_loss_best_db / 20.0) : 0.0;
+    c.gamma_error.push_back(std::max(hi - gm, gm - lo));
+    c.sigma_db.push_back(0);
+  }
+  return c;
+}
+
+std::optional<ShiftBound> resonance_shift_bound(const std::vector<PointResult>& points, std::size_t peak,
+                                                const ShiftContext& ctx) {
   const std::size_t n = points.size();
-  if (n < 5 || peak >= n) return std::nullopt;
+  if (n < 5 || peak >= n || ctx.gamma_error.size() != n || ctx.sigma_db.size() != n) return std::nullopt;
   const double peak_rl = points[peak].return_loss_db;
-  if (!std::isfinite(peak_rl)) return std::nullopt;
+  if (!std::isfinite(peak_rl) || peak_rl < 12.0) return std::nullopt;  // shallow: the model does not hold
   std::size_t lo = peak, hi = peak;
   while (lo > 0 && points[lo - 1].return_loss_db >= peak_rl - 6.0) --lo;
   while (hi + 1 < n && points[hi + 1].return_loss_db >= peak_rl - 6.0) ++hi;
-  if (peak - lo < 2 || hi - peak < 2) return std::nullopt;
-  // Least squares |Γ|² = a + b·x + c·x², x in MHz from the peak (conditioning).
-  double s[5] = {0, 0, 0, 0, 0}, t[3] = {0, 0, 0};
+  if (peak - lo < 2 || hi - peak < 2) return std::nullopt;   // too sparse to fit
+  if (lo == 0 || hi + 1 == n) return std::nullopt;           // broad: the dip runs off the sweep
   const double f_pk = points[peak].frequency_hz;
+  std::vector<double> x, y;
+  double e_max = 0, var_y = 0;
   for (std::size_t i = lo; i <= hi; ++i) {
-    const double x = (points[i].frequency_hz - f_pk) / 1e6;
+    x.push_back((points[i].frequency_hz - f_pk) / 1e6);
     const double g2 = std::pow(10.0, -points[i].return_loss_db / 10.0);
-    double xp = 1;
-    for (int k = 0; k < 5; ++k) {
-      s[k] += xp;
-      if (k < 3) t[k] += xp * g2;
-      xp *= x;
+    y.push_back(g2);
+    e_max = std::max(e_max, ctx.gamma_error[i]);
+    // σ of |Γ|² from a σ in dB: relative σ = σ_dB·ln(10)/10.
+    const double s = g2 * ctx.sigma_db[i] * std::log(10.0) / 10.0;
+    var_y += s * s;
+  }
+  const std::size_t m = x.size();
+  double q[4], inv[4][4];
+  if (!least_squares(x, y, 3, q, inv)) return std::nullopt;
+  const double a = q[0], b = q[1], c = q[2];
+  if (!(c > 0)) return std::nullopt;
+  const double xv = -b / (2 * c);
+  if (xv < x.front() || xv > x.back()) return std::nullopt;
+  // Lopsided dip: the cubic's minimum near the vertex moves away from the quadratic's.
+  const double slope = std::sqrt(c);  // |dΓ_m/df| per MHz
+  const double step = 0.5 * std::max(points[peak + 1].frequency_hz - f_pk, f_pk - points[peak - 1].frequency_hz) / 1e6;
+  double model_gap = 0;
+  if (m >= 5) {
+    double cu[4];
+    if (least_squares(x, y, 4, cu)) {
+      // Roots of cu1 + 2cu2·x + 3cu3·x² = 0; the one with positive curvature nearest xv.
+      const double A = 3 * cu[3], B = 2 * cu[2], C = cu[1];
+      double xc = xv;
+      if (std::fabs(A) < 1e-300) {
+        xc = B > 0 ? -C / B : 1e300;
+      } else {
+        const double disc = B * B - 4 * A * C;
+        if (disc < 0) {
+          xc = 1e300;
+        } else {
+          // Stable form (no cancellation when the cubic term is small): q = −(B ± √disc)/2.
+          const double qq = -0.5 * (B + std::copysign(std::sqrt(disc), B));
+          const double r1 = qq / A, r2 = qq != 0 ? C / qq : r1;
+          const bool min1 = B + 2 * A * r1 > 0, min2 = B + 2 * A * r2 > 0;
+          xc = min1 ? r1 : (min2 ? r2 : 1e300);
+        }
+      }
+      // The quadratic's vertex stands for the measured curve's minimum; a cubic that places it
+      // elsewhere says how far off that is (added below). Far off: the dip is lopsided.
+      model_gap = std::fabs(xc - xv);
+      if (model_gap > std::max(2 * step, e_max / slope)) return std::nullopt;
     }
   }
-  // Normal equations [s0 s1 s2; s1 s2 s3; s2 s3 s4]·[a b c] = t, solved by Cramer's rule.
-  auto det3 = [](double a1, double a2, double a3, double b1, double b2, double b3, double c1, double c2,
-                 double c3) { return a1 * (b2 * c3 - b3 * c2) - a2 * (b1 * c3 - b3 * c1) + a3 * (b1 * c2 - b2 * c1); };
-  const double d = det3(s[0], s[1], s[2], s[1], s[2], s[3], s[2], s[3], s[4]);
-  if (std::fabs(d) < 1e-300) return std::nullopt;
-  const double c = det3(s[0], s[1], t[0], s[1], s[2], t[1], s[2], s[3], t[2]) / d;
-  if (!(c > 0)) return std::nullopt;
-  const double slope_per_mhz = std::sqrt(c);  // |dΓ/df|
-  const double gamma_m = std::pow(10.0, -peak_rl / 20.0);
-  const double worst = points[peak].return_loss_worst_db;
-  const double eps = std::isfinite(worst) ? std::pow(10.0, -worst / 20.0) - gamma_m : 1.0;
-  if (!(eps >= 0)) return std::nullopt;
-  const double step_hz = 0.5 * std::max(points[std::min(peak + 1, n - 1)].frequency_hz - f_pk,
-                                        f_pk - points[peak > 0 ? peak - 1 : 0].frequency_hz);
-  return 1.25 * eps / slope_per_mhz * 1e6 + step_hz;
+  // Vertex uncertainty: residual scatter or the measured noise, whichever is larger.
+  double rss = 0;
+  for (std::size_t i = 0; i < m; ++i) {
+    const double r = y[i] - (a + b * x[i] + c * x[i] * x[i]);
+    rss += r * r;
+  }
+  const double s2 = std::max(m > 3 ? rss / static_cast<double>(m - 3) : rss, var_y / static_cast<double>(m));
+  const double gb = -1 / (2 * c), gc = b / (2 * c * c);  // ∂xv/∂b, ∂xv/∂c
+  const double var_xv = s2 * (gb * gb * inv[1][1] + 2 * gb * gc * inv[1][2] + gc * gc * inv[2][2]);
+  const double sigma_xv = std::sqrt(std::max(0.0, var_xv));
+  const double gamma_min = std::sqrt(std::max(0.0, y[peak - lo]));
+  const double rotation = 2 * std::numbers::pi * ctx.error_delay_s * 1e6 * e_max;  // |dE/df| per MHz
+  const double hw = e_max / slope + (gamma_min + e_max) * rotation / (slope * slope) +
+                    ctx.coverage_factor * sigma_xv + model_gap + step;
+  return ShiftBound{f_pk + xv * 1e6, hw * 1e6};
 }
 
-std::optional<Resonance> find_resonance(const std::vector<PointResult>& points) {
+std::optional<Resonance> find_resonance(const std::vector<PointResult>& points, const ShiftContext* context) {
   if (points.empty()) return std::nullopt;
   std::size_t best = 0;
   for (std::size_t i = 1; i < points.size(); ++i) {
@@ -169,19 +267,22 @@ std::optional<Resonance> find_resonance(const std::vector<PointResult>& points) 
     r.depth_db = v->y;
     r.refined = true;
   }
-  // The bound interval above lets every point's error take its worst phase independently; the
-  // coupler's and cable's errors are smooth over a dip, so where the dip can be fitted the
-  // first-order shift bound is the tighter honest interval (both are kept: the intersection).
-  if (auto hw = resonance_shift_bound_hz(points, best)) {
-    const double low = r.frequency_hz - *hw;
-    const double high = r.frequency_hz + *hw;
-    if (low > r.low_hz) {  // tighter on the low side (an open side closes when inside the sweep)
+  // The rigorous interval lets every point's error take its worst phase independently; the
+  // coupler's and cable's errors are smooth over a dip, so where the dip meets the shift
+  // bound's assumptions that interval is the tighter honest one (both hold: the intersection).
+  const ShiftContext own = context ? ShiftContext{} : context_from_bounds(points);
+  if (auto sb = resonance_shift_bound(points, best, context ? *context : own)) {
+    const double low = sb->center_hz - sb->half_width_hz;
+    const double high = sb->center_hz + sb->half_width_hz;
+    if (low > r.low_hz) {
       r.low_hz = low;
       r.low_open = false;
+      r.shift_bound_used = true;
     }
     if (high < r.high_hz) {
       r.high_hz = high;
       r.high_open = false;
+      r.shift_bound_used = true;
     }
   }
   // The refined vertex stays within the interval (it lies within half a step of the peak sample
@@ -269,7 +370,7 @@ Analysis analyze(const Recipe& recipe, const CalibratedTrace& trace) {
   const auto& pts = trace.points;
   a.max_return_loss_db = 0;
   for (const PointResult& p : pts) a.max_return_loss_db = std::max(a.max_return_loss_db, p.return_loss_db);
-  a.resonance = find_resonance(pts);
+  a.resonance = find_resonance(pts, trace.shift.gamma_error.size() == pts.size() ? &trace.shift : nullptr);
   if (a.resonance) {
     const double thr = recipe.limits.bandwidth_threshold_db;
     a.band = find_band(pts, a.resonance->index, thr, TraceValue::measured);

@@ -13,15 +13,25 @@
 
 namespace echoline::core {
 
-// RL = reference − P_dut per point; bounds from the point's directivity and source_match_db.
-// A reading above the reference (|Γ| > 1, noise) is clamped to RL = 0 dB and counted.
-// REQUIRES: dut.size() == cal.reference_dbm.size() == cal.directivity_db.size() (judge() checks).
+// What the resonance-shift bound needs besides the points: the error radius in |Γ| the budget
+// allows at each point, each reading's statistical σ (dB), the coverage factor, and how fast
+// the error terms' phase can turn (the fixture's delay; docs/MEASUREMENT.md).
+struct ShiftContext {
+  std::vector<double> gamma_error;   // per point, |Γ| units
+  std::vector<double> sigma_db;      // per point, standard uncertainty of the RL reading
+  double coverage_factor = 3;
+  double error_delay_s = 5e-9;
+};
+
+// RL = reference − P_dut per point; bounds from the calibration's uncertainty budget
+// (uncertainty.hpp). A reading above the reference (|Γ| > 1, noise) is clamped to RL = 0 dB
+// and counted. REQUIRES: dut.size() == cal.reference_dbm.size() == cal.budget size (judge() checks).
 struct CalibratedTrace {
   std::vector<PointResult> points;
+  ShiftContext shift;
   std::size_t clamped_points = 0;
 };
-CalibratedTrace calibrate_points(const CalibrationRecord& cal, const std::vector<Reading>& dut,
-                                 double source_match_db);
+CalibratedTrace calibrate_points(const CalibrationRecord& cal, const std::vector<Reading>& dut);
 
 // A frequency interval around the resonance; an edge that reaches the end of the sweep without
 // crossing its level is "open" (the true interval is at least that wide there).
@@ -48,9 +58,11 @@ struct Resonance {
   double high_hz = 0;
   bool low_open = false;
   bool high_open = false;
+  bool shift_bound_used = false;   // the smooth-error bound tightened the rigorous interval
 };
-// Empty when there are no points.
-std::optional<Resonance> find_resonance(const std::vector<PointResult>& points);
+// Empty when there are no points. Without a context the error radius is read from the points'
+// worst-case bounds and the error delay is 5 ns, with no statistical term.
+std::optional<Resonance> find_resonance(const std::vector<PointResult>& points, const ShiftContext* context = nullptr);
 
 // Contiguous region around sample `peak` where the best-case RL reaches the worst-case RL of
 // the peak sample, edges linearly interpolated and widened by half the local point step, and
@@ -58,15 +70,26 @@ std::optional<Resonance> find_resonance(const std::vector<PointResult>& points);
 // REQUIRES: peak < points.size().
 Band resonance_interval(const std::vector<PointResult>& points, std::size_t peak);
 
-// Half-width of the interval the true resonance can lie in when the error terms (directivity
-// leakage, source match) are smooth over the dip, as a coupler's and a cable's are: a complex
-// error e of magnitude <= eps added to the DUT's reflection moves the |Γ| minimum by at most
-// eps/|dΓ/df| to first order. |dΓ/df| is the square root of the curvature of |Γ_m|² near the
-// peak (least-squares quadratic over the points within 6 dB of it); eps is read from the
-// peak's worst-case bound. Includes a 1.25 safety factor (error rotation, trajectory curvature,
-// noise) and half the local point step. Empty when the dip is too shallow or too sparse to fit.
+// The interval the true resonance lies in when the error terms are smooth over the dip, as a
+// coupler's and a cable's are (derivation in docs/MEASUREMENT.md, "Where the resonance can
+// be"): centre = vertex of the least-squares quadratic of |Γ_m|² over the points within 6 dB
+// of the peak; half-width = E/s + (|Γ_min| + E)·2π·τ·E/s² + k·σ_vertex + gap + step/2, where
+// E is the error radius, s = |dΓ_m/df| from the quadratic, τ the error delay and gap the
+// distance between the quadratic's and a cubic fit's minimum. Empty when the assumptions fail:
+// fewer than 2 points each side, the window touching the sweep edge, a peak under 12 dB
+// (shallow or broad), a curvature that does not open upward, or a lopsided dip (gap larger
+// than two steps and than E/s).
 // REQUIRES: peak < points.size().
-std::optional<double> resonance_shift_bound_hz(const std::vector<PointResult>& points, std::size_t peak);
+struct ShiftBound {
+  double center_hz = 0;
+  double half_width_hz = 0;
+};
+std::optional<ShiftBound> resonance_shift_bound(const std::vector<PointResult>& points, std::size_t peak,
+                                                const ShiftContext& context);
+
+// A context read from the points alone (tests, and data without a budget): the error radius
+// from each point's worst-case bound, no statistical term, the given delay.
+ShiftContext context_from_bounds(const std::vector<PointResult>& points, double error_delay_s = 5e-9);
 
 // Vertex of the parabola through three points (x strictly increasing). Empty when the three
 // points are collinear or the parabola opens upward (no maximum).

@@ -10,6 +10,7 @@
 #include <fmt/format.h>
 
 #include "daemon/core/frequency_text.hpp"
+#include "daemon/core/uncertainty.hpp"
 
 namespace echoline::core {
 namespace {
@@ -84,6 +85,12 @@ CalibrationRecord build_calibration(const Recipe& recipe, const std::map<std::st
     std::string problem = trace_problem(name, it->second, plan);
     if (!problem.empty()) rec.errors.push_back(problem);
   }
+  for (const char* repeat : {"OPEN/repeat", "LOAD/repeat"}) {
+    auto it = traces.find(repeat);
+    if (it == traces.end()) continue;
+    std::string problem = trace_problem(repeat, it->second, plan);
+    if (!problem.empty()) rec.errors.push_back(problem);
+  }
   if (!rec.errors.empty()) return rec;
 
   const std::vector<Reading>& open = traces.at("OPEN");
@@ -156,6 +163,32 @@ CalibrationRecord build_calibration(const Recipe& recipe, const std::map<std::st
         "limited by noise and reads lower than the coupler's own (the bounds stay on the safe side)",
         rec.noise_margin_db, station.noise_floor_dbm, format_mhz(load[noise_at].frequency_hz)));
   }
+  // The uncertainty budget: directivity bound with the kit's LOAD residual, reference error
+  // from the kit's OPEN/SHORT, measured reading noise, source match (uncertainty.hpp).
+  BudgetInputs in;
+  in.coverage_factor = recipe.coverage_factor;
+  in.source_match_db = station.source_match_db;
+  in.noise_floor_dbm = station.noise_floor_dbm;
+  // The DUT's reflection travels the test-port cable twice; the leakage path inside the coupler
+  // adds up to 1 ns more (common practice, no source): the relative rotation of the error terms.
+  in.error_delay_s = 2 * station.test_port_delay_s + 1e-9;
+  rec.kit_identity = station.kit.identity;
+  rec.kit_serial = station.kit.serial;
+  rec.budget = build_budget(recipe, traces, rec.reference_dbm, station.kit, in, rec.warnings);
+  double worst_bound = 0;
+  std::size_t worst_at = 0;
+  for (std::size_t i = 0; i < n; ++i) {
+    if (rec.budget.directivity_bound[i] > worst_bound) {
+      worst_bound = rec.budget.directivity_bound[i];
+      worst_at = i;
+    }
+  }
+  if (worst_bound >= std::pow(10.0, -10.0 / 20)) {
+    rec.errors.push_back(fmt::format(
+        "with the kit's LOAD residual and the reading noise the directivity bound is only {:.1f} dB at {}: no return "
+        "loss can be verified; use a better coupler or LOAD",
+        -20 * std::log10(worst_bound), format_mhz(plan[worst_at])));
+  }
   rec.valid = rec.errors.empty();
   return rec;
 }
@@ -164,6 +197,9 @@ CalibrationState calibration_due(const CalibrationRecord* cal, const Recipe& rec
                                  double created_unix_s, std::optional<double> temperature_c) {
   if (!cal) return {true, "no calibration yet"};
   if (!cal->valid) return {true, fmt::format("calibration {} did not pass its checks", cal->id)};
+  if (cal->budget.frequency_hz.size() != cal->reference_dbm.size()) {
+    return {true, fmt::format("calibration {} has no uncertainty budget (made by an older version)", cal->id)};
+  }
   if (!cal->recipe.content_hash.empty() && !recipe.content_hash.empty() &&
       cal->recipe.content_hash != recipe.content_hash) {
     return {true, fmt::format("calibration {} was made for recipe {} {}, not this one", cal->id, cal->recipe.name,

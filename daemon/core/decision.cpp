@@ -188,6 +188,16 @@ double limit_at(const std::vector<LimitSegment>& mask, double f) {
   return lim;
 }
 
+// The span the mask covers (lowest start to highest stop).
+std::pair<double, double> mask_span(const std::vector<LimitSegment>& mask) {
+  double lo = kInf, hi = -kInf;
+  for (const LimitSegment& s : mask) {
+    lo = std::min(lo, s.start_hz);
+    hi = std::max(hi, s.stop_hz);
+  }
+  return {lo, hi};
+}
+
 void classify(const Recipe& recipe, const std::vector<PointResult>& points, const Analysis& a, Decision& d) {
   const auto first_failed = [&](const char* kind) -> const LimitCheck* {
     for (const LimitCheck& c : d.checks) {
@@ -206,36 +216,53 @@ void classify(const Recipe& recipe, const std::vector<PointResult>& points, cons
     return;
   }
   const Resonance& r = *a.resonance;
+  // Whole interval below / above [lo, hi]: an open side reaching beyond lo/hi does not count.
+  const auto wholly_below = [&](double lo) { return !r.high_open && r.high_hz < lo; };
+  const auto wholly_above = [&](double hi) { return !r.low_open && r.low_hz > hi; };
   if (const LimitCheck* w = first_failed("resonance")) {
-    d.failure_class = r.frequency_hz < *recipe.limits.resonance_min_hz ? FailureClass::tuned_low : FailureClass::tuned_high;
+    const double lo = *recipe.limits.resonance_min_hz, hi = *recipe.limits.resonance_max_hz;
+    const bool low = r.frequency_hz < lo;
+    d.failure_class = low ? FailureClass::tuned_low : FailureClass::tuned_high;
+    d.tuning_certain = low ? wholly_below(lo) : wholly_above(hi);
     d.reason = w->detail;
+    if (!d.tuning_certain) d.reason += "; the resonance interval reaches into the window, so no trim advice";
     return;
   }
   const LimitCheck* mask = first_failed("mask");
-  if (mask && !recipe.limits.resonance_min_hz && !recipe.limits.mask.empty()) {
-    // No window: judge the tuning against the span the mask covers.
-    double lo = kInf, hi = -kInf;
-    for (const LimitSegment& s : recipe.limits.mask) {
-      lo = std::min(lo, s.start_hz);
-      hi = std::max(hi, s.stop_hz);
+  if (mask && !recipe.limits.mask.empty()) {
+    const auto [lo, hi] = mask_span(recipe.limits.mask);
+    const double lim = limit_at(recipe.limits.mask, r.frequency_hz);
+    const bool placeable = !r.low_open && !r.high_open && (r.high_hz - r.low_hz) <= (hi - lo);
+    const bool deep = r.depth_db >= lim;
+    if (!placeable || !deep) {
+      d.failure_class = FailureClass::shallow;
+      if (!deep) {
+        d.reason = fmt::format(
+            "dip at {} reaches only {} return loss, below the {} limit (poor match: check the feed, the solder joint, "
+            "the ground connection and the element for corrosion)",
+            format_mhz(r.frequency_hz), db_text(r.depth_db), limit_text(lim));
+      } else {
+        d.reason = fmt::format(
+            "the dip is too broad to place ({}): {}; a lossy or damaged element, or a poor match (check the feed, the "
+            "solder joint and the ground connection)",
+            interval_text(r), mask->detail);
+      }
+      return;
     }
     if (r.frequency_hz < lo || r.frequency_hz > hi) {
       const bool low = r.frequency_hz < lo;
       d.failure_class = low ? FailureClass::tuned_low : FailureClass::tuned_high;
-      d.reason = fmt::format("resonance at {} is {} the {} band ({})", format_mhz(r.frequency_hz),
+      d.tuning_certain = low ? wholly_below(lo) : wholly_above(hi);
+      d.reason = fmt::format("resonance at {} is {} the {} band ({}); {}", format_mhz(r.frequency_hz),
                              low ? "below" : "above", format_frequency_range(lo, hi),
-                             low ? "element too long" : "element too short");
+                             low ? "element too long" : "element too short", mask->detail);
+      if (!d.tuning_certain) {
+        d.reason += fmt::format("; with the measurement uncertainty the resonance lies {}, which reaches into the band, "
+                                "so no trim advice",
+                                interval_text(r));
+      }
       return;
     }
-  }
-  const double lim = recipe.limits.mask.empty() ? 0 : limit_at(recipe.limits.mask, r.frequency_hz);
-  if (mask && r.depth_db < lim) {
-    d.failure_class = FailureClass::shallow;
-    d.reason = fmt::format(
-        "dip at {} reaches only {} return loss, below the {} limit (poor match: check the feed, the solder joint "
-        "and the ground connection)",
-        format_mhz(r.frequency_hz), db_text(r.depth_db), limit_text(lim));
-    return;
   }
   d.failure_class = FailureClass::out_of_mask;
   if (mask) d.reason = mask->detail;

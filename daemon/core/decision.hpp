@@ -41,13 +41,23 @@ struct Decision {
   FailureClass failure_class = FailureClass::none;
   std::string reason;
   std::vector<LimitCheck> checks;
+  // The whole resonance interval lies outside the window (or the mask's band): the tuning is
+  // certainly what is wrong, so trim advice may be given.
+  bool tuning_certain = false;
 };
 
 // No-response threshold: best RL over the whole sweep below this reflects like an open or short.
 inline constexpr double kNoResponseReturnLossDb = 3.0;
 
 // Applies the recipe's rule to the mask (per point), the resonance window and the minimum
-// bandwidth, then classifies a failure: no-response, tuned-low, tuned-high, shallow, out-of-mask.
+// bandwidth, then classifies a failure from the intervals (docs/MEASUREMENT.md, "Diagnosis"):
+//   no-response  best measured RL under 3 dB everywhere;
+//   tuned-low/-high  a window failed, or the mask failed with a well-formed dip (measured depth
+//                at least the limit, resonance interval closed and no wider than the band)
+//                whose measured resonance lies outside the band;
+//   shallow      the mask failed and the dip is too shallow to meet the limit or too broad to
+//                place (open interval, or wider than the band);
+//   out-of-mask  anything else that failed.
 Decision decide(const Recipe& recipe, const std::vector<PointResult>& points, const Analysis& analysis);
 
 }  // namespace echoline::core

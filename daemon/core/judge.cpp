@@ -46,14 +46,17 @@ std::string mismatch(const CalibrationRecord& cal, const std::vector<Reading>& d
 
 }  // namespace
 
-Judgement judge(const Recipe& recipe, const CalibrationRecord& cal, const std::vector<Reading>& dut,
-                double source_match_db) {
+Judgement judge(const Recipe& recipe, const CalibrationRecord& cal, const std::vector<Reading>& dut) {
   if (!cal.valid) return aborted(fmt::format("calibration {} is not valid; calibrate again", cal.id));
+  if (cal.budget.frequency_hz.size() != cal.reference_dbm.size()) {
+    return aborted(fmt::format("calibration {} has no uncertainty budget (made by an older version); calibrate again",
+                               cal.id));
+  }
   if (std::string why = mismatch(cal, dut); !why.empty()) {
     return aborted(fmt::format("readings do not match calibration {}: {}", cal.id, why));
   }
 
-  CalibratedTrace trace = calibrate_points(cal, dut, source_match_db);
+  CalibratedTrace trace = calibrate_points(cal, dut);
   const Analysis analysis = analyze(recipe, trace);
   const Decision decision = decide(recipe, trace.points, analysis);
 
@@ -76,6 +79,7 @@ Judgement judge(const Recipe& recipe, const CalibrationRecord& cal, const std::v
     m.mismatch_loss_db = mismatch_loss_from_return_loss(m.depth_db);
     if (!analysis.resonance->low_open) m.resonance_low_hz = analysis.resonance->low_hz;
     if (!analysis.resonance->high_open) m.resonance_high_hz = analysis.resonance->high_hz;
+    m.resonance_interval_kind = analysis.resonance->shift_bound_used ? "shift-bound" : "rigorous";
   }
   if (analysis.band) {
     m.bandwidth_hz = analysis.band->width_hz();
@@ -90,16 +94,12 @@ Judgement judge(const Recipe& recipe, const CalibrationRecord& cal, const std::v
     first = false;
   }
 
-  // Trim advice when the tuning is what is wrong (or cannot be decided).
-  if (recipe.trim && analysis.resonance && j.verdict != Verdict::pass) {
-    bool tuning = j.failure_class == FailureClass::tuned_low || j.failure_class == FailureClass::tuned_high;
-    // An undecided window also gets advice, unless the unit failed for its match (a shallow dip
-    // or none at all): there the resonance interval is wide because the dip is, not the tuning.
-    const bool match_problem = j.failure_class == FailureClass::shallow || j.failure_class == FailureClass::no_response;
-    for (const LimitCheck& c : decision.checks) {
-      if (c.kind == "resonance" && c.verdict == Verdict::inconclusive && !match_problem) tuning = true;
-    }
-    if (tuning) j.trim = trim_advice(*recipe.trim, analysis.resonance->frequency_hz, analysis.resonance->at_edge);
+  // Trim advice only when the tuning is what is wrong: the unit failed as tuned-low or
+  // tuned-high, which decision.cpp gives only when the whole resonance interval lies outside
+  // the window (or the band). An undecided or mismatched unit gets none.
+  if (recipe.trim && analysis.resonance && j.verdict == Verdict::fail && decision.tuning_certain &&
+      (j.failure_class == FailureClass::tuned_low || j.failure_class == FailureClass::tuned_high)) {
+    j.trim = trim_advice(*recipe.trim, analysis.resonance->frequency_hz, analysis.resonance->at_edge);
   }
   return j;
 }

@@ -22,8 +22,8 @@ struct Judgement {
 
 // REQUIRES nothing: readings that do not match the calibration (count or frequencies), an
 // invalid calibration or non-finite readings give Verdict::aborted with the reason — never pass.
-// source_match_db: effective test-port match (profile or recipe), +inf to ignore.
-Judgement judge(const Recipe& recipe, const CalibrationRecord& cal, const std::vector<Reading>& dut,
-                double source_match_db);
+// The bounds come from the calibration's uncertainty budget (which holds the source match); a
+// calibration without one (made by an older version) gives aborted with "calibrate again".
+Judgement judge(const Recipe& recipe, const CalibrationRecord& cal, const std::vector<Reading>& dut);
 
 }  // namespace echoline::core

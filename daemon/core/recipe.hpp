@@ -75,12 +75,22 @@ struct FastCaptureSettings {
   int receiver_sweeps = 1;           // receiver sweeps max-held into the trace
 };
 
+// What the recipe's author expects of a good unit, for predictions only (recipe check and dry
+// run): how sharp its dip is and how far production spreads its resonance. Never used to judge.
+struct NominalUnit {
+  std::optional<double> q;                 // loaded Q of the resonance
+  std::optional<double> bandwidth_hz;      // or: width where RL >= the bandwidth threshold
+  std::optional<double> resonance_sd_hz;   // production spread of the resonance (standard deviation)
+  std::optional<double> center_hz;         // mean resonance; default the trim target or window centre
+};
+
 struct Recipe {
   std::string name;
   std::string version;
   std::string description;
   std::string content_hash;   // hex SHA-256 (or FNV) of the file bytes, set by the loader
   std::string source_path;    // file it was loaded from
+  std::string source_text;    // the file's bytes (stored by hash with the runs, for offline re-judging)
   SweepMode mode = SweepMode::step;
   std::vector<Segment> segments;
   SourceSettings source;
@@ -89,6 +99,8 @@ struct Recipe {
   CalibrationPolicy calibration;
   Limits limits;
   DecisionRule rule = DecisionRule::guarded;
+  double coverage_factor = 3;   // k for the statistical terms of the budget (JCGM 100 §6.2.1)
+  NominalUnit nominal;
   std::optional<Trim> trim;
   double source_match_db = 25;  // effective source (test-port) match, if not in the profile
   std::map<std::string, std::vector<std::string>> setup;     // role -> raw SCPI lines

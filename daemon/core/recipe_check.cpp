@@ -1,6 +1,8 @@
 // Recipe against station capability (recipe_check.hpp).
 #include "daemon/core/recipe_check.hpp"
 
+#include "daemon/core/centring_prediction.hpp"
+
 #include <algorithm>
 #include <cmath>
 
@@ -129,6 +131,44 @@ std::vector<CheckFinding> check_recipe(const Recipe& r, const StationCapability&
           fmt::format("each point needs about {:.2f} s of sweep (span {}, RBW {}, {} average(s)): widen the RBW or "
                       "narrow the span",
                       st_point, format_frequency(rx.span_hz), format_frequency(rx.rbw_hz), rx.averages));
+    }
+  }
+
+  // Mask edges between plan points leave the true return loss at the edge unmeasured: a guarded
+  // pass then rests on the neighbouring point (common practice, no source: sample the edges).
+  const std::vector<double> plan = plan_frequencies(r);
+  for (std::size_t i = 0; i < r.limits.mask.size(); ++i) {
+    for (double edge : {r.limits.mask[i].start_hz, r.limits.mask[i].stop_hz}) {
+      const bool on_plan = std::any_of(plan.begin(), plan.end(), [&](double f) { return std::fabs(f - edge) <= 1.0; });
+      if (!on_plan) {
+        add(out, "warning", fmt::format("/limits/mask/{}", i),
+            fmt::format("the limit edge {} is not a plan frequency: the return loss exactly at the edge is not "
+                        "measured; choose points or a step that put a point on it",
+                        format_frequency(edge)));
+      }
+    }
+  }
+
+  // Centring: can this station decide the resonance window at all (centring_prediction.hpp)?
+  if (r.limits.resonance_min_hz && r.rule == DecisionRule::guarded) {
+    if (auto p = predict_centring(r, st)) {
+      if (p->inconclusive_fraction > 0.10) {
+        std::string help = p->directivity_for_5_percent_db
+                               ? fmt::format("a coupler of at least {:.1f} dB directivity would bring it to 5 %",
+                                             *p->directivity_for_5_percent_db)
+                               : std::string("no coupler would bring it to 5 % with this kit's LOAD");
+        add(out, "warning", "/limits/resonance_min_hz",
+            fmt::format("this station places the resonance only to about \u00b1{:.1f} MHz, so about {:.0f} % of {} "
+                        "will come out inconclusive for the {} window; {}, or express centring as return-loss mask "
+                        "segments instead (judged point by point)",
+                        p->half_width_hz / 1e6, 100 * p->inconclusive_fraction,
+                        p->of_all_units ? "units" : "well-centred units",
+                        format_frequency_range(*r.limits.resonance_min_hz, *r.limits.resonance_max_hz), help));
+      }
+    } else {
+      add(out, "warning", "/nominal_unit",
+          "a resonance window under guarded acceptance without nominal_unit {q or bandwidth_hz}: the station cannot "
+          "predict how many units the window will leave inconclusive; give the nominal unit's Q or bandwidth");
     }
   }
   return out;

@@ -6,6 +6,7 @@
 #include <string>
 #include <vector>
 
+#include "daemon/core/cal_kit.hpp"
 #include "daemon/core/recipe.hpp"
 
 namespace echoline::core {
@@ -29,6 +30,8 @@ struct StationCapability {
   double source_min_hz = 0, source_max_hz = 0;
   double receiver_min_hz = 0, receiver_max_hz = 0;
   double source_max_power_dbm = 0;
+  CalKit kit = builtin_conservative_kit();  // the standards the station calibrates with
+  double test_port_delay_s = 5e-9;   // one-way electrical delay coupler -> test port (error-term rotation)
 };
 
 // Findings in recipe order; any "error" means the recipe must not run on this station.

@@ -39,7 +39,8 @@ class Loader {
     const JsonPointer root("");
     doc_.require_object(root);
     doc_.check_keys(root, {"name", "version", "description", "mode", "segments", "source", "receiver",
-                           "calibration", "limits", "rule", "trim", "source_match_db", "setup", "teardown", "fast_capture"});
+                           "calibration", "limits", "rule", "trim", "source_match_db", "setup", "teardown", "fast_capture",
+                           "coverage_factor", "nominal_unit"});
     r.name = doc_.require_string(ptr("/name"));
     if (r.name.empty()) doc_.fail(ptr("/name"), "must not be empty");
     r.version = doc_.require_string(ptr("/version"));
@@ -58,6 +59,9 @@ class Loader {
                                                                                 : DecisionRule::guarded;
     load_limits(r);
     load_trim(r);
+    // JCGM 100 §6.2–6.3: the expanded uncertainty U = k·u_c; k from 1 to 5 covers every use.
+    r.coverage_factor = doc_.number_in(ptr("/coverage_factor"), r.coverage_factor, 1, 5, "");
+    load_nominal(r);
     r.source_match_db = doc_.number_in(ptr("/source_match_db"), r.source_match_db, 1, 80, "dB");
     load_scpi(ptr("/setup"), r.setup);
     load_scpi(ptr("/teardown"), r.teardown);
@@ -375,6 +379,18 @@ class Loader {
     r.trim = t;
   }
 
+  void load_nominal(Recipe& r) {
+    const JsonPointer at("/nominal_unit");
+    if (!doc_.has(at)) return;
+    doc_.require_object(at);
+    doc_.check_keys(at, {"q", "bandwidth_hz", "resonance_sd_hz", "center_hz"});
+    if (doc_.has(at / "q") && doc_.has(at / "bandwidth_hz")) doc_.fail(at, "give either q or bandwidth_hz, not both");
+    if (doc_.has(at / "q")) r.nominal.q = doc_.number_in(at / "q", 1, 0.5, 10000, "");
+    r.nominal.bandwidth_hz = optional_frequency(at / "bandwidth_hz");
+    r.nominal.resonance_sd_hz = optional_frequency(at / "resonance_sd_hz");
+    r.nominal.center_hz = optional_frequency(at / "center_hz");
+  }
+
   void load_scpi(const JsonPointer& at, std::map<std::string, std::vector<std::string>>& out) {
     if (!doc_.has(at)) return;
     doc_.require_object(at);
@@ -397,8 +413,10 @@ class Loader {
 
 Recipe parse_recipe(std::string text, std::string file_name) {
   const std::string hash = sha256_hex(text);
+  std::string copy = text;
   const JsoncDocument doc = JsoncDocument::parse(std::move(text), file_name);
   Recipe r = Loader(doc).load();
+  r.source_text = std::move(copy);
   r.content_hash = hash;
   r.source_path = file_name;
   return r;

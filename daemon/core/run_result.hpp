@@ -7,6 +7,8 @@
 #include <string>
 #include <vector>
 
+#include "daemon/core/budget_types.hpp"
+
 namespace echoline::core {
 
 // One raw reading from the receiver.
@@ -46,6 +48,9 @@ struct Metrics {
   // resonance may lie beyond the sweep) and when there is no resonance.
   std::optional<double> resonance_low_hz;
   std::optional<double> resonance_high_hz;
+  // Which interval decided the resonance: "rigorous" (every point's bounds, any error phase),
+  // "shift-bound" (smooth error terms over the dip; its assumptions checked), or "" (none).
+  std::string resonance_interval_kind;
 };
 
 struct TrimAdvice {
@@ -89,6 +94,7 @@ struct RunResult {
   std::optional<TrimAdvice> trim;
   std::vector<PointResult> points;
   Timings timings;
+  std::string software;          // "echolined <version> (<commit>)" that judged it
 };
 
 struct CalibrationRecord {
@@ -111,6 +117,13 @@ struct CalibrationRecord {
   int max_units = 0;
   double max_temperature_change_c = 0;
   int units_since = 0;                                  // maintained by the service
+  // The calibration kit the standards came from, and the uncertainty budget built from the
+  // standards' readings, their repeats and the kit (uncertainty.hpp). An empty budget (records
+  // made before budgets existed) makes the record unusable for judging: calibrate again.
+  std::string kit_identity;
+  std::string kit_serial;
+  UncertaintyBudget budget;
+  std::string software;                                 // "echolined <version> (<commit>)"
 };
 
 }  // namespace echoline::core

@@ -8,7 +8,7 @@
 namespace echoline::core {
 
 StationCapability station_capability(const drivers::FixtureConfig& fixture, const drivers::Profile& source,
-                                     const drivers::Profile& receiver, const Recipe& recipe) {
+                                     const drivers::Profile& receiver, const Recipe& recipe, const CalKit* kit) {
   StationCapability c;
   c.directivity_db = fixture.nominal_directivity_db;
   c.source_match_db = fixture.source_match_db;
@@ -26,6 +26,8 @@ StationCapability station_capability(const drivers::FixtureConfig& fixture, cons
   c.receiver_min_hz = receiver.min_frequency_hz;
   c.receiver_max_hz = receiver.max_frequency_hz;
   c.source_max_power_dbm = source.max_power_dbm;
+  if (kit) c.kit = *kit;
+  c.test_port_delay_s = fixture.test_port_delay_ns * 1e-9;
   return c;
 }
 

@@ -12,7 +12,9 @@ namespace echoline::core {
 
 // Nominal capability: the coupler's datasheet directivity (calibration measures the real one);
 // the noise floor is kTB + NF at the RBW the recipe measures with, plus its input attenuation.
+// `kit`: the station's calibration kit (nullptr: the built-in conservative kit).
 StationCapability station_capability(const drivers::FixtureConfig& fixture, const drivers::Profile& source,
-                                     const drivers::Profile& receiver, const Recipe& recipe);
+                                     const drivers::Profile& receiver, const Recipe& recipe,
+                                     const CalKit* kit = nullptr);
 
 }  // namespace echoline::core

@@ -1,6 +1,7 @@
 // The station's jobs: unit test, calibration, check standard; and its state for status.
 #include "daemon/service/station.hpp"
 
+#include <algorithm>
 #include <chrono>
 #include <cmath>
 #include <filesystem>
@@ -11,6 +12,7 @@
 #include <fmt/format.h>
 #include <spdlog/spdlog.h>
 
+#include "daemon/core/cal_kit_loader.hpp"
 #include "daemon/core/judge.hpp"
 #include "daemon/core/recipe_loader.hpp"
 #include "daemon/core/rf_math.hpp"
@@ -89,7 +91,21 @@ json run_json(const core::RunResult& run) {
 }
 
 json calibration_summary_json(const core::CalibrationRecord& cal) {
+  // The budget in brief: the worst directivity bound (as dB) and the measured reading noise.
+  double worst_bound = 0;
+  for (double e : cal.budget.directivity_bound) worst_bound = std::max(worst_bound, e);
+  json noise = json::array();
+  for (const auto& n : cal.budget.noise) {
+    noise.push_back({{"start_hz", n.start_hz}, {"stop_hz", n.stop_hz}, {"measured", n.measured},
+                     {"high_level_db", n.high_level_db}, {"load_level_db", n.load_level_db}});
+  }
+  json budget = {{"coverage_factor", cal.budget.coverage_factor},
+                 {"directivity_bound_db", worst_bound > 0 ? json(-20 * std::log10(worst_bound)) : json(nullptr)},
+                 {"reading_noise", noise}};
   return {{"id", cal.id},
+          {"kit", {{"identity", cal.kit_identity}, {"serial", cal.kit_serial}}},
+          {"budget", budget},
+          {"software", cal.software},
           {"created_utc", cal.created_utc},
           {"valid", cal.valid},
           {"warnings", cal.warnings},
@@ -101,6 +117,13 @@ json calibration_summary_json(const core::CalibrationRecord& cal) {
 
 // ---- Station ----
 Station::Station(drivers::StationConfig config) : config_(std::move(config)) {
+  if (config_.calibration_kit.empty()) {
+    kit_ = core::builtin_conservative_kit();
+    spdlog::warn("station config names no calibration_kit: using the built-in conservative kit (wider bounds)");
+  } else {
+    kit_ = core::load_cal_kit(config_.calibration_kit);
+    spdlog::info("calibration kit: {} serial {} ({})", kit_.identity, kit_.serial, config_.calibration_kit.string());
+  }
   auto recipe = std::make_shared<core::Recipe>(core::load_recipe(config_.recipe));
   instruments_ = std::make_unique<Instruments>(config_);
   auto findings = core::check_recipe(*recipe, capability(*recipe));
@@ -124,6 +147,9 @@ Station::Station(drivers::StationConfig config) : config_(std::move(config)) {
   auto opened = store::RunStore::open(db, so);
   if (!opened) throw std::runtime_error(opened.error().message);
   store_ = std::move(opened.value());
+  if (Status s = store_->save_recipe_text(recipe->content_hash, recipe->name, recipe->version, recipe->source_text); !s) {
+    spdlog::error("recipe text not kept for offline re-judging: {}", s.error().message);
+  }
 
   auto latest = store_->latest_calibration();
   if (!latest) throw std::runtime_error(latest.error().message);
@@ -160,7 +186,8 @@ std::shared_ptr<const core::Recipe> Station::recipe() const {
 }
 
 core::StationCapability Station::capability(const core::Recipe& recipe) const {
-  return core::station_capability(config_.fixture, instruments_->source_profile(), instruments_->receiver_profile(), recipe);
+  return core::station_capability(config_.fixture, instruments_->source_profile(), instruments_->receiver_profile(), recipe,
+                                  &kit_);
 }
 
 std::vector<std::string> Station::standards() const {
@@ -248,6 +275,7 @@ TestOutcome Station::run_test(const TestRequest& request, const CancelToken& can
   run.operator_name = request.operator_name;
   run.recipe = {recipe->name, recipe->version, recipe->content_hash};
   run.decision_rule = core::to_string(recipe->rule);
+  run.software = fmt::format("echolined {} ({})", version(), commit());
   run.started_utc = utc_iso8601(start_s);
   run.calibration_id = cal ? cal->id : "";
   run.verdict = core::Verdict::aborted;
@@ -306,7 +334,7 @@ TestOutcome Station::run_test(const TestRequest& request, const CancelToken& can
     return finish();
   }
   const auto ta = Clock::now();
-  core::Judgement j = core::judge(*recipe, *cal, sweep.readings, config_.fixture.source_match_db);
+  core::Judgement j = core::judge(*recipe, *cal, sweep.readings);
   run.timings.analysis_s = seconds_since(ta);
   run.points = std::move(j.points);
   if (run.points.empty()) {
@@ -325,8 +353,10 @@ TestOutcome Station::run_test(const TestRequest& request, const CancelToken& can
 
 Result<std::vector<core::Reading>> Station::sweep_standard(const std::string& standard, const core::Recipe& recipe,
                                                            Prompter& prompter, const CancelToken& cancel,
-                                                           const StandardProgressFn& progress) {
-  if (auto* sw = instruments_->switch_()) {
+                                                           const StandardProgressFn& progress, bool connect) {
+  if (!connect) {
+    // A repeat sweep of the standard already connected (reading noise): no switch, no prompt.
+  } else if (auto* sw = instruments_->switch_()) {
     if (Status s = sw->select(standard); !s) return s.error();
   } else if (!prompter.wait_connected(standard)) {
     std::string why = cancel.reason();
@@ -359,6 +389,16 @@ CalibrationOutcome Station::run_calibration(Prompter& prompter, const CancelToke
       return out;
     }
     traces[standard] = std::move(r.value());
+    if (standard == "OPEN" || standard == "LOAD") {
+      // Sweep it again without touching the connection: the difference of the two sweeps
+      // measures the reading noise at the full-reflection and at the lowest level (uncertainty.hpp).
+      auto again = sweep_standard(standard, *recipe, prompter, cancel, progress, false);
+      if (!again) {
+        out.error = again.error().with_context("calibration (repeat sweep)");
+        return out;
+      }
+      traces[standard + "/repeat"] = std::move(again.value());
+    }
   }
   const double now = unix_now_s();
   std::string id = fmt::format("cal-{}-{}-{}", compact_utc(now), config_.station, random_hex4());
@@ -367,6 +407,7 @@ CalibrationOutcome Station::run_calibration(Prompter& prompter, const CancelToke
   rec.instruments = instruments_->identities();
   rec.recipe = {recipe->name, recipe->version, recipe->content_hash};
   rec.units_since = 0;
+  rec.software = fmt::format("echolined {} ({})", version(), commit());
   if (Status s = store_->save_calibration(rec); !s) {
     out.error = s.error().with_context("calibration: store");
     return out;
@@ -429,6 +470,9 @@ Result<json> Station::select_recipe(const std::filesystem::path& path) {
         return make_error(ErrorKind::config, fmt::format("recipe {} refused on this station: {}: {}", path.string(), f.key, f.message));
       }
     }
+  }
+  if (Status s = store_->save_recipe_text(loaded->content_hash, loaded->name, loaded->version, loaded->source_text); !s) {
+    spdlog::error("recipe text not kept for offline re-judging: {}", s.error().message);
   }
   std::lock_guard lock(mu_);
   recipe_ = loaded;

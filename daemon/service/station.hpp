@@ -115,9 +115,10 @@ class Station {
   std::string next_run_id(double now_s);
   Result<std::vector<core::Reading>> sweep_standard(const std::string& standard, const core::Recipe& recipe,
                                                     Prompter& prompter, const CancelToken& cancel,
-                                                    const StandardProgressFn& progress);
+                                                    const StandardProgressFn& progress, bool connect = true);
 
   drivers::StationConfig config_;
+  core::CalKit kit_;   // the calibration kit the station config names (or the built-in conservative one)
   std::unique_ptr<Instruments> instruments_;
   std::unique_ptr<store::RunStore> store_;
 

@@ -9,6 +9,7 @@
 #include <mutex>
 #include <nlohmann/json.hpp>
 
+#include "daemon/store/budget_json.hpp"
 #include "daemon/store/schema.hpp"
 #include "daemon/store/sqlite_db.hpp"
 #include "daemon/store/yield.hpp"
@@ -27,7 +28,8 @@ constexpr std::string_view kRunColumns =
     "instruments_json, started_utc, ended_utc, temperature_c, calibration_id, retest, verdict, failure_class, "
     "reason, resonance_hz, depth_db, bandwidth_hz, band_low_hz, band_high_hz, min_margin_db, vswr_at_resonance, "
     "mismatch_loss_db, directivity_db, trim_element_length_mm, trim_change_mm, trim_measured_hz, trim_target_hz, "
-    "trim_text, total_s, sweep_s, analysis_s, points_count, resonance_low_hz, resonance_high_hz";
+    "trim_text, total_s, sweep_s, analysis_s, points_count, resonance_low_hz, resonance_high_hz, software, "
+    "resonance_interval";
 
 core::Verdict verdict_from(std::string_view s) {
   if (s == "pass") return core::Verdict::pass;
@@ -117,6 +119,8 @@ core::RunResult run_from_row(const Statement& s) {
   ++c;   // points_count: the points themselves are loaded on demand
   m.resonance_low_hz = s.optional_real(c++);
   m.resonance_high_hz = s.optional_real(c++);
+  r.software = s.text(c++);
+  m.resonance_interval_kind = s.text(c++);
   return r;
 }
 
@@ -189,7 +193,7 @@ Status RunStore::save_run(const core::RunResult& run) {
     if (auto s = unit->run(); !s.ok()) return impl_->fail(s.error(), doing);
 
     auto ins = db.prepare(fmt::format("INSERT INTO runs({}) VALUES(?1,?2,?3,?4,?5,?6,?7,?8,?9,?10,?11,?12,?13,?14,?15,"
-                                      "?16,?17,?18,?19,?20,?21,?22,?23,?24,?25,?26,?27,?28,?29,?30,?31,?32,?33,?34,?35,?36,?37,?38)",
+                                      "?16,?17,?18,?19,?20,?21,?22,?23,?24,?25,?26,?27,?28,?29,?30,?31,?32,?33,?34,?35,?36,?37,?38,?39,?40)",
                                       kRunColumns));
     if (!ins.ok()) return ins.error();
     Statement& s = *ins;
@@ -214,6 +218,7 @@ Status RunStore::save_run(const core::RunResult& run) {
     b(run.timings.total_s); b(run.timings.sweep_s); b(run.timings.analysis_s);
     b(static_cast<long long>(run.points.size()));
     b(m.resonance_low_hz); b(m.resonance_high_hz);
+    b(std::string_view(run.software)); b(std::string_view(m.resonance_interval_kind));
     if (auto st = s.run(); !st.ok()) {
       if (st.error().instrument_code == SQLITE_CONSTRAINT_UNIQUE) {
         return make_error(ErrorKind::invalid_argument,
@@ -241,6 +246,29 @@ Status RunStore::save_run(const core::RunResult& run) {
   });
 }
 
+Status RunStore::save_recipe_text(std::string_view hash, std::string_view name, std::string_view version,
+                                  std::string_view text) {
+  std::lock_guard lock(impl_->mutex);
+  if (hash.empty()) return make_error(ErrorKind::invalid_argument, "saving recipe text: content hash is empty");
+  auto st = impl_->db.prepare(
+      "INSERT INTO recipes(content_hash, name, version, text) VALUES(?1,?2,?3,?4) ON CONFLICT(content_hash) DO NOTHING");
+  if (!st.ok()) return st.error();
+  st->bind(1, hash).bind(2, name).bind(3, version).bind(4, text);
+  if (auto s = st->run(); !s.ok()) return impl_->fail(s.error(), fmt::format("saving the text of recipe {} {}", name, version));
+  return Status::success();
+}
+
+Result<std::optional<std::string>> RunStore::recipe_text(std::string_view hash) {
+  std::lock_guard lock(impl_->mutex);
+  auto st = impl_->db.prepare("SELECT text FROM recipes WHERE content_hash = ?1");
+  if (!st.ok()) return st.error();
+  st->bind(1, hash);
+  auto row = st->step();
+  if (!row.ok()) return impl_->fail(row.error(), "loading a recipe text");
+  if (!*row) return std::optional<std::string>{};
+  return std::optional<std::string>(st->text(0));
+}
+
 Status RunStore::save_calibration(const core::CalibrationRecord& cal) {
   std::lock_guard lock(impl_->mutex);
   if (cal.id.empty()) return make_error(ErrorKind::invalid_argument, "saving calibration: id is empty");
@@ -250,8 +278,9 @@ Status RunStore::save_calibration(const core::CalibrationRecord& cal) {
     auto ins = db.prepare(
         "INSERT INTO calibrations(id, created_utc, recipe_name, recipe_version, recipe_hash, station, instruments_json, "
         "temperature_c, reference_json, directivity_json, min_directivity_db, warnings_json, valid, max_age_s, max_units, "
-        "max_temperature_change_c, noise_margin_db, units_since, errors_json) "
-        "VALUES(?1,?2,?3,?4,?5,?6,?7,?8,?9,?10,?11,?12,?13,?14,?15,?16,?17,?18,?19)");
+        "max_temperature_change_c, noise_margin_db, units_since, errors_json, kit_identity, kit_serial, budget_json, "
+        "software) "
+        "VALUES(?1,?2,?3,?4,?5,?6,?7,?8,?9,?10,?11,?12,?13,?14,?15,?16,?17,?18,?19,?20,?21,?22,?23)");
     if (!ins.ok()) return ins.error();
     auto& s = *ins;
     s.bind(1, cal.id).bind(2, cal.created_utc).bind(3, cal.recipe.name).bind(4, cal.recipe.version);
@@ -260,6 +289,7 @@ Status RunStore::save_calibration(const core::CalibrationRecord& cal) {
     s.bind(11, cal.min_directivity_db).bind(12, nlohmann::json(cal.warnings).dump()).bind(13, cal.valid ? 1 : 0);
     s.bind(14, cal.max_age_s).bind(15, cal.max_units).bind(16, cal.max_temperature_change_c);
     s.bind(17, cal.noise_margin_db).bind(18, cal.units_since).bind(19, nlohmann::json(cal.errors).dump());
+    s.bind(20, cal.kit_identity).bind(21, cal.kit_serial).bind(22, budget_to_json(cal.budget)).bind(23, cal.software);
     if (auto st = s.run(); !st.ok()) {
       if (st.error().instrument_code == SQLITE_CONSTRAINT_UNIQUE) {
         return make_error(ErrorKind::invalid_argument, fmt::format("run store {}: calibration '{}' is already stored",
@@ -419,7 +449,8 @@ Result<std::optional<core::CalibrationRecord>> RunStore::Impl::select_calibratio
   auto st = db.prepare(fmt::format(
       "SELECT id, created_utc, recipe_name, recipe_version, recipe_hash, station, instruments_json, temperature_c, "
       "reference_json, directivity_json, min_directivity_db, warnings_json, valid, max_age_s, max_units, "
-      "max_temperature_change_c, noise_margin_db, units_since, errors_json, invalidated_reason, invalidated_utc "
+      "max_temperature_change_c, noise_margin_db, units_since, errors_json, invalidated_reason, invalidated_utc, "
+      "kit_identity, kit_serial, budget_json, software "
       "FROM calibrations {} ORDER BY created_utc DESC, seq DESC "
       "LIMIT 1",
       where));
@@ -456,6 +487,15 @@ Result<std::optional<core::CalibrationRecord>> RunStore::Impl::select_calibratio
       if (x.is_string()) c.errors.push_back(x.get<std::string>());
     }
   }
+  c.kit_identity = st->text(21);
+  c.kit_serial = st->text(22);
+  if (auto budget = budget_from_json(st->text(23))) {
+    c.budget = std::move(*budget);
+  } else {
+    c.valid = false;
+    c.errors.push_back("the stored uncertainty budget is unreadable");
+  }
+  c.software = st->text(24);
   if (!st->is_null(19)) {
     // Invalidated after it was made (e.g. check-standard drift): never usable again.
     c.valid = false;

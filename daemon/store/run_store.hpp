@@ -20,7 +20,7 @@ namespace echoline::store {
 
 // Schema version this code writes (PRAGMA user_version). Older files are migrated on open;
 // newer files are refused (ErrorKind::storage, message names both versions).
-inline constexpr int kSchemaVersion = 5;
+inline constexpr int kSchemaVersion = 6;
 
 struct StoreOptions {
   int busy_timeout_ms = 5000;                           // wait this long for another writer
@@ -77,6 +77,12 @@ class RunStore {
   Status save_run(const core::RunResult& run);
 
   // Stores a calibration with its raw traces (one transaction). Duplicate id: invalid_argument.
+  // Keeps a recipe's file text under its content hash (once; later calls change nothing), so a
+  // stored run can be re-judged offline with the very limits that judged it.
+  Status save_recipe_text(std::string_view content_hash, std::string_view name, std::string_view version,
+                          std::string_view text);
+  // The text stored for a content hash, or nullopt.
+  Result<std::optional<std::string>> recipe_text(std::string_view content_hash);
   Status save_calibration(const core::CalibrationRecord& cal);
   // Updates the units-since counter the service maintains.
   Status set_calibration_units(std::string_view calibration_id, int units_since);

@@ -117,6 +117,21 @@ ALTER TABLE calibrations ADD COLUMN invalidated_reason TEXT;
 ALTER TABLE calibrations ADD COLUMN invalidated_utc TEXT;
 )sql";
 
+constexpr std::string_view kVersion6 = R"sql(
+ALTER TABLE calibrations ADD COLUMN kit_identity TEXT NOT NULL DEFAULT '';
+ALTER TABLE calibrations ADD COLUMN kit_serial TEXT NOT NULL DEFAULT '';
+ALTER TABLE calibrations ADD COLUMN budget_json TEXT NOT NULL DEFAULT '{}';
+ALTER TABLE calibrations ADD COLUMN software TEXT NOT NULL DEFAULT '';
+ALTER TABLE runs ADD COLUMN software TEXT NOT NULL DEFAULT '';
+ALTER TABLE runs ADD COLUMN resonance_interval TEXT NOT NULL DEFAULT '';
+CREATE TABLE recipes (
+  content_hash TEXT PRIMARY KEY,
+  name TEXT NOT NULL,
+  version TEXT NOT NULL,
+  text TEXT NOT NULL
+) WITHOUT ROWID;
+)sql";
+
 }  // namespace
 
 const std::vector<Migration>& migrations() {
@@ -126,6 +141,8 @@ const std::vector<Migration>& migrations() {
       {3, "calibration errors (why a record is not valid)", kVersion3},
       {4, "bound interval of the true resonance per run", kVersion4},
       {5, "calibration invalidated after it was made (check-standard drift), with reason and time", kVersion5},
+      {6, "calibration kit and uncertainty budget per calibration; software per run and calibration; which "
+          "resonance interval decided; recipe texts by content hash (offline re-judging)", kVersion6},
   };
   return steps;
 }

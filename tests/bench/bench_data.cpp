@@ -82,7 +82,7 @@ std::vector<core::Reading> dut_readings(const core::Recipe& recipe, double f0_hz
 core::RunResult make_run(const core::Recipe& recipe, const core::CalibrationRecord& cal, const std::string& lot,
                          int index) {
   const double f0 = 895e6 + 40e6 * std::fmod(index * 0.618034, 1.0);
-  core::Judgement j = core::judge(recipe, cal, dut_readings(recipe, f0), recipe.source_match_db);
+  core::Judgement j = core::judge(recipe, cal, dut_readings(recipe, f0));
   core::RunResult run;
   run.run_id = fmt::format("bench-{}-{:06d}", lot, index);
   run.serial = fmt::format("WH915A-{:05d}", index);

@@ -56,10 +56,10 @@ void BM_Judge(benchmark::State& state) {
   const auto cal = calibrate(recipe);
   const auto dut = bench::dut_readings(recipe, 912e6);
   for (auto _ : state) {
-    auto j = core::judge(recipe, cal, dut, recipe.source_match_db);
+    auto j = core::judge(recipe, cal, dut);
     benchmark::DoNotOptimize(j);
   }
-  if (core::judge(recipe, cal, dut, recipe.source_match_db).verdict == core::Verdict::aborted)
+  if (core::judge(recipe, cal, dut).verdict == core::Verdict::aborted)
     state.SkipWithError("the synthetic run was judged aborted");
 }
 BENCHMARK(BM_Judge)->Arg(201)->Arg(1601)->Unit(benchmark::kMicrosecond);

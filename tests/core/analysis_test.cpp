@@ -175,13 +175,21 @@ TEST(Analysis, MaskMarginsPerSegment) {
   EXPECT_DOUBLE_EQ(m[1].measured_at_hz, 930e6);
 }
 
-// RL = reference − P_dut; a reading above the reference is clamped to 0 dB and counted.
+// RL = reference − P_dut; a reading above the reference is clamped to 0 dB and counted. With a
+// budget of directivity alone (no reference error, noise or source match) the bounds are the
+// classic scalar ones: |Γ| ± ρ_D.
 TEST(Analysis, CalibratePointsUsesReferenceAndDirectivity) {
   CalibrationRecord cal;
   cal.reference_dbm = {-31.0, -31.0, -31.0};
   cal.directivity_db = {30, 30, 40};
+  UncertaintyBudget& b = cal.budget;
+  b.frequency_hz = {900e6, 901e6, 902e6};
+  b.reference_error_low_db = b.reference_error_high_db = b.reference_noise_db = {0, 0, 0};
+  b.directivity_bound = b.directivity_measured = {rho_from_db(30), rho_from_db(30), rho_from_db(40)};
+  b.load_residual = {0, 0, 0};
+  b.noise = {SegmentNoise{900e6, 902e6, 3, 0, 0, -70, true}};
   std::vector<Reading> dut = {{900e6, -51.0}, {901e6, -30.5}, {902e6, -61.0}};
-  CalibratedTrace t = calibrate_points(cal, dut, kInf);
+  CalibratedTrace t = calibrate_points(cal, dut);
   ASSERT_EQ(t.points.size(), 3u);
   EXPECT_NEAR(t.points[0].return_loss_db, 20.0, 1e-12);
   EXPECT_NEAR(t.points[0].return_loss_worst_db, 17.6134, 1e-4);   // REFERENCE.md §2, D 30, RL 20

@@ -113,7 +113,7 @@ class FastVsStep : public ::testing::TestWithParam<std::string> {
     EXPECT_TRUE(s.completed()) << m.name << " " << serial << ": " << (s.error ? s.error->message : "");
     if (!s.completed()) return {};
     m.cycle_s.push_back(s.sweep_s);
-    core::Judgement j = core::judge(m.recipe, m.cal, s.readings, m.recipe.source_match_db);
+    core::Judgement j = core::judge(m.recipe, m.cal, s.readings);
     return j.points;
   }
 

@@ -153,6 +153,8 @@ inline std::filesystem::path write_station_config(const std::filesystem::path& d
               {"data_dir", (dir / "data").string()},
               {"log_dir", (dir / "log").string()},
               {"recipe", (src / "config/recipes" / recipe).string()},
+              {"calibration_kit", (src / "config/kits/sim-kit.jsonc").string()},
+              {"fixture", {{"test_port_delay_ns", 2}}},
               {"instruments",
                {{{"role", "source"}, {"name", "siggen"}, {"address", sim.endpoint("source")},
                  {"profile", (src / "config/instruments/sim-source.jsonc").string()}},

@@ -25,10 +25,43 @@ std::string dump(const std::vector<CheckFinding>& f) {
   return s;
 }
 
+// The shipped form: mask only, a plan point on every limit edge (0.5 MHz steps from 860 MHz).
 TEST(RecipeCheck, WhipRecipeIsCleanOnAGoodStation) {
-  auto f = check_recipe(whip_recipe(), station());
+  Recipe r = whip_recipe();
+  r.segments = {Segment{860e6, 970e6, 221}};
+  r.limits.resonance_min_hz.reset();
+  r.limits.resonance_max_hz.reset();
+  auto f = check_recipe(r, station());
   EXPECT_TRUE(f.empty()) << dump(f);
   EXPECT_FALSE(has_errors(f));
+}
+
+// 0.55 MHz steps from 860 MHz miss 902 and 928 MHz: the edges themselves are never measured.
+TEST(RecipeCheck, LimitEdgeBetweenPlanPointsIsWarned) {
+  Recipe r = whip_recipe();
+  r.limits.resonance_min_hz.reset();
+  r.limits.resonance_max_hz.reset();
+  auto f = check_recipe(r, station());
+  EXPECT_TRUE(find(f, "warning", "the limit edge 902 MHz is not a plan frequency")) << dump(f);
+  EXPECT_TRUE(find(f, "warning", "the limit edge 928 MHz is not a plan frequency")) << dump(f);
+}
+
+// A window the station cannot resolve: the check says how many units it will leave undecided
+// and what directivity would help (centring_prediction.hpp).
+TEST(RecipeCheck, NarrowWindowIsWarnedWithThePredictedInconclusiveShare) {
+  Recipe r = whip_recipe();
+  r.segments = {Segment{860e6, 970e6, 221}};
+  r.nominal.q = 9;
+  r.nominal.resonance_sd_hz = 5.9e6;
+  StationCapability st = station();
+  st.directivity_db = 25;
+  auto f = check_recipe(r, st);
+  const CheckFinding* w = find(f, "warning", "will come out inconclusive for the 905");
+  ASSERT_TRUE(w) << dump(f);
+  EXPECT_EQ(w->key, "/limits/resonance_min_hz");
+  EXPECT_NE(w->message.find("a coupler of at least"), std::string::npos) << w->message;
+  r.nominal = {};
+  EXPECT_TRUE(find(check_recipe(r, st), "warning", "without nominal_unit")) << dump(check_recipe(r, st));
 }
 
 // Worst case at the receiver: P_src − coupling + 20·log10(1 + 10^(−D/20)). With D = 30 dB the

@@ -79,7 +79,7 @@ TEST(RecipeLoaderFast, ShippedFastRecipeLoads) {
   auto plan = plan_fast_capture(r);
   ASSERT_TRUE(plan.ok()) << plan.error().message;
   EXPECT_TRUE(plan->axis.bins_on_plan);
-  EXPECT_EQ(plan->axis.points, 201);
+  EXPECT_EQ(plan->axis.points, 221);
 }
 
 TEST(RecipeLoaderFast, AutomaticTimesFollowTheRules) {

@@ -81,8 +81,15 @@ TEST(RecipeLoader, BaseRecipeLoads) {
 TEST(RecipeLoader, ShippedRecipesLoad) {
   Recipe w = load_recipe(std::string(ECHOLINE_SOURCE_DIR) + "/config/recipes/whip915.jsonc");
   EXPECT_EQ(w.name, "whip915");
-  EXPECT_EQ(plan_frequencies(w).size(), 201u);
-  EXPECT_DOUBLE_EQ(w.limits.mask.at(0).start_hz, 902e6);
+  EXPECT_EQ(plan_frequencies(w).size(), 221u);   // 0.5 MHz steps: a point on every limit edge
+  ASSERT_EQ(w.limits.mask.size(), 3u);            // shoulder, band, shoulder
+  EXPECT_DOUBLE_EQ(w.limits.mask.at(1).start_hz, 902e6);
+  EXPECT_FALSE(w.limits.resonance_min_hz);        // centring by mask, not by a window
+  EXPECT_DOUBLE_EQ(w.coverage_factor, 3);
+  Recipe win = load_recipe(std::string(ECHOLINE_SOURCE_DIR) + "/config/recipes/whip915-window.jsonc");
+  EXPECT_DOUBLE_EQ(*win.limits.resonance_min_hz, 905e6);
+  EXPECT_DOUBLE_EQ(*win.nominal.q, 9);
+  EXPECT_DOUBLE_EQ(*win.nominal.resonance_sd_hz, 5.9e6);
   EXPECT_EQ(w.rule, DecisionRule::guarded);
   ASSERT_TRUE(w.trim);
   EXPECT_DOUBLE_EQ(w.trim->target_hz, 915e6);

@@ -66,7 +66,7 @@ TEST(ResonanceShift, ShallowOrSparseDipHasNoShiftBound) {
     flat[i].return_loss_worst_db = 0.9;
     flat[i].return_loss_best_db = 1.1;
   }
-  EXPECT_FALSE(resonance_shift_bound_hz(flat, 5).has_value());
+  EXPECT_FALSE(resonance_shift_bound(flat, 5, context_from_bounds(flat)).has_value());
 }
 
 }  // namespace

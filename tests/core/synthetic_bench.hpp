@@ -49,6 +49,15 @@ inline StationCapability station() {
   s.receiver_min_hz = 9e3;
   s.receiver_max_hz = 6e9;
   s.source_max_power_dbm = 13;
+  s.source_match_db = 30;
+  // The synthetic standards are ideal and the LOAD is 60 dB: a kit that says so (the budget then
+  // adds only the LOAD residual it states and the measured noise, which is zero here).
+  s.kit.identity = "synthetic ideal kit";
+  s.kit.serial = "T-0";
+  s.kit.open = ReflectStandard{};
+  s.kit.short_ = ReflectStandard{};
+  s.kit.load = {LoadStep{6e9, 60}};
+  s.kit.connection_repeatability = 0;
   return s;
 }
 
@@ -85,7 +94,10 @@ inline cd antenna(double f, double f0, double q, double r_ohm) {
 inline std::map<std::string, std::vector<Reading>> standards(const Recipe& r, const Bench& b) {
   return {{"OPEN", measure(r, b, [](double) { return cd(1, 0); })},
           {"SHORT", measure(r, b, [](double) { return cd(-1, 0); })},
-          {"LOAD", measure(r, b, [](double) { return cd(std::pow(10.0, -60.0 / 20), 0); })}};
+          {"LOAD", measure(r, b, [](double) { return cd(std::pow(10.0, -60.0 / 20), 0); })},
+          // Repeats of a noiseless bench: the measured reading noise is zero.
+          {"OPEN/repeat", measure(r, b, [](double) { return cd(1, 0); })},
+          {"LOAD/repeat", measure(r, b, [](double) { return cd(std::pow(10.0, -60.0 / 20), 0); })}};
 }
 
 inline CalibrationRecord calibrate(const Recipe& r, const Bench& b = {}) {

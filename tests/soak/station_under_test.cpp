@@ -158,9 +158,10 @@ void StationUnderTest::write_station_config() {
          {"profile", (src / "config/instruments/sim-source.jsonc").string()}},
         {{"role", "receiver"}, {"name", "analyzer"}, {"address", receiver_address_},
          {"profile", (src / "config/instruments/sim-receiver.jsonc").string()}}}},
+      {"calibration_kit", (src / "config/kits/sim-kit.jsonc").string()},
       {"fixture",
        {{"coupling_db", 20}, {"mainline_loss_db", 0.5}, {"cable_loss_db", 0.3}, {"source_match_db", 25},
-        {"nominal_directivity_db", 30}}},
+        {"nominal_directivity_db", 30}, {"test_port_delay_ns", 2}}},
       {"api", {{"unix_socket", unix_socket_}}}};
   write_file(setup_.work_dir / "station.jsonc", station.dump(2) + "\n");
 }

@@ -1,0 +1,43 @@
+// The stored form of a calibration's uncertainty budget (see uncertainty.hpp for how it is
+// built and used): reading noise per segment and the per-point bounded terms. Data only.
+#pragma once
+
+#include <cstddef>
+#include <string>
+#include <vector>
+
+namespace echoline::core {
+
+// Reading noise of one recipe segment, from two back-to-back sweeps of the OPEN (full-reflection
+// level) and of the LOAD (the lowest level the calibration sees). Standard deviations of ONE
+// reading in dB, at the upper 95 % confidence limit of the estimate.
+struct SegmentNoise {
+  double start_hz = 0, stop_hz = 0;
+  std::size_t pairs = 0;          // points compared (0: not measured, assumed values below)
+  double high_level_db = 0;       // σ at the OPEN level
+  double load_level_db = 0;       // σ at the LOAD level
+  double load_level_dbm = 0;      // mean LOAD reading over the segment
+  bool measured = false;
+};
+
+struct UncertaintyBudget {
+  double coverage_factor = 3;     // k for the statistical terms (JCGM 100 §6.2)
+  double source_match = 0;        // |E_S| bound, linear
+  double connection = 0;          // standard uncertainty of one connection, linear |Γ|
+  double noise_floor_dbm = -200;  // receiver noise floor at the recipe's RBW (additive noise)
+  double error_delay_s = 5e-9;    // how fast the error terms' phase may turn against the DUT's
+  std::string kit_identity;
+  std::string kit_serial;
+  std::vector<SegmentNoise> noise;
+  // Per plan point:
+  std::vector<double> frequency_hz;
+  std::vector<double> reference_error_low_db;   // bounded: R − T ∈ [low, high] (R: reference, T: true |Γ|=1 level)
+  std::vector<double> reference_error_high_db;
+  std::vector<double> reference_noise_db;       // standard uncertainty of R from reading noise
+  std::vector<double> directivity_bound;        // |E_D| bound relative to T, linear, LOAD residual included
+  std::vector<double> directivity_measured;     // 10^((P_load − R)/20): what the LOAD alone says
+  std::vector<double> load_residual;            // the kit's |Γ_load| bound at the point
+  bool empty() const { return frequency_hz.empty(); }
+};
+
+}  // namespace echoline::core

@@ -1,0 +1,101 @@
+// Centring prediction (centring_prediction.hpp).
+//
+// The interval half-width is the resonance-shift bound of analysis.hpp evaluated for the
+// nominal unit: hw = E/s + (|Γ_min| + E)·2πτ·E/s² + step/2, with |Γ_min| taken as E (a deep
+// dip). The slope s of a series resonance at its centre is |dΓ/df| = Q/f0·4·Z0·R/(R + Z0)²,
+// taken at R = Z0 (its largest value; the unit's R is not known beforehand). From a bandwidth
+// BW where |Γ| <= g: Q = 2·y·f0/BW with y = g/sqrt(1 − g²) (matched series resonance:
+// Γ = jy/(1 + jy), y = Q·Δf/f0; derived here). A unit is inconclusive when its measured
+// resonance lies within hw of a window edge.
+#include "daemon/core/centring_prediction.hpp"
+
+#include <algorithm>
+#include <cmath>
+#include <numbers>
+
+#include <fmt/format.h>
+
+#include "daemon/core/cal_kit.hpp"
+#include "daemon/core/rf_math.hpp"
+
+namespace echoline::core {
+namespace {
+
+double normal_cdf(double z) { return 0.5 * std::erfc(-z / std::sqrt(2.0)); }
+
+// Typical point step of the plan near f (half of it enters the bound).
+double step_near(const Recipe& recipe, double f) {
+  for (const Segment& s : recipe.segments) {
+    if (s.points > 1 && f >= s.start_hz && f <= s.stop_hz) return (s.stop_hz - s.start_hz) / (s.points - 1);
+  }
+  const auto plan = plan_frequencies(recipe);
+  return plan.size() > 1 ? (plan.back() - plan.front()) / static_cast<double>(plan.size() - 1) : 0;
+}
+
+double fraction(double hw, double lo, double hi, double center, std::optional<double> sd) {
+  if (sd && *sd > 0) {
+    auto p = [&](double a, double b) { return normal_cdf((b - center) / *sd) - normal_cdf((a - center) / *sd); };
+    if (2 * hw >= hi - lo) return p(lo - hw, hi + hw);
+    return p(lo - hw, lo + hw) + p(hi - hw, hi + hw);
+  }
+  return std::min(1.0, 2 * hw / (hi - lo));
+}
+
+}  // namespace
+
+std::optional<CentringPrediction> predict_centring(const Recipe& recipe, const StationCapability& station,
+                                                   double error_radius) {
+  if (!recipe.limits.resonance_min_hz || !recipe.limits.resonance_max_hz) return std::nullopt;
+  if (!recipe.nominal.q && !recipe.nominal.bandwidth_hz) return std::nullopt;
+  const double lo = *recipe.limits.resonance_min_hz, hi = *recipe.limits.resonance_max_hz;
+  CentringPrediction p;
+  p.center_hz = recipe.nominal.center_hz ? *recipe.nominal.center_hz
+                                         : recipe.trim ? recipe.trim->target_hz : (lo + hi) / 2;
+  p.spread_hz = recipe.nominal.resonance_sd_hz;
+  p.of_all_units = p.spread_hz.has_value();
+  const double f0 = p.center_hz;
+  if (recipe.nominal.q) {
+    p.q = *recipe.nominal.q;
+  } else {
+    const double g = gamma_from_return_loss(recipe.limits.bandwidth_threshold_db);
+    const double y = g / std::sqrt(1 - g * g);
+    p.q = 2 * y * f0 / *recipe.nominal.bandwidth_hz;
+  }
+  p.slope_per_hz = p.q / f0;
+  p.error_radius = error_radius;
+  const double tau = 2 * station.test_port_delay_s + 1e-9;
+  const double step = step_near(recipe, f0);
+  auto half_width = [&](double e) {
+    const double s = p.slope_per_hz;
+    return e / s + 2 * e * 2 * std::numbers::pi * tau * e / (s * s) + step / 2;
+  };
+  p.half_width_hz = half_width(error_radius);
+  p.inconclusive_fraction = fraction(p.half_width_hz, lo, hi, p.center_hz, p.spread_hz);
+  // The coupler directivity that would reach 5 %: E = ρ_D + (E − ρ_D_now); bisect on ρ_D.
+  const double fixed = std::max(0.0, error_radius - rho_from_db(station.directivity_db));
+  if (fraction(half_width(fixed), lo, hi, p.center_hz, p.spread_hz) <= 0.05) {
+    double a = 0, b = 1;  // ρ_D
+    for (int i = 0; i < 60; ++i) {
+      const double m = (a + b) / 2;
+      (fraction(half_width(fixed + m), lo, hi, p.center_hz, p.spread_hz) <= 0.05 ? a : b) = m;
+    }
+    if (a > 0) p.directivity_for_5_percent_db = -20 * std::log10(a);
+  }
+  p.basis = fmt::format("Q {:.1f} at {:.3f} MHz, error radius {:.4f} (|Γ|), {}", p.q, f0 / 1e6, error_radius,
+                        p.spread_hz ? fmt::format("production spread {:.2f} MHz (s.d.)", *p.spread_hz / 1e6)
+                                    : std::string("units spread evenly across the window"));
+  return p;
+}
+
+std::optional<CentringPrediction> predict_centring(const Recipe& recipe, const StationCapability& station) {
+  // Before calibration: the coupler's datasheet directivity plus the kit's LOAD residual and a
+  // connection at the coverage factor (the calibration will measure the first).
+  const double f = recipe.trim ? recipe.trim->target_hz
+                   : recipe.limits.resonance_min_hz ? (*recipe.limits.resonance_min_hz + *recipe.limits.resonance_max_hz) / 2
+                                                    : 0;
+  const double e = rho_from_db(station.directivity_db) + load_gamma_bound(station.kit, f) +
+                   recipe.coverage_factor * station.kit.connection_repeatability;
+  return predict_centring(recipe, station, e);
+}
+
+}  // namespace echoline::core
