@@ -86,7 +86,7 @@ long resident_kb(int pid) {
 
 StationUnderTest::StationUnderTest(StationSetup setup) : setup_(std::move(setup)) {
   fs::create_directories(log_dir());
-  write_lot();
+  if (setup_.lot_file.empty()) write_lot();
 }
 
 StationUnderTest::~StationUnderTest() {
@@ -122,9 +122,9 @@ void StationUnderTest::write_lot() {
 }
 
 void StationUnderTest::start_simulator() {
-  const fs::path config = testing::source_dir() / "config/sim/instant.jsonc";
+  const fs::path lot = setup_.lot_file.empty() ? setup_.work_dir / "lot.jsonc" : setup_.lot_file;
   sim_.emplace(start_logged(testing::sim_binary(),
-                            {"--config", config.string(), "--lot", (setup_.work_dir / "lot.jsonc").string(), "--log-file",
+                            {"--config", setup_.sim_config.string(), "--lot", lot.string(), "--log-file",
                              (log_dir() / "sim.log").string(), "--log-level", "warn"},
                             log_dir() / "sim.stderr"));
   const auto deadline = std::chrono::steady_clock::now() + kStartTimeout;
@@ -152,7 +152,7 @@ void StationUnderTest::write_station_config() {
       {"station", "soak-bench"},
       {"data_dir", (setup_.work_dir / "data").string()},
       {"log_dir", log_dir().string()},
-      {"recipe", (src / "config/recipes/whip915.jsonc").string()},
+      {"recipe", fs::absolute(setup_.recipe).string()},
       {"instruments",
        {{{"role", "source"}, {"name", "siggen"}, {"address", source_address_},
          {"profile", (src / "config/instruments/sim-source.jsonc").string()}},
@@ -161,14 +161,14 @@ void StationUnderTest::write_station_config() {
       {"calibration_kit", (src / "config/kits/sim-kit.jsonc").string()},
       {"fixture",
        {{"coupling_db", 20}, {"mainline_loss_db", 0.5}, {"cable_loss_db", 0.3}, {"source_match_db", 25},
-        {"nominal_directivity_db", 30}, {"test_port_delay_ns", 2}}},
+        {"nominal_directivity_db", setup_.nominal_directivity_db}, {"test_port_delay_ns", 2}}},
       {"api", {{"unix_socket", unix_socket_}}}};
   write_file(setup_.work_dir / "station.jsonc", station.dump(2) + "\n");
 }
 
 void StationUnderTest::start_daemon() {
   if (!sim_) throw std::runtime_error("start_daemon: start the simulator first");
-  if (!fs::exists(setup_.work_dir / "station.jsonc")) write_station_config();
+  if (!fs::exists(station_config_file())) write_station_config();
   api_.reset();
   daemon_.emplace(start_logged(testing::daemon_binary(),
                                {"--config", (setup_.work_dir / "station.jsonc").string(), "--log-level", "warn"},
@@ -213,7 +213,7 @@ void StationUnderTest::connect_api() {
   auto conn = client::LineConnection::connect_unix(unix_socket_, client::Millis{5000});
   if (!conn) throw std::runtime_error("daemon: " + conn.error().message);
   api_ = std::make_unique<client::ApiClient>(std::move(conn.value()));
-  auto hello = api_->hello("operator", "", "echoline-soak");
+  auto hello = api_->hello("operator", "", setup_.client_name);
   if (!hello || !hello->ok) {
     throw std::runtime_error("daemon: hello failed: " + (hello ? hello->message : hello.error().message));
   }

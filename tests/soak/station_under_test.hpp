@@ -1,6 +1,7 @@
-// A whole station on loopback for reliability runs: echoline-sim (instant profile, a generated
-// lot), echolined pointed at the simulator's endpoints, an API client on the daemon's Unix
-// socket, the simulator's fixture control port, and read-only access to the run store file.
+// A whole station on loopback for reliability and acceptance runs: echoline-sim (a bench config
+// and a lot: by default the instant bench and a generated lot), echolined pointed at the
+// simulator's endpoints, an API client on the daemon's Unix socket, the simulator's fixture
+// control port, and read-only access to the run store file.
 // Throws std::runtime_error for set-up failures (an edge). Not thread-safe: one driving thread.
 #pragma once
 
@@ -23,9 +24,19 @@ namespace echoline::soak {
 
 struct StationSetup {
   std::filesystem::path work_dir;   // REQUIRES: exists; gets the lot, configs, store and logs
+  // The simulator's bench (coupler, standards, instruments).
+  std::filesystem::path sim_config = testing::source_dir() / "config/sim/instant.jsonc";
+  // A lot file for the simulator (--lot); empty: a lot generated into work_dir from the three
+  // fields below. units() lists the serials of whichever lot the simulator loaded.
+  std::filesystem::path lot_file;
   int lot_size = 240;               // units in the generated lot (serials SOAK915-00001 ...)
   std::uint64_t lot_seed = 915777;
-  std::string lot_name = "SOAK-LOT";
+  // The recipe the daemon runs (the station config's "recipe").
+  std::filesystem::path recipe = testing::source_dir() / "config/recipes/whip915.jsonc";
+  // The coupler's datasheet directivity written into the station config's fixture.
+  double nominal_directivity_db = 30;
+  std::string lot_name = "SOAK-LOT";   // the lot the runs are stored under
+  std::string client_name = "echoline-soak";   // the API hello's client name
 };
 
 // What one test of one unit came to, as the API reported it.
@@ -91,6 +102,7 @@ class StationUnderTest {
 
   // --- the run store file, read-only ---
   std::filesystem::path store_file() const;
+  std::filesystem::path station_config_file() const { return setup_.work_dir / "station.jsonc"; }
   std::string integrity_check() const;                 // "ok" when PRAGMA integrity_check is clean
   std::vector<StoredRun> stored_runs(bool with_points) const;
 

@@ -1,0 +1,79 @@
+// echoline-score's command line (score_options.hpp).
+#include "tests/score/score_options.hpp"
+
+#include <cstdio>
+#include <cstdlib>
+#include <stdexcept>
+
+#include "tests/support/process.hpp"
+
+namespace echoline::score {
+namespace {
+
+constexpr const char* kUsage = R"(usage: echoline-score [options]
+Tests the first N units of a simulated lot through a real echoline-sim and echolined, then scores
+every unit's final run against the simulator's ground truth and prints the acceptance figures.
+  --sim CONFIG           simulator bench (default config/sim/instant.jsonc)
+  --lot FILE             simulator lot (default config/sim/lots/whip915-rlc-600.jsonc)
+  --units N              test the first N units of the lot (default: all)
+  --recipe FILE          recipe the daemon runs (default config/recipes/whip915.jsonc)
+  --window-recipe FILE   recipe with a resonance window, re-judged offline for the centring
+                         prediction; same plan as --recipe (default config/recipes/whip915-window.jsonc)
+  --label TEXT           name of this configuration in the summary (default "<lot> @ <sim>")
+  --work-dir DIR         work in DIR and keep it (configs, store, logs); default a temporary folder
+  --json OUT             write every figure to OUT
+Exit: 0 every acceptance figure met, 1 one is not, 2 usage error, 3 the station could not be run.
+)";
+
+[[noreturn]] void usage(const std::string& message) {
+  std::fprintf(stderr, "echoline-score: %s\n%s", message.c_str(), kUsage);
+  std::exit(2);
+}
+
+std::filesystem::path existing_file(const std::string& option, const std::string& value) {
+  std::filesystem::path p = std::filesystem::absolute(value);
+  if (!std::filesystem::is_regular_file(p)) usage(option + ": no such file: " + value);
+  return p;
+}
+
+}  // namespace
+
+ScoreOptions parse_score_options(int argc, char** argv) {
+  const std::filesystem::path src = testing::source_dir();
+  ScoreOptions o;
+  o.sim_config = src / "config/sim/instant.jsonc";
+  o.lot_file = src / "config/sim/lots/whip915-rlc-600.jsonc";
+  o.recipe = src / "config/recipes/whip915.jsonc";
+  o.window_recipe = src / "config/recipes/whip915-window.jsonc";
+  for (int i = 1; i < argc; ++i) {
+    const std::string a = argv[i];
+    if (a == "--help" || a == "-h") {
+      std::fputs(kUsage, stdout);
+      std::exit(0);
+    }
+    if (i + 1 >= argc) usage(a.rfind("--", 0) == 0 ? a + " needs a value" : "unexpected argument " + a);
+    const std::string v = argv[++i];
+    if (a == "--sim") o.sim_config = existing_file(a, v);
+    else if (a == "--lot") o.lot_file = existing_file(a, v);
+    else if (a == "--recipe") o.recipe = existing_file(a, v);
+    else if (a == "--window-recipe") o.window_recipe = existing_file(a, v);
+    else if (a == "--label") o.label = v;
+    else if (a == "--work-dir") o.work_dir = std::filesystem::absolute(v);
+    else if (a == "--json") o.json_out = std::filesystem::absolute(v);
+    else if (a == "--units") {
+      std::size_t used = 0;
+      try {
+        o.units = std::stoi(v, &used);
+      } catch (const std::logic_error&) {
+        used = 0;
+      }
+      if (used != v.size() || o.units < 1) usage("--units must be a whole number of at least 1");
+    } else {
+      usage("unknown option " + a);
+    }
+  }
+  if (o.label.empty()) o.label = o.lot_file.stem().string() + " @ " + o.sim_config.stem().string();
+  return o;
+}
+
+}  // namespace echoline::score

@@ -1,0 +1,24 @@
+// echoline-score's command line: the bench, the lot, how many units, the two recipes, the label,
+// where to work and where the figures go. Parsing only; --help exits 0 and a usage error exits 2
+// (edge code, called from main). Thread-safe (no shared state).
+#pragma once
+
+#include <filesystem>
+#include <string>
+
+namespace echoline::score {
+
+struct ScoreOptions {
+  std::filesystem::path sim_config;      // --sim (default config/sim/instant.jsonc)
+  std::filesystem::path lot_file;        // --lot (default config/sim/lots/whip915-rlc-600.jsonc)
+  int units = 0;                         // --units: the first N units of the lot; 0 = all
+  std::filesystem::path recipe;          // --recipe (default config/recipes/whip915.jsonc)
+  std::filesystem::path window_recipe;   // --window-recipe (default config/recipes/whip915-window.jsonc)
+  std::string label;                     // --label (default "<lot> @ <sim>", file stems)
+  std::filesystem::path work_dir;        // --work-dir: kept; default a temporary folder, removed
+  std::filesystem::path json_out;        // --json: all figures; default none
+};
+
+ScoreOptions parse_score_options(int argc, char** argv);
+
+}  // namespace echoline::score

@@ -1,0 +1,171 @@
+// Window prediction against offline re-judging (window_score.hpp).
+#include "tests/score/window_score.hpp"
+
+#include <algorithm>
+#include <cmath>
+#include <limits>
+#include <memory>
+
+#include <fmt/format.h>
+
+#include "daemon/core/centring_prediction.hpp"
+#include "daemon/core/judge.hpp"
+#include "tests/score/verdict_score.hpp"
+
+namespace echoline::score {
+namespace {
+
+double median(std::vector<double> v) {
+  std::sort(v.begin(), v.end());
+  const std::size_t n = v.size();
+  return n % 2 == 1 ? v[n / 2] : (v[n / 2 - 1] + v[n / 2]) / 2;
+}
+
+// The nominal unit's depth, where the recipe has that field (it came with the rigorous-interval
+// prediction; without it the prediction assumes a deep dip).
+template <class Nominal>
+bool set_depth(Nominal& nominal, double depth_db) {
+  if constexpr (requires { nominal.depth_db = std::optional<double>(depth_db); }) {
+    nominal.depth_db = depth_db;
+    return true;
+  } else {
+    return false;
+  }
+}
+
+// A calibration as it was when it judged its runs: one that a drifted check standard later
+// invalidated was valid then (the runs measured with it came before the check). Any other error
+// keeps it invalid.
+core::CalibrationRecord as_when_used(core::CalibrationRecord cal) {
+  if (cal.valid || cal.errors.empty()) return cal;
+  for (const std::string& e : cal.errors) {
+    if (e.rfind("invalidated at ", 0) != 0) return cal;
+  }
+  cal.errors.clear();
+  cal.valid = true;
+  return cal;
+}
+
+}  // namespace
+
+ReferenceUnits reference_units(const std::vector<UnitRecord>& units) {
+  ReferenceUnits r;
+  std::vector<double> bw, depth, f0;
+  for (const UnitRecord& u : units) {
+    if (u.run.verdict != core::Verdict::pass) continue;
+    ++r.count;
+    const core::Metrics& m = u.run.metrics;
+    if (m.bandwidth_hz) bw.push_back(*m.bandwidth_hz);
+    depth.push_back(m.depth_db);
+    if (m.resonance_hz) f0.push_back(*m.resonance_hz);
+  }
+  if (!bw.empty()) r.bandwidth_median_hz = median(bw);
+  if (!depth.empty()) r.depth_median_db = median(depth);
+  if (!f0.empty()) {
+    double sum = 0;
+    for (double f : f0) sum += f;
+    const double mean = sum / static_cast<double>(f0.size());
+    r.resonance_mean_hz = mean;
+    if (f0.size() >= 2) {
+      double ss = 0;
+      for (double f : f0) ss += (f - mean) * (f - mean);
+      r.resonance_sd_hz = std::sqrt(ss / static_cast<double>(f0.size() - 1));
+    }
+  }
+  return r;
+}
+
+bool apply_reference(core::Recipe& window, const ReferenceUnits& reference) {
+  core::NominalUnit& n = window.nominal;
+  if (reference.bandwidth_median_hz) {
+    n.q.reset();
+    n.bandwidth_hz = reference.bandwidth_median_hz;
+  }
+  if (reference.resonance_sd_hz) n.resonance_sd_hz = reference.resonance_sd_hz;
+  if (reference.resonance_mean_hz) n.center_hz = reference.resonance_mean_hz;
+  return reference.depth_median_db && set_depth(n, *reference.depth_median_db);
+}
+
+std::optional<double> error_radius(const core::CalibrationRecord& cal, const core::Recipe& window) {
+  double lo = std::numeric_limits<double>::infinity(), hi = -lo;
+  for (const auto& s : window.limits.mask) {
+    lo = std::min(lo, s.start_hz);
+    hi = std::max(hi, s.stop_hz);
+  }
+  if (window.limits.mask.empty() && window.limits.resonance_min_hz && window.limits.resonance_max_hz) {
+    lo = *window.limits.resonance_min_hz;
+    hi = *window.limits.resonance_max_hz;
+  }
+  const core::UncertaintyBudget& b = cal.budget;
+  std::vector<double> e;
+  for (std::size_t i = 0; i < b.frequency_hz.size() && i < b.directivity_bound.size(); ++i) {
+    if (b.frequency_hz[i] < lo - 1e-3 || b.frequency_hz[i] > hi + 1e-3) continue;
+    e.push_back(b.directivity_bound[i] + window.coverage_factor * b.connection);
+  }
+  if (e.empty()) return std::nullopt;
+  return median(e);
+}
+
+WindowFigures score_window(store::RunStore& store_copy, const std::vector<UnitRecord>& units, core::Recipe window,
+                           const core::StationCapability& capability) {
+  WindowFigures w;
+  w.recipe_name = window.name;
+  w.reference = reference_units(units);
+  w.depth_applied = apply_reference(window, w.reference);
+
+  std::map<std::string, std::unique_ptr<core::CalibrationRecord>> cals;
+  std::map<std::string, int> runs_per_cal;
+  for (const UnitRecord& u : units) {
+    const core::RunResult& run = u.run;
+    if (run.verdict == core::Verdict::aborted) continue;
+    auto it = cals.find(run.calibration_id);
+    if (it == cals.end()) {
+      auto loaded = store_copy.load_calibration(run.calibration_id);
+      std::unique_ptr<core::CalibrationRecord> cal;
+      if (!loaded) w.problems.push_back(fmt::format("calibration {}: {}", run.calibration_id, loaded.error().message));
+      else if (!*loaded) w.problems.push_back(fmt::format("calibration {}: not in the store", run.calibration_id));
+      else cal = std::make_unique<core::CalibrationRecord>(as_when_used(std::move(**loaded)));
+      it = cals.emplace(run.calibration_id, std::move(cal)).first;
+    }
+    if (!it->second) continue;
+    std::vector<core::Reading> readings;
+    readings.reserve(run.points.size());
+    for (const core::PointResult& p : run.points) readings.push_back({p.frequency_hz, p.raw_dbm});
+    const core::Judgement j = core::judge(window, *it->second, readings);
+    ++w.judged;
+    ++runs_per_cal[run.calibration_id];
+    ++w.verdicts[core::to_string(j.verdict)];
+    if (j.verdict == core::Verdict::aborted) w.problems.push_back(fmt::format("{}: re-judged aborted: {}", run.serial, j.reason));
+    if (j.verdict == core::Verdict::inconclusive) {
+      ++w.inconclusive;
+      if (j.reason.find("window") != std::string::npos) ++w.inconclusive_for_window;
+      ++w.inconclusive_reasons[first_characters(j.reason, 60)];
+    }
+  }
+  w.calibrations_used = static_cast<int>(runs_per_cal.size());
+  for (const auto& [id, n] : runs_per_cal) {
+    if (w.calibration_id.empty() || n > runs_per_cal[w.calibration_id]) w.calibration_id = id;
+  }
+  if (w.calibration_id.empty()) {
+    w.problems.push_back("no run could be re-judged: no prediction");
+    return w;
+  }
+  const auto e = error_radius(*cals[w.calibration_id], window);
+  if (!e) {
+    w.problems.push_back(fmt::format("calibration {} has no budget point in the band", w.calibration_id));
+    return w;
+  }
+  w.error_radius = *e;
+  const auto p = core::predict_centring(window, capability, *e);
+  if (!p) {
+    w.problems.push_back("predict_centring gave no figure (no resonance window or no nominal unit)");
+    return w;
+  }
+  w.predicted = true;
+  w.predicted_fraction = p->inconclusive_fraction;
+  w.half_width_hz = p->half_width_hz;
+  w.basis = p->basis;
+  return w;
+}
+
+}  // namespace echoline::score
