@@ -17,7 +17,8 @@ const char* const kConnectionHelp =
     "  --tcp HOST:PORT      the daemon's TCP listener instead (with --token-file off loopback)\n"
     "  --token-file FILE    API token for the engineer role and for non-loopback TCP\n"
     "  --config FILE        station config whose api.unix_socket (and api.token_file) to use;\n"
-    "                       default $ECHOLINE_CONFIG, else config/station.jsonc when present\n"
+    "                       default $ECHOLINE_CONFIG, else config/station.jsonc when present,\n"
+    "                       else " ECHOLINE_INSTALLED_STATION_CONFIG " (an installed station)\n"
     "  ($ECHOLINE_SOCKET is used when neither --socket nor --tcp is given)\n";
 
 Args::Args(const std::vector<std::string>& argv, const std::string& command, std::set<std::string> values,
@@ -77,9 +78,10 @@ std::optional<drivers::StationConfig> find_station_config(const Args& args, bool
     if (const char* env = std::getenv("ECHOLINE_CONFIG"); env != nullptr && *env) explicit_file = env;
   }
   if (explicit_file) return drivers::load_station_config(*explicit_file);   // throws ConfigError
-  const std::filesystem::path fallback = "config/station.jsonc";
-  std::error_code ec;
-  if (std::filesystem::exists(fallback, ec)) {
+  // The checkout's demo station first, then the installed station's (packaging/).
+  for (const std::filesystem::path fallback : {"config/station.jsonc", ECHOLINE_INSTALLED_STATION_CONFIG}) {
+    std::error_code ec;
+    if (!std::filesystem::exists(fallback, ec)) continue;
     try {
       return drivers::load_station_config(fallback);
     } catch (const drivers::ConfigError& e) {

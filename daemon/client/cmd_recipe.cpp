@@ -27,7 +27,8 @@ constexpr const char* kRecipeHelp =
     "safe input), frequency and level ranges, and whether the station can verify the limits\n"
     "(directivity, noise floor). Prints each finding as FILE:LINE: KEY: error|warning: MESSAGE.\n"
     "Offline: no daemon and no instrument is involved.\n\n"
-    "  --station CONFIG   station config (default $ECHOLINE_CONFIG, else config/station.jsonc)\n\n"
+    "  --station CONFIG   station config (default $ECHOLINE_CONFIG, else config/station.jsonc,\n"
+    "                     else " ECHOLINE_INSTALLED_STATION_CONFIG ")\n\n"
     "exit: 0 no errors (warnings allowed), 1 the recipe has errors or does not load,\n"
     "      2 usage or station config error\n";
 
@@ -38,7 +39,8 @@ constexpr const char* kDryRunHelp =
     "worst-case power at the receiver, the calibration standards, and an estimate of the sweep\n"
     "time from the receiver settings (settling + k*span/RBW^2 per reading, k = 2.5; instrument\n"
     "command overhead not included, so real sweeps take longer).\n\n"
-    "  --station CONFIG   station config (default $ECHOLINE_CONFIG, else config/station.jsonc)\n"
+    "  --station CONFIG   station config (default $ECHOLINE_CONFIG, else config/station.jsonc,\n"
+    "                     else " ECHOLINE_INSTALLED_STATION_CONFIG ")\n"
     "  --select           then ask the running daemon to load the recipe (recipe.select, engineer\n"
     "                     role); the calibration stays valid only for the same sweep plan.\n"
     "                     To dry-run on the simulator, start echoline-sim and echolined on it.\n\n"
