@@ -7,6 +7,7 @@
 #include <cstdio>
 #include <fstream>
 #include <iostream>
+#include <optional>
 #include <sstream>
 #include <string>
 #include <thread>
@@ -21,6 +22,7 @@
 #include "daemon/service/instruments.hpp"
 #include "daemon/service/sd_notify.hpp"
 #include "daemon/service/stderr_sink.hpp"
+#include "daemon/service/watchdog.hpp"
 #include "daemon/service/station.hpp"
 #include "drivers/config_error.hpp"
 #include "drivers/station_config.hpp"
@@ -211,6 +213,12 @@ int run(const Args& args) {
   std::cout << "listening unix=" << server->unix_path() << " tcp=" << server->tcp_address() << std::endl;
   spdlog::info("listening unix={} tcp={}", server->unix_path(), server->tcp_address());
   service::sd_notify_state("READY=1");
+  // Under WatchdogSec=: pings only while the sweep engine makes progress (watchdog.hpp).
+  std::optional<service::WatchdogNotifier> watchdog;
+  if (auto period = service::watchdog_period_from_environment()) {
+    spdlog::info("watchdog: {} ms; pinging while the sweep engine makes progress", period->count() / 1000);
+    watchdog.emplace(service::engine_heartbeat(), *period);
+  }
 
   int sig = 0;
   sigwait(&signals, &sig);

@@ -196,7 +196,18 @@ SweepOutcome run_fast_capture(drivers::Source& source, drivers::Receiver& receiv
     out.error = s.error();
     return out;
   }
+  // Heartbeat allowances (engine_heartbeat.hpp): every reply and *OPC? a step may wait for.
+  EngineHeartbeat& heartbeat = *options.heartbeat;
+  const SweepHeartbeatScope heartbeat_scope(heartbeat);
+  const drivers::SessionOptions& src_io = source.session().options();
+  const drivers::SessionOptions& rx_io = receiver.session().options();
+  int setup_lines = 0;
+  for (const auto& [role, lines] : recipe.setup) setup_lines += static_cast<int>(lines.size());
+  int teardown_lines = 0;
+  for (const auto& [role, lines] : recipe.teardown) teardown_lines += static_cast<int>(lines.size());
+
   auto fail = [&](Error e) {
+    heartbeat.beat(step_allowance(src_io, rx_io, 8, 2));   // output off, a reconnect, the rest
     out.error = std::move(e);
     out.readings.clear();
     cap.restore_best_effort();
@@ -204,16 +215,20 @@ SweepOutcome run_fast_capture(drivers::Source& source, drivers::Receiver& receiv
     return out;
   };
   const int n = static_cast<int>(freqs.size());
+  heartbeat.beat(step_allowance(src_io, rx_io, setup_lines + 30, 2, recipe.source.settle_s));
   if (cancel.load()) return fail(cancelled("before setup"));
   if (Status s = cap.configure(*plan); !s) return fail(s.error().with_context("fast capture setup"));
   if (!wait_or_cancel(recipe.source.settle_s, cancel)) return fail(cancelled("while the source settled"));
 
   for (int k = 0; k < plan->receiver_sweeps; ++k) {
+    heartbeat.beat(step_allowance(src_io, rx_io, 2, 1));
     if (cancel.load()) return fail(cancelled(fmt::format("before receiver sweep {} of {}", k + 1, plan->receiver_sweeps)));
     Status s = receiver.sweep_and_wait(std::nullopt);   // INIT and *OPC? as one message
     if (!s) return fail(s.error().with_context(fmt::format("fast capture receiver sweep {} of {}", k + 1, plan->receiver_sweeps)));
     if (progress) progress(n * (k + 1) / plan->receiver_sweeps, n);
   }
+  // The trace read, then RF off, the source back to CW and the teardown lines.
+  heartbeat.beat(step_allowance(src_io, rx_io, teardown_lines + 16, 1));
   auto trace = receiver.read_trace_dbm();
   if (!trace) return fail(trace.error().with_context("fast capture trace read"));
   auto readings = core::trace_to_plan(plan->axis, *trace, freqs);

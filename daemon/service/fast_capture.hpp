@@ -3,7 +3,8 @@
 // as SweepEngine::run (sweep_engine.hpp), for test runs and calibration standards alike.
 // Threading: synchronous; call from one worker thread. cancel may be set from any thread.
 // Safety: the source output is switched OFF (and the source put back to CW) at the end and on
-// every abort path; the worst-case receiver input is checked before anything is sent.
+// every abort path; the worst-case receiver input is checked before anything is sent. Each
+// step stamps the engine heartbeat (engine_heartbeat.hpp) for the watchdog.
 #pragma once
 
 #include <atomic>

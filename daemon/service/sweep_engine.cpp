@@ -15,6 +15,8 @@
 #include <fmt/format.h>
 #include <spdlog/spdlog.h>
 
+#include "daemon/service/test_hooks.hpp"
+
 namespace echoline::service {
 namespace {
 
@@ -226,6 +228,25 @@ SweepOutcome SweepEngine::run(const core::Recipe& recipe, const std::atomic<bool
   out.readings.reserve(plan.size());
   const int averages = std::max(1, recipe.receiver.averages);
 
+  // Heartbeat allowances: every reply and *OPC? a step may wait for, at the instruments' timeouts.
+  EngineHeartbeat& heartbeat = *options_.heartbeat;
+  const SweepHeartbeatScope heartbeat_scope(heartbeat);
+  const drivers::SessionOptions& src_io = source_.session().options();
+  const drivers::SessionOptions& rx_io = receiver_.session().options();
+  auto lines_for = [](const std::map<std::string, std::vector<std::string>>& table) {
+    int n = 0;
+    for (const auto& [role, lines] : table) n += static_cast<int>(lines.size());
+    return n;
+  };
+  // Setup lines, the receiver's settings and the source's, each with an error query; *OPC? twice.
+  const auto setup_allowance = step_allowance(src_io, rx_io, lines_for(recipe.setup) + 24, 2);
+  // The receiver's sweeps and marker reads, the source's move, the error queries; the settling.
+  const auto point_allowance = step_allowance(src_io, rx_io, averages + 6, averages + 1, recipe.source.settle_s);
+  // Error queries, output off, the teardown lines.
+  const auto end_allowance = step_allowance(src_io, rx_io, lines_for(recipe.teardown) + 8, 1);
+  // Output off, a reconnect and output off again.
+  const auto recovery_allowance = step_allowance(src_io, rx_io, 6, 2);
+
   // The source moves to the next frequency on this lane while the receiver's marker is read.
   std::unique_ptr<Lane> lane;
   if (n > 1) lane = std::make_unique<Lane>();
@@ -237,6 +258,7 @@ SweepOutcome SweepEngine::run(const core::Recipe& recipe, const std::atomic<bool
   };
 
   auto fail = [&](Error e) {
+    heartbeat.beat(recovery_allowance);
     (void)join_source();   // the source session is used again below, on this thread only
     out.error = std::move(e);
     output_off_best_effort();
@@ -245,6 +267,7 @@ SweepOutcome SweepEngine::run(const core::Recipe& recipe, const std::atomic<bool
   };
   auto at_point = [&](int i) { return fmt::format("sweep point {} of {} at {:.6f} MHz", i + 1, n, plan[static_cast<std::size_t>(i)] / 1e6); };
 
+  heartbeat.beat(setup_allowance);
   if (cancel.load()) return fail(cancelled_at(1, n));
   if (Status s = configure(recipe); !s) return fail(s.error().with_context("sweep setup"));
 
@@ -256,6 +279,7 @@ SweepOutcome SweepEngine::run(const core::Recipe& recipe, const std::atomic<bool
   const Clock::duration settle_time = to_duration(recipe.source.settle_s);
   Clock::time_point moved_at = Clock::now();   // configure() ended with the source's *OPC?
   for (int i = 0; i < n; ++i) {
+    heartbeat.beat(point_allowance);
     const double f = plan[static_cast<std::size_t>(i)];
     const bool has_next = i + 1 < n;
     if (Status s = join_source(); !s) return fail(s.error().with_context(at_point(i)));
@@ -286,7 +310,9 @@ SweepOutcome SweepEngine::run(const core::Recipe& recipe, const std::atomic<bool
     if (has_next) pending_center = plan[static_cast<std::size_t>(i + 1)];
     out.readings.push_back(core::Reading{f, average_dbm(values)});
     if (progress) progress(i + 1, n);
+    test_hooks::hang_after_point(i + 1);   // TEST ONLY (test_hooks.hpp): nothing in an installed daemon
   }
+  heartbeat.beat(end_allowance);
   if (Status s = join_source(); !s) return fail(s.error().with_context("sweep end"));
 
   // end-of-sweep policy: one error read per instrument per sweep; an error found here aborts

@@ -3,7 +3,8 @@
 // Threading: run() is synchronous, called from one worker thread; inside it a helper thread
 // drives the source session while the caller's thread reads the receiver (never the same
 // session on two threads). cancel may be set from any thread.
-// Safety: the source output is switched OFF at the end and on every abort path.
+// Safety: the source output is switched OFF at the end and on every abort path. Before each
+// step the engine stamps its heartbeat (engine_heartbeat.hpp) for the watchdog.
 #pragma once
 
 #include <atomic>
@@ -14,6 +15,7 @@
 
 #include "daemon/core/recipe.hpp"
 #include "daemon/core/run_result.hpp"
+#include "daemon/service/engine_heartbeat.hpp"
 #include "drivers/receiver.hpp"
 #include "drivers/result.hpp"
 #include "drivers/source.hpp"
@@ -33,6 +35,8 @@ struct SweepOutcome {
 struct SweepOptions {
   double coupling_db = 20;   // fixture coupling: worst-case receiver input = power - coupling (full reflection)
   bool send_setup = true;    // send the recipe's setup lines for each role before the sweep
+  // Stamped before every step and set idle at the end (the watchdog's proof of progress).
+  EngineHeartbeat* heartbeat = &engine_heartbeat();
 };
 
 class SweepEngine {

@@ -30,6 +30,7 @@ unit="$stage$prefix/lib/systemd/system/echolined.service"
 grep -qx "ExecStart=$prefix/bin/echolined --config $sysconf/echoline/station.jsonc" "$unit" || fail "ExecStart: $(grep ^ExecStart= "$unit")"
 grep -qx "ExecStopPost=$prefix/bin/echolined --config $sysconf/echoline/station.jsonc --rf-off" "$unit" || fail "ExecStopPost (RF off after every stop) missing"
 grep -qx "Type=notify" "$unit" || fail "Type=notify missing"
+grep -qE "^WatchdogSec=[1-9][0-9]*$" "$unit" || fail "WatchdogSec missing"
 grep -qx "User=echoline" "$unit" || fail "User=echoline missing"
 
 station="$stage$sysconf/echoline/station.jsonc"
