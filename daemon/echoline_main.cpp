@@ -42,7 +42,7 @@ constexpr const char* kHelp =
     "     or the daemon refused the request (busy, calibration due, ...)\n"
     "  2  usage or configuration error (bad option, bad config file, token refused)\n"
     "  3  the daemon could not be reached, or the connection to it dropped\n"
-    "  4  instrument trouble: the daemon could not use an instrument\n"
+    "  4  instrument trouble: the daemon could not use an instrument (status: one is NOT READY)\n"
     "  5  storage error: the run store could not be read or written\n"
     "\n"
     "Safety: during a test the antenna under test radiates the source power. Keep it low, use a\n"

@@ -26,6 +26,7 @@
 #include "daemon/service/station.hpp"
 #include "drivers/config_error.hpp"
 #include "drivers/station_config.hpp"
+#include "drivers/whole_number.hpp"
 #include "echoline/version.hpp"
 
 namespace {
@@ -45,7 +46,8 @@ options:
   --log-dir DIR            log folder (overrides log_dir)
   --recipe FILE            recipe to load (overrides recipe)
   --socket PATH            Unix socket path (overrides api.unix_socket)
-  --tcp-port N             TCP port on api.tcp_host (0 = off, overrides api.tcp_port)
+  --tcp-port N             TCP port on api.tcp_host, 0 to 65535 (0 = off, overrides
+                           api.tcp_port)
   --on-stop abort|finish   on SIGTERM: abort the running test (default, stored as aborted
                            with reason "daemon stopping") or let it finish first
   --log-level LEVEL        trace, debug, info (default), warn, error
@@ -103,12 +105,10 @@ Args parse_args(int argc, char** argv) {
     } else if (arg == "--socket") {
       a.socket = value(i);
     } else if (arg == "--tcp-port") {
-      std::string v = value(i);
-      try {
-        a.tcp_port = std::stoi(v);
-      } catch (...) {
-        usage_error(fmt::format("--tcp-port {}: not a number", v));
-      }
+      const std::string v = value(i);
+      const auto port = drivers::parse_whole_number(v, 0, 65535);
+      if (!port) usage_error(drivers::whole_number_error("--tcp-port", v, 0, 65535, "0 = no TCP listener"));
+      a.tcp_port = static_cast<int>(*port);
     } else if (arg == "--on-stop") {
       a.on_stop = value(i);
       if (a.on_stop != "abort" && a.on_stop != "finish") usage_error("--on-stop must be abort or finish");

@@ -124,7 +124,9 @@ std::unique_ptr<ApiClient> connect_daemon(const Args& args, const std::string& r
   } else if (auto t = args.get("--tcp")) {
     std::string host;
     int port = 0;
-    if (!split_host_port(*t, host, port)) args.usage_error(fmt::format("--tcp {}: expected HOST:PORT", *t));
+    if (!split_host_port(*t, host, port)) {
+      args.usage_error(fmt::format("--tcp {}: expected HOST:PORT with a port from 1 to 65535", *t));
+    }
     address = fmt::format("tcp://{}:{}", host, port);
   } else if (const char* env = std::getenv("ECHOLINE_SOCKET"); env != nullptr && *env) {
     address = std::string("unix:") + env;

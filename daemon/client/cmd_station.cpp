@@ -1,7 +1,6 @@
 // `echoline station`: wires the operator console to the daemon, the terminal and the store.
 #include <unistd.h>
 
-#include <charconv>
 #include <cstdlib>
 #include <iostream>
 
@@ -14,6 +13,7 @@
 #include "daemon/core/recipe_loader.hpp"
 #include "daemon/store/run_store.hpp"
 #include "drivers/config_error.hpp"
+#include "drivers/whole_number.hpp"
 
 namespace echoline::client {
 
@@ -87,18 +87,20 @@ int cmd_station(const Argv& argv) {
   options.lot = args.get_or("--lot", "");
   options.operator_name = args.get_or("--operator", "");
   options.sim_fixture = args.get_or("--sim-fixture", "");
-  if (!options.sim_fixture.empty() && options.sim_fixture.rfind("tcp://", 0) != 0) {
-    args.usage_error(fmt::format("--sim-fixture {}: expected tcp://HOST:PORT", options.sim_fixture));
+  if (!options.sim_fixture.empty()) {
+    std::string host;
+    int port = 0;
+    if (options.sim_fixture.rfind("tcp://", 0) != 0 || !split_host_port(options.sim_fixture, host, port)) {
+      args.usage_error(fmt::format("--sim-fixture {}: expected tcp://HOST:PORT with a port from 1 to 65535",
+                                   options.sim_fixture));
+    }
   }
   const bool input_is_tty = ::isatty(STDIN_FILENO) == 1;
   options.reconnect_timeout = Seconds{input_is_tty ? 0 : 60};
   if (auto t = args.get("--reconnect-timeout")) {
-    long long seconds = -1;
-    const auto [end, ec] = std::from_chars(t->data(), t->data() + t->size(), seconds);
-    if (ec != std::errc() || end != t->data() + t->size() || seconds < 0 || seconds > 7 * 24 * 3600) {
-      args.usage_error(fmt::format("--reconnect-timeout {}: expected whole seconds from 0 to 604800 (0 = forever)", *t));
-    }
-    options.reconnect_timeout = Seconds{seconds};
+    const auto seconds = drivers::parse_whole_number(*t, 0, 7 * 24 * 3600);
+    if (!seconds) args.usage_error(drivers::whole_number_error("--reconnect-timeout", *t, 0, 7 * 24 * 3600, "seconds; 0 = forever"));
+    options.reconnect_timeout = Seconds{*seconds};
   }
   options.output_is_tty = ::isatty(STDOUT_FILENO) == 1;
   const char* no_color = std::getenv("NO_COLOR");

@@ -42,7 +42,9 @@ void print_calibration(const json& c) {
 constexpr const char* kStatusHelp =
     "usage: echoline status [connection options]\n\n"
     "Shows the daemon's station, recipe, instruments (healthy or not), calibration and what is\n"
-    "running. Exit 0, or 3 when the daemon cannot be reached.\n\n";
+    "running.\n"
+    "exit: 0 every instrument ready, 4 an instrument is NOT READY (the station cannot test),\n"
+    "      3 the daemon cannot be reached, 2 usage error\n\n";
 
 constexpr const char* kCalHelp =
     "usage: echoline cal status [connection options]\n"
@@ -83,7 +85,7 @@ int cmd_status(const Argv& argv) {
   }
   if (st.contains("calibration")) print_calibration(st["calibration"]);
   std::cout << "busy: " << (st.contains("busy") && !st["busy"].is_null() ? st["busy"].dump() : std::string("no")) << "\n";
-  return kExitOk;
+  return healthy ? kExitOk : kExitInstrument;
 }
 
 int cmd_cal(const Argv& argv) {

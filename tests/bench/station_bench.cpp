@@ -27,6 +27,7 @@
 #include "daemon/core/recipe_loader.hpp"
 #include "drivers/scpi_session.hpp"
 #include "drivers/transport.hpp"
+#include "drivers/whole_number.hpp"
 #include "tests/bench/floor_client.hpp"
 #include "tests/bench/station_rig.hpp"
 #include "tests/support/process.hpp"
@@ -38,6 +39,7 @@ using namespace echoline::bench;
 using json = nlohmann::json;
 
 constexpr const char* kUsage = R"(usage: bench_station [--quick] [--reps N] [--memory-units N] [--json FILE] [--skip PART]
+N: --reps 1 to 1000, --memory-units 1 to 1000000.
 
 Times the Echoline step sweep through echolined against the loopback floor and a plain Python
 script, the cycle time on the bench latency profile, and the daemon's memory over many units.
@@ -247,6 +249,17 @@ json memory_growth(const std::filesystem::path& dir, SimProcess& sim, const std:
   return out;
 }
 
+// A command-line mistake (exit 2).
+struct UsageError : std::runtime_error {
+  using std::runtime_error::runtime_error;
+};
+
+long long whole(const std::string& option, const std::string& text, long long min, long long max) {
+  const auto n = drivers::parse_whole_number(text, min, max);
+  if (!n) throw UsageError(drivers::whole_number_error(option, text, min, max));
+  return *n;
+}
+
 }  // namespace
 
 int main(int argc, char** argv) try {
@@ -257,7 +270,7 @@ int main(int argc, char** argv) try {
   for (int i = 1; i < argc; ++i) {
     const std::string a = argv[i];
     auto value = [&]() -> std::string {
-      if (i + 1 >= argc) throw std::invalid_argument(a + " needs a value");
+      if (i + 1 >= argc) throw UsageError(a + " needs a value");
       return argv[++i];
     };
     if (a == "--help" || a == "-h") {
@@ -266,15 +279,15 @@ int main(int argc, char** argv) try {
     } else if (a == "--quick") {
       quick = true;
     } else if (a == "--reps") {
-      reps = std::stoi(value());
+      reps = static_cast<int>(whole(a, value(), 1, 1000));
     } else if (a == "--memory-units") {
-      memory_units = std::stoi(value());
+      memory_units = static_cast<int>(whole(a, value(), 1, 1000000));
     } else if (a == "--json") {
       json_file = value();
     } else if (a == "--skip") {
       skip.push_back(value());
     } else {
-      throw std::invalid_argument("unknown option " + a);
+      throw UsageError("unknown option " + a);
     }
   }
   if (reps <= 0) reps = quick ? 3 : 7;
@@ -316,6 +329,9 @@ int main(int argc, char** argv) try {
     std::ofstream(json_file) << result.dump(2) << "\n";
   }
   return 0;
+} catch (const UsageError& e) {
+  std::cerr << "bench_station: " << e.what() << "\n" << kUsage;
+  return 2;
 } catch (const std::exception& e) {
   std::cerr << "bench_station: " << e.what() << "\n";
   return 1;

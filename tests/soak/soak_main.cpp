@@ -7,10 +7,12 @@
 //                   unhealthy and abort the run; testing resumes when it is back.
 // Exit 0 when every invariant held, 1 when one broke, 2 for a bad command line or set-up.
 #include <algorithm>
+#include <charconv>
 #include <chrono>
 #include <cstdio>
 #include <cstdlib>
 #include <functional>
+#include <limits>
 #include <random>
 #include <string>
 #include <thread>
@@ -20,6 +22,7 @@
 #include "tests/soak/lot_runner.hpp"
 #include "tests/soak/station_under_test.hpp"
 #include "tests/soak/store_audit.hpp"
+#include "drivers/whole_number.hpp"
 #include "tests/support/process.hpp"
 
 namespace {
@@ -30,9 +33,9 @@ using nlohmann::json;
 using Clock = std::chrono::steady_clock;
 
 constexpr const char* kUsage = R"(usage: echoline-soak [--mode faults|crash|loss] [options]
-  --units N          units to test (default 150)
-  --kills K          crash mode: daemon SIGKILLs during the lot (default 5)
-  --fault-scale S    faults mode: multiply the per-unit fault rates (default 1: about 1 % of
+  --units N          units to test, 2 to 1000000 (default 150)
+  --kills K          crash mode: daemon SIGKILLs during the lot, 0 to 100000 (default 5)
+  --fault-scale S    faults mode, 0 to 100: multiply the per-unit fault rates (default 1: about 1 % of
                      units meet a no-reply, 0.5 % a dropped link, 0.5 % a garbled reply,
                      0.5 % a spurious error entry, 2 % a slow reply)
   --seed N           seeds faults and kill moments (default 1)
@@ -61,23 +64,32 @@ Options parse(int argc, char** argv) {
       if (i + 1 >= argc) usage(a + " needs a value");
       return argv[++i];
     };
-    try {
-      if (a == "--mode") o.mode = value();
-      else if (a == "--units") o.units = std::stoi(value());
-      else if (a == "--kills") o.kills = std::stoi(value());
-      else if (a == "--fault-scale") o.fault_scale = std::stod(value());
-      else if (a == "--seed") o.seed = std::stoull(value());
-      else if (a == "--keep") o.keep = value();
-      else if (a == "--help" || a == "-h") {
-        std::fputs(kUsage, stdout);
-        std::exit(0);
-      } else usage("unknown option " + a);
-    } catch (const std::logic_error&) {
-      usage(a + ": not a number");
-    }
+    // A whole number in [min, max], or a usage error naming the option and the range.
+    auto whole = [&](long long min, long long max) {
+      const std::string v = value();
+      const auto n = drivers::parse_whole_number(v, min, max);
+      if (!n) usage(drivers::whole_number_error(a, v, min, max));
+      return *n;
+    };
+    if (a == "--mode") o.mode = value();
+    else if (a == "--units") o.units = static_cast<int>(whole(2, 1000000));
+    else if (a == "--kills") o.kills = static_cast<int>(whole(0, 100000));
+    else if (a == "--fault-scale") {
+      const std::string v = value();
+      double scale = -1;
+      const auto [end, ec] = std::from_chars(v.data(), v.data() + v.size(), scale);
+      if (v.empty() || ec != std::errc() || end != v.data() + v.size() || !(scale >= 0 && scale <= 100)) {
+        usage(a + " " + v + ": expected a number from 0 to 100");
+      }
+      o.fault_scale = scale;
+    } else if (a == "--seed") o.seed = static_cast<std::uint64_t>(whole(0, std::numeric_limits<long long>::max()));
+    else if (a == "--keep") o.keep = value();
+    else if (a == "--help" || a == "-h") {
+      std::fputs(kUsage, stdout);
+      std::exit(0);
+    } else usage("unknown option " + a);
   }
   if (o.mode != "faults" && o.mode != "crash" && o.mode != "loss") usage("--mode must be faults, crash or loss");
-  if (o.units < 2) usage("--units must be at least 2");
   return o;
 }
 

@@ -1,0 +1,85 @@
+// Exit codes as documented (README, `echoline --help`): numeric options out of range are usage
+// errors (2) in every binary, and `echoline status` says 4 when an instrument is NOT READY.
+#include <gtest/gtest.h>
+
+#include <string>
+#include <vector>
+
+#include "tests/core/e2e_station.hpp"
+
+namespace echoline::e2e {
+namespace {
+
+struct Outcome {
+  int code = -1000;
+  std::string output;   // stdout and stderr together
+};
+
+Outcome run(const std::filesystem::path& binary, std::vector<std::string> args) {
+  args.insert(args.begin(), binary.string());
+  testing::ChildProcess::Options o;
+  o.merge_stderr = true;
+  auto p = testing::ChildProcess::start(args, o);
+  Outcome out;
+  while (auto line = p.read_line(20s)) out.output += *line + "\n";
+  out.code = p.wait(20s).value_or(-999);
+  return out;
+}
+
+bool says(const Outcome& o, const std::string& text) { return o.output.find(text) != std::string::npos; }
+
+TEST(ExitCodes, DaemonTcpPortOutsideZeroTo65535IsAUsageError) {
+  for (const char* port : {"-1", "65536", "70000", "12abc", "", "1e3"}) {
+    const Outcome o = run(testing::daemon_binary(), {"--config", "/nonexistent/station.jsonc", "--tcp-port", port});
+    EXPECT_EQ(o.code, 2) << port << ": " << o.output;
+    EXPECT_TRUE(says(o, "--tcp-port")) << o.output;
+    EXPECT_TRUE(says(o, "from 0 to 65535")) << o.output;
+  }
+  // The ends of the range pass the option check; this run then fails on the missing config.
+  for (const char* port : {"0", "65535"}) {
+    const Outcome o = run(testing::daemon_binary(), {"--config", "/nonexistent/station.jsonc", "--tcp-port", port});
+    EXPECT_FALSE(says(o, "--tcp-port")) << o.output;
+    EXPECT_TRUE(says(o, "/nonexistent/station.jsonc")) << o.output;
+  }
+}
+
+TEST(ExitCodes, ClientNumbersOutOfRangeAreUsageErrors) {
+  const auto client = testing::client_binary();
+  const std::vector<std::pair<std::vector<std::string>, std::string>> cases = {
+      {{"station", "--reconnect-timeout", "-1", "--socket", "/nonexistent.sock"}, "--reconnect-timeout"},
+      {{"station", "--reconnect-timeout", "604801", "--socket", "/nonexistent.sock"}, "--reconnect-timeout"},
+      {{"station", "--sim-fixture", "tcp://127.0.0.1:70000", "--socket", "/nonexistent.sock"}, "--sim-fixture"},
+      {{"status", "--tcp", "127.0.0.1:70000"}, "--tcp"},
+      {{"status", "--tcp", "127.0.0.1:0"}, "--tcp"},
+      {{"status", "--tcp", "127.0.0.1:-5"}, "--tcp"},
+  };
+  for (const auto& [args, option] : cases) {
+    const Outcome o = run(client, args);
+    EXPECT_EQ(o.code, 2) << args[1] << " " << args[2] << ": " << o.output;
+    EXPECT_TRUE(says(o, option)) << o.output;
+  }
+}
+
+TEST(ExitCodes, StatusExitsZeroWhenReadyAndFourWhenAnInstrumentIsNotReady) {
+  testing::TempDir dir("echoline-exit-codes");
+  Sim sim("tiny-lot.jsonc");
+  const auto ready_config = write_station_config(dir.path(), sim);
+  {
+    Daemon daemon(ready_config);
+    const Outcome o = run(testing::client_binary(), {"status", "--socket", daemon.unix_path()});
+    EXPECT_EQ(o.code, 0) << o.output;
+    EXPECT_FALSE(says(o, "NOT READY")) << o.output;
+  }
+  // The receiver moved to a port nobody listens on (port 1 on loopback: refused at once).
+  json cfg = json::parse(std::ifstream(ready_config));
+  cfg["instruments"][1]["address"] = "tcp://127.0.0.1:1";
+  std::ofstream(ready_config) << cfg.dump(2) << "\n";
+  Daemon daemon(ready_config);
+  const Outcome o = run(testing::client_binary(), {"status", "--socket", daemon.unix_path()});
+  EXPECT_EQ(o.code, 4) << o.output;
+  EXPECT_TRUE(says(o, "NOT READY")) << o.output;
+  EXPECT_TRUE(says(o, "analyzer")) << o.output;
+}
+
+}  // namespace
+}  // namespace echoline::e2e
