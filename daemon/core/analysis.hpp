@@ -15,7 +15,7 @@ namespace echoline::core {
 
 // What the resonance-shift bound needs besides the points: the error radius in |Γ| the budget
 // allows at each point, each reading's statistical σ (dB), the coverage factor, and how fast
-// the error terms' phase can turn (the fixture's delay; docs/MEASUREMENT.md).
+// the error terms' phase can turn (the fixture's delay; daemon/core/MEASUREMENT.md).
 struct ShiftContext {
   std::vector<double> gamma_error;   // per point, |Γ| units
   std::vector<double> sigma_db;      // per point, standard uncertainty of the RL reading
@@ -71,7 +71,7 @@ std::optional<Resonance> find_resonance(const std::vector<PointResult>& points, 
 Band resonance_interval(const std::vector<PointResult>& points, std::size_t peak);
 
 // The interval the true resonance lies in when the error terms are smooth over the dip, as a
-// coupler's and a cable's are (derivation in docs/MEASUREMENT.md, "Where the resonance can
+// coupler's and a cable's are (derivation in daemon/core/MEASUREMENT.md, "Where the resonance can
 // be"): centre = vertex of the least-squares quadratic of |Γ_m|² over the points within 6 dB
 // of the peak; half-width = E/s + (|Γ_min| + E)·2π·τ·E/s² + k·σ_vertex + gap + step/2, where
 // E is the error radius, s = |dΓ_m/df| from the quadratic, τ the error delay and gap the

@@ -23,7 +23,7 @@ CalKit builtin_conservative_kit() {
   k.short_.inductance_h = 10e-12;
   k.short_.phase_tolerance_rad = 5 * kDegree;
   k.load = {LoadStep{3e9, 30}, LoadStep{6e9, 26}};
-  k.connection_repeatability = 0.003;
+  k.connection_repeatability = std::pow(10.0, -50.0 / 20);   // 50 dB
   return k;
 }
 

@@ -1,8 +1,11 @@
 // Centring prediction (centring_prediction.hpp).
 //
 // The interval half-width is the resonance-shift bound of analysis.hpp evaluated for the
-// nominal unit: hw = E/s + (|Γ_min| + E)·2πτ·E/s² + step/2, with |Γ_min| taken as E (a deep
-// dip). The slope s of a series resonance at its centre is |dΓ/df| = Q/f0·4·Z0·R/(R + Z0)²,
+// nominal unit: hw = E/s + (|Γ_min| + E)·2πτ·E/s² + step/2, |Γ_min| from the nominal depth
+// (default: E, a deep dip). Where the nominal dip fails that bound's assumptions (under 12 dB
+// deep, or its 6 dB width, √3·|Γ_min|/s each side, reaching the sweep edge) the rigorous
+// interval applies: |Γ_t| <= |Γ_min| + 2E around a dip |Γ_t|² = |Γ_min|² + (s·Δf)², so
+// hw = sqrt((|Γ_min| + 2E)² − |Γ_min|²)/s + step/2. The slope s of a series resonance at its centre is |dΓ/df| = Q/f0·4·Z0·R/(R + Z0)²,
 // taken at R = Z0 (its largest value; the unit's R is not known beforehand). From a bandwidth
 // BW where |Γ| <= g: Q = 2·y·f0/BW with y = g/sqrt(1 − g²) (matched series resonance:
 // Γ = jy/(1 + jy), y = Q·Δf/f0; derived here). A unit is inconclusive when its measured
@@ -65,9 +68,16 @@ std::optional<CentringPrediction> predict_centring(const Recipe& recipe, const S
   p.error_radius = error_radius;
   const double tau = 2 * station.test_port_delay_s + 1e-9;
   const double step = step_near(recipe, f0);
+  const auto plan = plan_frequencies(recipe);
+  const double g0_given = recipe.nominal.depth_db ? gamma_from_return_loss(*recipe.nominal.depth_db) : -1;
+  const double s = p.slope_per_hz;
+  const bool shallow = recipe.nominal.depth_db && *recipe.nominal.depth_db < 12.0;
+  const double reach = g0_given >= 0 ? std::sqrt(3.0) * g0_given / s : 0;
+  p.rigorous = shallow || (!plan.empty() && (f0 - reach < plan.front() || f0 + reach > plan.back()));
   auto half_width = [&](double e) {
-    const double s = p.slope_per_hz;
-    return e / s + 2 * e * 2 * std::numbers::pi * tau * e / (s * s) + step / 2;
+    const double g0 = g0_given >= 0 ? g0_given : e;
+    if (p.rigorous) return std::sqrt((g0 + 2 * e) * (g0 + 2 * e) - g0 * g0) / s + step / 2;
+    return e / s + (g0 + e) * 2 * std::numbers::pi * tau * e / (s * s) + step / 2;
   };
   p.half_width_hz = half_width(error_radius);
   p.inconclusive_fraction = fraction(p.half_width_hz, lo, hi, p.center_hz, p.spread_hz);
@@ -81,7 +91,10 @@ std::optional<CentringPrediction> predict_centring(const Recipe& recipe, const S
     }
     if (a > 0) p.directivity_for_5_percent_db = -20 * std::log10(a);
   }
-  p.basis = fmt::format("Q {:.1f} at {:.3f} MHz, error radius {:.4f} (|Γ|), {}", p.q, f0 / 1e6, error_radius,
+  p.basis = fmt::format("Q {:.1f} at {:.3f} MHz, {}, error radius {:.4f} (|\u0393|), {} interval, {}", p.q, f0 / 1e6,
+                        recipe.nominal.depth_db ? fmt::format("depth {:.1f} dB", *recipe.nominal.depth_db)
+                                                : std::string("a deep dip"),
+                        error_radius, p.rigorous ? "rigorous" : "shift-bound",
                         p.spread_hz ? fmt::format("production spread {:.2f} MHz (s.d.)", *p.spread_hz / 1e6)
                                     : std::string("units spread evenly across the window"));
   return p;

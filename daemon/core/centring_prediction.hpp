@@ -1,7 +1,7 @@
 // Predicts, before any unit is tested, how well a scalar station can place a resonance: the
 // half-width of the guarded resonance interval for the recipe's nominal unit, and the fraction
 // of units a resonance window will leave inconclusive. Used by `recipe check` and `dry-run`.
-// Pure; thread-safe. Derivation: docs/MEASUREMENT.md, "Predicting the window".
+// Pure; thread-safe. Derivation: daemon/core/MEASUREMENT.md, "Predicting the window".
 #pragma once
 
 #include <optional>
@@ -17,6 +17,7 @@ struct CentringPrediction {
   double slope_per_hz = 0;        // |dΓ/df| at resonance of the nominal unit
   double q = 0;                   // the nominal unit's Q (given, or from its bandwidth)
   double half_width_hz = 0;       // predicted half-width of the resonance interval
+  bool rigorous = false;          // the nominal dip fails the shift bound's assumptions: the rigorous interval
   double center_hz = 0;           // where the production resonances are centred
   std::optional<double> spread_hz;   // production standard deviation, when the recipe gives it
   // Units inconclusive for the window: of all units when the spread is known (normal spread

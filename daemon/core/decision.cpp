@@ -231,6 +231,22 @@ void classify(const Recipe& recipe, const std::vector<PointResult>& points, cons
   const LimitCheck* mask = first_failed("mask");
   if (mask && !recipe.limits.mask.empty()) {
     const auto [lo, hi] = mask_span(recipe.limits.mask);
+    const auto tuned = [&](bool low, bool certain) {
+      d.failure_class = low ? FailureClass::tuned_low : FailureClass::tuned_high;
+      d.tuning_certain = certain;
+      d.reason = fmt::format("resonance at {} is {} the {} band ({}); {}", format_mhz(r.frequency_hz),
+                             low ? "below" : "above", format_frequency_range(lo, hi),
+                             low ? "element too long" : "element too short", mask->detail);
+      if (!certain) {
+        d.reason += fmt::format("; with the measurement uncertainty the resonance lies {}, which reaches into the band, "
+                                "so no trim advice",
+                                interval_text(r));
+      }
+    };
+    // The whole interval outside the band: the tuning is what is wrong, whatever the depth
+    // (a dip beyond the sweep edge shows only its skirt).
+    if (wholly_below(lo)) return tuned(true, true);
+    if (wholly_above(hi)) return tuned(false, true);
     const double lim = limit_at(recipe.limits.mask, r.frequency_hz);
     const bool placeable = !r.low_open && !r.high_open && (r.high_hz - r.low_hz) <= (hi - lo);
     const bool deep = r.depth_db >= lim;
@@ -249,20 +265,9 @@ void classify(const Recipe& recipe, const std::vector<PointResult>& points, cons
       }
       return;
     }
-    if (r.frequency_hz < lo || r.frequency_hz > hi) {
-      const bool low = r.frequency_hz < lo;
-      d.failure_class = low ? FailureClass::tuned_low : FailureClass::tuned_high;
-      d.tuning_certain = low ? wholly_below(lo) : wholly_above(hi);
-      d.reason = fmt::format("resonance at {} is {} the {} band ({}); {}", format_mhz(r.frequency_hz),
-                             low ? "below" : "above", format_frequency_range(lo, hi),
-                             low ? "element too long" : "element too short", mask->detail);
-      if (!d.tuning_certain) {
-        d.reason += fmt::format("; with the measurement uncertainty the resonance lies {}, which reaches into the band, "
-                                "so no trim advice",
-                                interval_text(r));
-      }
-      return;
-    }
+    // A well-formed dip whose measured resonance lies outside the band, its interval reaching
+    // in: the likely cause is the tuning, but not certain enough for trim advice.
+    if (r.frequency_hz < lo || r.frequency_hz > hi) return tuned(r.frequency_hz < lo, false);
   }
   d.failure_class = FailureClass::out_of_mask;
   if (mask) d.reason = mask->detail;

@@ -50,11 +50,12 @@ struct Decision {
 inline constexpr double kNoResponseReturnLossDb = 3.0;
 
 // Applies the recipe's rule to the mask (per point), the resonance window and the minimum
-// bandwidth, then classifies a failure from the intervals (docs/MEASUREMENT.md, "Diagnosis"):
+// bandwidth, then classifies a failure from the intervals (daemon/core/MEASUREMENT.md, "Diagnosis"):
 //   no-response  best measured RL under 3 dB everywhere;
-//   tuned-low/-high  a window failed, or the mask failed with a well-formed dip (measured depth
-//                at least the limit, resonance interval closed and no wider than the band)
-//                whose measured resonance lies outside the band;
+//   tuned-low/-high  a window failed; or the mask failed and the whole resonance interval lies
+//                below/above the mask's band (certain: trim advice); or the mask failed with a
+//                well-formed dip (depth at least the limit, interval closed and no wider than
+//                the band) whose measured resonance lies outside the band (no trim advice);
 //   shallow      the mask failed and the dip is too shallow to meet the limit or too broad to
 //                place (open interval, or wider than the band);
 //   out-of-mask  anything else that failed.

@@ -80,6 +80,7 @@ struct FastCaptureSettings {
 struct NominalUnit {
   std::optional<double> q;                 // loaded Q of the resonance
   std::optional<double> bandwidth_hz;      // or: width where RL >= the bandwidth threshold
+  std::optional<double> depth_db;          // return loss at resonance (default: a deep dip)
   std::optional<double> resonance_sd_hz;   // production spread of the resonance (standard deviation)
   std::optional<double> center_hz;         // mean resonance; default the trim target or window centre
 };

@@ -383,10 +383,11 @@ class Loader {
     const JsonPointer at("/nominal_unit");
     if (!doc_.has(at)) return;
     doc_.require_object(at);
-    doc_.check_keys(at, {"q", "bandwidth_hz", "resonance_sd_hz", "center_hz"});
+    doc_.check_keys(at, {"q", "bandwidth_hz", "depth_db", "resonance_sd_hz", "center_hz"});
     if (doc_.has(at / "q") && doc_.has(at / "bandwidth_hz")) doc_.fail(at, "give either q or bandwidth_hz, not both");
     if (doc_.has(at / "q")) r.nominal.q = doc_.number_in(at / "q", 1, 0.5, 10000, "");
     r.nominal.bandwidth_hz = optional_frequency(at / "bandwidth_hz");
+    if (doc_.has(at / "depth_db")) r.nominal.depth_db = doc_.number_in(at / "depth_db", 20, 1, 80, "dB");
     r.nominal.resonance_sd_hz = optional_frequency(at / "resonance_sd_hz");
     r.nominal.center_hz = optional_frequency(at / "center_hz");
   }

@@ -1,4 +1,4 @@
-// Uncertainty budget (uncertainty.hpp). Model and derivation: docs/MEASUREMENT.md, "The budget".
+// Uncertainty budget (uncertainty.hpp). Model and derivation: daemon/core/MEASUREMENT.md, "The budget".
 //
 // One-port scalar model at each frequency, every quantity relative to the true full-reflection
 // level T (dB):  P_x = T + 20·log10|E_D + Γ_x/(1 − E_S·Γ_x)| + n_x

@@ -2,7 +2,7 @@
 // calibration from the standards' readings (including repeated readings, which measure the
 // reading noise) and the calibration-kit definition, then applied to every DUT reading to give
 // the interval [worst, best] the true return loss lies in. Pure; thread-safe.
-// The equations, their assumptions and sources are in docs/MEASUREMENT.md ("The budget").
+// The equations, their assumptions and sources are in daemon/core/MEASUREMENT.md ("The budget").
 #pragma once
 
 #include <cstddef>
@@ -41,7 +41,7 @@ double reading_sigma_db(const UncertaintyBudget& b, std::size_t index, double ra
 
 // The interval of the true return loss at plan point `index` for a DUT reading `raw_dbm`
 // against the calibration reference `reference_dbm`. Bounded terms as a worst case, statistical
-// terms at the coverage factor, added to them (docs/MEASUREMENT.md).
+// terms at the coverage factor, added to them (daemon/core/MEASUREMENT.md).
 ReturnLossBounds budget_bounds(const UncertaintyBudget& b, std::size_t index, double reference_dbm, double raw_dbm);
 
 // The error radius in |Γ| that the bounds allow around a reading: max distance from the

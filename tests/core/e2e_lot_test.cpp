@@ -125,7 +125,11 @@ TEST(E2eLot, Whip915LotScoredAgainstTruthSurvivesDaemonKill) {
       ++escapes;
       ADD_FAILURE() << "escape: " << serial << " passed but " << t.why << " (defect '" << t.defect << "')";
     }
-    if (verdict == "fail" && t.meets_limits && t.in_window) ++false_rejects;
+    if (verdict == "fail" && t.meets_limits && t.in_window && t.defect != "intermittent") {
+      ++false_rejects;
+      std::printf("[ lot     ] false reject %s (defect '%s'): %s %s\n", serial.c_str(), t.defect.c_str(),
+                  run["failure_class"].get<std::string>().c_str(), run["reason"].get<std::string>().c_str());
+    }
     // The resonance window is a frequency limit: the guarded rule covers the return-loss
     // uncertainty, not the resonance frequency's, so a pass of a unit whose TRUE resonance sits
     // just outside the window is counted and printed, not an RL escape.
@@ -178,10 +182,10 @@ TEST(E2eLot, UnitCutTooLongGetsTrimAdviceWithinTenPercentOfTheTrueExcess) {
   testing::TempDir dir{"echoline-e2e-trim"};
   std::ifstream in(testing::source_dir() / "config/recipes/whip915.jsonc");
   std::string text((std::istreambuf_iterator<char>(in)), std::istreambuf_iterator<char>());
-  const std::string from = R"({ "start_hz": "860 MHz", "stop_hz": "970 MHz", "points": 201 })";
+  const std::string from = R"({ "start_hz": "860 MHz", "stop_hz": "970 MHz", "points": 221 })";
   const auto at = text.find(from);
   ASSERT_NE(at, std::string::npos) << "whip915.jsonc segment changed; update this test";
-  text.replace(at, from.size(), R"({ "start_hz": "780 MHz", "stop_hz": "970 MHz", "points": 191 })");
+  text.replace(at, from.size(), R"({ "start_hz": "780 MHz", "stop_hz": "970 MHz", "points": 381 })");
   const auto recipe_file = dir / "whip915-wide.jsonc";
   std::ofstream(recipe_file) << text;
 

@@ -258,3 +258,60 @@ TEST(Judge, MinimumBandwidthIsDecided) {
 
 }  // namespace
 }  // namespace echoline::core
+
+namespace echoline::core {
+namespace {
+
+using namespace testing_bench;
+
+// Diagnosis from intervals (daemon/core/MEASUREMENT.md §9): a shallow, broad dip is `shallow`
+// and gets no trim advice, wherever its tilted maximum happens to fall.
+TEST(JudgeDiagnosis, ShallowBroadDipIsShallowWithoutTrimAdvice) {
+  Recipe r = whip_recipe();
+  r.limits.resonance_min_hz.reset();
+  r.limits.resonance_max_hz.reset();
+  CalibrationRecord cal = calibrate(r);
+  // A lossy element: 7 dB at best, falling 1 dB over 45 MHz; its maximum sits at 950 MHz.
+  Judgement j = judge(r, cal, readings_for(r, cal, [](double f) {
+    const double x = (f - 950e6) / 1e6;
+    return 7.0 - 0.0005 * x * x;
+  }));
+  EXPECT_EQ(j.verdict, Verdict::fail) << j.reason;
+  EXPECT_EQ(j.failure_class, FailureClass::shallow) << j.reason;
+  EXPECT_FALSE(j.trim) << j.reason;
+}
+
+// A deep dip whose whole interval lies above the band: tuned-high, with trim advice.
+TEST(JudgeDiagnosis, DipWhollyAboveTheBandIsTunedHighWithTrimAdvice) {
+  Recipe r = whip_recipe();
+  r.limits.resonance_min_hz.reset();
+  r.limits.resonance_max_hz.reset();
+  CalibrationRecord cal = calibrate(r);
+  Judgement j = judge(r, cal, readings_for(r, cal, [](double f) {
+    const double x = (f - 950e6) / 1e6;
+    return std::max(1.0, 25.0 - 0.05 * x * x);
+  }));
+  EXPECT_EQ(j.verdict, Verdict::fail) << j.reason;
+  EXPECT_EQ(j.failure_class, FailureClass::tuned_high) << j.reason;
+  ASSERT_TRUE(j.metrics.resonance_low_hz);
+  EXPECT_GT(*j.metrics.resonance_low_hz, 928e6);
+  EXPECT_TRUE(j.trim) << j.reason;
+}
+
+// A dip beyond the sweep's start shows only its skirt: the interval is open below and lies
+// wholly below the band, so the tuning is certain (too long) and trim advice is given.
+TEST(JudgeDiagnosis, DipBelowTheSweepIsTunedLowWithTrimAdvice) {
+  Recipe r = whip_recipe();
+  r.limits.resonance_min_hz.reset();
+  r.limits.resonance_max_hz.reset();
+  CalibrationRecord cal = calibrate(r);
+  Judgement j = judge(r, cal, readings_for(r, cal, [](double f) {
+    const double x = (f - 845e6) / 1e6;
+    return std::max(0.5, 20.0 - 0.02 * x * x);
+  }));
+  EXPECT_EQ(j.failure_class, FailureClass::tuned_low) << j.reason;
+  EXPECT_TRUE(j.trim) << j.reason;
+}
+
+}  // namespace
+}  // namespace echoline::core

@@ -261,7 +261,7 @@ TEST(DaemonStart, StaleSocketIsReplacedAndTokenGuardsEngineerRole) {
     ASSERT_EQ(::bind(fd, reinterpret_cast<sockaddr*>(&addr), sizeof(addr)), 0);
     ::close(fd);
   }
-  Daemon daemon(config, {"--tcp-port", "-1"});
+  Daemon daemon(config, {"--tcp-port", "auto"});
   Api api = Api::connect(daemon);
   EXPECT_TRUE(api.call("status")["ok"].get<bool>());
   EXPECT_EQ(api.call("hello", {{"role", "engineer"}})["error"]["code"], "unauthorized");
@@ -296,7 +296,7 @@ TEST(DaemonFastCapture, CalibratesAndJudgesAUnitFromOneTrace) {
   json run = test_unit(api, sim, "TINY-01", "TINY");
   const json after = sim.control({{"cmd", "status"}});
   EXPECT_NE(run["verdict"], "aborted") << run.dump();
-  EXPECT_EQ(run["points_count"], 201) << run.dump();
+  EXPECT_EQ(run["points_count"], 221) << run.dump();
   // One trace read instead of a marker query per point: the receiver answers a handful of
   // queries per unit (sweep *OPC?, trace, error checks), not the step sweep's 400.
   const double replies = after["instruments"]["receiver"]["replies"].get<double>() -
