@@ -46,8 +46,8 @@ options:
   --log-dir DIR            log folder (overrides log_dir)
   --recipe FILE            recipe to load (overrides recipe)
   --socket PATH            Unix socket path (overrides api.unix_socket)
-  --tcp-port N             TCP port on api.tcp_host, 0 to 65535 (0 = off, overrides
-                           api.tcp_port)
+  --tcp-port N|auto        TCP port on api.tcp_host, 0 to 65535 (0 = off), or auto for any
+                           free port (shown in the listening line); overrides api.tcp_port
   --on-stop abort|finish   on SIGTERM: abort the running test (default, stored as aborted
                            with reason "daemon stopping") or let it finish first
   --log-level LEVEL        trace, debug, info (default), warn, error
@@ -69,6 +69,9 @@ struct Args {
   std::optional<int> tcp_port;
   bool rf_off = false;
 };
+
+// --tcp-port auto: the API server binds port 0 and the kernel picks a free one.
+constexpr int kAnyFreePort = -1;
 
 [[noreturn]] void usage_error(const std::string& message) {
   std::cerr << "echolined: " << message << "\n(see echolined --help)\n";
@@ -106,9 +109,13 @@ Args parse_args(int argc, char** argv) {
       a.socket = value(i);
     } else if (arg == "--tcp-port") {
       const std::string v = value(i);
-      const auto port = drivers::parse_whole_number(v, 0, 65535);
-      if (!port) usage_error(drivers::whole_number_error("--tcp-port", v, 0, 65535, "0 = no TCP listener"));
-      a.tcp_port = static_cast<int>(*port);
+      if (v == "auto") {
+        a.tcp_port = kAnyFreePort;
+      } else {
+        const auto port = drivers::parse_whole_number(v, 0, 65535);
+        if (!port) usage_error(drivers::whole_number_error("--tcp-port", v, 0, 65535, "0 = no TCP listener; or auto"));
+        a.tcp_port = static_cast<int>(*port);
+      }
     } else if (arg == "--on-stop") {
       a.on_stop = value(i);
       if (a.on_stop != "abort" && a.on_stop != "finish") usage_error("--on-stop must be abort or finish");

@@ -213,8 +213,8 @@ TEST(AccessUnixSocket, EngineerRoleNeedsTheToken) {
 // ---- TCP ----
 
 TEST(AccessTcp, DefaultListenerIsLoopbackOnly) {
-  // No tcp_host in the config: 127.0.0.1 (config/README.md). --tcp-port -1 picks a free port.
-  Daemon d(json::object(), {"--tcp-port", "-1"});
+  // No tcp_host in the config: 127.0.0.1 (config/README.md). --tcp-port auto picks a free port.
+  Daemon d(json::object(), {"--tcp-port", "auto"});
   ASSERT_TRUE(d.listening());
   ASSERT_EQ(d.tcp().rfind("127.0.0.1:", 0), 0u) << d.tcp();
   auto api = connect("tcp://" + d.tcp());
@@ -244,7 +244,7 @@ class AccessRemote : public ::testing::Test {
   void SetUp() override {
     ip_ = non_loopback_ipv4();
     if (ip_.empty()) GTEST_SKIP() << "this host has no non-loopback IPv4 address to bind";
-    daemon_.emplace(json{{"tcp_host", ip_}, {"token_file", "token"}}, std::vector<std::string>{"--tcp-port", "-1"});
+    daemon_.emplace(json{{"tcp_host", ip_}, {"token_file", "token"}}, std::vector<std::string>{"--tcp-port", "auto"});
     ASSERT_TRUE(daemon_->listening());
     ASSERT_EQ(daemon_->tcp().rfind(ip_ + ":", 0), 0u) << daemon_->tcp();
     // Connecting to our own non-loopback address: the daemon sees a non-loopback peer.

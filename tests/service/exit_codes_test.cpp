@@ -35,8 +35,9 @@ TEST(ExitCodes, DaemonTcpPortOutsideZeroTo65535IsAUsageError) {
     EXPECT_TRUE(says(o, "--tcp-port")) << o.output;
     EXPECT_TRUE(says(o, "from 0 to 65535")) << o.output;
   }
-  // The ends of the range pass the option check; this run then fails on the missing config.
-  for (const char* port : {"0", "65535"}) {
+  // The ends of the range and "auto" (any free port) pass the option check; this run then fails
+  // on the missing config.
+  for (const char* port : {"0", "65535", "auto"}) {
     const Outcome o = run(testing::daemon_binary(), {"--config", "/nonexistent/station.jsonc", "--tcp-port", port});
     EXPECT_FALSE(says(o, "--tcp-port")) << o.output;
     EXPECT_TRUE(says(o, "/nonexistent/station.jsonc")) << o.output;
