@@ -61,7 +61,7 @@ std::optional<Vertex> parabola_vertex(double x0, double y0, double x1, double y1
 
 // Where the TRUE return-loss maximum can lie (guarded window decisions).
 //
-// The one-port error bounds (REFERENCE.md §2: |Γ_true| ∈ [|Γ_m| − ρ_D − ρ_S|Γ_m|²,
+// The one-port error bounds (MEASUREMENT.md §1 and §3: |Γ_true| ∈ [|Γ_m| − ρ_D − ρ_S|Γ_m|²,
 // |Γ_m| + ρ_D + ρ_S|Γ_m|²], phases of E_D and E_S unknown) give, at every sample,
 // RL_worst(f) ≤ RL_true(f) ≤ RL_best(f). Let f_p be the sample with the largest measured RL and
 // f* the frequency of the true maximum. Then

@@ -1,6 +1,6 @@
-// OPEN/SHORT/LOAD calibration (calibration.hpp). Method: REFERENCE.md §3 (dB average of OPEN
+// OPEN/SHORT/LOAD calibration (calibration.hpp). Method: MEASUREMENT.md §2 (dB average of OPEN
 // and SHORT cancels the first-order directivity and source-match ripple); the LOAD reading
-// relative to that reference is the effective directivity (REFERENCE.md §2, common practice).
+// relative to that reference is the effective directivity (MEASUREMENT.md §2–3, common practice).
 #include "daemon/core/calibration.hpp"
 
 #include <algorithm>
@@ -121,7 +121,7 @@ CalibrationRecord build_calibration(const Recipe& recipe, const std::map<std::st
   }
   if (shrt && spread > limits.max_open_short_spread_db) {
     // With 20 dB directivity the anti-phase ripple gives at most ~1.7 dB between OPEN and SHORT
-    // (REFERENCE.md §3: +0.83 / −0.92 dB); a larger gap is a bad, loose or swapped standard.
+    // (20·log10(1 ± 0.1): +0.83 / −0.92 dB); a larger gap is a bad, loose or swapped standard.
     rec.errors.push_back(fmt::format(
         "OPEN and SHORT differ by {:.1f} dB at {} (more than {:.0f} dB): a standard is bad or loose, or one of them is "
         "really the LOAD",
@@ -130,7 +130,7 @@ CalibrationRecord build_calibration(const Recipe& recipe, const std::map<std::st
   if (!shrt) {
     rec.warnings.push_back(
         "reference from the OPEN alone: it carries the uncompensated directivity ripple (about \u00b10.3 dB at 30 dB "
-        "directivity, REFERENCE.md \u00a73); measure the SHORT too for a better reference");
+        "directivity, 20\u00b7log10(1 \u00b1 0.032)); measure the SHORT too for a better reference");
   }
 
   // Directivity from the LOAD.

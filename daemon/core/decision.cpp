@@ -2,7 +2,7 @@
 // Terms: JCGM 106:2012 §8.2 simple acceptance, §8.3.2 guarded acceptance; ILAC-G8:09/2019 §4.2.1
 // binary statement for simple acceptance, §4.2.3 non-binary statement (our "inconclusive" is the
 // conditional pass / conditional fail zone). The guard band here is the full worst-case interval
-// from directivity and source match (REFERENCE.md §2), not a symmetric ±U.
+// from the uncertainty budget (MEASUREMENT.md §3.6), not a symmetric ±U.
 #include "daemon/core/decision.hpp"
 
 #include <algorithm>
@@ -103,7 +103,7 @@ std::string interval_text(const Resonance& r) {
 // Resonance window.
 //   simple:  the measured (parabola-refined) resonance against the window (JCGM 106 §8.2).
 //   guarded: the bound interval of the true resonance (analysis.cpp, resonance_interval: from
-//            the one-port error bounds of REFERENCE.md §2) must lie wholly inside the window to
+//            the bounds of MEASUREMENT.md §3.6) must lie wholly inside the window to
 //            pass, wholly outside to fail; otherwise inconclusive (JCGM 106:2012 §8.3.2 guarded
 //            acceptance, ILAC-G8 §4.2.3 conditional zone; clause numbers from memory).
 // A half-step interval was used here before; it ignored the directivity error, whose phase

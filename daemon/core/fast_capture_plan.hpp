@@ -4,7 +4,7 @@
 //
 // Timing rule (the simulator models the same physics, simulator/receiver_instrument.cpp):
 //   1. the tone must not cross the RBW faster than a swept analyzer would sweep it:
-//      source sweep time >= k x band / RBW^2 with k = 2.5 (sweep-time rule, AN 150, from memory);
+//      source sweep time >= k x band / RBW^2 with k = 2.5 (the swept-analyzer sweep-time rule for near-Gaussian RBW filters; common practice, from memory);
 //   2. every receiver bin must dwell long enough to see one whole source ramp (a sawtooth passes
 //      each frequency once per period): receiver sweep time / (bins - 1) >= source sweep time.
 //      Edge bins dwell half as long (the analyzer's sweep starts and stops on them), so the
@@ -19,7 +19,7 @@
 
 namespace echoline::core {
 
-inline constexpr double kFastCaptureK = 2.5;          // sweep-time factor (AN 150, from memory)
+inline constexpr double kFastCaptureK = 2.5;          // sweep-time factor (common practice, from memory)
 inline constexpr double kFastCaptureMinSweepS = 1e-3; // shortest source ramp accepted, s
 inline constexpr double kDwellMargin = 2.0;           // automatic receiver sweep time / minimum
 inline constexpr int kFastCaptureMaxBins = 10001;     // receiver trace points (common analyzer limit)

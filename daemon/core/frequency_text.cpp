@@ -72,7 +72,7 @@ Result<double> parse_frequency(std::string_view text) {
   double scale = 1.0;
   if (!rest.empty()) {
     const std::string u = lower(rest);
-    // "mhz" is mega, never milli: IEEE 488.2's MHZ special case (REFERENCE.md §7.7).
+    // "mhz" is mega, never milli: IEEE 488.2-1992's MHZ special case for suffix units (§7.7.3, from memory).
     if (u == "hz") scale = 1.0;
     else if (u == "khz") scale = 1e3;
     else if (u == "mhz") scale = 1e6;

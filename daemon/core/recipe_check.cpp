@@ -13,7 +13,7 @@
 namespace echoline::core {
 namespace {
 
-// REFERENCE.md §2 rule of thumb (common practice): directivity should exceed the RL to be
+// Rule of thumb (common practice, no source): directivity should exceed the RL to be
 // verified by at least 10 dB (margin 10 dB -> -2.39/+3.30 dB error).
 constexpr double kDirectivityMarginDb = 10;
 // A reading this far above the noise floor is disturbed by noise by less than ~0.4 dB
@@ -124,7 +124,7 @@ std::vector<CheckFinding> check_recipe(const Recipe& r, const StationCapability&
                     format_frequency(rx.vbw_hz), format_frequency(rx.rbw_hz)));
   }
   if (rx.span_hz > 0) {
-    // Swept analyzer: ST ≈ k·span/RBW², k ≈ 2.5 (Agilent AN 150, REFERENCE.md §6).
+    // Swept analyzer: ST ≈ k·span/RBW², k ≈ 2.5 for near-Gaussian RBW filters (common practice, from memory).
     const double st_point = 2.5 * rx.span_hz / (rx.rbw_hz * rx.rbw_hz) * rx.averages;
     if (st_point > kSlowPointS) {
       add(out, "warning", "/receiver/rbw_hz",

@@ -37,7 +37,7 @@ struct StationCapability {
 // Findings in recipe order; any "error" means the recipe must not run on this station.
 std::vector<CheckFinding> check_recipe(const Recipe& recipe, const StationCapability& station);
 
-// Worst-case power at the receiver input for a source power (REFERENCE.md §2 model):
+// Worst-case power at the receiver input for a source power (the model of MEASUREMENT.md §1):
 //   P = P_src − coupling + 20·log10(1 + 10^(−D/20))
 // full reflection at the test port, directivity leakage adding in phase, losses ignored
 // (they only lower the level, so ignoring them is the worst case).

@@ -1,4 +1,4 @@
-// Scalar reflection arithmetic (rf_math.hpp). Formulas: REFERENCE.md §1–2, §6.
+// Scalar reflection arithmetic (rf_math.hpp). Formulas: MEASUREMENT.md §1 and §3; RL, VSWR and mismatch loss as textbooks define them (e.g. Pozar, Microwave Engineering, ch. 2; from memory).
 #include "daemon/core/rf_math.hpp"
 
 #include <algorithm>
@@ -72,7 +72,7 @@ ReturnLossBounds return_loss_bounds(double measured_rl_db, double directivity_db
 }
 
 double thermal_noise_floor_dbm(double rbw_hz, double noise_figure_db) {
-  // kTB at 290 K is -173.975 dBm/Hz; the trade rounds to -174 (AN 150).
+  // kTB at 290 K is -173.975 dBm/Hz; the trade rounds to -174 (common practice).
   return -174.0 + 10.0 * std::log10(rbw_hz) + noise_figure_db;
 }
 

@@ -31,7 +31,7 @@ ClampedGamma clamp_gamma(double gamma);
 // 10^(-db/20): the linear magnitude of an error term given in dB (directivity, source match).
 double rho_from_db(double db);
 
-// Interval of the true return loss for a measured one (REFERENCE.md §2, one-port error model):
+// Interval of the true return loss for a measured one (MEASUREMENT.md §1, one-port error model):
 //   |Γ_true| ∈ |Γ_m| ± (ρ_D + ρ_S·|Γ_m|²),  ρ_D = 10^(-D/20), ρ_S = 10^(-M_S/20).
 // worst = lowest true RL (upper |Γ| bound, clamped to |Γ| <= 1 so worst >= 0 dB);
 // best  = highest true RL (+inf when the lower |Γ| bound is <= 0).
@@ -46,7 +46,7 @@ ReturnLossBounds return_loss_bounds(double measured_return_loss_db, double direc
                                     double source_match_db);
 
 // Displayed thermal noise floor of a receiver: -174 dBm/Hz + 10·log10(RBW) + NF
-// (Agilent AN 150; REFERENCE.md §6). Log-averaging display effects are ignored.
+// (kTB plus noise figure, common practice; −174 dBm/Hz is kT at 290 K). Log-averaging display effects are ignored.
 double thermal_noise_floor_dbm(double rbw_hz, double noise_figure_db);
 
 // dB <-> linear power helpers.

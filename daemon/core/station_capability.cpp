@@ -16,8 +16,8 @@ StationCapability station_capability(const drivers::FixtureConfig& fixture, cons
   c.mainline_loss_db = fixture.mainline_loss_db;
   c.cable_loss_db = fixture.cable_loss_db;
   // The RBW the readings are taken with (fast capture has its own), and the input attenuator:
-  // the displayed noise level referred to the input rises dB for dB with it (from memory:
-  // Agilent AN 150, "Spectrum Analysis Basics"; common practice). "auto" (-1) counts as 0.
+  // the displayed noise level referred to the input rises dB for dB with it (spectrum-analyzer
+  // practice, from memory). "auto" (-1) counts as 0.
   const double rbw_hz = recipe.mode == SweepMode::fast_capture ? recipe.fast_capture.rbw_hz : recipe.receiver.rbw_hz;
   c.noise_floor_dbm = thermal_noise_floor_dbm(rbw_hz, receiver.noise_figure_db) + std::max(0.0, recipe.receiver.attenuation_db);
   c.receiver_max_safe_input_dbm = receiver.max_safe_input_dbm;

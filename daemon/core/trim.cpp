@@ -1,4 +1,4 @@
-// Trim advice (trim.hpp): L_new = L·f_meas/f_target, REFERENCE.md §5 (common practice; assumes
+// Trim advice (trim.hpp): L_new = L·f_meas/f_target, MEASUREMENT.md §9 (common practice; assumes
 // the end-effect factor K does not change with the small length change).
 #include "daemon/core/trim.hpp"
 

@@ -1,5 +1,5 @@
 // Trim advice for wire elements: resonance scales as 1/length (f·L ≈ const), so the length that
-// moves the resonance to target is L·f_meas/f_target (REFERENCE.md §5, common practice).
+// moves the resonance to target is L·f_meas/f_target (MEASUREMENT.md §9, common practice).
 // Pure; thread-safe.
 #pragma once
 
