@@ -35,7 +35,7 @@ struct FaultSpec {
   double delay_ms = 500;          // slow-reply: added delay, ms
   int error_code = -310;          // error-entry: SCPI code pushed (SCPI-99 -310 "System error")
   std::string error_message = "System error;simulated fault";  // error-entry text, no quotes
-  std::string identity = "Nobody Labs,WRONG-0,0,0.0";          // wrong-identity: *IDN? text
+  std::string identity = "Echoline,SIM-NONE,NONE0000,0.0";     // wrong-identity: *IDN? text
 };
 
 // What the server does with one reply after the faults had their say.

@@ -23,11 +23,12 @@
 // more receiver sweeps fills them only as the two sweeps' phases happen to line up.
 // A tone crossing the RBW at rate R (Hz/s) loses peak power: a linear FM through a Gaussian
 // filter of 3 dB bandwidth B peaks (1 + x^2)^(-1/2) in power with x = 2 ln2 R / (pi B^2)
-// (derived here from the Gaussian's impulse response; same form as the sweep-rate loss of
-// AN 150, from memory), and a burst of B/R seconds is smoothed by the video filter
-// (single pole at VBW): factor 1 - exp(-2 pi VBW B / R). Both are applied with a swept source
-// and with a manual (SWEep:TIME) analyzer sweep time; at the automatic sweep time the
-// analyzer is taken as amplitude-calibrated (common practice, no source).
+// (derived here from the Gaussian's impulse response; the same form as the sweep-rate loss
+// commonly quoted for swept analyzers, common practice), and a burst of B/R seconds is
+// smoothed by the video filter (single pole at VBW): factor 1 - exp(-2 pi VBW B / R). Both
+// are applied with a swept source and with a manual (SWEep:TIME) analyzer sweep time; at the
+// automatic sweep time the analyzer is taken as amplitude-calibrated (common practice, no
+// source).
 #include "simulator/receiver_instrument.hpp"
 
 #include <algorithm>
@@ -325,7 +326,8 @@ class ReceiverInstrument final : public SimInstrument {
     tree_.add("DISPlay[:WINDow{1:1}]:TRACe{1:1}:Y[:SCALe]:RLEVel[?]", [this](const Call& c) {
       return numeric_setting(c, Unit::dbm, {-150, 30, 0}, ref_level_dbm_, [this](double v) { ref_level_dbm_ = v; return std::optional<ScpiError>{}; });
     });
-    // Input attenuation raises the displayed noise floor dB for dB (AN 150, from memory).
+    // Input attenuation raises the displayed noise floor dB for dB: it sits ahead of the first
+    // mixer, whose noise sets the floor (common practice).
     tree_.add("INPut:ATTenuation[?]", [this](const Call& c) {
       return numeric_setting(c, Unit::db, {0, 70, 0}, attenuation_db_, [this](double v) { attenuation_db_ = v; return std::optional<ScpiError>{}; });
     });

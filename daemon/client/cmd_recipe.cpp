@@ -161,8 +161,9 @@ int cmd_dry_run(const Argv& argv) {
             << " (OPEN and LOAD swept twice: the repeat measures the reading noise)\n";
   std::cout << fmt::format("  calibration kit: {} serial {}\n", c.capability.kit.identity, c.capability.kit.serial);
   print_centring(r, c.capability, "  ");
-  // Swept-analyzer time per reading: ST = k*span/RBW^2, k in the 2-3 range for near-Gaussian
-  // filters (Agilent AN 150); we take k = 2.5. VBW < RBW lengthens it by RBW/VBW (from memory).
+  // Swept-analyzer time per reading: ST = k*span/RBW^2, with k from 2 to 3 for analog,
+  // near-Gaussian resolution filters (common practice); we take k = 2.5. VBW < RBW lengthens it
+  // by RBW/VBW (from memory).
   double per_reading = 0;
   if (r.receiver.span_hz > 0 && r.receiver.rbw_hz > 0) {
     per_reading = 2.5 * r.receiver.span_hz / (r.receiver.rbw_hz * r.receiver.rbw_hz);

@@ -80,11 +80,11 @@ TEST(CodecNumber, FormatIsNr3AndRoundTrips) {
 
 TEST(CodecIdentity, FourFields) {
   // IEEE 488.2 §10.14 (from memory): manufacturer, model, serial number, firmware level.
-  auto id = parse_identity("Echoline Labs,SG-6000,SN0042,1.2.3\n");
+  auto id = parse_identity("Echoline,SIM-SRC,SRC0042,1.2.3\n");
   ASSERT_TRUE(id.ok());
-  EXPECT_EQ(id->manufacturer, "Echoline Labs");
-  EXPECT_EQ(id->model, "SG-6000");
-  EXPECT_EQ(id->serial, "SN0042");
+  EXPECT_EQ(id->manufacturer, "Echoline");
+  EXPECT_EQ(id->model, "SIM-SRC");
+  EXPECT_EQ(id->serial, "SRC0042");
   EXPECT_EQ(id->firmware, "1.2.3");
 }
 

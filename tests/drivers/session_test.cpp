@@ -99,11 +99,11 @@ TEST(SessionMemory, QueryNumbersParsesList) {
 
 TEST(SessionMemory, IdentifyNeedsFourFields) {
   MemoryBench b;
-  b.peer->expect("*IDN?", "Echoline Labs,SG-6000,SN1,1.0\n");
+  b.peer->expect("*IDN?", "Echoline,SIM-SRC,SRC0001,1.0\n");
   auto id = b.session.identify();
   ASSERT_TRUE(id.ok());
-  EXPECT_EQ(id->model, "SG-6000");
-  b.peer->expect("*IDN?", "Echoline Labs,SG-6000,SN1,1.0,extra\n");
+  EXPECT_EQ(id->model, "SIM-SRC");
+  b.peer->expect("*IDN?", "Echoline,SIM-SRC,SRC0001,1.0,extra\n");
   auto bad = b.session.identify();
   ASSERT_FALSE(bad.ok());
   EXPECT_EQ(bad.error().kind, ErrorKind::protocol);
@@ -326,7 +326,7 @@ class MiniInstrument {
  public:
   bool handle(int fd, const std::string& line) {
     std::lock_guard lock(mutex_);
-    if (line == "*IDN?") return reply(fd, "Echoline Labs,SA-3000,SN0815,2.1.0");
+    if (line == "*IDN?") return reply(fd, "Echoline,SIM-SA,SA0815,2.1.0");
     if (line == "*OPC?") return reply(fd, "1");
     if (line == "*CLS") { errors_.clear(); return true; }
     if (line.starts_with("FREQ ")) { frequency_ = line.substr(5); return true; }
@@ -372,7 +372,7 @@ TEST(SessionTcp, QueryAndWriteRoundTrip) {
   EXPECT_EQ(*f, 915e6);
   auto id = b.session.identify();
   ASSERT_TRUE(id.ok());
-  EXPECT_EQ(id->serial, "SN0815");
+  EXPECT_EQ(id->serial, "SA0815");
 }
 
 TEST(SessionTcp, WaitComplete) {

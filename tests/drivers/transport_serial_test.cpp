@@ -143,7 +143,7 @@ TEST(SerialTermios, ReplySplitOverManyWritesReassembles) {
   PtyPair pty;
   auto t = open_serial("serial:" + pty.slave_path() + "?driver=termios");
   ASSERT_TRUE(t);
-  const std::string reply = "Echoline Labs,SW-4,SN0099,0.9.1\n";
+  const std::string reply = "Echoline,SIM-SW,SW0099,0.9.1\n";
   std::thread instrument([&] {
     for (char c : reply) {
       pty.write(std::string(1, c));

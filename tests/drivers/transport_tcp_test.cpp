@@ -136,7 +136,7 @@ TEST(TcpTransport, PeerDropMidReplyIsClosedErrorAndReconnectWorks) {
 
 TEST(TcpTransport, PartialReadsReassemble) {
   TcpPeer peer([](int fd, const std::string&) {
-    const std::string reply = "Echoline Labs,SA-3000,SN7,2.0\n";
+    const std::string reply = "Echoline,SIM-SA,SA0007,2.0\n";
     for (char c : reply) {
       TcpPeer::send_all(fd, std::string(1, c));
       std::this_thread::sleep_for(1ms);
@@ -147,7 +147,7 @@ TEST(TcpTransport, PartialReadsReassemble) {
   ASSERT_TRUE(t->write("*IDN?\n", 1000ms).ok());
   auto reply = t->read_until('\n', 2000ms, 1024);
   ASSERT_TRUE(reply.ok()) << reply.error().message;
-  EXPECT_EQ(*reply, "Echoline Labs,SA-3000,SN7,2.0");
+  EXPECT_EQ(*reply, "Echoline,SIM-SA,SA0007,2.0");
 }
 
 TEST(TcpTransport, ReplySplitOverManyPacketsParsesAndReadExactSpansPackets) {

@@ -56,7 +56,7 @@ TEST_F(RunStoreTest, NewFileHasCurrentSchemaAndWal) {
 
 TEST_F(RunStoreTest, RunRoundTripsWithEveryField) {
   auto run = make_run("WH915A-0001", "L1", 0, 915e6, core::Verdict::fail, core::FailureClass::tuned_low);
-  run.instruments["switch"] = "Demo,SW-4,\"x\",1";
+  run.instruments["switch"] = "Echoline,SIM-SW,\"x\",1";
   run.reason = "it's \"low\"; cut it";
   run.points[100].return_loss_best_db = std::numeric_limits<double>::infinity();
   ASSERT_TRUE(store_->save_run(run).ok());

@@ -34,7 +34,7 @@ core::RunResult make_run(const std::string& serial, const std::string& lot, int 
   r.operator_name = "mk";
   r.recipe = {"whip-915", "3", "9f3c0a77d2"};
   r.decision_rule = "guarded";
-  r.instruments = {{"source", "Demo,SG-1,0001,1.0"}, {"receiver", "Demo,SA-1,0002,2.1"}};
+  r.instruments = {{"source", "Echoline,SIM-SRC,SRC0001,1.0"}, {"receiver", "Echoline,SIM-SA,SA0002,2.1"}};
   r.started_utc = utc_at(index);
   r.ended_utc = utc_at(index + 1);
   r.temperature_c = 23.5;
@@ -83,7 +83,7 @@ core::CalibrationRecord make_calibration(const std::string& id, const std::strin
   c.created_utc = created_utc;
   c.recipe = {"whip-915", "3", "9f3c0a77d2"};
   c.station = "line2-bench1";
-  c.instruments = {{"source", "Demo,SG-1,0001,1.0"}};
+  c.instruments = {{"source", "Echoline,SIM-SRC,SRC0001,1.0"}};
   c.temperature_c = 22.0;
   for (const char* standard : {"OPEN", "SHORT", "LOAD"}) {
     for (int i = 0; i < points; ++i) {
