@@ -20,7 +20,9 @@ struct TcpEndpoint {
 // Parses "tcp://host:port" (IPv6 as "tcp://[::1]:5025"). Errors are ErrorKind::config naming the address.
 Result<TcpEndpoint> parse_tcp_address(std::string_view address);
 
-// Sets TCP_NODELAY (one write per command; see LIBRARIES.md on Nagle x delayed ACK).
+// Sets TCP_NODELAY and sends each command in one write: a small write held back by Nagle's
+// algorithm (RFC 896) until the peer's delayed ACK (RFC 1122 §4.2.3.2) would add the
+// delayed-ACK wait, tens of milliseconds, to every query.
 // After a read or write timeout, or when the peer closes, the socket is closed and buffered
 // input discarded; the next call reports ErrorKind::closed until reconnect().
 std::unique_ptr<Transport> make_tcp_transport(TcpEndpoint endpoint, std::string address, std::string instrument_name);

@@ -1,4 +1,4 @@
-// Invented benchmark data from the one-port model (REFERENCE.md, one-port error model).
+// Invented benchmark data from the one-port error model (daemon/core/MEASUREMENT.md §1).
 #include "tests/bench/bench_data.hpp"
 
 #include <cmath>

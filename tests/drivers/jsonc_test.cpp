@@ -113,7 +113,8 @@ TEST(Jsonc, SyntaxErrorGivesLineAndEnclosingKey) {
 }
 
 TEST(Jsonc, HashCommentsAreNotComments) {
-  // nlohmann accepts // and /* */ only (LIBRARIES.md); '#' stays a syntax error.
+  // nlohmann-json 3.11 with ignore_comments takes // and /* */ only (its parse() documentation);
+  // '#' stays a syntax error.
   ConfigError e = parse_error("{\n# no\n\"a\": 1}");
   EXPECT_EQ(e.line, 2);
 }

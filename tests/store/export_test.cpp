@@ -164,7 +164,7 @@ TEST_F(ExportTest, TouchstoneIsHonestAboutPhase) {
     std::string hz, db, ang;
     f >> hz >> db >> ang;
     EXPECT_EQ(parse_double(hz), runs_[0].points[data].frequency_hz);
-    EXPECT_EQ(parse_double(db), -runs_[0].points[data].return_loss_db);   // S11 dB = -RL (REFERENCE.md §1)
+    EXPECT_EQ(parse_double(db), -runs_[0].points[data].return_loss_db);   // S11 dB = -RL (RL = -20 log10|Γ|, IEC 61580-6)
     EXPECT_EQ(ang, "0");
     ++data;
   }
