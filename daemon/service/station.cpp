@@ -151,6 +151,14 @@ Station::Station(drivers::StationConfig config) : config_(std::move(config)) {
     spdlog::error("recipe text not kept for offline re-judging: {}", s.error().message);
   }
 
+  // Runs a killed or crashed daemon left in progress: on record as aborted, never as a pass.
+  auto interrupted = store_->finalize_interrupted(store::kStoppedUnexpectedlyReason, utc_iso8601(unix_now_s()));
+  if (!interrupted) throw std::runtime_error(interrupted.error().message);
+  for (const auto& id : *interrupted) {
+    spdlog::warn("run {} was still in progress when the daemon stopped: stored as aborted ({})", id,
+                 store::kStoppedUnexpectedlyReason);
+  }
+
   auto latest = store_->latest_calibration();
   if (!latest) throw std::runtime_error(latest.error().message);
   if (latest->has_value() && latest->value().valid) {
@@ -316,6 +324,14 @@ TestOutcome Station::run_test(const TestRequest& request, const CancelToken& can
       run.reason = s.error().message;
       return finish();
     }
+  }
+  // Write-ahead: the run is on record (as in progress) before the source's RF goes on, so a
+  // daemon killed mid-sweep leaves a run that the next start finalizes as aborted.
+  run.instruments = instruments_->identities();
+  if (Status s = store_->begin_run(run); !s) {
+    run.reason = fmt::format("RF not switched on: the run store did not record the start of the run: {}",
+                             s.error().message);
+    return finish();
   }
   SweepOutcome sweep = run_sweep(*instruments_, *recipe, config_.fixture, cancel.flag(), progress);
   run.timings.sweep_s = sweep.sweep_s;

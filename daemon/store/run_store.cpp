@@ -149,6 +149,8 @@ struct RunStore::Impl {
     return s;
   }
 
+  Status store_run(const core::RunResult& run, bool in_progress);
+  Result<std::vector<std::string>> in_progress_ids();
   Result<std::vector<core::RunResult>> select_runs(std::string_view where, const std::vector<std::string>& params,
                                                    bool with_points, std::string_view doing);
   Status load_points(core::RunResult& run);
@@ -174,15 +176,73 @@ Result<std::unique_ptr<RunStore>> RunStore::open(const std::filesystem::path& fi
   return std::unique_ptr<RunStore>(new RunStore(std::move(impl)));
 }
 
+Result<std::unique_ptr<RunStore>> RunStore::open_read_only(const std::filesystem::path& file, StoreOptions options) {
+  std::error_code ec;
+  if (!std::filesystem::is_regular_file(file, ec)) {
+    return make_error(ErrorKind::storage, fmt::format("run store {}: no such file", file.string()));
+  }
+  auto db = Database::open(file, /*read_only=*/true);
+  if (!db.ok()) return db.error();
+  if (auto s = detail::check_schema_read_only(*db, options.busy_timeout_ms); !s.ok()) return s.error();
+  auto impl = std::make_unique<Impl>();
+  impl->db = std::move(*db);
+  impl->options = std::move(options);
+  impl->file = file;
+  return std::unique_ptr<RunStore>(new RunStore(std::move(impl)));
+}
+
 Status RunStore::save_run(const core::RunResult& run) {
   std::lock_guard lock(impl_->mutex);
-  if (auto s = validate_serial(run.serial, impl_->options.serial_pattern); !s.ok()) {
+  return impl_->store_run(run, false);
+}
+
+Status RunStore::begin_run(const core::RunResult& run) {
+  std::lock_guard lock(impl_->mutex);
+  core::RunResult record = run;
+  record.verdict = core::Verdict::aborted;
+  record.failure_class = core::FailureClass::none;
+  record.reason = std::string(kInProgressReason);
+  record.trim.reset();
+  return impl_->store_run(record, true);
+}
+
+Status RunStore::Impl::store_run(const core::RunResult& run, bool in_progress) {
+  if (auto s = validate_serial(run.serial, options.serial_pattern); !s.ok()) {
     return s.error().with_context(fmt::format("saving run '{}'", run.run_id));
   }
   if (run.run_id.empty()) return make_error(ErrorKind::invalid_argument, "saving run: run_id is empty");
-  auto& db = impl_->db;
-  const std::string doing = fmt::format("saving run '{}' of serial '{}'", run.run_id, run.serial);
-  return impl_->transaction(doing, [&]() -> Status {
+  const std::string doing = fmt::format("{} run '{}' of serial '{}'", in_progress ? "recording the start of" : "saving",
+                                        run.run_id, run.serial);
+  return transaction(doing, [&]() -> Status {
+    // A finished run replaces its own write-ahead record, keeping its place in insertion order.
+    std::optional<long long> replaced_seq;
+    {
+      auto prior = db.prepare("SELECT seq, in_progress, serial FROM runs WHERE run_id = ?1");
+      if (!prior.ok()) return prior.error();
+      prior->bind(1, run.run_id);
+      auto row = prior->step();
+      if (!row.ok()) return fail(row.error(), doing);
+      if (*row && prior->integer(1) == 1 && !in_progress) {
+        if (prior->text(2) != run.serial) {
+          return make_error(ErrorKind::invalid_argument,
+                            fmt::format("run store {}: run '{}' was started for serial '{}', not '{}'", file.string(),
+                                        run.run_id, prior->text(2), run.serial));
+        }
+        replaced_seq = prior->integer(0);
+      }
+    }
+    if (replaced_seq) {
+      for (const char* sql : {"DELETE FROM readings WHERE run_id = ?1", "DELETE FROM runs WHERE run_id = ?1"}) {
+        auto del = db.prepare(sql);
+        if (!del.ok()) return del.error();
+        del->bind(1, run.run_id);
+        if (auto st = del->run(); !st.ok()) return fail(st.error(), doing);
+      }
+      auto dec = db.prepare("UPDATE units SET run_count = run_count - 1 WHERE serial = ?1");
+      if (!dec.ok()) return dec.error();
+      dec->bind(1, run.serial);
+      if (auto st = dec->run(); !st.ok()) return fail(st.error(), doing);
+    }
     auto unit = db.prepare(
         "INSERT INTO units(serial, first_seen_utc, last_seen_utc, last_verdict, run_count) VALUES(?1, ?2, ?2, ?3, 1) "
         "ON CONFLICT(serial) DO UPDATE SET first_seen_utc = min(first_seen_utc, excluded.first_seen_utc), "
@@ -190,7 +250,7 @@ Status RunStore::save_run(const core::RunResult& run) {
         "last_seen_utc = max(last_seen_utc, excluded.last_seen_utc), run_count = run_count + 1");
     if (!unit.ok()) return unit.error();
     unit->bind(1, run.serial).bind(2, run.started_utc).bind(3, core::to_string(run.verdict));
-    if (auto s = unit->run(); !s.ok()) return impl_->fail(s.error(), doing);
+    if (auto s = unit->run(); !s.ok()) return fail(s.error(), doing);
 
     auto ins = db.prepare(fmt::format("INSERT INTO runs({}) VALUES(?1,?2,?3,?4,?5,?6,?7,?8,?9,?10,?11,?12,?13,?14,?15,"
                                       "?16,?17,?18,?19,?20,?21,?22,?23,?24,?25,?26,?27,?28,?29,?30,?31,?32,?33,?34,?35,?36,?37,?38,?39,?40)",
@@ -223,9 +283,9 @@ Status RunStore::save_run(const core::RunResult& run) {
       if (st.error().instrument_code == SQLITE_CONSTRAINT_UNIQUE) {
         return make_error(ErrorKind::invalid_argument,
                           fmt::format("run store {}: run '{}' is already stored (a retest is a new run with a new id)",
-                                      impl_->file.string(), run.run_id));
+                                      file.string(), run.run_id));
       }
-      return impl_->fail(st.error(), doing);
+      return fail(st.error(), doing);
     }
 
     auto pts = db.prepare(
@@ -240,10 +300,56 @@ Status RunStore::save_run(const core::RunResult& run) {
       // +inf best-case return loss (|Γ_m| within the directivity error) is stored as NULL.
       if (std::isinf(p.return_loss_best_db) && p.return_loss_best_db > 0) pts->bind_null(7);
       else pts->bind(7, p.return_loss_best_db);
-      if (auto st = pts->run(); !st.ok()) return impl_->fail(st.error(), fmt::format("{}: reading {}", doing, i));
+      if (auto st = pts->run(); !st.ok()) return fail(st.error(), fmt::format("{}: reading {}", doing, i));
+    }
+    if (in_progress || replaced_seq) {
+      auto mark = db.prepare("UPDATE runs SET in_progress = ?2, seq = coalesce(?3, seq) WHERE run_id = ?1");
+      if (!mark.ok()) return mark.error();
+      mark->bind(1, run.run_id).bind(2, in_progress ? 1 : 0);
+      if (replaced_seq) mark->bind(3, *replaced_seq);
+      else mark->bind_null(3);
+      if (auto st = mark->run(); !st.ok()) return fail(st.error(), doing);
     }
     return Status::success();
   });
+}
+
+Result<std::vector<std::string>> RunStore::Impl::in_progress_ids() {
+  auto st = db.prepare("SELECT run_id FROM runs WHERE in_progress = 1 ORDER BY started_utc, seq");
+  if (!st.ok()) return st.error();
+  std::vector<std::string> ids;
+  for (;;) {
+    auto row = st->step();
+    if (!row.ok()) return fail(row.error(), "listing runs in progress");
+    if (!*row) break;
+    ids.push_back(st->text(0));
+  }
+  return ids;
+}
+
+Result<std::vector<std::string>> RunStore::runs_in_progress() {
+  std::lock_guard lock(impl_->mutex);
+  return impl_->in_progress_ids();
+}
+
+Result<std::vector<std::string>> RunStore::finalize_interrupted(std::string_view reason, std::string_view ended_utc) {
+  std::lock_guard lock(impl_->mutex);
+  std::vector<std::string> ids;
+  Status s = impl_->transaction("finalizing runs left in progress", [&]() -> Status {
+    auto found = impl_->in_progress_ids();
+    if (!found.ok()) return found.error();
+    ids = std::move(found.value());
+    if (ids.empty()) return Status::success();
+    auto st = impl_->db.prepare(
+        "UPDATE runs SET in_progress = 0, verdict = 'aborted', failure_class = '', reason = ?1, ended_utc = ?2, "
+        "points_count = (SELECT count(*) FROM readings WHERE readings.run_id = runs.run_id) WHERE in_progress = 1");
+    if (!st.ok()) return st.error();
+    st->bind(1, reason).bind(2, ended_utc);
+    if (auto r = st->run(); !r.ok()) return impl_->fail(r.error(), "finalizing runs left in progress");
+    return Status::success();
+  });
+  if (!s.ok()) return s.error();
+  return ids;
 }
 
 Status RunStore::save_recipe_text(std::string_view hash, std::string_view name, std::string_view version,

@@ -1,7 +1,8 @@
 // The station's run store: one SQLite file (WAL, synchronous=FULL) holding units, runs with every
 // raw reading, and calibrations with their raw standard traces. Only this module touches disk.
 // Thread-safe: one connection per RunStore, calls are serialised by an internal mutex.
-// A run, its readings and its unit-row update commit in ONE transaction; nothing is overwritten.
+// A run, its readings and its unit-row update commit in ONE transaction; nothing is overwritten
+// except a run's own write-ahead record (begin_run), which its finished run replaces.
 #pragma once
 
 #include <filesystem>
@@ -20,7 +21,12 @@ namespace echoline::store {
 
 // Schema version this code writes (PRAGMA user_version). Older files are migrated on open;
 // newer files are refused (ErrorKind::storage, message names both versions).
-inline constexpr int kSchemaVersion = 6;
+inline constexpr int kSchemaVersion = 7;
+
+// The reason a run carries while it is in progress, and the reason it gets when a starting daemon
+// finds it still in progress (the daemon that ran it was killed or crashed).
+inline constexpr std::string_view kInProgressReason = "in progress";
+inline constexpr std::string_view kStoppedUnexpectedlyReason = "daemon stopped unexpectedly";
 
 struct StoreOptions {
   int busy_timeout_ms = 5000;                           // wait this long for another writer
@@ -64,6 +70,11 @@ class RunStore {
   // timeout; migrates an older schema in one transaction; refuses a newer one.
   // Errors: ErrorKind::storage naming the file.
   static Result<std::unique_ptr<RunStore>> open(const std::filesystem::path& file, StoreOptions options = {});
+  // Opens an existing store for reading only (offline readers: the client's --store, the
+  // console's plot): SQLITE_OPEN_READONLY, no pragma that writes, never migrates. A missing file,
+  // or a schema other than kSchemaVersion, is refused (ErrorKind::storage naming file and
+  // versions). Every write call on it fails with a storage error.
+  static Result<std::unique_ptr<RunStore>> open_read_only(const std::filesystem::path& file, StoreOptions options = {});
 
   ~RunStore();
   RunStore(const RunStore&) = delete;
@@ -74,7 +85,21 @@ class RunStore {
   // Refuses (stores nothing) an invalid serial (invalid_argument), a duplicate run_id
   // (invalid_argument); any SQLite failure is ErrorKind::storage and the transaction is rolled back.
   // When it returns ok, the run is on disk (synchronous=FULL).
+  // When begin_run stored this run_id as in progress, the finished run replaces that record in
+  // the same transaction (its readings too; the unit's run count is not raised twice).
   Status save_run(const core::RunResult& run);
+
+  // Write-ahead record of a run about to measure: stores the run (identity, recipe, calibration,
+  // operator, station, software, started time; any points it already has) with verdict aborted,
+  // reason kInProgressReason and in_progress = 1, and counts it on the unit, in its own committed
+  // transaction. Same refusals as save_run. The caller must not switch RF on unless this is ok.
+  Status begin_run(const core::RunResult& run);
+  // Finalizes every run still in progress (their daemon never finished them): verdict aborted,
+  // `reason`, ended_utc = `ended_utc`, points_count = the readings stored. One transaction.
+  // Returns the run ids finalized, oldest first.
+  Result<std::vector<std::string>> finalize_interrupted(std::string_view reason, std::string_view ended_utc);
+  // Run ids currently marked in progress, oldest first.
+  Result<std::vector<std::string>> runs_in_progress();
 
   // Stores a calibration with its raw traces (one transaction). Duplicate id: invalid_argument.
   // Keeps a recipe's file text under its content hash (once; later calls change nothing), so a

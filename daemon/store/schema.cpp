@@ -132,6 +132,14 @@ CREATE TABLE recipes (
 ) WITHOUT ROWID;
 )sql";
 
+// Write-ahead runs: a run is stored with in_progress = 1 (verdict 'aborted', reason "in progress")
+// before the source's RF goes on; the finished run replaces it. A daemon that starts and finds
+// rows still in progress finalizes them as aborted.
+constexpr std::string_view kVersion7 = R"sql(
+ALTER TABLE runs ADD COLUMN in_progress INTEGER NOT NULL DEFAULT 0 CHECK (in_progress IN (0, 1));
+CREATE INDEX runs_in_progress ON runs(in_progress) WHERE in_progress = 1;
+)sql";
+
 }  // namespace
 
 const std::vector<Migration>& migrations() {
@@ -143,6 +151,7 @@ const std::vector<Migration>& migrations() {
       {5, "calibration invalidated after it was made (check-standard drift), with reason and time", kVersion5},
       {6, "calibration kit and uncertainty budget per calibration; software per run and calibration; which "
           "resonance interval decided; recipe texts by content hash (offline re-judging)", kVersion6},
+      {7, "write-ahead runs: a run in progress is on record before RF goes on", kVersion7},
   };
   return steps;
 }
@@ -188,6 +197,31 @@ Status prepare_schema(Database& db, int busy_timeout_ms) {
   if (auto s = db.exec("COMMIT"); !s.ok()) {
     (void)db.exec("ROLLBACK");
     return s;
+  }
+  return Status::success();
+}
+
+Status check_schema_read_only(Database& db, int busy_timeout_ms) {
+  sqlite3_busy_timeout(db.handle(), busy_timeout_ms);
+  auto version = db.query_int("PRAGMA user_version");
+  if (!version.ok()) return version.error();
+  const std::string file = db.file().string();
+  if (*version > kSchemaVersion) {
+    return make_error(ErrorKind::storage,
+                      fmt::format("run store {}: schema version {} is newer than this program knows ({}); "
+                                  "read it with a newer Echoline",
+                                  file, *version, kSchemaVersion));
+  }
+  if (*version == 0) {
+    return make_error(ErrorKind::storage,
+                      fmt::format("run store {}: no schema version: it is not an Echoline run store", file));
+  }
+  if (*version < kSchemaVersion) {
+    return make_error(ErrorKind::storage,
+                      fmt::format("run store {}: schema version {} is older than this program reads ({}); it is "
+                                  "opened read-only and never migrated here: let the station's echolined of this "
+                                  "version open it once, or read it with the Echoline that wrote it",
+                                  file, *version, kSchemaVersion));
   }
   return Status::success();
 }

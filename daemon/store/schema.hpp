@@ -22,4 +22,9 @@ const std::vector<Migration>& migrations();
 // kSchemaVersion in one transaction. Refuses a newer file or a SQLite file that is not a run store.
 Status prepare_schema(Database& db, int busy_timeout_ms);
 
+// For a read-only connection: sets the busy timeout and checks, without changing anything, that
+// the file is a run store of exactly kSchemaVersion. A newer or older version is refused with
+// both numbers and what to do; nothing is ever migrated.
+Status check_schema_read_only(Database& db, int busy_timeout_ms);
+
 }  // namespace echoline::store::detail

@@ -89,11 +89,11 @@ Database& Database::operator=(Database&& o) noexcept {
   return *this;
 }
 
-Result<Database> Database::open(const std::filesystem::path& file) {
+Result<Database> Database::open(const std::filesystem::path& file, bool read_only) {
   Database d;
   d.file_ = file;
-  const int rc = sqlite3_open_v2(file.c_str(), &d.db_, SQLITE_OPEN_READWRITE | SQLITE_OPEN_CREATE | SQLITE_OPEN_NOMUTEX,
-                                 nullptr);
+  const int mode = read_only ? SQLITE_OPEN_READONLY : SQLITE_OPEN_READWRITE | SQLITE_OPEN_CREATE;
+  const int rc = sqlite3_open_v2(file.c_str(), &d.db_, mode | SQLITE_OPEN_NOMUTEX, nullptr);
   if (rc != SQLITE_OK) {
     return make_error(ErrorKind::storage, fmt::format("run store {}: cannot open: {}", file.string(),
                                                       d.db_ ? sqlite3_errmsg(d.db_) : sqlite3_errstr(rc)));

@@ -50,7 +50,8 @@ class Statement {
 // One connection. Messages name the file.
 class Database {
  public:
-  static Result<Database> open(const std::filesystem::path& file);
+  // read_only: SQLITE_OPEN_READONLY, the file must exist and is never created or changed.
+  static Result<Database> open(const std::filesystem::path& file, bool read_only = false);
   Database() = default;
   ~Database() { sqlite3_close_v2(db_); }
   Database(Database&& o) noexcept : db_(o.db_), file_(std::move(o.file_)) { o.db_ = nullptr; }
