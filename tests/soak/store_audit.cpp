@@ -6,11 +6,19 @@
 
 #include <fmt/format.h>
 
+#include "daemon/core/recipe_loader.hpp"
+
 namespace echoline::soak {
 
 using nlohmann::json;
 
-AuditResult audit_store(StationUnderTest& station, const AuditOptions& options) {
+AuditResult audit_store(StationUnderTest& station, const AuditOptions& given) {
+  AuditOptions options = given;
+  if (options.plan_points == 0 || !options.limits) {
+    const core::Recipe recipe = core::load_recipe(station.setup().recipe);
+    if (options.plan_points == 0) options.plan_points = static_cast<int>(core::plan_frequencies(recipe).size());
+    if (!options.limits) options.limits = limits_of(recipe);
+  }
   AuditResult a;
   a.integrity = station.integrity_check();
   if (a.integrity != "ok") a.problems.push_back("PRAGMA integrity_check: " + a.integrity);
@@ -55,7 +63,7 @@ AuditResult audit_store(StationUnderTest& station, const AuditOptions& options) 
     }
     if (r.verdict == "pass") {
       std::string why;
-      if (!truth_accepts(freqs, true_rl, t.value("f0_hz", 0.0), options.limits, &why)) {
+      if (!truth_accepts(freqs, true_rl, t.value("f0_hz", 0.0), *options.limits, &why)) {
         ++a.false_passes;
         a.problems.push_back(fmt::format("run {} of {} ({}): pass, but {}", r.run_id, r.serial, defect, why));
       }

@@ -4,6 +4,7 @@
 // Reads the store file and asks the simulator for truth. Not thread-safe: one driving thread.
 #pragma once
 
+#include <optional>
 #include <string>
 #include <vector>
 
@@ -12,13 +13,13 @@
 namespace echoline::soak {
 
 struct AuditOptions {
-  int plan_points = 201;       // whip915: 860-970 MHz in 201 points
+  int plan_points = 0;         // points of a complete run; 0: the plan of the station's recipe
   bool with_truth = true;      // score judged runs against the simulator's truth
   // A run's return loss may differ from its unit's truth by the bench's error: directivity
   // 35 dB vs a 20 dB dip, source match 25 dB, 0.05 dB reading noise. An RMS misfit above this
   // over the points with truth <= 20 dB means the readings do not belong to the unit.
   double misfit_limit_db = 3.0;
-  TruthLimits limits;
+  std::optional<TruthLimits> limits;   // nullopt: the limits of the station's recipe
 };
 
 struct AuditResult {

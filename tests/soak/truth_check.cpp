@@ -7,21 +7,32 @@
 
 namespace echoline::soak {
 
+TruthLimits limits_of(const core::Recipe& recipe) {
+  TruthLimits l;
+  for (const core::LimitSegment& s : recipe.limits.mask) l.mask.push_back({s.start_hz, s.stop_hz, s.min_return_loss_db});
+  l.resonance_min_hz = recipe.limits.resonance_min_hz;
+  l.resonance_max_hz = recipe.limits.resonance_max_hz;
+  return l;
+}
+
 bool truth_accepts(const std::vector<double>& frequencies_hz, const std::vector<double>& true_rl_db, double true_f0_hz,
                    const TruthLimits& limits, std::string* reason) {
-  for (std::size_t i = 0; i < frequencies_hz.size() && i < true_rl_db.size(); ++i) {
-    const double f = frequencies_hz[i];
-    if (f < limits.mask_start_hz || f > limits.mask_stop_hz) continue;
-    // A NaN truth (no finite value) is scored as a miss: the unit is not known to be good.
-    if (!(true_rl_db[i] >= limits.mask_min_rl_db)) {
-      if (reason) *reason = fmt::format("true return loss {:.2f} dB at {:.3f} MHz is below {} dB", true_rl_db[i], f / 1e6,
-                                        limits.mask_min_rl_db);
-      return false;
+  for (const MaskLimit& m : limits.mask) {
+    for (std::size_t i = 0; i < frequencies_hz.size() && i < true_rl_db.size(); ++i) {
+      const double f = frequencies_hz[i];
+      if (f < m.start_hz || f > m.stop_hz) continue;
+      // A NaN truth (no finite value) is scored as a miss: the unit is not known to be good.
+      if (!(true_rl_db[i] >= m.min_rl_db)) {
+        if (reason) *reason = fmt::format("true return loss {:.2f} dB at {:.3f} MHz is below {} dB", true_rl_db[i], f / 1e6,
+                                          m.min_rl_db);
+        return false;
+      }
     }
   }
-  if (!(true_f0_hz >= limits.resonance_min_hz && true_f0_hz <= limits.resonance_max_hz)) {
+  if (limits.resonance_min_hz && limits.resonance_max_hz &&
+      !(true_f0_hz >= *limits.resonance_min_hz && true_f0_hz <= *limits.resonance_max_hz)) {
     if (reason) *reason = fmt::format("true resonance {:.3f} MHz outside {:.0f}-{:.0f} MHz", true_f0_hz / 1e6,
-                                      limits.resonance_min_hz / 1e6, limits.resonance_max_hz / 1e6);
+                                      *limits.resonance_min_hz / 1e6, *limits.resonance_max_hz / 1e6);
     return false;
   }
   return true;

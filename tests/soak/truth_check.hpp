@@ -7,17 +7,24 @@
 #include <string>
 #include <vector>
 
+#include "daemon/core/recipe.hpp"
+
 namespace echoline::soak {
 
-// The limits of the recipe the soak runs (whip915: mask 902-928 MHz >= 10 dB, resonance
-// 905-925 MHz). Kept here as numbers so the truth is scored independently of the daemon's code.
-struct TruthLimits {
-  double mask_start_hz = 902e6;
-  double mask_stop_hz = 928e6;
-  double mask_min_rl_db = 10;
-  double resonance_min_hz = 905e6;
-  double resonance_max_hz = 925e6;
+// The limits a unit's truth must meet: the recipe's mask segments and its resonance window, if
+// it has one. Plain numbers (limits_of copies them from a loaded recipe), so the truth is scored
+// by this file's code and never by the daemon's judging.
+struct MaskLimit {
+  double start_hz = 0;
+  double stop_hz = 0;
+  double min_rl_db = 0;
 };
+struct TruthLimits {
+  std::vector<MaskLimit> mask;
+  std::optional<double> resonance_min_hz;   // both or neither
+  std::optional<double> resonance_max_hz;
+};
+TruthLimits limits_of(const core::Recipe& recipe);
 
 // One stored point: frequency and the calibrated return loss with its bounds (NaN when absent).
 struct StoredPoint {
@@ -27,8 +34,8 @@ struct StoredPoint {
   double rl_best_db = 0;   // +inf when unbounded
 };
 
-// Does the unit's true return loss (sampled at the run's frequencies) and true resonance meet
-// every limit? `reason` says which limit the truth misses.
+// Does the unit's true return loss (sampled at the run's frequencies) meet every mask segment,
+// and its true resonance the window when there is one? `reason` says which limit it misses.
 bool truth_accepts(const std::vector<double>& frequencies_hz, const std::vector<double>& true_rl_db, double true_f0_hz,
                    const TruthLimits& limits, std::string* reason);
 
