@@ -22,12 +22,13 @@ void print_list(std::FILE* out, const char* title, const std::vector<std::string
   if (items.size() > limit) std::fprintf(out, "    ... %zu more (see the JSON file)\n", items.size() - limit);
 }
 
-void print_reasons(std::FILE* out, const char* title, const std::map<std::string, int>& reasons) {
+void print_reasons(std::FILE* out, const char* title, const std::map<std::string, int>& reasons, std::size_t limit = 12) {
   if (reasons.empty()) return;
   std::vector<std::pair<std::string, int>> v(reasons.begin(), reasons.end());
   std::stable_sort(v.begin(), v.end(), [](const auto& a, const auto& b) { return a.second > b.second; });
-  std::fprintf(out, "  %s (first 60 characters):\n", title);
-  for (const auto& [reason, n] : v) std::fprintf(out, "    %4d  %s\n", n, reason.c_str());
+  std::fprintf(out, "  %s (first 60 characters; %zu groups):\n", title, v.size());
+  for (std::size_t i = 0; i < v.size() && i < limit; ++i) std::fprintf(out, "    %4d  %s\n", v[i].second, v[i].first.c_str());
+  if (v.size() > limit) std::fprintf(out, "    ... %zu more groups (see the JSON file)\n", v.size() - limit);
 }
 
 void print_confusion(std::FILE* out, const ClassFigures& c) {
@@ -116,7 +117,7 @@ void print_report(std::FILE* out, const ScoreResult& r) {
   print_list(out, "false rejects", v.false_rejects);
   print_list(out, "failed intermittent units (not false rejects)", v.intermittent_failed);
   print_reasons(out, "inconclusive reasons", v.inconclusive_reasons);
-  print_list(out, "inconclusive units", v.inconclusive_units);
+  print_list(out, "inconclusive units", v.inconclusive_units, 10);
   print_confusion(out, r.classes);
   print_list(out, "misclassified failures", r.classes.misclassified);
   std::fprintf(out, "  trim advice on %d final runs\n", v.trim_advised);
@@ -138,6 +139,12 @@ void print_report(std::FILE* out, const ScoreResult& r) {
     std::fprintf(out, "    predicted inconclusive %.1f %%: half-width %.2f MHz, error radius %.4f from calibration %s (%d used); %s\n",
                  100 * w.predicted_fraction, w.half_width_hz / 1e6, w.error_radius, w.calibration_id.c_str(),
                  w.calibrations_used, w.basis.c_str());
+  }
+  if (w.intervals_closed > 0) {
+    std::fprintf(out, "    observed resonance intervals: median half-width %.2f MHz over %d closed intervals (%d shift-bound, %d rigorous); "
+                 "median error radius at the dip %.4f\n",
+                 w.observed_half_width_median_hz / 1e6, w.intervals_closed, w.intervals_shift_bound, w.intervals_rigorous,
+                 w.observed_error_radius_median);
   }
   print_reasons(out, "window inconclusive reasons", w.inconclusive_reasons);
   print_list(out, "window problems", w.problems);
@@ -198,6 +205,11 @@ json report_json(const ScoreResult& r) {
         {"predicted_pct", 100 * w.predicted_fraction},
         {"difference_pp", w.predicted ? json(w.difference_pp()) : json(nullptr)},
         {"half_width_hz", w.half_width_hz},
+        {"observed_half_width_median_hz", w.observed_half_width_median_hz},
+        {"intervals_closed", w.intervals_closed},
+        {"intervals_shift_bound", w.intervals_shift_bound},
+        {"intervals_rigorous", w.intervals_rigorous},
+        {"observed_error_radius_median", w.observed_error_radius_median},
         {"error_radius", w.error_radius},
         {"calibration_id", w.calibration_id},
         {"calibrations_used", w.calibrations_used},

@@ -10,6 +10,7 @@
 
 #include "daemon/core/centring_prediction.hpp"
 #include "daemon/core/judge.hpp"
+#include "daemon/core/uncertainty.hpp"
 #include "tests/score/verdict_score.hpp"
 
 namespace echoline::score {
@@ -44,6 +45,27 @@ core::CalibrationRecord as_when_used(core::CalibrationRecord cal) {
   cal.errors.clear();
   cal.valid = true;
   return cal;
+}
+
+// The largest per-point error radius over the contiguous points within 6 dB of the deepest one
+// (the points the daemon's shift bound fits), or nullopt without points.
+std::optional<double> dip_error_radius(const core::CalibrationRecord& cal, const std::vector<core::PointResult>& pts) {
+  if (pts.empty() || pts.size() != cal.reference_dbm.size() || pts.size() != cal.budget.frequency_hz.size()) {
+    return std::nullopt;
+  }
+  std::size_t peak = 0;
+  for (std::size_t i = 1; i < pts.size(); ++i) {
+    if (pts[i].return_loss_db > pts[peak].return_loss_db) peak = i;
+  }
+  const double floor_db = pts[peak].return_loss_db - 6.0;
+  std::size_t lo = peak, hi = peak;
+  while (lo > 0 && pts[lo - 1].return_loss_db >= floor_db) --lo;
+  while (hi + 1 < pts.size() && pts[hi + 1].return_loss_db >= floor_db) ++hi;
+  double e = 0;
+  for (std::size_t i = lo; i <= hi; ++i) {
+    e = std::max(e, core::gamma_error_radius(cal.budget, i, cal.reference_dbm[i], pts[i].raw_dbm));
+  }
+  return e;
 }
 
 }  // namespace
@@ -115,6 +137,7 @@ WindowFigures score_window(store::RunStore& store_copy, const std::vector<UnitRe
 
   std::map<std::string, std::unique_ptr<core::CalibrationRecord>> cals;
   std::map<std::string, int> runs_per_cal;
+  std::vector<double> half_widths, dip_radii;
   for (const UnitRecord& u : units) {
     const core::RunResult& run = u.run;
     if (run.verdict == core::Verdict::aborted) continue;
@@ -136,11 +159,24 @@ WindowFigures score_window(store::RunStore& store_copy, const std::vector<UnitRe
     ++runs_per_cal[run.calibration_id];
     ++w.verdicts[core::to_string(j.verdict)];
     if (j.verdict == core::Verdict::aborted) w.problems.push_back(fmt::format("{}: re-judged aborted: {}", run.serial, j.reason));
+    const core::Metrics& m = j.metrics;
+    if (m.resonance_interval_kind == "shift-bound") {
+      ++w.intervals_shift_bound;
+      if (auto e = dip_error_radius(*it->second, j.points)) dip_radii.push_back(*e);
+    }
+    if (m.resonance_interval_kind == "rigorous") ++w.intervals_rigorous;
+    if (m.resonance_low_hz && m.resonance_high_hz) half_widths.push_back((*m.resonance_high_hz - *m.resonance_low_hz) / 2);
     if (j.verdict == core::Verdict::inconclusive) {
       ++w.inconclusive;
       if (j.reason.find("window") != std::string::npos) ++w.inconclusive_for_window;
       ++w.inconclusive_reasons[first_characters(j.reason, 60)];
     }
+  }
+  w.intervals_closed = static_cast<int>(half_widths.size());
+  if (!half_widths.empty()) w.observed_half_width_median_hz = median(half_widths);
+  if (!dip_radii.empty()) w.observed_error_radius_median = median(dip_radii);
+  if (w.reference.count == 0) {
+    w.problems.push_back("no run passed: no reference units, so the window recipe's own nominal unit predicts");
   }
   w.calibrations_used = static_cast<int>(runs_per_cal.size());
   for (const auto& [id, n] : runs_per_cal) {

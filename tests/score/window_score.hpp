@@ -51,8 +51,18 @@ struct WindowFigures {
   double error_radius = 0;
   bool predicted = false;                  // predict_centring gave a figure
   double predicted_fraction = 0;
-  double half_width_hz = 0;
+  double half_width_hz = 0;                // predicted half-width of the resonance interval
   std::string basis;
+  // What re-judging showed: the half-width of the resonance interval, where it is closed on both
+  // sides, and which bound decided it.
+  double observed_half_width_median_hz = 0;
+  int intervals_closed = 0;
+  int intervals_shift_bound = 0;
+  int intervals_rigorous = 0;
+  // The error radius the daemon's shift bound works with on a run: the largest per-point radius
+  // (uncertainty.hpp, gamma_error_radius) over the points within 6 dB of the dip; median over
+  // the runs whose interval the shift bound decided.
+  double observed_error_radius_median = 0;
   std::vector<std::string> problems;       // what stopped a run or the prediction
   double observed_fraction() const { return judged == 0 ? 0.0 : static_cast<double>(inconclusive) / judged; }
   double difference_pp() const { return 100.0 * (predicted_fraction - observed_fraction()); }
