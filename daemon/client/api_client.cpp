@@ -68,7 +68,7 @@ Result<long> ApiClient::send(std::string_view name, const json& args) {
 
 Result<json> ApiClient::read_message(Millis timeout) {
   if (!connection_) return make_error(ErrorKind::closed, fmt::format("daemon {}: not connected", address_));
-  auto line = connection_->read_line(timeout);
+  auto line = connection_->read_line(timeout, max_reply_bytes_);
   if (!line) return line.error();
   json j = json::parse(*line, nullptr, false);
   if (j.is_discarded() || !j.is_object()) {

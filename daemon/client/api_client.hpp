@@ -46,6 +46,10 @@ class ApiClient {
   // config; the message has its code and message).
   Status reconnect(Millis timeout);
 
+  // Longest reply line accepted (default 16 MiB). Reports and exports come back inside the reply,
+  // so the commands that fetch them raise it.
+  void set_max_reply_bytes(std::size_t bytes) { max_reply_bytes_ = bytes; }
+
   const std::string& address() const { return address_; }
   // The id of the last request sent (to match the events of a long call).
   long last_id() const { return next_id_ - 1; }
@@ -58,6 +62,7 @@ class ApiClient {
   bool said_hello_ = false;
   std::string hello_role_, hello_token_, hello_client_;
   long next_id_ = 1;
+  std::size_t max_reply_bytes_ = 16u << 20;
 };
 
 // Reads the reply fields of a message (ok/result/error) into an ApiReply.

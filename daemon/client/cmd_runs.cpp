@@ -1,5 +1,6 @@
-// `echoline runs`, `echoline report`, `echoline export`: through the daemon's API, or offline
-// from a run store file with --store FILE.
+// `echoline runs`, `echoline report`, `echoline export`: through the daemon's API (reports and
+// exports come back in the reply and this client writes the file), or offline from a run store
+// file with --store FILE, opened read-only.
 #include <filesystem>
 #include <iostream>
 #include <set>
@@ -11,8 +12,8 @@
 #include "daemon/client/exit_codes.hpp"
 #include "daemon/client/run_table.hpp"
 #include "daemon/core/recipe_loader.hpp"
+#include "daemon/store/documents.hpp"
 #include "daemon/store/export.hpp"
-#include "daemon/store/lot_report.hpp"
 #include "daemon/store/run_store.hpp"
 
 namespace echoline::client {
@@ -29,33 +30,53 @@ constexpr const char* kRunsHelp =
     "exit: 0 runs listed, 1 nothing stored under that key, 3 daemon unreachable, 5 storage error\n\n";
 
 constexpr const char* kReportHelp =
-    "usage: echoline report --lot LOT --out FILE.html [--store FILE --recipe FILE] [connection options]\n\n"
+    "usage: echoline report --lot LOT --out FILE.html|- [--store FILE --recipe FILE] [connection options]\n\n"
     "Writes the lot's self-contained HTML report (yield, failure Pareto, every unit's return loss,\n"
     "resonance spread, calibrations used, failed units) and prints its path and the lot's yield.\n"
-    "Through the daemon (engineer role; the daemon writes FILE on its own computer), or offline\n"
-    "from a run store file with --store FILE (the limit lines come from --recipe FILE, default the\n"
-    "station config's recipe).\n\n"
+    "Through the daemon (engineer role): the daemon sends the report back and this command writes\n"
+    "FILE on this computer; --out - writes it to standard output (the yield line then goes to\n"
+    "standard error). Offline from a run store file with --store FILE, opened read-only (the limit\n"
+    "lines come from --recipe FILE, default the station config's recipe).\n\n"
     "exit: 0 written, 1 no runs for that lot, 2 usage, 3 daemon unreachable, 5 storage error\n\n";
 
 constexpr const char* kExportHelp =
-    "usage: echoline export --scope run|serial|lot --key KEY --format csv|json --out FILE\n"
-    "                       [--store FILE] [connection options]\n\n"
+    "usage: echoline export --scope run|serial|lot --key KEY | --run RUN_ID\n"
+    "                       --format csv|json --out FILE|- [--store FILE] [connection options]\n\n"
     "Exports stored runs with every point: CSV (one row per point, RFC 4180) or JSON. KEY is a\n"
-    "run id, a serial or a lot. Through the daemon (engineer role; it writes FILE on its own\n"
-    "computer) or offline from a run store file with --store FILE.\n\n"
+    "run id, a serial or a lot; --run RUN_ID is short for --scope run --key RUN_ID. Through the\n"
+    "daemon (engineer role): the daemon sends the text back and this command writes FILE on this\n"
+    "computer; --out - writes it to standard output. Offline from a run store file with\n"
+    "--store FILE, opened read-only.\n\n"
     "exit: 0 written, 1 nothing stored under KEY, 2 usage, 3 daemon unreachable, 5 storage error\n\n";
+
+// Replies that carry a whole report or export may be large (a 10 000-run lot report is ~30 MB).
+constexpr std::size_t kMaxDocumentReplyBytes = std::size_t{512} << 20;
+
+// Writes a document where --out says: "-" is standard output, anything else a file written
+// atomically on this computer. Returns the text to show for where it went.
+std::string write_output(const std::string& out, const std::string& content, const std::string& what) {
+  if (out == "-") {
+    std::cout.write(content.data(), static_cast<std::streamsize>(content.size()));
+    std::cout.flush();
+    if (!std::cout) throw CliExit(kExitStorage, fmt::format("{}: writing to standard output failed", what));
+    return "standard output";
+  }
+  const std::string path = std::filesystem::absolute(out).string();
+  if (Status s = store::write_text_file(path, content); !s) throw CliExit(kExitStorage, what + ": " + s.error().message);
+  return path;
+}
 
 std::unique_ptr<store::RunStore> open_store(const std::string& file, const std::string& what) {
   std::error_code ec;
   if (!std::filesystem::exists(file, ec)) throw CliExit(kExitStorage, fmt::format("{}: {}: no such store file", what, file));
-  auto s = store::RunStore::open(file);
+  auto s = store::RunStore::open_read_only(file);   // never creates, changes or migrates it
   if (!s) throw CliExit(kExitStorage, fmt::format("{}: {}", what, s.error().message));
   return std::move(s.value());
 }
 
-void print_yield(const std::string& lot, const json& runs) {
+void print_yield(const std::string& lot, const json& runs, std::ostream& os = std::cout) {
   const LotYield y = lot_yield(runs);
-  std::cout << fmt::format("lot {}: {} units, {} judged, {} passed, yield {:.1f} %\n", lot, y.units, y.judged, y.passed,
+  os << fmt::format("lot {}: {} units, {} judged, {} passed, yield {:.1f} %\n", lot, y.units, y.judged, y.passed,
                            100 * y.yield);
 }
 
@@ -108,85 +129,79 @@ int cmd_report(const Argv& argv) {
   }
   const auto lot = args.get("--lot");
   const auto out = args.get("--out");
-  if (!lot || !out) args.usage_error("--lot LOT and --out FILE.html are required");
-  const std::string path = std::filesystem::absolute(*out).string();
+  if (!lot || !out || out->empty()) args.usage_error("--lot LOT and --out FILE.html (or - for standard output) are required");
+  std::ostream& info = *out == "-" ? std::cerr : std::cout;
   if (auto file = args.get("--store")) {
     auto st = open_store(*file, "report");
-    auto runs = st->lot_runs(*lot, true);
-    if (!runs) throw CliExit(kExitStorage, "report: " + runs.error().message);
-    if (runs->empty()) throw CliExit(kExitNegative, fmt::format("report: no runs stored for lot \"{}\"", *lot));
     std::string recipe_file = args.get_or("--recipe", "");
     if (recipe_file.empty()) recipe_file = find_station_config(args, true)->recipe.string();
     const core::Recipe recipe = core::load_recipe(recipe_file);
-    std::vector<core::CalibrationRecord> cals;
-    std::set<std::string> ids;
-    for (const auto& r : *runs) {
-      if (!r.calibration_id.empty() && ids.insert(r.calibration_id).second) {
-        auto c = st->load_calibration(r.calibration_id);
-        if (c && c->has_value()) cals.push_back(c->value());
-      }
-    }
-    const std::string html = store::build_lot_report(*lot, *runs, cals, recipe.limits, {});
-    if (Status s = store::write_text_file(path, html); !s) throw CliExit(kExitStorage, "report: " + s.error().message);
+    auto doc = store::lot_report_document(*st, *lot, recipe.limits, "");
+    if (!doc) throw CliExit(kExitStorage, "report: " + doc.error().message);
+    if (doc->runs == 0) throw CliExit(kExitNegative, fmt::format("report: no runs stored for lot \"{}\"", *lot));
+    const std::string where = write_output(*out, doc->content, "report");
+    auto runs = st->lot_runs(*lot, false);
+    if (!runs) throw CliExit(kExitStorage, "report: " + runs.error().message);
     json list = json::array();
     for (const auto& r : *runs) list.push_back(store::run_to_json(r, false));
-    print_yield(*lot, list);
-    std::cout << "report: " << path << "\n";
+    print_yield(*lot, list, info);
+    info << "report: " << where << "\n";
     return kExitOk;
   }
   auto api = connect_daemon(args, "engineer", "echoline report");
-  ApiReply reply = require_link(api->call("report.lot", {{"lot", *lot}, {"path", path}}, Millis{120000}), "report");
+  api->set_max_reply_bytes(kMaxDocumentReplyBytes);
+  ApiReply reply = require_link(api->call("report.lot", {{"lot", *lot}}, Millis{120000}), "report");
   require_ok(reply, "report");
+  const std::string where = write_output(*out, reply.result.value("content", ""), "report");
   ApiReply runs = require_link(api->call("runs.lot", {{"lot", *lot}}), "report");
   require_ok(runs, "report");
-  print_yield(*lot, runs.result.value("runs", json::array()));
-  std::cout << "report: " << reply.result.value("path", path) << "\n";
+  print_yield(*lot, runs.result.value("runs", json::array()), info);
+  info << "report: " << where << "\n";
   return kExitOk;
 }
 
 int cmd_export(const Argv& argv) {
   std::set<std::string> values = kConnectionOptions;
-  values.insert({"--scope", "--key", "--format", "--out", "--store"});
+  values.insert({"--scope", "--key", "--run", "--format", "--out", "--store"});
   Args args(argv, "export", values, {"--help"}, 0);
   if (args.flag("--help")) {
     std::cout << kExportHelp << kConnectionHelp;
     return kExitOk;
   }
-  const std::string scope = args.get_or("--scope", "");
-  const std::string key = args.get_or("--key", "");
+  std::string scope = args.get_or("--scope", "");
+  std::string key = args.get_or("--key", "");
+  if (auto run = args.get("--run")) {
+    if (!scope.empty() || !key.empty()) args.usage_error("give --run RUN_ID or --scope and --key, not both");
+    scope = "run";
+    key = *run;
+  }
   const std::string format = args.get_or("--format", "");
   const std::string out = args.get_or("--out", "");
   if (scope != "run" && scope != "serial" && scope != "lot") args.usage_error("--scope must be run, serial or lot");
-  if (format != "csv" && format != "json") args.usage_error("--format must be csv or json");
-  if (key.empty() || out.empty()) args.usage_error("--key KEY and --out FILE are required");
-  const std::string path = std::filesystem::absolute(out).string();
+  if (format != "csv" && format != "json") {
+    args.usage_error(fmt::format("--format must be {}", store::export_formats_text()));
+  }
+  if (key.empty() || out.empty()) args.usage_error("--key KEY (or --run RUN_ID) and --out FILE (or - for standard output) are required");
+  std::ostream& info = out == "-" ? std::cerr : std::cout;
+  store::Document doc;
   if (auto file = args.get("--store")) {
     auto st = open_store(*file, "export");
-    std::vector<core::RunResult> runs;
-    if (scope == "run") {
-      auto r = st->load_run(key);
-      if (!r) throw CliExit(kExitNegative, "export: " + r.error().message);
-      runs.push_back(std::move(r.value()));
-    } else {
-      auto r = scope == "serial" ? st->history(key, true) : st->lot_runs(key, true);
-      if (!r) throw CliExit(kExitStorage, "export: " + r.error().message);
-      runs = std::move(r.value());
-    }
-    if (runs.empty()) throw CliExit(kExitNegative, fmt::format("export: no runs stored for {} \"{}\"", scope, key));
-    std::string text = format == "csv"       ? store::csv_points(runs)
-                       : scope == "run"      ? store::json_run(runs.front())
-                       : scope == "serial"   ? store::json_serial(key, runs)
-                                             : store::json_lot(key, runs);
-    if (Status s = store::write_text_file(path, text); !s) throw CliExit(kExitStorage, "export: " + s.error().message);
-    std::cout << fmt::format("exported {} run{} to {}\n", runs.size(), runs.size() == 1 ? "" : "s", path);
-    return kExitOk;
+    auto made = store::export_document(*st, scope, key, format);
+    if (!made) throw CliExit(made.error().kind == ErrorKind::invalid_argument ? kExitUsage : kExitStorage,
+                             made.error().message);
+    doc = std::move(made.value());
+    if (doc.runs == 0) throw CliExit(kExitNegative, fmt::format("export: no runs stored for {} \"{}\"", scope, key));
+  } else {
+    auto api = connect_daemon(args, "engineer", "echoline export");
+    api->set_max_reply_bytes(kMaxDocumentReplyBytes);
+    ApiReply reply = require_link(
+        api->call("export", {{"scope", scope}, {"key", key}, {"format", format}}, Millis{120000}), "export");
+    require_ok(reply, "export");
+    doc.content = reply.result.value("content", "");
+    doc.runs = reply.result.value("runs", 0u);
   }
-  auto api = connect_daemon(args, "engineer", "echoline export");
-  ApiReply reply = require_link(
-      api->call("export", {{"scope", scope}, {"key", key}, {"format", format}, {"path", path}}, Millis{120000}), "export");
-  require_ok(reply, "export");
-  const int n = reply.result.value("runs", 0);
-  std::cout << fmt::format("exported {} run{} to {}\n", n, n == 1 ? "" : "s", reply.result.value("path", path));
+  const std::string where = write_output(out, doc.content, "export");
+  info << fmt::format("exported {} run{} to {}\n", doc.runs, doc.runs == 1 ? "" : "s", where);
   return kExitOk;
 }
 

@@ -62,7 +62,7 @@ Result<std::vector<PlotPoint>> load_points(std::unique_ptr<store::RunStore>& sto
     if (file.empty() || !std::filesystem::exists(file, ec)) {
       return make_error(ErrorKind::storage, "run store not found on this computer (give --config FILE)");
     }
-    auto s = store::RunStore::open(file);
+    auto s = store::RunStore::open_read_only(file);   // the console never writes the live store
     if (!s) return s.error();
     store = std::move(s.value());
   }

@@ -113,7 +113,7 @@ int cmd_cal(const Argv& argv) {
   }
   std::error_code ec;
   if (!std::filesystem::exists(file, ec)) throw CliExit(kExitStorage, fmt::format("cal history: {}: no such store file", file.string()));
-  auto store = store::RunStore::open(file);
+  auto store = store::RunStore::open_read_only(file);
   if (!store) throw CliExit(kExitStorage, "cal history: " + store.error().message);
   auto runs = (*store)->runs_between("0000", "9999", false);
   if (!runs) throw CliExit(kExitStorage, "cal history: " + runs.error().message);

@@ -2,14 +2,15 @@
 #include "daemon/service/api_handler.hpp"
 
 #include <chrono>
+#include <optional>
 #include <set>
 #include <variant>
 
 #include <fmt/format.h>
 #include <spdlog/spdlog.h>
 
+#include "daemon/store/documents.hpp"
 #include "daemon/store/export.hpp"
-#include "daemon/store/lot_report.hpp"
 #include "daemon/service/clock.hpp"
 #include "drivers/config_error.hpp"
 #include "echoline/version.hpp"
@@ -214,6 +215,7 @@ void ApiHandler::dispatch(const std::shared_ptr<ClientLink>& link, ConnectionSta
   if (call == "runs.history" || call == "runs.lot") return call_runs(link, req);
   if (call == "report.lot") return call_report_lot(link, req);
   if (call == "export") return call_export(link, req);
+  if (call == "run.get") return call_run_get(link, req);
   if (call == "recipe.select") return call_recipe_select(link, req);
   fail(link, req.id, "unknown_call", fmt::format("request: unknown call \"{}\"", call));
 }
@@ -342,61 +344,58 @@ void ApiHandler::call_runs(const std::shared_ptr<ClientLink>& link, const Reques
   reply(link, req.id, {{by_serial ? "serial" : "lot", key}, {"runs", list}});
 }
 
+// The daemon writes no file for a client: documents travel back in the reply and the client
+// writes them. A request that still names a path is refused, so nothing is written by mistake.
+namespace {
+std::optional<std::string> refuse_path(const Request& req) {
+  if (!req.args.contains("path")) return std::nullopt;
+  return fmt::format("{}: the daemon writes no file; drop \"path\": the {} comes back in the reply's \"content\" "
+                     "and the client writes it",
+                     req.call, req.call == "report.lot" ? "report" : "export");
+}
+
+json document_json(store::Document doc) {
+  return {{"runs", doc.runs}, {"media_type", std::move(doc.media_type)}, {"bytes", doc.content.size()},
+          {"content", std::move(doc.content)}};
+}
+}  // namespace
+
 void ApiHandler::call_report_lot(const std::shared_ptr<ClientLink>& link, const Request& req) {
+  if (auto refused = refuse_path(req)) return fail(link, req.id, "bad_request", *refused);
   const std::string lot = req.args["lot"].get<std::string>();
-  const std::string path = req.args["path"].get<std::string>();
-  auto runs = station_.store().lot_runs(lot, true);
-  if (!runs) return fail(link, req.id, "storage", runs.error().message);
-  if (runs->empty()) return fail(link, req.id, "not_found", fmt::format("report.lot: no runs stored for lot \"{}\"", lot));
-  std::vector<core::CalibrationRecord> cals;
-  std::set<std::string> ids;
-  for (const auto& r : *runs) {
-    if (!r.calibration_id.empty() && ids.insert(r.calibration_id).second) {
-      auto c = station_.store().load_calibration(r.calibration_id);
-      if (c && c->has_value()) cals.push_back(c->value());
-    }
-  }
-  store::LotReportOptions opts;
-  opts.generated_utc = utc_iso8601(unix_now_s());
-  auto recipe = station_.recipe();
-  std::string html = store::build_lot_report(lot, *runs, cals, recipe->limits, opts);
-  if (Status s = store::write_text_file(path, html); !s) return fail(link, req.id, "storage", s.error().message);
-  reply(link, req.id, {{"path", path}, {"runs", runs->size()}});
+  auto doc = store::lot_report_document(station_.store(), lot, station_.recipe()->limits, utc_iso8601(unix_now_s()));
+  if (!doc) return fail(link, req.id, "storage", doc.error().message);
+  if (doc->runs == 0) return fail(link, req.id, "not_found", fmt::format("report.lot: no runs stored for lot \"{}\"", lot));
+  json result = document_json(std::move(doc.value()));
+  result["lot"] = lot;
+  reply(link, req.id, std::move(result));
 }
 
 void ApiHandler::call_export(const std::shared_ptr<ClientLink>& link, const Request& req) {
+  if (auto refused = refuse_path(req)) return fail(link, req.id, "bad_request", *refused);
   const std::string scope = req.args["scope"].get<std::string>();
   const std::string key = req.args["key"].get<std::string>();
   const std::string format = req.args["format"].get<std::string>();
-  const std::string path = req.args["path"].get<std::string>();
-  if (format != "csv" && format != "json") {
-    return fail(link, req.id, "bad_request", fmt::format("export: format must be csv or json, not \"{}\"", format));
+  auto doc = store::export_document(station_.store(), scope, key, format);
+  if (!doc) return fail(link, req.id, code_for(doc.error().kind), doc.error().message);
+  if (doc->runs == 0) return fail(link, req.id, "not_found", fmt::format("export: no runs stored for {} \"{}\"", scope, key));
+  json result = document_json(std::move(doc.value()));
+  result["scope"] = scope;
+  result["key"] = key;
+  result["format"] = format;
+  reply(link, req.id, std::move(result));
+}
+
+void ApiHandler::call_run_get(const std::shared_ptr<ClientLink>& link, const Request& req) {
+  const std::string run_id = req.args["run_id"].get<std::string>();
+  auto run = station_.store().load_run(run_id);
+  if (!run) {
+    if (run.error().kind == ErrorKind::invalid_argument) {
+      return fail(link, req.id, "not_found", fmt::format("run.get: no run \"{}\" is stored", run_id));
+    }
+    return fail(link, req.id, "storage", run.error().message);
   }
-  std::vector<core::RunResult> runs;
-  if (scope == "run") {
-    auto r = station_.store().load_run(key);
-    if (!r) return fail(link, req.id, "not_found", r.error().message);
-    runs.push_back(std::move(r.value()));
-  } else if (scope == "serial" || scope == "lot") {
-    auto r = scope == "serial" ? station_.store().history(key, true) : station_.store().lot_runs(key, true);
-    if (!r) return fail(link, req.id, "storage", r.error().message);
-    runs = std::move(r.value());
-  } else {
-    return fail(link, req.id, "bad_request", fmt::format("export: scope must be run, serial or lot, not \"{}\"", scope));
-  }
-  if (runs.empty()) return fail(link, req.id, "not_found", fmt::format("export: no runs stored for {} \"{}\"", scope, key));
-  std::string text;
-  if (format == "csv") {
-    text = store::csv_points(runs);
-  } else if (scope == "run") {
-    text = store::json_run(runs.front());
-  } else if (scope == "serial") {
-    text = store::json_serial(key, runs);
-  } else {
-    text = store::json_lot(key, runs);
-  }
-  if (Status s = store::write_text_file(path, text); !s) return fail(link, req.id, "storage", s.error().message);
-  reply(link, req.id, {{"path", path}, {"runs", runs.size()}});
+  reply(link, req.id, {{"run", store::run_to_json(*run, /*with_points=*/true)}});
 }
 
 void ApiHandler::call_recipe_select(const std::shared_ptr<ClientLink>& link, const Request& req) {

@@ -82,6 +82,7 @@ class ApiHandler {
   void call_runs(const std::shared_ptr<ClientLink>&, const Request&);
   void call_report_lot(const std::shared_ptr<ClientLink>&, const Request&);
   void call_export(const std::shared_ptr<ClientLink>&, const Request&);
+  void call_run_get(const std::shared_ptr<ClientLink>&, const Request&);
   void call_recipe_select(const std::shared_ptr<ClientLink>&, const Request&);
 
   Station& station_;

@@ -39,12 +39,14 @@ const std::vector<CallSpec>& calls() {
       {"recipe.select", {{"path", ArgType::string, true}}},
       {"runs.history", {{"serial", ArgType::string, true}}},
       {"runs.lot", {{"lot", ArgType::string, true}}},
-      {"report.lot", {{"lot", ArgType::string, true}, {"path", ArgType::string, true}}},
+      {"run.get", {{"run_id", ArgType::string, true}}},
+      // "path" is accepted only to be refused with a clear message: the daemon writes no file.
+      {"report.lot", {{"lot", ArgType::string, true}, {"path", ArgType::string, false}}},
       {"export",
        {{"scope", ArgType::string, true},
         {"key", ArgType::string, true},
         {"format", ArgType::string, true},
-        {"path", ArgType::string, true}}},
+        {"path", ArgType::string, false}}},
   };
   return table;
 }

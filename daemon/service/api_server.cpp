@@ -54,7 +54,9 @@ class Connection : public ConnectionBase, public std::enable_shared_from_this<Co
   void queue(std::string line) {
     if (!alive_.load()) return;
     queued_bytes_ += line.size();
-    if (queued_bytes_ > kMaxQueuedBytes) {
+    // One line on an empty queue always goes (a large report asked for); a client that lets
+    // lines pile up beyond the cap is not reading and is dropped.
+    if (queued_bytes_ > kMaxQueuedBytes && !out_.empty()) {
       spdlog::warn("api: client does not read its replies ({} bytes queued); closing", queued_bytes_);
       close();
       return;

@@ -108,26 +108,55 @@ TEST_F(DaemonApi, CalibrationPromptsEachStandardThenUnitsGetVerdicts) {
   EXPECT_EQ(lot["result"]["runs"].size(), 4u);
 }
 
-TEST_F(DaemonApi, EngineerExportsAndLotReportWriteFilesNamingTheUnits) {
+TEST_F(DaemonApi, EngineerExportsAndLotReportComeBackInTheReplyNamingTheUnits) {
   Api api = connect();
   ASSERT_EQ(calibrate(api, *sim_)["event"], "result");
   json run = test_unit(api, *sim_, "TINY-01", "TINY");
   ASSERT_TRUE(api.call("hello", {{"role", "engineer"}})["ok"].get<bool>());
-  const auto csv = dir_ / "lot.csv";
-  const auto js = dir_ / "run.json";
-  const auto html = dir_ / "lot.html";
-  json r = api.call("export", {{"scope", "lot"}, {"key", "TINY"}, {"format", "csv"}, {"path", csv.string()}});
-  ASSERT_TRUE(r["ok"].get<bool>()) << r.dump();
-  r = api.call("export", {{"scope", "run"}, {"key", run["run_id"]}, {"format", "json"}, {"path", js.string()}});
-  ASSERT_TRUE(r["ok"].get<bool>()) << r.dump();
-  r = api.call("report.lot", {{"lot", "TINY"}, {"path", html.string()}});
-  ASSERT_TRUE(r["ok"].get<bool>()) << r.dump();
-  for (const auto& f : {csv, js, html}) {
-    std::ifstream in(f);
-    std::string text((std::istreambuf_iterator<char>(in)), std::istreambuf_iterator<char>());
-    EXPECT_NE(text.find("TINY-01"), std::string::npos) << f;
+  json csv = api.call("export", {{"scope", "lot"}, {"key", "TINY"}, {"format", "csv"}});
+  ASSERT_TRUE(csv["ok"].get<bool>()) << csv.dump();
+  EXPECT_EQ(csv["result"]["media_type"], "text/csv");
+  EXPECT_EQ(csv["result"]["runs"], 1);
+  json js = api.call("export", {{"scope", "run"}, {"key", run["run_id"]}, {"format", "json"}});
+  ASSERT_TRUE(js["ok"].get<bool>()) << js.dump();
+  EXPECT_EQ(js["result"]["media_type"], "application/json");
+  json html = api.call("report.lot", {{"lot", "TINY"}});
+  ASSERT_TRUE(html["ok"].get<bool>()) << html.dump().substr(0, 400);
+  EXPECT_EQ(html["result"]["media_type"], "text/html");
+  for (const json* r : {&csv, &js, &html}) {
+    const std::string content = (*r)["result"]["content"];
+    EXPECT_NE(content.find("TINY-01"), std::string::npos);
+    EXPECT_EQ((*r)["result"]["bytes"], content.size());
   }
-  EXPECT_EQ(api.call("report.lot", {{"lot", "NO-SUCH-LOT"}, {"path", html.string()}})["error"]["code"], "not_found");
+  // The JSON export reads back as the run with every point.
+  json doc = json::parse(js["result"]["content"].get<std::string>());
+  EXPECT_EQ(doc["runs"][0]["points"].size(), run["points_count"]);
+  EXPECT_EQ(api.call("report.lot", {{"lot", "NO-SUCH-LOT"}})["error"]["code"], "not_found");
+  EXPECT_EQ(api.call("export", {{"scope", "run"}, {"key", "no-such-run"}, {"format", "csv"}})["error"]["code"],
+            "not_found");
+  json bad = api.call("export", {{"scope", "lot"}, {"key", "TINY"}, {"format", "xls"}});
+  EXPECT_EQ(bad["error"]["code"], "bad_request") << bad.dump();
+  EXPECT_NE(bad["error"]["message"].get<std::string>().find("\"xls\""), std::string::npos) << bad.dump();
+}
+
+TEST_F(DaemonApi, RunGetReturnsTheRunWithItsPoints) {
+  Api api = connect();
+  ASSERT_EQ(calibrate(api, *sim_)["event"], "result");
+  json run = test_unit(api, *sim_, "TINY-02", "TINY");
+  json r = api.call("run.get", {{"run_id", run["run_id"]}});   // an operator call
+  ASSERT_TRUE(r["ok"].get<bool>()) << r.dump().substr(0, 400);
+  const json& got = r["result"]["run"];
+  EXPECT_EQ(got["run_id"], run["run_id"]);
+  EXPECT_EQ(got["serial"], "TINY-02");
+  EXPECT_EQ(got["verdict"], run["verdict"]);
+  ASSERT_EQ(got["points"].size(), 221u);   // whip915: 860–970 MHz in 221 points
+  ASSERT_EQ(got["point_columns"][0], "frequency_hz");
+  ASSERT_EQ(got["point_columns"][2], "return_loss_db");
+  EXPECT_DOUBLE_EQ(got["points"][0][0].get<double>(), 860e6);
+  EXPECT_DOUBLE_EQ(got["points"][220][0].get<double>(), 970e6);
+  for (const auto& p : got["points"]) EXPECT_TRUE(p[2].is_number()) << p.dump();
+  EXPECT_EQ(api.call("run.get", {{"run_id", "no-such-run"}})["error"]["code"], "not_found");
+  EXPECT_EQ(api.call("run.get")["error"]["code"], "bad_request");
 }
 
 TEST_F(DaemonApi, BadRequestsGetErrorRepliesAndTheConnectionStaysUsable) {
@@ -175,7 +204,7 @@ TEST_F(DaemonApi, EngineerCallsAreForbiddenToOperators) {
   Api api = connect();
   json r = api.call("recipe.select", {{"path", (testing::source_dir() / "config/recipes/whip915.jsonc").string()}});
   EXPECT_EQ(r["error"]["code"], "forbidden");
-  r = api.call("export", {{"scope", "lot"}, {"key", "X"}, {"format", "csv"}, {"path", "/tmp/x.csv"}});
+  r = api.call("export", {{"scope", "lot"}, {"key", "X"}, {"format", "csv"}});
   EXPECT_EQ(r["error"]["code"], "forbidden");
   // No token file configured: engineer role is granted on the local socket.
   ASSERT_TRUE(api.call("hello", {{"role", "engineer"}})["ok"].get<bool>());

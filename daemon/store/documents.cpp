@@ -1,0 +1,71 @@
+// Exports and the lot report as text from the store; the same code serves the API and offline reading.
+#include "daemon/store/documents.hpp"
+
+#include <set>
+#include <vector>
+
+#include <fmt/format.h>
+
+#include "daemon/store/export.hpp"
+#include "daemon/store/lot_report.hpp"
+
+namespace echoline::store {
+
+std::string_view export_formats_text() { return "csv or json"; }
+
+Result<Document> export_document(RunStore& store, std::string_view scope, std::string_view key, std::string_view format) {
+  if (format != "csv" && format != "json") {
+    return make_error(ErrorKind::invalid_argument,
+                      fmt::format("export: format must be {}, not \"{}\"", export_formats_text(), format));
+  }
+  std::vector<core::RunResult> runs;
+  if (scope == "run") {
+    auto found = store.load_run(key);
+    if (!found) {
+      if (found.error().kind == ErrorKind::invalid_argument) return Document{};   // no such run
+      return found.error();
+    }
+    runs.push_back(std::move(found.value()));
+  } else if (scope == "serial" || scope == "lot") {
+    auto found = scope == "serial" ? store.history(key, true) : store.lot_runs(key, true);
+    if (!found) return found.error();
+    runs = std::move(found.value());
+  } else {
+    return make_error(ErrorKind::invalid_argument, fmt::format("export: scope must be run, serial or lot, not \"{}\"", scope));
+  }
+  Document doc;
+  doc.runs = runs.size();
+  if (runs.empty()) return doc;
+  if (format == "csv") {
+    doc.content = csv_points(runs);
+    doc.media_type = "text/csv";
+    return doc;
+  }
+  doc.media_type = "application/json";
+  doc.content = scope == "run" ? json_run(runs.front()) : scope == "serial" ? json_serial(key, runs) : json_lot(key, runs);
+  return doc;
+}
+
+Result<Document> lot_report_document(RunStore& store, std::string_view lot, const core::Limits& limits,
+                                     std::string_view generated_utc) {
+  auto runs = store.lot_runs(lot, true);
+  if (!runs) return runs.error();
+  Document doc;
+  doc.runs = runs->size();
+  if (runs->empty()) return doc;
+  std::vector<core::CalibrationRecord> cals;
+  std::set<std::string> ids;
+  for (const auto& r : *runs) {
+    if (r.calibration_id.empty() || !ids.insert(r.calibration_id).second) continue;
+    auto c = store.load_calibration(r.calibration_id);
+    if (!c) return c.error();
+    if (c->has_value()) cals.push_back(c->value());
+  }
+  LotReportOptions opts;
+  opts.generated_utc = std::string(generated_utc);
+  doc.content = build_lot_report(lot, *runs, cals, limits, opts);
+  doc.media_type = "text/html";
+  return doc;
+}
+
+}  // namespace echoline::store
