@@ -41,12 +41,17 @@ constexpr const char* kReportHelp =
 
 constexpr const char* kExportHelp =
     "usage: echoline export --scope run|serial|lot --key KEY | --run RUN_ID\n"
-    "                       --format csv|json --out FILE|- [--store FILE] [connection options]\n\n"
-    "Exports stored runs with every point: CSV (one row per point, RFC 4180) or JSON. KEY is a\n"
-    "run id, a serial or a lot; --run RUN_ID is short for --scope run --key RUN_ID. Through the\n"
-    "daemon (engineer role): the daemon sends the text back and this command writes FILE on this\n"
-    "computer; --out - writes it to standard output. Offline from a run store file with\n"
-    "--store FILE, opened read-only.\n\n"
+    "                       --format csv|runs-csv|json|s1p --out FILE|- [--store FILE] [connection options]\n\n"
+    "Exports stored runs. KEY is a run id, a serial or a lot; --run RUN_ID is short for\n"
+    "--scope run --key RUN_ID. Formats:\n"
+    "  csv       one row per point with the return loss and its bounds (RFC 4180)\n"
+    "  runs-csv  one row per run: identity, recipe, verdict, reason, metrics, trim, timings\n"
+    "  json      every field and point of each run\n"
+    "  s1p       Touchstone v1 one-port of one run (--scope run): S11 in dB = -return loss;\n"
+    "            a scalar station measures no phase, so every angle is 0 (the header says so)\n"
+    "Through the daemon (engineer role): the daemon sends the text back and this command writes\n"
+    "FILE on this computer; --out - writes it to standard output. Offline from a run store file\n"
+    "with --store FILE, opened read-only.\n\n"
     "exit: 0 written, 1 nothing stored under KEY, 2 usage, 3 daemon unreachable, 5 storage error\n\n";
 
 // Replies that carry a whole report or export may be large (a 10 000-run lot report is ~30 MB).
@@ -178,9 +183,10 @@ int cmd_export(const Argv& argv) {
   const std::string format = args.get_or("--format", "");
   const std::string out = args.get_or("--out", "");
   if (scope != "run" && scope != "serial" && scope != "lot") args.usage_error("--scope must be run, serial or lot");
-  if (format != "csv" && format != "json") {
+  if (format != "csv" && format != "runs-csv" && format != "json" && format != "s1p") {
     args.usage_error(fmt::format("--format must be {}", store::export_formats_text()));
   }
+  if (format == "s1p" && scope != "run") args.usage_error("--format s1p holds one run: give --run RUN_ID");
   if (key.empty() || out.empty()) args.usage_error("--key KEY (or --run RUN_ID) and --out FILE (or - for standard output) are required");
   std::ostream& info = out == "-" ? std::cerr : std::cout;
   store::Document doc;

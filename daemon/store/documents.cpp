@@ -1,6 +1,7 @@
 // Exports and the lot report as text from the store; the same code serves the API and offline reading.
 #include "daemon/store/documents.hpp"
 
+#include <cmath>
 #include <set>
 #include <vector>
 
@@ -11,10 +12,31 @@
 
 namespace echoline::store {
 
-std::string_view export_formats_text() { return "csv or json"; }
+std::string_view export_formats_text() { return "csv, runs-csv, json or s1p"; }
+
+namespace {
+// Touchstone needs a value at every frequency: a run with a point not judged (aborted) has none.
+Status check_touchstone(const core::RunResult& run) {
+  if (run.points.empty()) {
+    return make_error(ErrorKind::invalid_argument,
+                      fmt::format("export: run '{}' has no points: nothing for a Touchstone file ({}: {})", run.run_id,
+                                  core::to_string(run.verdict), run.reason));
+  }
+  for (std::size_t i = 0; i < run.points.size(); ++i) {
+    if (!std::isfinite(run.points[i].return_loss_db)) {
+      return make_error(ErrorKind::invalid_argument,
+                        fmt::format("export: run '{}' has no calibrated return loss at point {} ({} Hz), so it "
+                                    "cannot be a Touchstone file ({}: {}); export it as csv or json",
+                                    run.run_id, i + 1, run.points[i].frequency_hz, core::to_string(run.verdict),
+                                    run.reason));
+    }
+  }
+  return Status::success();
+}
+}  // namespace
 
 Result<Document> export_document(RunStore& store, std::string_view scope, std::string_view key, std::string_view format) {
-  if (format != "csv" && format != "json") {
+  if (format != "csv" && format != "runs-csv" && format != "json" && format != "s1p") {
     return make_error(ErrorKind::invalid_argument,
                       fmt::format("export: format must be {}, not \"{}\"", export_formats_text(), format));
   }
@@ -33,12 +55,22 @@ Result<Document> export_document(RunStore& store, std::string_view scope, std::s
   } else {
     return make_error(ErrorKind::invalid_argument, fmt::format("export: scope must be run, serial or lot, not \"{}\"", scope));
   }
+  if (format == "s1p" && scope != "run") {
+    return make_error(ErrorKind::invalid_argument,
+                      fmt::format("export: format s1p holds one run: use scope run (a run id), not {} \"{}\"", scope, key));
+  }
   Document doc;
   doc.runs = runs.size();
   if (runs.empty()) return doc;
-  if (format == "csv") {
-    doc.content = csv_points(runs);
+  if (format == "csv" || format == "runs-csv") {
+    doc.content = format == "csv" ? csv_points(runs) : csv_runs(runs);
     doc.media_type = "text/csv";
+    return doc;
+  }
+  if (format == "s1p") {
+    if (Status s = check_touchstone(runs.front()); !s.ok()) return s.error();
+    doc.content = touchstone_s1p(runs.front());
+    doc.media_type = "application/x-touchstone";
     return doc;
   }
   doc.media_type = "application/json";

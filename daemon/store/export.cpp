@@ -296,8 +296,14 @@ std::string touchstone_s1p(const core::RunResult& run) {
   out += fmt::format("! Echoline run {} serial {} lot {}\n", flat(run.run_id), flat(run.serial), flat(run.lot));
   out += fmt::format("! recipe {} {} verdict {} started {}\n", flat(run.recipe.name), flat(run.recipe.version),
                      core::to_string(run.verdict), flat(run.started_utc));
+  out += fmt::format("! calibration {} station {} software {}\n",
+                     run.calibration_id.empty() ? std::string("none") : flat(run.calibration_id), flat(run.station),
+                     run.software.empty() ? std::string("unknown") : flat(run.software));
   out += "! scalar return loss: phase unknown, written as 0\n";
+  out += "! A scalar station measures no phase: every angle below is 0 and carries no measurement.\n";
   out += "! S11 dB = -(calibrated return loss); the angle column carries no measurement\n";
+  out += "! Bounds: the true |S11| lies within the run's worst/best return-loss bounds (directivity,\n";
+  out += "! reference, noise), which this format cannot carry; export the run as CSV or JSON for them.\n";
   out += "# HZ S DB R 50\n";
   for (const auto& p : run.points) {
     out += fmt::format("{} {} 0\n", num(p.frequency_hz), num(-p.return_loss_db));

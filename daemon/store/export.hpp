@@ -43,7 +43,9 @@ std::string json_serial(std::string_view serial, const std::vector<core::RunResu
 std::string json_lot(std::string_view lot, const std::vector<core::RunResult>& runs);
 
 // Touchstone v1 one-port file, "# HZ S DB R 50", S11 dB = -return loss. A scalar measurement has
-// no phase: comment lines say so and the angle column is written as 0.
+// no phase: comment lines say so and the angle column is written as 0. The '!' header names the
+// run, serial, lot, recipe, verdict, calibration, station and software, and says where the bounds
+// are. REQUIRES a finite return loss at every point (export_document checks it).
 std::string touchstone_s1p(const core::RunResult& run);
 
 // Writes content to `file` via a temporary file in the same folder, fsync, rename.

@@ -7,7 +7,10 @@
 #include <algorithm>
 #include <fstream>
 #include <iterator>
+#include <cmath>
+#include <iostream>
 #include <set>
+#include <sstream>
 
 #include <fmt/format.h>
 #include <gtest/gtest.h>
@@ -199,6 +202,81 @@ TEST_F(DaemonDocuments, OfflineReadersOpenTheStoreReadOnlyAndNeverMigrateIt) {
       EXPECT_TRUE(name == "copy.sqlite" || name == "copy.sqlite-wal" || name == "copy.sqlite-shm") << name;
     }
   }
+}
+
+// Debian's python3 (python3-scikit-rf installs skrf there), else whatever python3 is on PATH.
+std::string debian_python() {
+  std::error_code ec;
+  return fs::exists("/usr/bin/python3", ec) ? "/usr/bin/python3" : "python3";
+}
+
+// Reads a Touchstone file with scikit-rf (an independent reader) and prints, per point,
+// "frequency_hz s11_db s11_deg"; or "no-skrf" when the module cannot be imported.
+constexpr const char* kSkrfReader = R"py(
+import sys, warnings
+warnings.filterwarnings("ignore")
+try:
+    import skrf
+except Exception:
+    print("no-skrf")
+    sys.exit(0)
+print("begin")   # skrf may print notes of its own on import (e.g. no plotting support)
+n = skrf.Network(sys.argv[1])
+print("ports", n.nports, "points", len(n.f))
+for f, db, deg in zip(n.f, n.s_db[:, 0, 0], n.s_deg[:, 0, 0]):
+    print(repr(float(f)), repr(float(db)), repr(float(deg)))
+)py";
+
+TEST_F(DaemonDocuments, TouchstoneExportReadsBackInScikitRfAsTheStoredReturnLoss) {
+  const std::string run_id = run_["run_id"];
+  testing::TempDir mine("echoline-touchstone");
+  const fs::path s1p = mine / "unit.s1p";
+  Outcome made = run_client({"export", "--config", config_.string(), "--run", run_id, "--format", "s1p", "--out",
+                             s1p.string()});
+  ASSERT_EQ(made.code, 0) << made.out;
+  const std::string text = read_file(s1p);
+  EXPECT_NE(text.find("# HZ S DB R 50"), std::string::npos);
+  EXPECT_NE(text.find("serial TINY-01"), std::string::npos);
+  EXPECT_NE(text.find("run " + run_id), std::string::npos);
+  EXPECT_NE(text.find("calibration cal-"), std::string::npos) << text.substr(0, 600);
+  EXPECT_NE(text.find("measures no phase"), std::string::npos);
+  EXPECT_NE(text.find("Bounds:"), std::string::npos);
+
+  // The stored values, through run.get.
+  Api api = Api::connect(*daemon_);
+  json got = api.call("run.get", {{"run_id", run_id}});
+  ASSERT_TRUE(got["ok"].get<bool>()) << got.dump().substr(0, 300);
+  const json& points = got["result"]["run"]["points"];
+  ASSERT_EQ(points.size(), 221u);
+
+  testing::ChildProcess py = testing::ChildProcess::start({debian_python(), "-c", kSkrfReader, s1p.string()});
+  std::vector<std::string> lines;
+  bool begun = false;
+  while (auto line = py.read_line(60s)) {
+    if (*line == "no-skrf" || begun) lines.push_back(*line);
+    begun = begun || *line == "begin";
+  }
+  ASSERT_EQ(py.wait(30s), 0);
+  ASSERT_FALSE(lines.empty());
+  if (lines.front() == "no-skrf") {
+    GTEST_SKIP() << "python3 cannot import skrf: install Debian's python3-scikit-rf (scripts/deps) to read the "
+                    "Touchstone file back with an independent reader";
+  }
+  EXPECT_EQ(lines.front(), "ports 1 points 221");
+  ASSERT_EQ(lines.size(), points.size() + 1);
+  double worst = 0;
+  for (std::size_t i = 0; i < points.size(); ++i) {
+    std::istringstream in(lines[i + 1]);
+    double f = 0, db = 0, deg = 1;
+    in >> f >> db >> deg;
+    EXPECT_DOUBLE_EQ(f, points[i][0].get<double>()) << i;
+    // |S11| in dB = -(return loss), as stored (common practice: RL = -20 log10 |S11|).
+    const double expected = -points[i][2].get<double>();
+    worst = std::max(worst, std::abs(db - expected));
+    EXPECT_NEAR(db, expected, 1e-9) << "point " << i;
+    EXPECT_EQ(deg, 0.0) << "point " << i;
+  }
+  std::cout << "Touchstone read back by scikit-rf: 221 points, largest |S11| dB difference " << worst << " dB\n";
 }
 
 }  // namespace
