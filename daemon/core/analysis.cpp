@@ -370,6 +370,9 @@ Analysis analyze(const Recipe& recipe, const CalibratedTrace& trace) {
   const auto& pts = trace.points;
   a.max_return_loss_db = 0;
   for (const PointResult& p : pts) a.max_return_loss_db = std::max(a.max_return_loss_db, p.return_loss_db);
+  for (std::size_t i = 1; i < pts.size(); ++i) {
+    if (std::fabs(pts[i].return_loss_db - pts[i - 1].return_loss_db) > 6.0) ++a.erratic_jumps;
+  }
   a.resonance = find_resonance(pts, trace.shift.gamma_error.size() == pts.size() ? &trace.shift : nullptr);
   if (a.resonance) {
     const double thr = recipe.limits.bandwidth_threshold_db;

@@ -132,6 +132,7 @@ struct Analysis {
   std::vector<SegmentMargin> margins;  // one per mask segment, in recipe order
   double max_return_loss_db = 0;       // largest measured RL over the sweep
   std::size_t clamped_points = 0;
+  int erratic_jumps = 0;               // neighbouring points more than kErraticJumpDb apart (decision.hpp)
 };
 Analysis analyze(const Recipe& recipe, const CalibratedTrace& trace);
 

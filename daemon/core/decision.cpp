@@ -188,10 +188,14 @@ double limit_at(const std::vector<LimitSegment>& mask, double f) {
   return lim;
 }
 
-// The span the mask covers (lowest start to highest stop).
+// The band the tuning is judged against: the span of the segments with the strictest limit
+// (the band itself, not the looser shoulders beside it).
 std::pair<double, double> mask_span(const std::vector<LimitSegment>& mask) {
+  double strictest = -kInf;
+  for (const LimitSegment& s : mask) strictest = std::max(strictest, s.min_return_loss_db);
   double lo = kInf, hi = -kInf;
   for (const LimitSegment& s : mask) {
+    if (s.min_return_loss_db < strictest) continue;
     lo = std::min(lo, s.start_hz);
     hi = std::max(hi, s.stop_hz);
   }
@@ -213,6 +217,16 @@ void classify(const Recipe& recipe, const std::vector<PointResult>& points, cons
         db_text(a.max_return_loss_db),
         points.empty() ? std::string("the sweep")
                        : format_frequency_range(points.front().frequency_hz, points.back().frequency_hz));
+    return;
+  }
+  if (a.erratic_jumps >= kErraticJumps) {
+    // A feed that makes and breaks contact between readings: some points reflect like an open,
+    // the rest like the antenna. No resonance or trim can be read from such a trace.
+    d.failure_class = FailureClass::no_response;
+    d.reason = fmt::format(
+        "the trace jumps between full reflection and a dip ({} jumps of more than {:.0f} dB between neighbouring "
+        "points): an intermittent feed or a loose connection; check the feed and the connector, then retest",
+        a.erratic_jumps, kErraticJumpDb);
     return;
   }
   const Resonance& r = *a.resonance;
@@ -247,6 +261,13 @@ void classify(const Recipe& recipe, const std::vector<PointResult>& points, cons
     // (a dip beyond the sweep edge shows only its skirt).
     if (wholly_below(lo)) return tuned(true, true);
     if (wholly_above(hi)) return tuned(false, true);
+    // The maximum on the sweep's first or last point: the dip lies at or beyond the sweep edge,
+    // so its depth is not seen; the tuning is what shows (certain only when the whole interval
+    // lies outside the band).
+    if (r.at_edge) {
+      const bool low = r.index == 0;
+      return tuned(low, low ? wholly_below(lo) : wholly_above(hi));
+    }
     const double lim = limit_at(recipe.limits.mask, r.frequency_hz);
     const bool placeable = !r.low_open && !r.high_open && (r.high_hz - r.low_hz) <= (hi - lo);
     const bool deep = r.depth_db >= lim;

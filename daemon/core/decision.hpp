@@ -48,10 +48,15 @@ struct Decision {
 
 // No-response threshold: best RL over the whole sweep below this reflects like an open or short.
 inline constexpr double kNoResponseReturnLossDb = 3.0;
+// An erratic trace (intermittent feed): this many jumps of more than kErraticJumpDb between
+// neighbouring points. A smooth dip, however sharp, changes by far less per point step
+// (common practice, no source; a 201-point sweep of a Q-10 dip moves under 3 dB per step).
+inline constexpr int kErraticJumps = 3;
+inline constexpr double kErraticJumpDb = 6.0;
 
 // Applies the recipe's rule to the mask (per point), the resonance window and the minimum
 // bandwidth, then classifies a failure from the intervals (daemon/core/MEASUREMENT.md, "Diagnosis"):
-//   no-response  best measured RL under 3 dB everywhere;
+//   no-response  best measured RL under 3 dB everywhere, or an erratic trace (intermittent feed);
 //   tuned-low/-high  a window failed; or the mask failed and the whole resonance interval lies
 //                below/above the mask's band (certain: trim advice); or the mask failed with a
 //                well-formed dip (depth at least the limit, interval closed and no wider than

@@ -313,5 +313,24 @@ TEST(JudgeDiagnosis, DipBelowTheSweepIsTunedLowWithTrimAdvice) {
   EXPECT_TRUE(j.trim) << j.reason;
 }
 
+// An intermittent feed switches between open and good from one reading to the next: the trace
+// jumps. It is a broken feed, not a tuning problem: no-response and never trim advice.
+TEST(JudgeDiagnosis, ErraticTraceIsAnIntermittentFeedWithoutTrimAdvice) {
+  Recipe r = whip_recipe();
+  r.limits.resonance_min_hz.reset();
+  r.limits.resonance_max_hz.reset();
+  CalibrationRecord cal = calibrate(r);
+  const auto plan = plan_frequencies(r);
+  Judgement j = judge(r, cal, readings_for(r, cal, [&](double f) {
+    const auto i = static_cast<int>(std::lround((f - plan.front()) / (plan[1] - plan[0])));
+    const double x = (f - 890e6) / 1e6;
+    return (i * 7919 % 5 == 0) ? 0.3 : std::max(1.0, 20.0 - 0.05 * x * x);
+  }));
+  EXPECT_EQ(j.verdict, Verdict::fail) << j.reason;
+  EXPECT_EQ(j.failure_class, FailureClass::no_response) << j.reason;
+  EXPECT_NE(j.reason.find("intermittent"), std::string::npos) << j.reason;
+  EXPECT_FALSE(j.trim);
+}
+
 }  // namespace
 }  // namespace echoline::core

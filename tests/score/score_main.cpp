@@ -148,7 +148,7 @@ int main(int argc, char** argv) {
                    "trusted%s\n", temp ? " (use --work-dir DIR to keep its logs)" : "");
       return kExitStation;
     }
-    return r.all_met() ? 0 : 1;
+    return (o.require == "safety" ? r.safety_met() : r.all_met()) ? 0 : 1;
   } catch (const std::exception& e) {
     std::fprintf(stderr, "echoline-score: %s%s\n", e.what(),
                  temp ? " (logs removed; use --work-dir DIR to keep them)" : "");

@@ -22,7 +22,9 @@ every unit's final run against the simulator's ground truth and prints the accep
   --label TEXT           name of this configuration in the summary (default "<lot> @ <sim>")
   --work-dir DIR         work in DIR and keep it (configs, store, logs); default a temporary folder
   --json OUT             write every figure to OUT
-Exit: 0 every acceptance figure met, 1 one is not, 2 usage error, 3 the station could not be run.
+  --require all|safety   figures that decide the exit code (default all): safety = 0 points outside
+                         bounds, 0 escapes, false rejects <= 1 %, no trim advice on non-length defects
+Exit: 0 the required figures met, 1 one is not, 2 usage error, 3 the station could not be run.
 )";
 
 [[noreturn]] void usage(const std::string& message) {
@@ -60,6 +62,10 @@ ScoreOptions parse_score_options(int argc, char** argv) {
     else if (a == "--label") o.label = v;
     else if (a == "--work-dir") o.work_dir = std::filesystem::absolute(v);
     else if (a == "--json") o.json_out = std::filesystem::absolute(v);
+    else if (a == "--require") {
+      if (v != "all" && v != "safety") usage("--require must be all or safety");
+      o.require = v;
+    }
     else if (a == "--units") {
       std::size_t used = 0;
       try {

@@ -17,6 +17,10 @@ struct ScoreOptions {
   std::string label;                     // --label (default "<lot> @ <sim>", file stems)
   std::filesystem::path work_dir;        // --work-dir: kept; default a temporary folder, removed
   std::filesystem::path json_out;        // --json: all figures; default none
+  // --require all|safety: which figures decide the exit code. "safety" = the figures a sound
+  // judge must always meet whatever the bench (points outside bounds, escapes, false rejects,
+  // trim advice on non-length defects); "all" = every acceptance figure of the issue.
+  std::string require = "all";
 };
 
 ScoreOptions parse_score_options(int argc, char** argv);

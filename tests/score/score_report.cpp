@@ -65,6 +65,15 @@ json bounds_json(const BoundsFigures& b) {
 
 }  // namespace
 
+bool ScoreResult::safety_met() const {
+  for (const AcceptanceCheck& c : checks) {
+    const bool safety = c.name == "points outside bounds" || c.name == "escapes" || c.name == "false rejects" ||
+                        c.name == "trim advice on non-length defects";
+    if (safety && !c.met) return false;
+  }
+  return !checks.empty();
+}
+
 bool ScoreResult::all_met() const {
   return !checks.empty() && std::all_of(checks.begin(), checks.end(), [](const AcceptanceCheck& c) { return c.met; });
 }

@@ -45,6 +45,9 @@ struct ScoreResult {
   WindowFigures window;
   std::vector<AcceptanceCheck> checks;
   bool all_met() const;
+  // The safety figures only: points outside bounds, escapes, false rejects, trim advice on
+  // non-length defects.
+  bool safety_met() const;
 };
 
 // Thresholds: 0 points outside bounds; 0 escapes; false rejects <= 1 % of units; inconclusive

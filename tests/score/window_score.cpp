@@ -125,7 +125,9 @@ std::optional<double> error_radius(const core::CalibrationRecord& cal, const cor
     e.push_back(b.directivity_bound[i] + window.coverage_factor * b.connection);
   }
   if (e.empty()) return std::nullopt;
-  return median(e);
+  // The daemon's shift bound takes the largest radius over the points it fits (analysis.cpp),
+  // so the prediction takes the largest over the band, not a typical value.
+  return *std::max_element(e.begin(), e.end());
 }
 
 WindowFigures score_window(store::RunStore& store_copy, const std::vector<UnitRecord>& units, core::Recipe window,
