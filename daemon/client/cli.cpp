@@ -1,5 +1,8 @@
 #include "daemon/client/cli.hpp"
 
+#include <unistd.h>
+
+#include <cerrno>
 #include <cstdlib>
 #include <fstream>
 #include <sstream>
@@ -146,9 +149,14 @@ std::unique_ptr<ApiClient> connect_daemon(const Args& args, const std::string& r
   }
   auto link = LineConnection::connect_address(address, Millis{5000});
   if (!link) {
-    throw CliExit(kExitUnreachable, fmt::format("cannot reach the daemon: {}\n"
-                                                "Is echolined running? Start it with: echolined --config <station.jsonc>",
-                                                link.error().message));
+    // A socket (or its folder) this login may not use: the login lacks the daemon's group.
+    const std::string path = address.rfind("unix:", 0) == 0 ? address.substr(5) : std::string();
+    const bool refused = !path.empty() && ::access(path.c_str(), R_OK | W_OK) != 0 && errno == EACCES;
+    const std::string hint =
+        refused ? fmt::format("Your login may not use {}: ask for the group that owns it (on an installed station: "
+                              "sudo usermod -aG echoline <login>, then log in again)", path)
+                : std::string("Is echolined running? Start it with: echolined --config <station.jsonc>");
+    throw CliExit(kExitUnreachable, fmt::format("cannot reach the daemon: {}\n{}", link.error().message, hint));
   }
   auto api = std::make_unique<ApiClient>(std::move(link.value()));
   auto hello = api->hello(role, token, client_name);

@@ -1,7 +1,6 @@
-// Proof that the sweep engine is alive, for the service manager's watchdog. While it sweeps, the
-// engine stamps a promise before each step: "my next stamp comes within this allowance", the
-// sum of the instrument timeouts the step may wait out. Between sweeps it is idle, and nothing
-// in it can hang. The watchdog notifier (watchdog.hpp) pings only while the promise holds.
+// Proof that the sweep engine is alive, for the watchdog (watchdog.hpp): before each step the
+// engine promises its next stamp within an allowance (the instrument timeouts the step may wait
+// out); between sweeps it is idle and nothing in it can hang.
 // Threading: every member is lock-free and safe from any thread.
 #pragma once
 

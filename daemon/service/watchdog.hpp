@@ -1,7 +1,6 @@
-// The service manager's watchdog (systemd WatchdogSec=): a thread that sends WATCHDOG=1 at half
-// the period, but only while the sweep engine's heartbeat holds. A hung engine, with the
-// source's RF output possibly ON, therefore stops the pings; systemd kills the daemon, runs
-// ExecStopPost (echolined --rf-off) and restarts it.
+// The systemd watchdog (WatchdogSec=): a thread sends WATCHDOG=1 at half the period only while
+// the sweep engine's heartbeat holds. A hung engine, RF possibly ON, stops the pings; systemd
+// kills the daemon, runs ExecStopPost (echolined --rf-off) and restarts it.
 // Threading: the notifier owns its thread; construct and destroy it on one thread.
 #pragma once
 

@@ -1,7 +1,12 @@
 // Exit codes as documented (README, `echoline --help`): numeric options out of range are usage
 // errors (2) in every binary, and `echoline status` says 4 when an instrument is NOT READY.
+#include <sys/socket.h>
+#include <sys/un.h>
+#include <unistd.h>
+
 #include <gtest/gtest.h>
 
+#include <cstring>
 #include <string>
 #include <vector>
 
@@ -80,6 +85,25 @@ TEST(ExitCodes, StatusExitsZeroWhenReadyAndFourWhenAnInstrumentIsNotReady) {
   EXPECT_EQ(o.code, 4) << o.output;
   EXPECT_TRUE(says(o, "NOT READY")) << o.output;
   EXPECT_TRUE(says(o, "analyzer")) << o.output;
+}
+
+TEST(ExitCodes, ASocketThisLoginMayNotUseSaysWhichGroupToJoin) {
+  if (::geteuid() != 0) GTEST_SKIP() << "needs root to run the client as another user";
+  testing::TempDir dir("echoline-exit-codes");   // mode 0700, like /run/echoline to a non-member
+  const auto socket_path = dir / "echolined.sock";
+  const int fd = ::socket(AF_UNIX, SOCK_STREAM, 0);
+  sockaddr_un addr{};
+  addr.sun_family = AF_UNIX;
+  std::strncpy(addr.sun_path, socket_path.c_str(), sizeof(addr.sun_path) - 1);
+  ASSERT_EQ(::bind(fd, reinterpret_cast<sockaddr*>(&addr), sizeof(addr)), 0);
+  ASSERT_EQ(::listen(fd, 1), 0);
+  // Debian's "nobody" (uid and gid 65534, base-passwd, from memory).
+  const Outcome o = run("/usr/bin/setpriv", {"--reuid=65534", "--regid=65534", "--clear-groups",
+                                             testing::client_binary().string(), "status", "--socket", socket_path.string()});
+  ::close(fd);
+  EXPECT_EQ(o.code, 3) << o.output;
+  EXPECT_TRUE(says(o, "usermod -aG echoline")) << o.output;
+  EXPECT_FALSE(says(o, "Is echolined running?")) << o.output;
 }
 
 }  // namespace
