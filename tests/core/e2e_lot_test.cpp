@@ -96,6 +96,16 @@ TEST(E2eLot, Whip915LotScoredAgainstTruthSurvivesDaemonKill) {
       std::set<std::string> stored;
       for (const auto& run : lot["result"]["runs"]) stored.insert(run["run_id"].get<std::string>());
       for (const auto& id : run_ids) EXPECT_TRUE(stored.count(id)) << "run " << id << " lost after SIGKILL";
+      // The killed run was on record before RF went on; the restart stored it as aborted.
+      int killed = 0;
+      for (const auto& run : lot["result"]["runs"]) {
+        if (run_ids.count(run["run_id"].get<std::string>())) continue;
+        ++killed;
+        EXPECT_EQ(run["serial"], units[i]);
+        EXPECT_EQ(run["verdict"], "aborted") << run.dump();
+        EXPECT_EQ(run["reason"], "daemon stopped unexpectedly") << run.dump();
+      }
+      EXPECT_EQ(killed, 1);
       // The calibration made before the kill is still in force (loaded from the store).
       EXPECT_FALSE(api->call("cal.status")["result"]["due"].get<bool>());
     }
@@ -172,7 +182,7 @@ TEST(E2eLot, Whip915LotScoredAgainstTruthSurvivesDaemonKill) {
               sweep_s / static_cast<double>(runs.size()));
 
   json lot = api->call("runs.lot", {{"lot", "LOT-A"}});
-  EXPECT_EQ(lot["result"]["runs"].size(), units.size());   // the killed run was never stored
+  EXPECT_EQ(lot["result"]["runs"].size(), units.size() + 1);   // and the killed run, stored as aborted
   EXPECT_EQ(daemon->process().terminate(10s), 0);
 }
 
