@@ -74,7 +74,18 @@ std::optional<CentringPrediction> predict_centring(const Recipe& recipe, const S
   const bool shallow = recipe.nominal.depth_db && *recipe.nominal.depth_db < 12.0;
   const double reach = g0_given >= 0 ? std::sqrt(3.0) * g0_given / s : 0;
   p.rigorous = shallow || (!plan.empty() && (f0 - reach < plan.front() || f0 + reach > plan.back()));
-  auto half_width = [&](double e) {
+  // The shift bound takes the largest error radius over the points it fits, out to twice
+  // |Γ_min| (6 dB): there the reading noise and the source match add to the directivity bound.
+  // Noise is taken as 0.05 dB per reading until a calibration has measured it (the typical
+  // figure of a swept analyzer well above its floor; common practice, from memory).
+  const double src = rho_from_db(station.source_match_db);
+  auto radius_at_edge = [&](double e) {
+    const double g_edge = 2 * (g0_given >= 0 ? g0_given : e);
+    const double u = recipe.coverage_factor * 0.05 * std::sqrt(2.0);
+    return e + g_edge * (std::pow(10.0, u / 20) - 1) + src * g_edge * g_edge;
+  };
+  auto half_width = [&](double e_dir) {
+    const double e = radius_at_edge(e_dir);
     const double g0 = g0_given >= 0 ? g0_given : e;
     if (p.rigorous) return std::sqrt((g0 + 2 * e) * (g0 + 2 * e) - g0 * g0) / s + step / 2;
     return e / s + (g0 + e) * 2 * std::numbers::pi * tau * e / (s * s) + step / 2;
