@@ -98,7 +98,7 @@ double config_number(const nlohmann::json& config, const char* key, double fallb
 std::pair<double, double> config_range(const nlohmann::json& config, const char* key, std::pair<double, double> fallback);
 std::uint64_t config_seed(const nlohmann::json& config, std::uint64_t fallback);
 // "identity": four comma-separated fields of ASCII 0x20-0x7E without ';', <= 72 characters
-// (IEEE 488.2 §10.14, REFERENCE.md §7.4).
+// (IEEE 488.2 §10.14, section number from memory).
 std::string config_identity(const nlohmann::json& config, const std::string& fallback);
 // A standard normal value that depends only on (seed, a, b): the same setting always gets the
 // same error (splitmix64 hashing + Box-Muller).

@@ -1,6 +1,6 @@
 // Simulated spectrum analyzer: see receiver_instrument.hpp and instrument.hpp.
 //
-// Reading model per trace bin (common practice, no source beyond REFERENCE.md §6):
+// Reading model per trace bin (common practice, no source):
 //   noise: complex Gaussian with mean power kTB + NF + attenuation (noise_floor_dbm), so the
 //          sample detector reads a Rayleigh envelope; the positive-peak detector takes the
 //          largest of ~bin-width/RBW samples;
@@ -296,7 +296,7 @@ class ReceiverInstrument final : public SimInstrument {
 
   void add_frequency_commands() {
     const NumericLimits frange{fmin(), fmax(), std::clamp(1e9, fmin(), fmax())};
-    // SCPI-99 Vol 2 SENSe:FREQuency (REFERENCE.md §7.9)
+    // SCPI-99 Vol 2 SENSe:FREQuency subsystem (from memory)
     tree_.add("[SENSe:]FREQuency:CENTer[?]", [this, frange](const Call& c) {
       return numeric_setting(c, Unit::hertz, frange, center_, [this](double v) { set_center(v); return std::optional<ScpiError>{}; });
     });
@@ -393,7 +393,7 @@ class ReceiverInstrument final : public SimInstrument {
   }
 
   void add_trace_commands() {
-    // TRACe:MODE is common practice, not SCPI-99 (REFERENCE.md §7.9).
+    // TRACe:MODE is common practice, not SCPI-99.
     tree_.add("TRACe{1:1}:MODE[?]", [this](const Call& c) {
       return choice_setting(c, {"WRITe", "MAXHold"}, trace_mode_, [this](std::size_t i) {
         if (i == write && trace_mode_ == maxhold) trace_.clear();
@@ -436,7 +436,7 @@ class ReceiverInstrument final : public SimInstrument {
         return std::optional<ScpiError>{};
       });
     });
-    // Markers: common practice, not SCPI-99 (REFERENCE.md §7.9).
+    // Markers: common practice (vendor-defined), not SCPI-99.
     tree_.add("CALCulate:MARKer{1:4}[:STATe][?]", [this](const Call& c) {
       Marker& m = markers_[static_cast<std::size_t>(c.suffix() - 1)];
       return bool_setting(c, m.on, [&m](bool on) { m.on = on; });

@@ -257,7 +257,7 @@ ScpiResult<Keyword> parse_keyword(Cursor& c) {
 }
 
 const std::array<std::pair<std::string_view, double>, 12> kMultipliers{{
-    // IEEE 488.2 Table 7-1 (secondary source, see REFERENCE.md §7.7).
+    // IEEE 488.2 Table 7-1 (as quoted in instrument programming manuals).
     {"EX", 1e18}, {"PE", 1e15}, {"T", 1e12}, {"G", 1e9}, {"MA", 1e6}, {"K", 1e3},
     {"M", 1e-3}, {"U", 1e-6}, {"N", 1e-9}, {"P", 1e-12}, {"F", 1e-15}, {"A", 1e-18}}};
 

@@ -77,7 +77,7 @@ class SourceInstrument final : public SimInstrument {
     const auto [pmin, pmax] = config_.power_range_dbm;
     const NumericLimits flim{fmin, fmax, std::clamp(1e9, fmin, fmax)};
     const NumericLimits plim{pmin, pmax, std::clamp(-20.0, pmin, pmax)};
-    // SCPI-99 Vol 2 SOURce:FREQuency (REFERENCE.md §7.9)
+    // SCPI-99 Vol 2 SOURce:FREQuency subsystem (from memory)
     tree_.add("[SOURce:]FREQuency[:CW|:FIXed][?]", [this, flim](const Call& c) {
       return numeric_setting(c, Unit::hertz, flim, frequency_hz_, [this](double v) -> std::optional<ScpiError> {
         frequency_hz_ = v;
@@ -85,7 +85,7 @@ class SourceInstrument final : public SimInstrument {
         return std::nullopt;
       });
     });
-    // SCPI-99 Vol 2 SOURce:FREQuency:MODE CW|FIXed|SWEep (REFERENCE.md §7.9). SWEep: the
+    // SCPI-99 Vol 2 SOURce:FREQuency:MODE CW|FIXed|SWEep (from memory). SWEep: the
     // tone ramps linearly STARt -> STOP in SWEep:TIME, then restarts, repeating (free run).
     tree_.add("[SOURce:]FREQuency:MODE[?]", [this](const Call& c) {
       return choice_setting(c, {"CW", "FIXed", "SWEep"}, sweeping_ ? 2 : 0, [this](std::size_t i) -> std::optional<ScpiError> {

@@ -9,7 +9,7 @@
 namespace echoline::sim {
 
 std::string_view standard_error_message(int code) {
-  // SCPI-1999 Vol 2 §21.8 (texts as reproduced in REFERENCE.md §7.1).
+  // SCPI-1999 Vol 2 §21.8 (SYSTem:ERRor; texts as the standard gives them).
   switch (code) {
     case 0: return "No error";
     case -100: return "Command error";

@@ -15,7 +15,7 @@ namespace echoline::sim {
 
 class CommandTree;
 
-// ESR bits (IEEE 488.2 §11.5.1, REFERENCE.md §7.2).
+// ESR bits (IEEE 488.2 §11.5.1, from memory).
 inline constexpr int kEsrOpc = 1;     // operation complete
 inline constexpr int kEsrRqc = 2;     // request control
 inline constexpr int kEsrQye = 4;     // query error

@@ -1,7 +1,7 @@
 // The simulated bench, physics only: source -> coupler main line -> cable -> test port <- DUT,
 // reflected wave back through cable and coupler to the coupled port -> receiver input.
 // Complex waves throughout (no dB shortcuts). Pure functions; no SCPI, no sockets, no clock.
-// Shares no code with the daemon's analysis (see DESIGN.md).
+// Shares no code with the daemon's analysis (see DEVELOPERS.md).
 #pragma once
 
 #include <complex>

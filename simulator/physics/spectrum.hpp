@@ -8,7 +8,7 @@ namespace echoline::sim {
 // REQUIRES: rbw_hz > 0.
 double rbw_response_db(double offset_hz, double rbw_hz);
 
-// Sweep time k*span/RBW^2 (Agilent AN 150), lengthened by (RBW/VBW) when VBW < RBW;
+// Sweep time k*span/RBW^2 (common practice), lengthened by (RBW/VBW) when VBW < RBW;
 // never shorter than kMinSweepTimeS; zero span takes kZeroSpanSweepTimeS. REQUIRES: rbw_hz > 0, vbw_hz > 0.
 double sweep_time_s(double span_hz, double rbw_hz, double vbw_hz, double k = 2.5);
 

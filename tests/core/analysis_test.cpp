@@ -43,8 +43,8 @@ TEST(Analysis, ResonanceRefinementIsExactOnAParabola) {
   EXPECT_NEAR(r->frequency_hz, f0, 1.0);
   EXPECT_NEAR(r->depth_db, 20.0, 1e-9);
   // Bound interval (analysis.cpp, resonance_interval): where the best-case RL reaches the
-  // worst-case RL of the peak sample. D = 30 dB, RL 20 dB: worst 17.6134 dB (REFERENCE.md §2
-  // table). Best-case RL = −20·log10(|Γ_m| − ρ_D) (§2 model) reaches it where
+  // worst-case RL of the peak sample. D = 30 dB, RL 20 dB: worst 17.6134 dB (computed
+  // from the one-port model). Best-case RL = −20·log10(|Γ_m| − ρ_D) (§2 model) reaches it where
   // |Γ_m| = 10^(−17.6134/20) + 10^(−30/20), i.e. at RL_m = 15.743 dB: x = ±sqrt((20 − 15.743)/0.02)
   // MHz from f0, then widened by half the 0.55 MHz step. Linear interpolation between samples
   // costs far less than 0.05 MHz on this smooth trace.
@@ -101,7 +101,7 @@ TEST(Analysis, BoundIntervalReachingTheSweepEdgeIsOpen) {
   EXPECT_TRUE(r->low_open);
   EXPECT_DOUBLE_EQ(r->low_hz, 860e6);
   EXPECT_FALSE(r->high_open);
-  // D = 30 dB, RL 30 dB: worst 23.979 dB (REFERENCE.md §2 grid); the best case falls to it
+  // D = 30 dB, RL 30 dB: worst 23.979 dB (computed from the one-port model); the best case falls to it
   // between RL_m 20 dB (best 23.302) and 21 dB: between 869 and 870 MHz, plus half a step.
   EXPECT_GT(r->high_hz, 869.5e6);
   EXPECT_LT(r->high_hz, 870.5e6);
@@ -192,7 +192,7 @@ TEST(Analysis, CalibratePointsUsesReferenceAndDirectivity) {
   CalibratedTrace t = calibrate_points(cal, dut);
   ASSERT_EQ(t.points.size(), 3u);
   EXPECT_NEAR(t.points[0].return_loss_db, 20.0, 1e-12);
-  EXPECT_NEAR(t.points[0].return_loss_worst_db, 17.6134, 1e-4);   // REFERENCE.md §2, D 30, RL 20
+  EXPECT_NEAR(t.points[0].return_loss_worst_db, 17.6134, 1e-4);   // one-port model, D 30, RL 20
   EXPECT_NEAR(t.points[0].return_loss_best_db, 23.3018, 1e-4);
   EXPECT_EQ(t.points[1].return_loss_db, 0.0);
   EXPECT_EQ(t.clamped_points, 1u);

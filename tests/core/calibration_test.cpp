@@ -28,7 +28,7 @@ std::string joined(const std::vector<std::string>& v) {
   return s;
 }
 
-// REFERENCE.md §3 check values (E_R = 1, dB average of OPEN and SHORT):
+// Check values computed from the one-port model (common practice; E_R = 1, dB average of OPEN and SHORT):
 //   D 30, E_S 0, φ 0°:   OPEN +0.2704, SHORT −0.2791, dB avg −0.0043
 //   D 30, E_S 0, φ 90°:  OPEN +0.0043, SHORT +0.0043, dB avg +0.0043
 //   D ∞, M_S 20, φ 0°:   OPEN +0.9151, SHORT −0.8279, dB avg +0.0436

@@ -1,7 +1,7 @@
 // Decision-rule zones (daemon/core/decision.hpp).
 // Sources: JCGM 106:2012 §8.2 simple acceptance and §8.3.2 guarded acceptance [clause numbers
-// from memory, REFERENCE.md §4]; ILAC-G8:09/2019 §4.2.1 (binary, simple acceptance) and §4.2.3
-// (non-binary: the conditional zone) [verified, REFERENCE.md §4].
+// from memory]; ILAC-G8:09/2019 §4.2.1 (binary, simple acceptance) and §4.2.3
+// (non-binary: the conditional zone) [verified against the published text].
 #include "daemon/core/decision.hpp"
 
 #include <limits>
@@ -33,7 +33,7 @@ TEST(Decision, StraddlingIntervalIsInconclusiveGuardedAndMeasuredDecidesSimple) 
   EXPECT_EQ(decide_lower_limit(DecisionRule::simple, 9.7, 8.9, 10.6, 10), Verdict::fail);
 }
 
-// REFERENCE.md §2 "worst-case guarded limits" (derived there): to guarantee true RL >= 10 dB with
+// Worst-case guarded limit (derived from the one-port bounds, no published source): to guarantee true RL >= 10 dB with
 // D = 30 dB the measured RL must be >= 10.9151 dB. Just above passes, just below is inconclusive.
 TEST(Decision, GuardedAcceptanceLimitMatchesDerivedGuardBand) {
   auto verdict = [](double measured) {

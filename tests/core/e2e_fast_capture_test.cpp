@@ -84,7 +84,7 @@ class FastVsStep : public ::testing::TestWithParam<std::string> {
   core::StationCapability capability(const core::Recipe& recipe) const {
     core::StationCapability c;
     const double rbw = recipe.mode == core::SweepMode::fast_capture ? recipe.fast_capture.rbw_hz : recipe.receiver.rbw_hz;
-    // kTB at 290 K = -174 dBm/Hz (REFERENCE.md, physical constant) + NF + attenuation.
+    // kTB at 290 K = -174 dBm/Hz (kT with k exact, SI 2019) + NF + attenuation.
     c.noise_floor_dbm = -174 + 10 * std::log10(rbw) + rx_profile_.noise_figure_db + std::max(0.0, recipe.receiver.attenuation_db);
     c.receiver_max_safe_input_dbm = rx_profile_.max_safe_input_dbm;
     c.source_min_hz = src_profile_.min_frequency_hz;

@@ -144,7 +144,7 @@ TEST(E2eLot, Whip915LotScoredAgainstTruthSurvivesDaemonKill) {
     // uncertainty, not the resonance frequency's, so a pass of a unit whose TRUE resonance sits
     // just outside the window is counted and printed, not an RL escape.
     if (verdict == "pass" && t.meets_limits && !t.in_window) ++window_disagreements;
-    // Trim advice: resonance scales as 1/length (REFERENCE.md §5), so the advised cut matches the
+    // Trim advice: resonance scales as 1/length (common practice), so the advised cut matches the
     // true excess length of a unit cut too long when its dip lies inside the sweep.
     const bool has_trim = run.contains("trim") && !run["trim"].is_null();
     const bool dip_in_sweep = run["metrics"]["resonance_hz"].is_number() &&
@@ -214,7 +214,7 @@ TEST(E2eLot, UnitCutTooLongGetsTrimAdviceWithinTenPercentOfTheTrueExcess) {
     EXPECT_EQ(run["failure_class"], "tuned-low") << serial;
     ASSERT_TRUE(run.contains("trim") && !run["trim"].is_null()) << run.dump();
     const double cut = -run["trim"]["change_mm"].get<double>();   // negative change = cut
-    // f0 scales as 1/length (REFERENCE.md §5): the advised cut is the true excess to within 10 %.
+    // f0 scales as 1/length (common practice): the advised cut is the true excess to within 10 %.
     EXPECT_NEAR(cut, excess, 0.10 * excess) << serial << ": " << run["trim"].dump();
     std::printf("[ trim    ] %s: true excess %.2f mm, advice: %s\n", serial.c_str(), excess,
                 run["trim"]["text"].get<std::string>().c_str());

@@ -14,7 +14,7 @@ double ok(std::string_view text) {
   return r.ok() ? *r : -1;
 }
 
-// Unit multipliers (IEEE 488.2 Table 7-1 via REFERENCE.md §7.7; MHZ is mega, not milli).
+// Unit multipliers (IEEE 488.2 Table 7-1, as quoted in instrument programming manuals; MHZ is mega, not milli).
 TEST(FrequencyText, ParsesUnitsAndBareHertz) {
   EXPECT_DOUBLE_EQ(ok("902 MHz"), 902e6);
   EXPECT_DOUBLE_EQ(ok("2.4835 GHz"), 2.4835e9);

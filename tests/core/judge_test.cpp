@@ -1,6 +1,6 @@
 // Raw readings to verdict, failure class, reason and trim advice on synthetic traces
 // (daemon/core/judge.hpp). Traces come from the one-port model with a series-RLC antenna
-// (REFERENCE.md §2, §5); expected classes follow from where the dip lies.
+// (common practice; Balanis, Antenna Theory [memory]); expected classes follow from where the dip lies.
 #include "daemon/core/judge.hpp"
 
 #include <cmath>
@@ -31,8 +31,8 @@ TEST(Judge, WellTunedWhipPasses) {
   ASSERT_TRUE(j.metrics.resonance_hz);
   EXPECT_NEAR(*j.metrics.resonance_hz, 915e6, 1e6);
   // The true return loss of every point lies inside its [worst, best] interval (the bounds are
-  // the worst case of the one-port model, REFERENCE.md §2; 0.05 dB for second-order residuals of
-  // the OPEN/SHORT reference, REFERENCE.md §3).
+  // the worst case of the one-port model, common practice; 0.05 dB for second-order residuals of
+  // the OPEN/SHORT reference, computed from the same model).
   for (const PointResult& p : j.points) {
     const double truth = return_loss_from_gamma(std::abs(antenna(p.frequency_hz, 915e6, 10, 60)));
     EXPECT_GE(truth, p.return_loss_worst_db - 0.05) << p.frequency_hz;
@@ -123,7 +123,7 @@ TEST(Judge, StraddlingTheLimitIsInconclusiveGuardedAndPassSimple) {
 }
 
 // Guarded acceptance of the resonance window (JCGM 106:2012 §8.3.2 [clause from memory]; the
-// interval from the one-port bounds of REFERENCE.md §2, analysis.cpp resonance_interval).
+// interval from the one-port bounds (common practice), analysis.cpp resonance_interval).
 // A dip whose true centre is 926 MHz, tilted as a directivity error turning with frequency
 // tilts it: RL = 20 − 0.05·x² − 0.25·x (x in MHz from 926 MHz + shift) peaks 2.5 MHz lower.
 // Only the window is judged here (no mask, so the dip's skirts do not decide).
@@ -181,9 +181,9 @@ TEST(Judge, WindowIntervalWhollyOutsideFailsAndWhollyInsidePassesGuarded) {
 }
 
 // The interval holds the TRUE resonance whatever the phase of the error terms: a series-RLC
-// antenna (true maximum at f0, REFERENCE.md §5) measured through directivity 30 dB and source
+// antenna (true maximum at f0, follows from the series-RLC model) measured through directivity 30 dB and source
 // match 25 dB whose phases turn with frequency at several rates (delays). The one-port bounds
-// (REFERENCE.md §2) are worst case over phase, so no delay may push f0 out of the interval.
+// (common practice) are worst case over phase, so no delay may push f0 out of the interval.
 TEST(Judge, BoundIntervalContainsTheTrueResonanceForEveryErrorPhase) {
   Recipe r = whip_recipe();
   r.limits.mask.clear();

@@ -65,7 +65,7 @@ TEST(RecipeCheck, NarrowWindowIsWarnedWithThePredictedInconclusiveShare) {
 }
 
 // Worst case at the receiver: P_src − coupling + 20·log10(1 + 10^(−D/20)). With D = 30 dB the
-// in-phase term is +0.2704 dB, the same number as REFERENCE.md §3's OPEN ripple at D = 30 dB.
+// in-phase term is +0.2704 dB, the same number as the OPEN ripple at D = 30 dB in the one-port model.
 TEST(RecipeCheck, WorstCaseReceiverPower) {
   StationCapability st = station();
   st.directivity_db = 30;
@@ -100,7 +100,7 @@ TEST(RecipeCheck, BandsOutsideInstrumentRangesAreErrors) {
   EXPECT_TRUE(find(check_recipe(r, station()), "error", "above the source's maximum"));
 }
 
-// REFERENCE.md §2 rule of thumb (common practice): directivity >= highest RL limit + 10 dB.
+// Rule of thumb (common practice, no source): directivity >= highest RL limit + 10 dB.
 TEST(RecipeCheck, LowDirectivityMarginIsAWarning) {
   StationCapability st = station();
   st.directivity_db = 19.9;   // limit 10 dB: margin 9.9 dB
@@ -125,7 +125,7 @@ TEST(RecipeCheck, SpanNarrowerThanRbwAndSlowSweepsAreWarnings) {
   r.receiver.span_hz = 150e3;
   EXPECT_TRUE(find(check_recipe(r, station()), "warning", "narrower than twice the RBW"));
   r.receiver.rbw_hz = 1e3;
-  r.receiver.span_hz = 1e6;   // 2.5·1e6/1e6 = 2.5 s per point (AN 150, k = 2.5)
+  r.receiver.span_hz = 1e6;   // 2.5·1e6/1e6 = 2.5 s per point (common practice, k = 2.5)
   const auto f = check_recipe(r, station());
   EXPECT_TRUE(find(f, "warning", "2.50 s of sweep")) << dump(f);
 }

@@ -92,7 +92,7 @@ TEST(RecipeLoaderFast, AutomaticTimesFollowTheRules) {
   // Band = 110 MHz + one bin (half a bin beyond each end) = 110.55 MHz.
   EXPECT_NEAR(p->source_start_hz, 860e6 - 0.275e6, 1e-3);
   EXPECT_NEAR(p->source_stop_hz, 970e6 + 0.275e6, 1e-3);
-  // Rule 1: k * band / RBW^2, k = 2.5 (AN 150 sweep-time rule, from memory) = 3.07 ms.
+  // Rule 1: k * band / RBW^2, k = 2.5 (common-practice sweep-time rule, from memory) = 3.07 ms.
   EXPECT_NEAR(p->source_sweep_s, 2.5 * 110.55e6 / (300e3 * 300e3), 1e-12);
   // Rule 2 with the margin of 2: 2 x 200 x ramp.
   EXPECT_NEAR(p->receiver_sweep_s, 2 * 200 * p->source_sweep_s, 1e-12);

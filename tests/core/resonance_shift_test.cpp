@@ -13,7 +13,7 @@ namespace {
 
 constexpr double kPi = 3.14159265358979323846;
 
-// Series RLC reflection on 50 ohm: L = Q·R/ω0, C = 1/(ω0·Q·R) (textbook; REFERENCE.md §5).
+// Series RLC reflection on 50 ohm: L = Q·R/ω0, C = 1/(ω0·Q·R) (textbook; Balanis, Antenna Theory [memory]).
 std::complex<double> rlc_gamma(double f, double f0, double q, double r) {
   const double w0 = 2 * kPi * f0, w = 2 * kPi * f;
   const double l = q * r / w0, c = 1.0 / (w0 * q * r);
@@ -30,7 +30,7 @@ std::vector<PointResult> measured_dip(double f0, double theta, double eps, doubl
     PointResult p;
     p.frequency_hz = f;
     p.return_loss_db = -20 * std::log10(g);
-    // Bounds as calibrate_points makes them (REFERENCE.md §2, source match left out).
+    // Bounds as calibrate_points makes them (one-port model, common practice; source match left out).
     p.return_loss_worst_db = -20 * std::log10(g + eps);
     p.return_loss_best_db = g > eps ? -20 * std::log10(g - eps) : INFINITY;
     pts.push_back(p);

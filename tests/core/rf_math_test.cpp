@@ -12,7 +12,7 @@ namespace {
 constexpr double kInf = std::numeric_limits<double>::infinity();
 
 // M/A-COM (AMP) "VSWR, Return Loss and Transmission Loss vs. Transmitted Power", V2.00
-// (REFERENCE.md §1): VSWR 1.5 <-> RL 13.98 dB <-> |Γ| 0.2 <-> transmission loss 0.177 dB.
+// (textbook; Pozar, Microwave Engineering ch. 2 [memory]): VSWR 1.5 <-> RL 13.98 dB <-> |Γ| 0.2 <-> transmission loss 0.177 dB.
 // Exact fractions: |Γ| = 1/5, RL = 20·log10(5), ML = -10·log10(24/25).
 TEST(RfMath, Vswr15MatchesMacomTable) {
   EXPECT_NEAR(gamma_from_vswr(1.5), 0.2, 1e-15);
@@ -33,7 +33,7 @@ TEST(RfMath, Vswr2MatchesMacomTable) {
   EXPECT_NEAR(vswr_from_return_loss(9.542425094393249), 2.0, 1e-12);
 }
 
-// REFERENCE.md §1 exact fractions: VSWR 3 -> 1/2, 5 -> 2/3, 10 -> 9/11, 1.05 -> 1/41,
+// Exact fractions (computed): VSWR 3 -> 1/2, 5 -> 2/3, 10 -> 9/11, 1.05 -> 1/41,
 // 1.1 -> 1/21, 1.2 -> 1/11 (|Γ| = (S-1)/(S+1)); M/A-COM rows 3.0 -> 6.0 dB / 1.249 dB,
 // 5.0 -> 3.5 dB / 2.553 dB.
 TEST(RfMath, ExactFractionsAndTableRows) {
@@ -49,7 +49,7 @@ TEST(RfMath, ExactFractionsAndTableRows) {
   EXPECT_NEAR(mismatch_loss_from_gamma(2.0 / 3.0), 2.553, 0.0005);
 }
 
-// radio-electronics.com VSWR / return loss table (REFERENCE.md §1, reverse check):
+// radio-electronics.com VSWR / return loss table (reverse check):
 // RL 10 -> 1.925 / 0.316, RL 14 -> 1.499 / 0.200, RL 20 -> 1.222 / 0.100, RL 30 -> 1.065 / 0.032.
 TEST(RfMath, ReturnLossToVswrMatchesPublishedTable) {
   EXPECT_NEAR(vswr_from_return_loss(10), 1.925, 0.0005);
@@ -60,7 +60,7 @@ TEST(RfMath, ReturnLossToVswrMatchesPublishedTable) {
   EXPECT_NEAR(vswr_from_return_loss(30), 1.065, 0.0005);
 }
 
-// REFERENCE.md §1 edge cases: |Γ| = 0 -> VSWR 1, RL +inf, ML 0; |Γ| = 1 -> VSWR inf, RL 0, ML inf.
+// Edge cases (follow from the formulas): |Γ| = 0 -> VSWR 1, RL +inf, ML 0; |Γ| = 1 -> VSWR inf, RL 0, ML inf.
 TEST(RfMath, EdgeCasesOfPerfectMatchAndTotalReflection) {
   EXPECT_EQ(return_loss_from_gamma(0), kInf);
   EXPECT_EQ(vswr_from_gamma(0), 1.0);
@@ -72,7 +72,7 @@ TEST(RfMath, EdgeCasesOfPerfectMatchAndTotalReflection) {
   EXPECT_EQ(gamma_from_vswr(kInf), 1.0);
 }
 
-// REFERENCE.md §1: |Γ| > 1 cannot occur for a passive load; noisy scalar data is clamped and flagged.
+// Common practice: |Γ| > 1 cannot occur for a passive load; noisy scalar data is clamped and flagged.
 TEST(RfMath, GammaAboveOneIsClampedAndFlagged) {
   ClampedGamma c = clamp_gamma(1.2);
   EXPECT_TRUE(c.clamped);
@@ -87,8 +87,8 @@ TEST(RfMath, GammaAboveOneIsClampedAndFlagged) {
   EXPECT_GT(b.best_db, 0.0);
 }
 
-// REFERENCE.md §2 grid (Anritsu "Reflectometer Measurements – Revisited"; formula from the
-// one-port model, AN 1287-3 [memory]); worst / best true RL, 3 decimals, ∞ as kInf.
+// Grid computed from the one-port error model (common practice; formula from
+// memory); worst / best true RL, 3 decimals, ∞ as kInf.
 TEST(RfMath, DirectivityBoundsMatchReferenceGrid) {
   struct Row { double d, rl, worst, best; };
   const Row rows[] = {
@@ -114,7 +114,7 @@ TEST(RfMath, DirectivityBoundsMatchReferenceGrid) {
   }
 }
 
-// REFERENCE.md §2 worked example: measured 20 dB with 30 dB directivity -> 17.6134 / 23.3018 dB,
+// Worked example (computed): measured 20 dB with 30 dB directivity -> 17.6134 / 23.3018 dB,
 // and Hiebel's D = 40 dB, RL = 30 dB example (same 10 dB margin, same bounds shifted by 10 dB).
 TEST(RfMath, DirectivityWorkedExamplesIncludingHiebel) {
   ReturnLossBounds a = return_loss_bounds(20, 30, kInf);
@@ -128,7 +128,7 @@ TEST(RfMath, DirectivityWorkedExamplesIncludingHiebel) {
   EXPECT_NEAR(h.worst_db - 30, a.worst_db - 20, 1e-9);
 }
 
-// REFERENCE.md §2 "with source match": D 35, M_S 30, RL 20 -> 18.555 / 21.734 dB;
+// With source match (computed): D 35, M_S 30, RL 20 -> 18.555 / 21.734 dB;
 // D 30, M_S 20, RL 20 -> 17.548 / 23.430 dB.
 TEST(RfMath, SourceMatchWidensTheBounds) {
   ReturnLossBounds b = return_loss_bounds(20, 35, 30);
@@ -139,7 +139,7 @@ TEST(RfMath, SourceMatchWidensTheBounds) {
   EXPECT_NEAR(c.best_db, 23.430, 0.0006);
 }
 
-// Agilent AN 150 via REFERENCE.md §6: -174 + 10·log10(RBW) + NF. 10 kHz, NF 24 -> -110 dBm;
+// Common practice (kTB at 290 K plus NF): -174 + 10·log10(RBW) + NF. 10 kHz, NF 24 -> -110 dBm;
 // 3 MHz, NF 8 -> -101.229 dBm.
 TEST(RfMath, ThermalNoiseFloor) {
   EXPECT_NEAR(thermal_noise_floor_dbm(10e3, 24), -110.0, 1e-9);

@@ -42,8 +42,8 @@ TEST(StationCapability, CarriesFixtureAndProfileFiguresAndComputesTheNoiseFloor)
   // 0.02 dB pessimistic.
   EXPECT_NEAR(c.noise_floor_dbm, -109.98, 0.03);
 
-  // 10 dB of input attenuation raises the floor referred to the input by 10 dB (from memory:
-  // Agilent AN 150); fast capture measures with its own RBW: 300 kHz is +14.77 dB over 10 kHz.
+  // 10 dB of input attenuation raises the floor referred to the input by 10 dB (common practice,
+  // from memory); fast capture measures with its own RBW: 300 kHz is +14.77 dB over 10 kHz.
   recipe.receiver.attenuation_db = 10;
   EXPECT_NEAR(station_capability(fx, src, rcv, recipe).noise_floor_dbm, -99.98, 0.03);
   recipe.mode = SweepMode::fast_capture;

@@ -1,5 +1,5 @@
 // Test helpers for the core tests: a whip-like recipe built in code and raw readings computed
-// from the one-port model b = E_D + Γ/(1 − E_S·Γ) (REFERENCE.md §2–3) around a fixed level.
+// from the one-port model b = E_D + Γ/(1 − E_S·Γ) (common practice) around a fixed level.
 // Header-only; used by the calibration and judge tests.
 #pragma once
 
@@ -85,7 +85,7 @@ inline std::vector<Reading> measure(const Recipe& r, const Bench& b, const std::
   return out;
 }
 
-// Series RLC antenna around f0 (REFERENCE.md §5): Z = R + j·Q·R·(f/f0 − f0/f), Γ = (Z−50)/(Z+50).
+// Series RLC antenna around f0 (textbook; Balanis, Antenna Theory [memory]): Z = R + j·Q·R·(f/f0 − f0/f), Γ = (Z−50)/(Z+50).
 inline cd antenna(double f, double f0, double q, double r_ohm) {
   const cd z(r_ohm, q * r_ohm * (f / f0 - f0 / f));
   return (z - 50.0) / (z + 50.0);

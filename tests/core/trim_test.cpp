@@ -1,4 +1,4 @@
-// Trim advice (daemon/core/trim.hpp). Formula L_new = L·f_meas/f_target: REFERENCE.md §5
+// Trim advice (daemon/core/trim.hpp). Formula L_new = L·f_meas/f_target
 // (common practice, f ∝ 1/L).
 #include "daemon/core/trim.hpp"
 
@@ -7,7 +7,7 @@
 namespace echoline::core {
 namespace {
 
-// REFERENCE.md §5: 163.0 mm resonating at 850 MHz, target 868 MHz -> 159.620 mm (shorten 3.38 mm).
+// Computed: 163.0 mm resonating at 850 MHz, target 868 MHz -> 159.620 mm (shorten 3.38 mm).
 TEST(Trim, ShortenExampleFromReference) {
   EXPECT_NEAR(trimmed_length_mm(163.0, 850e6, 868e6), 159.620, 0.0005);
   auto a = trim_advice(Trim{163.0, 868e6}, 850e6);
@@ -16,7 +16,7 @@ TEST(Trim, ShortenExampleFromReference) {
   EXPECT_NE(a->text.find("cut 3.4 mm off the element (163.0 \u2192 159.6 mm)"), std::string::npos) << a->text;
 }
 
-// REFERENCE.md §5: 80.0 mm at 2.50 GHz, target 2.45 GHz -> 81.633 mm (lengthen).
+// Computed: 80.0 mm at 2.50 GHz, target 2.45 GHz -> 81.633 mm (lengthen).
 TEST(Trim, LengthenExampleFromReference) {
   EXPECT_NEAR(trimmed_length_mm(80.0, 2.50e9, 2.45e9), 81.633, 0.0005);
   auto a = trim_advice(Trim{80.0, 2.45e9}, 2.50e9);

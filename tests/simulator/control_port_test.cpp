@@ -70,7 +70,7 @@ TEST_F(ControlServiceTest, TruthMatchesThePhysicsModel) {
   ASSERT_TRUE(r.value("ok", false)) << r.dump();
   ASSERT_EQ(r["return_loss_db"].size(), 3u);
   EXPECT_DOUBLE_EQ(r["return_loss_db"][1].get<double>(), true_return_loss_db(u, 915e6));
-  // f0 scales as 1/length (REFERENCE.md section 5, resonance vs. length).
+  // f0 scales as 1/length (f·L ~ const, textbook / common practice).
   EXPECT_NEAR(r["f0_hz"].get<double>(),
               u.antenna.nominal_f0_hz * u.antenna.nominal_length_mm / u.antenna.element_length_mm, 1.0);
   EXPECT_EQ(r["defect"], u.defect);

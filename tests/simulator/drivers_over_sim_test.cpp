@@ -76,7 +76,7 @@ TEST_P(DriversOverSim, SourceFrequencyAndPowerReadBack) {
   ASSERT_TRUE(source_->write("OUTP ON").ok());
   auto f = source_->query_number("FREQ?");
   ASSERT_TRUE(f.ok()) << f.error().message;
-  EXPECT_DOUBLE_EQ(*f, 902.5e6);   // MHZ means mega (IEEE 488.2 suffix rule, REFERENCE.md 7.7)
+  EXPECT_DOUBLE_EQ(*f, 902.5e6);   // MHZ means mega (IEEE 488.2 §7.7.3 suffix rule)
   auto p = source_->query_number("POW?");
   ASSERT_TRUE(p.ok()) << p.error().message;
   EXPECT_DOUBLE_EQ(*p, -12.5);
@@ -179,7 +179,7 @@ TEST_P(DriversOverSim, SweepOverAUnitShowsTheDipAtItsTrueResonance) {
   auto open = measure(best_f);
   ASSERT_TRUE(open.ok());
   // Return loss at the dip, OPEN as the |Gamma| = 1 reference: a good unit is far better than
-  // VSWR 2 (9.54 dB, REFERENCE.md section 1).
+  // VSWR 2 (9.54 dB; Pozar, Microwave Engineering ch. 2 [memory]).
   EXPECT_GT(*open - best_p, 9.54) << "open " << *open << " dut " << best_p;
   json truth = sim_->control({{"cmd", "truth"}, {"unit", serial}, {"frequencies_hz", {best_f}}});
   EXPECT_GT(truth["return_loss_db"][0].get<double>(), 9.54);

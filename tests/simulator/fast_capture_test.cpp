@@ -125,7 +125,7 @@ TEST_F(FastCapture, RampSettingsAreRangeCheckedAndCoupled) {
 TEST_F(FastCapture, ReceiverSweepTimeIsManualOrAutomatic) {
   rx->handle("FREQ:SPAN 100 MHZ;:BAND 1 MHZ;:BAND:VID 1 MHZ");
   const double automatic = num(*rx, "SWE:TIME?");
-  EXPECT_NEAR(automatic, 2.5 * 100e6 / (1e6 * 1e6), 1e-9);   // k*span/RBW^2, k = 2.5 (AN 150)
+  EXPECT_NEAR(automatic, 2.5 * 100e6 / (1e6 * 1e6), 1e-9);   // k*span/RBW^2, k = 2.5 (common practice)
   EXPECT_EQ(ask(*rx, "SWE:TIME:AUTO?"), "1");
   rx->handle("SWE:TIME 2");
   EXPECT_DOUBLE_EQ(num(*rx, "SWE:TIME?"), 2.0);

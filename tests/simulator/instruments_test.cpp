@@ -1,5 +1,5 @@
 // The simulated source, receiver and switch on one World: ranges, settling, the antenna dip,
-// trace formats, the noise floor and overload (REFERENCE.md §6, §7).
+// trace formats, the noise floor and overload (IEEE 488.2, SCPI-1999; kTB noise floor, common practice).
 #include <gtest/gtest.h>
 
 #include <algorithm>
@@ -84,7 +84,7 @@ TEST_F(Bench, ToneAppearsOnlyAfterSettling) {
   EXPECT_EQ(no_error(*rx), "0,\"No error\"");
 }
 
-// A 915 MHz antenna (series RLC, REFERENCE.md §5): the stepped peak readings dip at f0.
+// A 915 MHz antenna (series RLC, textbook; Balanis, Antenna Theory [memory]): the stepped peak readings dip at f0.
 TEST_F(Bench, SteppedSweepShowsTheAntennaDip) {
   AntennaParams a{};
   a.element_length_mm = 80;
@@ -106,7 +106,7 @@ TEST_F(Bench, SteppedSweepShowsTheAntennaDip) {
 }
 
 std::vector<double> decode_real32(const std::string& block, bool swapped) {
-  // IEEE 488.2 §8.7.9 definite block (REFERENCE.md §7.3), IEEE 754 single, NORMal = big-endian.
+  // IEEE 488.2 §8.7.9 definite block (section number from memory), IEEE 754 single, NORMal = big-endian.
   EXPECT_EQ(block[0], '#');
   const std::size_t n = static_cast<std::size_t>(block[1] - '0');
   const std::size_t len = std::stoul(block.substr(2, n));
@@ -124,7 +124,7 @@ std::vector<double> decode_real32(const std::string& block, bool swapped) {
   return out;
 }
 
-// SCPI-99 FORMat[:DATA] REAL,32 and FORMat:BORDer (REFERENCE.md §7.3, §7.9).
+// SCPI-99 FORMat[:DATA] REAL,32 and FORMat:BORDer (SCPI-99 FORMat subsystem, from memory).
 TEST_F(Bench, Real32TraceMatchesAscii) {
   world.connected = make_short();
   src->handle("FREQ 915 MHZ;POW -10;OUTP ON");
@@ -156,7 +156,7 @@ TEST_F(Bench, Real32TraceMatchesAscii) {
   EXPECT_EQ(no_error(*rx), "0,\"No error\"");
 }
 
-// REFERENCE.md §6 (AN 150): floor = -174 dBm/Hz + 10 log10(RBW) + NF. With the source off and
+// Common practice, no source: floor = -174 dBm/Hz + 10 log10(RBW) + NF. With the source off and
 // nothing connected, the mean linear power of a sample-detector trace sits on that floor.
 TEST_F(Bench, DisconnectedNoiseFloorIsKtbPlusNoiseFigure) {
   rx->handle("FREQ:CENT 915 MHZ;SPAN 10 MHZ;:BAND 100 KHZ;:DET SAMP;:AVER:COUN 10;:AVER ON;:INIT");

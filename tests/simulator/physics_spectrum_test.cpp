@@ -10,7 +10,7 @@ namespace {
 
 TEST(PhysicsSpectrum, GaussianRbwIsHalfPowerAtHalfTheBandwidth) {
   EXPECT_DOUBLE_EQ(rbw_response_db(0, 10e3), 0.0);
-  // -3 dB bandwidth = RBW by definition (AN 150); 10*log10(1/2) = -3.0103 dB
+  // -3 dB bandwidth = RBW by definition (common practice); 10*log10(1/2) = -3.0103 dB
   EXPECT_NEAR(rbw_response_db(5e3, 10e3), -3.0103, 1e-4);
   EXPECT_NEAR(rbw_response_db(-5e3, 10e3), -3.0103, 1e-4);
   // Gaussian: the dB loss grows with the square of the offset: at +-RBW, 4 x 3.0103 dB
@@ -19,7 +19,7 @@ TEST(PhysicsSpectrum, GaussianRbwIsHalfPowerAtHalfTheBandwidth) {
 }
 
 TEST(PhysicsSpectrum, SweepTimeMatchesAn150CheckValues) {
-  // ST = k*span/RBW^2, k = 2.5 (Agilent AN 150; REFERENCE.md §6 check values)
+  // ST = k*span/RBW^2, k = 2.5 (analog near-Gaussian RBW filters: k in 2..3, common practice)
   EXPECT_NEAR(sweep_time_s(100e6, 100e3, 100e3), 25.0e-3, 1e-9);
   EXPECT_NEAR(sweep_time_s(10e6, 10e3, 10e3), 250e-3, 1e-9);
   EXPECT_NEAR(sweep_time_s(50e6, 30e3, 30e3), 138.9e-3, 0.05e-3);
@@ -29,7 +29,7 @@ TEST(PhysicsSpectrum, SweepTimeMatchesAn150CheckValues) {
 
 TEST(PhysicsSpectrum, NarrowerRbwOrVbwLengthensTheSweep) {
   const double base = sweep_time_s(100e6, 300e3, 300e3);
-  // RBW / 3 -> ST x 9 (AN 150, REFERENCE.md §6)
+  // RBW / 3 -> ST x 9 (follows from ST ~ span/RBW^2)
   EXPECT_NEAR(sweep_time_s(100e6, 100e3, 100e3) / base, 9.0, 1e-9);
   // VBW < RBW lengthens the sweep (common practice, no source): here by RBW/VBW
   EXPECT_NEAR(sweep_time_s(100e6, 300e3, 100e3) / base, 3.0, 1e-9);

@@ -1,5 +1,5 @@
 // IEEE 488.2 §11 status model and common commands, SCPI-99 Vol 2 §21.8 error queue
-// (REFERENCE.md §7.1, §7.2, §7.4, §7.5).
+// (SCPI-1999 Vol 2 §21.8; IEEE 488.2 §10 and §11, section numbers from memory).
 #include <gtest/gtest.h>
 
 #include <nlohmann/json.hpp>
@@ -125,7 +125,7 @@ TEST_F(Common, OpcQueryAndOpcCommand) {
 TEST_F(Common, OpcWaitsForThePendingSweep) {
   rx->handle("*CLS;FREQ:SPAN 100 MHZ;:BAND 100 KHZ;:BAND:VID 100 KHZ");
   const double sweep = std::stod(ask(*rx, "SWE:TIME?"));
-  EXPECT_NEAR(sweep, 0.025, 1e-9);         // 2.5 * 100 MHz / (100 kHz)^2 (REFERENCE.md §6, AN 150)
+  EXPECT_NEAR(sweep, 0.025, 1e-9);         // 2.5 * 100 MHz / (100 kHz)^2 (k = 2.5 for analog near-Gaussian RBW filters, common practice)
   world.now_s = 10;
   auto r = rx->handle("INIT;*OPC?");
   ASSERT_EQ(r.size(), 1u);
@@ -156,7 +156,7 @@ TEST_F(Common, RstKeepsStatusAndQueue) {
   EXPECT_EQ(ask("OUTP?"), "0");
 }
 
-// IEEE 488.2 §10.14 (REFERENCE.md §7.4): four fields, <= 72 characters; §10.38 *TST? 0;
+// IEEE 488.2 §10.14 (from memory): four fields, <= 72 characters; §10.38 *TST? 0;
 // SCPI-99 SYSTem:VERSion? 1999.0.
 TEST_F(Common, IdentitySelfTestVersion) {
   const std::string id = ask("*IDN?");
@@ -170,7 +170,7 @@ TEST_F(Common, IdentitySelfTestVersion) {
   EXPECT_THROW(make_source_instrument(world, nlohmann::json{{"identity", "only,three,fields"}}), std::invalid_argument);
 }
 
-// IEEE 488.2 §6.3.2.3 / §6.3.2.2 (REFERENCE.md §7.1): -410 and -420.
+// IEEE 488.2 §6.3.2.3 / §6.3.2.2; SCPI-1999 Vol 2 §21.8 texts: -410 and -420.
 TEST_F(Common, QueryInterruptedAndUnterminated) {
   src->query_interrupted();
   src->query_unterminated();
