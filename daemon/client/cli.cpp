@@ -81,7 +81,7 @@ std::optional<drivers::StationConfig> find_station_config(const Args& args, bool
     if (const char* env = std::getenv("ECHOLINE_CONFIG"); env != nullptr && *env) explicit_file = env;
   }
   if (explicit_file) return drivers::load_station_config(*explicit_file);   // throws ConfigError
-  // The checkout's demo station first, then the installed station's (packaging/).
+  // The checkout's demo station first, then the installed station's (config/packaging/).
   for (const std::filesystem::path fallback : {"config/station.jsonc", ECHOLINE_INSTALLED_STATION_CONFIG}) {
     std::error_code ec;
     if (!std::filesystem::exists(fallback, ec)) continue;

@@ -25,6 +25,7 @@ for f in station.jsonc instruments/sim-source.jsonc instruments/generic-scpi-rec
   has "$sysconf/echoline/$f"
 done
 [ ! -e "$stage$sysconf/echoline/sim" ] || fail "simulator configs belong under share/, not $sysconf/echoline/sim"
+[ ! -e "$stage$sysconf/echoline/packaging" ] || fail "config/packaging/ holds install templates, not station config: $sysconf/echoline/packaging"
 
 unit="$stage$prefix/lib/systemd/system/echolined.service"
 grep -qx "ExecStart=$prefix/bin/echolined --config $sysconf/echoline/station.jsonc" "$unit" || fail "ExecStart: $(grep ^ExecStart= "$unit")"
