@@ -269,7 +269,11 @@ void classify(const Recipe& recipe, const std::vector<PointResult>& points, cons
       return tuned(low, low ? wholly_below(lo) : wholly_above(hi));
     }
     const double lim = limit_at(recipe.limits.mask, r.frequency_hz);
-    const bool placeable = !r.low_open && !r.high_open && (r.high_hz - r.low_hz) <= (hi - lo);
+    // Placeable: the interval does not span the whole band (an open side counts as reaching
+    // beyond the sweep), so the dip's position relative to the band is known.
+    const double reach_low = r.low_open ? -kInf : r.low_hz;
+    const double reach_high = r.high_open ? kInf : r.high_hz;
+    const bool placeable = !(reach_low <= lo && reach_high >= hi);
     const bool deep = r.depth_db >= lim;
     if (!placeable || !deep) {
       d.failure_class = FailureClass::shallow;

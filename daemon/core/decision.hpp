@@ -59,10 +59,10 @@ inline constexpr double kErraticJumpDb = 6.0;
 //   no-response  best measured RL under 3 dB everywhere, or an erratic trace (intermittent feed);
 //   tuned-low/-high  a window failed; or the mask failed and the whole resonance interval lies
 //                below/above the mask's band (certain: trim advice); or the mask failed with a
-//                well-formed dip (depth at least the limit, interval closed and no wider than
-//                the band) whose measured resonance lies outside the band (no trim advice);
+//                well-formed dip (depth at least the limit, interval not spanning the whole
+//                band) whose measured resonance lies outside the band (no trim advice);
 //   shallow      the mask failed and the dip is too shallow to meet the limit or too broad to
-//                place (open interval, or wider than the band);
+//                place (its interval, open sides reaching beyond the sweep, spans the band);
 //   out-of-mask  anything else that failed.
 Decision decide(const Recipe& recipe, const std::vector<PointResult>& points, const Analysis& analysis);
 
