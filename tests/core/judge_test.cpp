@@ -4,6 +4,7 @@
 #include "daemon/core/judge.hpp"
 
 #include <cmath>
+#include <functional>
 
 #include <gtest/gtest.h>
 
@@ -256,26 +257,24 @@ TEST(Judge, MinimumBandwidthIsDecided) {
   EXPECT_EQ(judge(r, cal, readings_for(r, cal, v_dip)).verdict, Verdict::pass);
 }
 
-}  // namespace
-}  // namespace echoline::core
-
-namespace echoline::core {
-namespace {
-
-using namespace testing_bench;
-
-// Diagnosis from intervals (daemon/core/MEASUREMENT.md §9): a shallow, broad dip is `shallow`
-// and gets no trim advice, wherever its tilted maximum happens to fall.
-TEST(JudgeDiagnosis, ShallowBroadDipIsShallowWithoutTrimAdvice) {
+// A mask-only whip recipe (no window), its synthetic calibration, and a unit whose measured
+// return loss is rl(f).
+Judgement judge_mask_only(const std::function<double(double)>& rl) {
   Recipe r = whip_recipe();
   r.limits.resonance_min_hz.reset();
   r.limits.resonance_max_hz.reset();
   CalibrationRecord cal = calibrate(r);
+  return judge(r, cal, readings_for(r, cal, rl));
+}
+
+// Diagnosis from intervals (daemon/core/MEASUREMENT.md §9): a shallow, broad dip is `shallow`
+// and gets no trim advice, wherever its tilted maximum happens to fall.
+TEST(JudgeDiagnosis, ShallowBroadDipIsShallowWithoutTrimAdvice) {
   // A lossy element: 7 dB at best, falling 1 dB over 45 MHz; its maximum sits at 950 MHz.
-  Judgement j = judge(r, cal, readings_for(r, cal, [](double f) {
+  Judgement j = judge_mask_only([](double f) {
     const double x = (f - 950e6) / 1e6;
     return 7.0 - 0.0005 * x * x;
-  }));
+  });
   EXPECT_EQ(j.verdict, Verdict::fail) << j.reason;
   EXPECT_EQ(j.failure_class, FailureClass::shallow) << j.reason;
   EXPECT_FALSE(j.trim) << j.reason;
@@ -283,14 +282,10 @@ TEST(JudgeDiagnosis, ShallowBroadDipIsShallowWithoutTrimAdvice) {
 
 // A deep dip whose whole interval lies above the band: tuned-high, with trim advice.
 TEST(JudgeDiagnosis, DipWhollyAboveTheBandIsTunedHighWithTrimAdvice) {
-  Recipe r = whip_recipe();
-  r.limits.resonance_min_hz.reset();
-  r.limits.resonance_max_hz.reset();
-  CalibrationRecord cal = calibrate(r);
-  Judgement j = judge(r, cal, readings_for(r, cal, [](double f) {
+  Judgement j = judge_mask_only([](double f) {
     const double x = (f - 950e6) / 1e6;
     return std::max(1.0, 25.0 - 0.05 * x * x);
-  }));
+  });
   EXPECT_EQ(j.verdict, Verdict::fail) << j.reason;
   EXPECT_EQ(j.failure_class, FailureClass::tuned_high) << j.reason;
   ASSERT_TRUE(j.metrics.resonance_low_hz);
@@ -301,14 +296,10 @@ TEST(JudgeDiagnosis, DipWhollyAboveTheBandIsTunedHighWithTrimAdvice) {
 // A dip beyond the sweep's start shows only its skirt: the interval is open below and lies
 // wholly below the band, so the tuning is certain (too long) and trim advice is given.
 TEST(JudgeDiagnosis, DipBelowTheSweepIsTunedLowWithTrimAdvice) {
-  Recipe r = whip_recipe();
-  r.limits.resonance_min_hz.reset();
-  r.limits.resonance_max_hz.reset();
-  CalibrationRecord cal = calibrate(r);
-  Judgement j = judge(r, cal, readings_for(r, cal, [](double f) {
+  Judgement j = judge_mask_only([](double f) {
     const double x = (f - 845e6) / 1e6;
     return std::max(0.5, 20.0 - 0.02 * x * x);
-  }));
+  });
   EXPECT_EQ(j.failure_class, FailureClass::tuned_low) << j.reason;
   EXPECT_TRUE(j.trim) << j.reason;
 }
@@ -316,16 +307,12 @@ TEST(JudgeDiagnosis, DipBelowTheSweepIsTunedLowWithTrimAdvice) {
 // An intermittent feed switches between open and good from one reading to the next: the trace
 // jumps. It is a broken feed, not a tuning problem: no-response and never trim advice.
 TEST(JudgeDiagnosis, ErraticTraceIsAnIntermittentFeedWithoutTrimAdvice) {
-  Recipe r = whip_recipe();
-  r.limits.resonance_min_hz.reset();
-  r.limits.resonance_max_hz.reset();
-  CalibrationRecord cal = calibrate(r);
-  const auto plan = plan_frequencies(r);
-  Judgement j = judge(r, cal, readings_for(r, cal, [&](double f) {
+  const auto plan = plan_frequencies(whip_recipe());
+  Judgement j = judge_mask_only([&](double f) {
     const auto i = static_cast<int>(std::lround((f - plan.front()) / (plan[1] - plan[0])));
     const double x = (f - 890e6) / 1e6;
     return (i * 7919 % 5 == 0) ? 0.3 : std::max(1.0, 20.0 - 0.05 * x * x);
-  }));
+  });
   EXPECT_EQ(j.verdict, Verdict::fail) << j.reason;
   EXPECT_EQ(j.failure_class, FailureClass::no_response) << j.reason;
   EXPECT_NE(j.reason.find("intermittent"), std::string::npos) << j.reason;
