@@ -167,7 +167,9 @@ CalibrationRecord build_calibration(const Recipe& recipe, const std::map<std::st
   // from the kit's OPEN/SHORT, measured reading noise, source match (uncertainty.hpp).
   BudgetInputs in;
   in.coverage_factor = recipe.coverage_factor;
-  in.source_match_db = station.source_match_db;
+  // The fixture's source match, or the recipe's when that is worse (a recipe may say its
+  // adapters spoil the match; it can never make the fixture look better).
+  in.source_match_db = std::min(station.source_match_db, recipe.source_match_db);
   in.noise_floor_dbm = station.noise_floor_dbm;
   // The DUT's reflection travels the test-port cable twice; the leakage path inside the coupler
   // adds up to 1 ns more (common practice, no source): the relative rotation of the error terms.

@@ -103,7 +103,7 @@ struct Recipe {
   double coverage_factor = 3;   // k for the statistical terms of the budget (JCGM 100 §6.2.1)
   NominalUnit nominal;
   std::optional<Trim> trim;
-  double source_match_db = 25;  // effective source (test-port) match, if not in the profile
+  double source_match_db = 25;  // test-port match the recipe's set-up allows; the budget takes the worse of this and the fixture's
   std::map<std::string, std::vector<std::string>> setup;     // role -> raw SCPI lines
   std::map<std::string, std::vector<std::string>> teardown;  // role -> raw SCPI lines
 };

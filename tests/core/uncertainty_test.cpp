@@ -175,6 +175,17 @@ TEST(UncertaintyBudget, ReadingNoiseIsMeasuredFromTheRepeats) {
   EXPECT_TRUE(said);
 }
 
+// Source match: the fixture's figure, or the recipe's when that is worse (never the better one).
+TEST(UncertaintyBudget, SourceMatchIsTheWorseOfFixtureAndRecipe) {
+  Recipe r = plan_recipe();
+  const auto traces = testing_bench::standards(r, testing_bench::Bench{});
+  StationCapability st = testing_bench::station();   // fixture 30 dB
+  r.source_match_db = 15;
+  EXPECT_NEAR(build_calibration(r, traces, st, "c", "t").budget.source_match, rho_from_db(15), 1e-12);
+  r.source_match_db = 40;
+  EXPECT_NEAR(build_calibration(r, traces, st, "c", "t").budget.source_match, rho_from_db(30), 1e-12);
+}
+
 // Noise in dB grows as the level falls (a tone in additive noise): σ at a level 20 dB below
 // the LOAD is larger than at the LOAD, and never below the high-level figure.
 TEST(UncertaintyBudget, NoiseGrowsBelowTheLoadLevel) {
