@@ -20,7 +20,6 @@ const std::vector<PlaceholderInfo>& placeholder_table() {
       {"format", PlaceholderType::token, ""},
       {"byte_order", PlaceholderType::token, ""},
       {"mode", PlaceholderType::token, ""},
-      {"trace_mode", PlaceholderType::boolean, ""},
   };
   return table;
 }
@@ -39,9 +38,9 @@ const std::vector<OperationSpec>& operation_table() {
       {"set_center", "receiver", false, true, {"frequency_hz"}},
       {"set_span", "receiver", false, true, {"frequency_hz"}},
       {"set_rbw", "receiver", false, true, {"frequency_hz"}},
-      {"set_vbw", "receiver", false, true, {"frequency_hz"}},
-      {"set_reference_level", "receiver", false, true, {"power_dbm"}},
-      {"set_attenuation", "receiver", false, true, {"db"}},
+      {"set_vbw", "receiver", false, true, {"frequency_hz"}, true},
+      {"set_reference_level", "receiver", false, true, {"power_dbm"}, true},
+      {"set_attenuation", "receiver", false, true, {"db"}, true},
       {"set_attenuation_auto", "receiver", false, false, {}},
       {"set_single", "receiver", false, true, {}},
       {"trigger", "receiver", false, true, {}},
@@ -50,8 +49,11 @@ const std::vector<OperationSpec>& operation_table() {
       {"read_trace", "receiver", true, true, {}},
       {"set_trace_format", "receiver", false, false, {"format"}},
       {"set_byte_order", "receiver", false, false, {"byte_order"}},
-      {"set_max_hold", "receiver", false, false, {"state", "trace_mode"}},
+      {"max_hold_on", "receiver", false, false, {}},
+      {"max_hold_off", "receiver", false, false, {}},
       {"set_points", "receiver", false, false, {"count"}},
+      {"set_sweep_time", "receiver", false, false, {"seconds"}},
+      {"set_sweep_time_auto", "receiver", false, false, {}},
       // switch
       {"select", "switch", false, true, {"position"}},
   };
@@ -106,9 +108,13 @@ std::string format_wire_number(double value) {
 Result<CommandTemplate> CommandTemplate::parse(std::string_view role, std::string_view operation,
                                                std::string_view text) {
   const OperationSpec* spec = find_operation(role, operation);
-  if (!spec)
-    return make_error(ErrorKind::config, fmt::format("unknown operation \"{}\" for role {}; known: {}", operation,
-                                                     role, operations_of(role)));
+  if (!spec) {
+    // The one renamed operation gets a pointer to its successors.
+    const std::string_view hint = operation == "set_max_hold" ? " (set_max_hold is now max_hold_on and max_hold_off, "
+                                                                "each with its full command text)" : "";
+    return make_error(ErrorKind::config, fmt::format("unknown operation \"{}\" for role {}{}; known: {}", operation,
+                                                     role, hint, operations_of(role)));
+  }
   CommandTemplate t;
   t.text_ = std::string(text);
   t.operation_ = std::string(operation);
@@ -196,8 +202,7 @@ Result<std::string> CommandTemplate::expand(const std::vector<TemplateArg>& args
       case PlaceholderType::boolean: {
         const bool* pb = std::get_if<bool>(&v);
         if (!pb) return make_error(ErrorKind::invalid_argument, fmt::format("{}: {{{}}} needs true/false", operation_, piece.text));
-        if (piece.text == "trace_mode") out += *pb ? "MAXH" : "WRIT";
-        else out += *pb ? "ON" : "OFF";
+        out += *pb ? "ON" : "OFF";   // SCPI-1999 Vol 1 7.3 boolean program data
         break;
       }
       case PlaceholderType::token: {

@@ -25,25 +25,29 @@ namespace echoline::drivers {
 //   format        token             "ASC" | "REAL,32"   (FORMat[:DATA])
 //   byte_order    token             "NORM" | "SWAP"     (FORMat:BORDer)
 //   mode          token             "CW" | "SWE"        (FREQuency:MODE)
-//   trace_mode    bool              "MAXH" (true) | "WRIT" (false)   (TRACe:MODE)
+// Vendor tokens (a trace's max-hold mode, say) are never compiled in: such settings are
+// separate operations whose whole text is in the profile (max_hold_on, max_hold_off).
 enum class PlaceholderType { number, integer, boolean, token };
 struct PlaceholderInfo { std::string_view name; PlaceholderType type; std::string_view unit; };
 const std::vector<PlaceholderInfo>& placeholder_table();
 
 // What one operation is: its role, whether it is a query (reply expected), whether the profile
 // must define it, and which placeholders it may use (at least one of them when the list is non-empty).
+// A required operation with may_be_absent can be declared absent in a profile (`"set_vbw": null`)
+// for an instrument that lacks it; recipes that need it are then refused (recipe_check).
 struct OperationSpec {
   std::string_view name;
   std::string_view role;      // "source" | "receiver" | "switch"
   bool query = false;
   bool required = false;
   std::vector<std::string_view> placeholders;
+  bool may_be_absent = false;
 };
 const std::vector<OperationSpec>& operation_table();
 const OperationSpec* find_operation(std::string_view role, std::string_view operation);
 
 // One argument to expand(): placeholder name and value (double for numbers, int64 for counts,
-// bool for state/trace_mode, string for tokens).
+// bool for state, string for tokens).
 struct TemplateArg {
   std::string_view name;
   std::variant<double, std::int64_t, bool, std::string> value;

@@ -94,15 +94,30 @@ void load_commands(const JsoncDocument& doc, Profile& p) {
   const JsonPointer c = kRoot / "commands";
   const json& obj = doc.require_object(c);
   for (const auto& [op, value] : obj.items()) {
+    if (value.is_null()) {
+      // Declared absent: the instrument has no such setting.
+      const OperationSpec* spec = find_operation(p.role, op);
+      if (spec == nullptr) {
+        auto t = CommandTemplate::parse(p.role, op, "x");   // for its "unknown operation" message
+        doc.fail(c / op, t.ok() ? std::string("unknown operation") : t.error().message);
+      }
+      if (spec->required && !spec->may_be_absent)
+        doc.fail(c / op, fmt::format("operation \"{}\" cannot be declared absent: every {} profile needs it", op, p.role));
+      p.absent.insert(op);
+      continue;
+    }
     if (!value.is_string())
-      doc.fail(c / op, fmt::format("expected the command text as a string, found {}", value.type_name()));
+      doc.fail(c / op, fmt::format("expected the command text as a string (or null: the instrument lacks it), found {}",
+                                   value.type_name()));
     auto t = CommandTemplate::parse(p.role, op, value.get<std::string>());
     if (!t.ok()) doc.fail(c / op, t.error().message);
     p.commands.emplace(op, std::move(t.value()));
   }
   for (const auto& spec : operation_table()) {
-    if (spec.role == p.role && spec.required && !p.has(spec.name))
-      doc.fail(c, fmt::format("operation \"{}\" is required for a {} profile and missing", spec.name, p.role));
+    if (spec.role != p.role || !spec.required || p.has(spec.name) || p.declares_absent(spec.name)) continue;
+    doc.fail(c, fmt::format("operation \"{}\" is required for a {} profile and missing{}", spec.name, p.role,
+                            spec.may_be_absent ? fmt::format(" (write \"{}\": null if the instrument has none)", spec.name)
+                                               : std::string()));
   }
 }
 

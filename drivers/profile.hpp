@@ -6,6 +6,7 @@
 
 #include <filesystem>
 #include <map>
+#include <set>
 #include <string>
 #include <string_view>
 #include <vector>
@@ -32,11 +33,14 @@ struct Profile {
   std::string trace_format = "ascii";                  // receiver: "ascii" | "real32"
   std::string byte_order = "normal";                   // receiver, real32: "normal" (big-endian) | "swapped"
   std::map<std::string, CommandTemplate> commands;     // by operation name
+  std::set<std::string> absent;                        // operations declared absent (`"set_vbw": null`)
   std::vector<std::string> init;                       // lines sent on initialize()
   std::map<std::string, std::string> positions;        // switch: OPEN/SHORT/LOAD/DUT -> position token
 
   bool has(std::string_view operation) const { return commands.count(std::string(operation)) != 0; }
-  // REQUIRES: has(operation) (true for every required operation of the role).
+  // True when the profile says the instrument lacks `operation` (null in "commands").
+  bool declares_absent(std::string_view operation) const { return absent.count(std::string(operation)) != 0; }
+  // REQUIRES: has(operation) (true for every required operation of the role unless declared absent).
   const CommandTemplate& command(std::string_view operation) const { return commands.at(std::string(operation)); }
 };
 

@@ -39,7 +39,14 @@ Status Receiver::initialize() {
 
 Status Receiver::configure(const ReceiverSetup& setup) {
   const Profile& p = profile_;
+  const bool vbw_absent = p.declares_absent("set_vbw");
   const double vbw = setup.vbw_hz == 0 ? setup.rbw_hz : setup.vbw_hz;
+  // An explicit setting the instrument lacks is refused first; nothing is sent then.
+  const auto absent = [&](std::string_view op) { return absent_operation(session_, p, op); };
+  if (vbw_absent && setup.vbw_hz > 0) return absent("set_vbw");
+  if (setup.reference_level_dbm && p.declares_absent("set_reference_level")) return absent("set_reference_level");
+  if (setup.attenuation_db >= 0 && p.declares_absent("set_attenuation")) return absent("set_attenuation");
+
   // Every value is checked before the first command goes out.
   if (Status s = check_range("set_center", setup.center_hz, p.min_frequency_hz, p.max_frequency_hz, "Hz"); !s.ok()) return s;
   if (Status s = check_range("set_span", setup.span_hz, 0, p.max_frequency_hz - p.min_frequency_hz, "Hz"); !s.ok()) return s;
@@ -47,15 +54,17 @@ Status Receiver::configure(const ReceiverSetup& setup) {
     return make_error(ErrorKind::invalid_argument, fmt::format("{}: set_rbw: {} Hz must be above 0; nothing sent", session_.name(), setup.rbw_hz));
   if (!(vbw > 0) || !std::isfinite(vbw))
     return make_error(ErrorKind::invalid_argument, fmt::format("{}: set_vbw: {} Hz must be above 0; nothing sent", session_.name(), vbw));
-  if (Status s = check_range("set_reference_level", setup.reference_level_dbm, p.min_power_dbm, p.max_power_dbm, "dBm"); !s.ok()) return s;
+  if (setup.reference_level_dbm)
+    if (Status s = check_range("set_reference_level", *setup.reference_level_dbm, p.min_power_dbm, p.max_power_dbm, "dBm"); !s.ok()) return s;
   if (setup.attenuation_db >= 0)
     if (Status s = check_range("set_attenuation", setup.attenuation_db, 0, p.max_attenuation_db, "dB"); !s.ok()) return s;
-
   if (Status s = send("set_center", {{"frequency_hz", setup.center_hz}}, false); !s.ok()) return s;
   if (Status s = send("set_span", {{"frequency_hz", setup.span_hz}}, false); !s.ok()) return s;
   if (Status s = send("set_rbw", {{"frequency_hz", setup.rbw_hz}}, false); !s.ok()) return s;
-  if (Status s = send("set_vbw", {{"frequency_hz", vbw}}, false); !s.ok()) return s;
-  if (Status s = send("set_reference_level", {{"power_dbm", setup.reference_level_dbm}}, false); !s.ok()) return s;
+  if (!vbw_absent)
+    if (Status s = send("set_vbw", {{"frequency_hz", vbw}}, false); !s.ok()) return s;
+  if (setup.reference_level_dbm)
+    if (Status s = send("set_reference_level", {{"power_dbm", *setup.reference_level_dbm}}, false); !s.ok()) return s;
   if (setup.attenuation_db >= 0) {
     if (Status s = send("set_attenuation", {{"db", setup.attenuation_db}}, false); !s.ok()) return s;
   } else if (p.has("set_attenuation_auto")) {
@@ -75,10 +84,22 @@ Status Receiver::post_center(double hz) {
   return send("set_center", {{"frequency_hz", hz}}, false);
 }
 
-Status Receiver::set_max_hold(bool on) {
-  // send() reports a profile without set_max_hold; the template uses {state} or {trace_mode}.
-  return send("set_max_hold", {{"state", on}, {"trace_mode", on}}, true);
+Status Receiver::set_max_hold(bool on) { return send(on ? "max_hold_on" : "max_hold_off", {}, true); }
+
+Status Receiver::set_points(int count) {
+  if (count < 1)
+    return make_error(ErrorKind::invalid_argument, fmt::format("{}: set_points: {} points; nothing sent", session_.name(), count));
+  return send("set_points", {{"count", std::int64_t{count}}}, true);
 }
+
+Status Receiver::set_sweep_time(double seconds) {
+  if (!(seconds > 0) || !std::isfinite(seconds))
+    return make_error(ErrorKind::invalid_argument,
+                      fmt::format("{}: set_sweep_time: {} s must be above 0; nothing sent", session_.name(), seconds));
+  return send("set_sweep_time", {{"seconds", seconds}}, true);
+}
+
+Status Receiver::set_sweep_time_auto() { return send("set_sweep_time_auto", {}, true); }
 
 Status Receiver::trigger() { return send("trigger", {}, false); }
 

@@ -18,10 +18,13 @@ struct ReceiverSetup {
   double center_hz = 0;
   double span_hz = 0;               // 0 = zero span
   double rbw_hz = 0;
-  double vbw_hz = 0;                // 0 = same as RBW
-  double reference_level_dbm = 0;
+  double vbw_hz = 0;                // 0 = same as RBW (nothing sent when the profile declares set_vbw absent)
+  std::optional<double> reference_level_dbm;   // none = left to the instrument
   double attenuation_db = -1;       // < 0 = auto: set_attenuation_auto when the profile has it, else left to the instrument
 };
+// A setting the profile declares absent (set_vbw, set_reference_level, set_attenuation) is
+// refused when asked for explicitly (vbw_hz > 0, a reference level, attenuation_db >= 0),
+// naming the operation and the profile; nothing is sent then.
 
 class Receiver {
  public:
@@ -35,7 +38,10 @@ class Receiver {
   Status configure(const ReceiverSetup& setup);   // all settings range-checked before the first is sent
   Status set_center(double hz);
   Status post_center(double hz);      // pipelined: range-checked, sent, no wait, no check
-  Status set_max_hold(bool on);       // REQUIRES profile operation set_max_hold (error otherwise)
+  Status set_max_hold(bool on);       // max_hold_on / max_hold_off (config error when the profile lacks them)
+  Status set_points(int count);       // set_points
+  Status set_sweep_time(double s);    // set_sweep_time; s > 0
+  Status set_sweep_time_auto();       // set_sweep_time_auto
   Status trigger();                   // start one single sweep (e.g. INIT:IMM), no wait
   Status wait_sweep();                // *OPC?
   // One message: [set_center;]trigger;*OPC? -- moves (when center_hz is given, range-checked),

@@ -15,8 +15,14 @@ Status check_operation_range(const ScpiSession& session, const Profile& profile,
                                 session.name(), operation, value, unit, profile.name, min, max, unit));
 }
 
+Error absent_operation(const ScpiSession& session, const Profile& profile, std::string_view operation) {
+  return make_error(ErrorKind::config, fmt::format("{}: {}: profile {} declares this operation absent (the instrument "
+                                                   "has none); nothing sent", session.name(), operation, profile.name));
+}
+
 Result<std::string> expand_operation(const ScpiSession& session, const Profile& profile, std::string_view operation,
                                      std::initializer_list<TemplateArg> args) {
+  if (profile.declares_absent(operation)) return absent_operation(session, profile, operation);
   if (!profile.has(operation)) {
     return make_error(ErrorKind::config,
                       fmt::format("{}: profile {} has no operation {}", session.name(), profile.name, operation));

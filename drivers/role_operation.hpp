@@ -18,6 +18,9 @@ namespace echoline::drivers {
 Status check_operation_range(const ScpiSession& session, const Profile& profile, std::string_view operation,
                              double value, double min, double max, std::string_view unit);
 
+// config error "<instrument>: <operation>: profile <name> declares this operation absent ...".
+Error absent_operation(const ScpiSession& session, const Profile& profile, std::string_view operation);
+
 // The command text of `operation` expanded with `args`; config error when the profile lacks it.
 Result<std::string> expand_operation(const ScpiSession& session, const Profile& profile, std::string_view operation,
                                      std::initializer_list<TemplateArg> args);

@@ -58,6 +58,18 @@ Status Source::move_and_sync(double hz) {
   return session_.wait_complete_after(command.value());
 }
 
+Status Source::post_sweep(double start_hz, double stop_hz, double seconds) {
+  if (Status s = check_range("sweep_start", start_hz, profile_.min_frequency_hz, profile_.max_frequency_hz, "Hz"); !s.ok()) return s;
+  if (Status s = check_range("sweep_stop", stop_hz, start_hz, profile_.max_frequency_hz, "Hz"); !s.ok()) return s;
+  if (!(seconds > 0) || !std::isfinite(seconds))
+    return make_error(ErrorKind::invalid_argument, fmt::format("{}: sweep_time: {} s must be above 0; nothing sent", session_.name(), seconds));
+  if (Status s = send("sweep_start", {{"frequency_hz", start_hz}}, false); !s.ok()) return s;
+  if (Status s = send("sweep_stop", {{"frequency_hz", stop_hz}}, false); !s.ok()) return s;
+  return send("sweep_time", {{"seconds", seconds}}, false);
+}
+
+Status Source::post_sweep_mode(bool swept) { return send("sweep_mode", {{"mode", std::string(swept ? "SWE" : "CW")}}, false); }
+
 Status Source::check_errors() {
   if (profile_.check_errors == "never") return Status::success();
   return session_.drain_errors();

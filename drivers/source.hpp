@@ -26,6 +26,10 @@ class Source {
   Status sync();                        // *OPC?
   Status move_and_sync(double hz);      // range-checked; set_frequency and *OPC? as one message, waits
   Status check_errors();                // SYST:ERR? until empty, unless the profile's policy is "never"
+  // Swept output (fast capture); config error when the profile lacks the sweep operations. None
+  // waits or reads the error queue: the caller checks once the set-up is complete.
+  Status post_sweep(double start_hz, double stop_hz, double seconds);   // range-checked: sweep_start, sweep_stop, sweep_time
+  Status post_sweep_mode(bool swept);   // sweep_mode: {mode} is SWE when swept, CW otherwise (SCPI-1999 [SOURce:]FREQuency:MODE)
 
   const Profile& profile() const { return profile_; }
   ScpiSession& session() { return session_; }

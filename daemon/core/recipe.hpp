@@ -24,9 +24,9 @@ struct SourceSettings {
 
 struct ReceiverSettings {
   double rbw_hz = 10e3;
-  double vbw_hz = 0;         // 0 = same as RBW
+  double vbw_hz = 0;         // 0 = same as RBW (or none, on a receiver without VBW)
   double span_hz = 100e3;    // span around each point (0 = zero span)
-  double reference_level_dbm = 0;
+  std::optional<double> reference_level_dbm;   // none = left to the instrument
   double attenuation_db = -1; // -1 = leave to the instrument (auto)
   int averages = 1;           // readings per point, averaged in linear power
 };

@@ -9,6 +9,7 @@
 #include <fmt/format.h>
 
 #include "daemon/core/frequency_text.hpp"
+#include "daemon/core/instrument_needs.hpp"
 
 namespace echoline::core {
 namespace {
@@ -61,6 +62,19 @@ std::vector<CheckFinding> check_recipe(const Recipe& r, const StationCapability&
                     st.source_max_power_dbm));
   }
 
+  // Settings the instruments cannot make: only a recipe that asks for one is refused.
+  for (const NeededOperation& need : needed_operations(r)) {
+    const bool source = need.role == "source";
+    if ((source ? st.source_lacks : st.receiver_lacks).count(std::string(need.operation)) == 0) continue;
+    const bool mode = need.key == "/mode";
+    add(out, "error", need.key,
+        fmt::format("{}: needs the {} operation {}, which profile {} {}", need.what, need.role, need.operation,
+                    source ? st.source_profile : st.receiver_profile,
+                    mode ? "lacks; add it to the profile or use step mode"
+                         : "declares absent (the instrument has none); leave " + need.key.substr(need.key.rfind('/') + 1) +
+                               " out of the recipe"));
+  }
+
   // Frequency ranges: the source sets each point; the receiver looks span/2 either side.
   for (std::size_t i = 0; i < r.segments.size(); ++i) {
     const Segment& s = r.segments[i];
@@ -104,11 +118,11 @@ std::vector<CheckFinding> check_recipe(const Recipe& r, const StationCapability&
                     "calibrated directivity will be limited by noise and read low",
                     p_load, p_load - st.noise_floor_dbm, st.noise_floor_dbm));
   }
-  if (p_ref > r.receiver.reference_level_dbm) {
+  if (r.receiver.reference_level_dbm && p_ref > *r.receiver.reference_level_dbm) {
     add(out, "warning", "/receiver/reference_level_dbm",
         fmt::format("OPEN/SHORT are expected at about {:.1f} dBm, above the reference level {:.1f} dBm: readings "
                     "may be compressed or clipped",
-                    p_ref, r.receiver.reference_level_dbm));
+                    p_ref, *r.receiver.reference_level_dbm));
   }
 
   // RBW vs span.

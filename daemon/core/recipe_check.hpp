@@ -3,6 +3,7 @@
 // Pure; thread-safe.
 #pragma once
 
+#include <set>
 #include <string>
 #include <vector>
 
@@ -32,6 +33,10 @@ struct StationCapability {
   double source_max_power_dbm = 0;
   CalKit kit = builtin_conservative_kit();  // the standards the station calibrates with
   double test_port_delay_s = 5e-9;   // one-way electrical delay coupler -> test port (error-term rotation)
+  // Profile operations the instruments lack (declared absent, or optional and left out), and the
+  // profiles' names for messages. Empty: every operation is there.
+  std::set<std::string> source_lacks, receiver_lacks;
+  std::string source_profile = "source", receiver_profile = "receiver";
 };
 
 // Findings in recipe order; any "error" means the recipe must not run on this station.

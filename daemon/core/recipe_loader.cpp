@@ -182,7 +182,8 @@ class Loader {
     // vbw_hz and span_hz may be 0 (0 = same as RBW; 0 = zero span).
     rx.vbw_hz = zero_or_frequency(at / "vbw_hz", rx.vbw_hz);
     rx.span_hz = zero_or_frequency(at / "span_hz", rx.span_hz);
-    rx.reference_level_dbm = doc_.number_in(at / "reference_level_dbm", rx.reference_level_dbm, -150, 30, "dBm");
+    if (doc_.has(at / "reference_level_dbm"))
+      rx.reference_level_dbm = doc_.number_in(at / "reference_level_dbm", 0, -150, 30, "dBm");
     if (doc_.has(at / "attenuation_db")) {
       const json& v = doc_.at(at / "attenuation_db");
       if (v.is_string() && v.get<std::string>() == "auto") {

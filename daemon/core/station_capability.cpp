@@ -28,6 +28,12 @@ StationCapability station_capability(const drivers::FixtureConfig& fixture, cons
   c.source_max_power_dbm = source.max_power_dbm;
   if (kit) c.kit = *kit;
   c.test_port_delay_s = fixture.test_port_delay_ns * 1e-9;
+  for (const auto& spec : drivers::operation_table()) {
+    if (spec.role == "source" && !source.has(spec.name)) c.source_lacks.emplace(spec.name);
+    if (spec.role == "receiver" && !receiver.has(spec.name)) c.receiver_lacks.emplace(spec.name);
+  }
+  c.source_profile = source.name;
+  c.receiver_profile = receiver.name;
   return c;
 }
 

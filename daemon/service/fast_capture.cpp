@@ -10,7 +10,7 @@
 #include <spdlog/spdlog.h>
 
 #include "daemon/core/fast_capture_plan.hpp"
-#include "drivers/command_template.hpp"
+#include "daemon/core/instrument_needs.hpp"
 
 namespace echoline::service {
 namespace {
@@ -34,18 +34,6 @@ bool wait_or_cancel(double seconds, const std::atomic<bool>& cancel) {
 
 bool checks_at_end(const drivers::Profile& p) { return p.check_errors != "never"; }
 
-// Expands a profile operation and writes it (no wait, no error check).
-Status send_op(drivers::ScpiSession& session, const drivers::Profile& profile, std::string_view op,
-               std::initializer_list<drivers::TemplateArg> args) {
-  if (!profile.has(op)) {
-    return make_error(ErrorKind::config, fmt::format("{}: profile {} has no operation {}, which fast capture needs",
-                                                     session.name(), profile.name, op));
-  }
-  auto line = profile.command(op).expand(args);
-  if (!line.ok()) return line.error().with_context(session.name());
-  return session.write(line.value());
-}
-
 Status send_lines(drivers::ScpiSession& session, const core::Recipe& recipe, const std::string& role, bool setup) {
   const auto& table = setup ? recipe.setup : recipe.teardown;
   auto it = table.find(role);
@@ -58,8 +46,8 @@ Status send_lines(drivers::ScpiSession& session, const core::Recipe& recipe, con
   return {};
 }
 
-Status require_ops(const drivers::Profile& p, std::initializer_list<std::string_view> ops, std::string_view name) {
-  for (auto op : ops) {
+Status require_ops(const drivers::Profile& p, std::string_view name) {
+  for (auto op : core::fast_capture_operations(p.role)) {
     if (!p.has(op)) {
       return make_error(ErrorKind::config, fmt::format("{}: profile {} ({}) has no operation {}, which fast capture needs",
                                                        name, p.name, p.file, op));
@@ -83,8 +71,8 @@ class Capture {
                                     recipe_.name, recipe_.source.power_dbm, options_.coupling_db, worst_dbm,
                                     rx_.max_safe_input_dbm()));
     }
-    if (Status s = require_ops(src_.profile(), {"sweep_mode", "sweep_start", "sweep_stop", "sweep_time"}, src_.session().name()); !s) return s;
-    if (Status s = require_ops(rx_.profile(), {"set_points", "set_max_hold"}, rx_.session().name()); !s) return s;
+    if (Status s = require_ops(src_.profile(), src_.session().name()); !s) return s;
+    if (Status s = require_ops(rx_.profile(), rx_.session().name()); !s) return s;
     const drivers::Profile& sp = src_.profile();
     if (plan.source_start_hz < sp.min_frequency_hz || plan.source_stop_hz > sp.max_frequency_hz) {
       return make_error(ErrorKind::invalid_argument,
@@ -111,23 +99,20 @@ class Capture {
     setup.center_hz = (plan.axis.start_hz + plan.axis.stop_hz) / 2;
     setup.span_hz = plan.axis.stop_hz - plan.axis.start_hz;
     setup.rbw_hz = plan.rbw_hz;
-    setup.vbw_hz = plan.rbw_hz;   // VBW = RBW: the video filter follows the tone's short burst
+    setup.vbw_hz = 0;   // VBW = RBW: the video filter follows the tone's short burst
     setup.reference_level_dbm = recipe_.receiver.reference_level_dbm;
     setup.attenuation_db = recipe_.receiver.attenuation_db;
     if (Status s = rx_.configure(setup); !s) return s;
     drivers::ScpiSession& rs = rx_.session();
-    if (Status s = send_op(rs, rx_.profile(), "set_points", {{"count", std::int64_t{plan.axis.points}}}); !s) return s;
-    // SCPI-1999 [SENSe:]SWEep:TIME (no profile operation for it yet).
-    if (Status s = rs.write("SWE:TIME " + drivers::format_wire_number(plan.receiver_sweep_s)); !s) return s;
+    if (Status s = rx_.set_points(plan.axis.points); !s) return s;
+    if (Status s = rx_.set_sweep_time(plan.receiver_sweep_s); !s) return s;
     if (Status s = rx_.set_max_hold(true); !s) return s;   // also clears the held trace
 
     drivers::ScpiSession& ss = src_.session();
     const drivers::Profile& sp = src_.profile();
     if (Status s = src_.set_power(recipe_.source.power_dbm); !s) return s;
-    if (Status s = send_op(ss, sp, "sweep_start", {{"frequency_hz", plan.source_start_hz}}); !s) return s;
-    if (Status s = send_op(ss, sp, "sweep_stop", {{"frequency_hz", plan.source_stop_hz}}); !s) return s;
-    if (Status s = send_op(ss, sp, "sweep_time", {{"seconds", plan.source_sweep_s}}); !s) return s;
-    if (Status s = send_op(ss, sp, "sweep_mode", {{"mode", std::string("SWE")}}); !s) return s;
+    if (Status s = src_.post_sweep(plan.source_start_hz, plan.source_stop_hz, plan.source_sweep_s); !s) return s;
+    if (Status s = src_.post_sweep_mode(true); !s) return s;
     if (checks_at_end(sp)) {
       if (Status s = ss.drain_errors(); !s) return s;
     }
@@ -140,9 +125,9 @@ class Capture {
   // RF off first, then the source back to CW and the receiver back to its own sweep time.
   Status restore() {
     if (Status s = src_.set_output(false); !s) return s.error().with_context("source output off");
-    if (Status s = send_op(src_.session(), src_.profile(), "sweep_mode", {{"mode", std::string("CW")}}); !s) return s;
+    if (Status s = src_.post_sweep_mode(false); !s) return s;
     if (Status s = rx_.set_max_hold(false); !s) return s;
-    if (Status s = rx_.session().write("SWE:TIME:AUTO ON"); !s) return s;
+    if (Status s = rx_.set_sweep_time_auto(); !s) return s;
     if (checks_at_end(src_.profile())) {
       if (Status s = src_.session().drain_errors(); !s) return s;
     }
@@ -165,10 +150,10 @@ class Capture {
         return;
       }
     }
-    (void)send_op(src_.session(), src_.profile(), "sweep_mode", {{"mode", std::string("CW")}});
+    (void)src_.post_sweep_mode(false);
     if (rx_.session().is_open()) {
       (void)rx_.set_max_hold(false);
-      (void)rx_.session().write("SWE:TIME:AUTO ON");
+      (void)rx_.set_sweep_time_auto();
     }
   }
 

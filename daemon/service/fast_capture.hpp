@@ -20,10 +20,11 @@ namespace echoline::service {
 // instrument error, a timeout or cancellation ends it with `error` set and no readings (a capture
 // is all or nothing). Readings: one per plan frequency; bins land on the plan points when the
 // plan is evenly spaced, otherwise the trace is interpolated (core::trace_to_plan).
-// REQUIRES profiles with the operations: source sweep_mode, sweep_start, sweep_stop, sweep_time;
-// receiver set_points, set_max_hold. The receiver's sweep time is set with the SCPI-1999
-// command [SENSe:]SWEep:TIME (the receiver profile has no operation for it yet) and put back to
-// automatic (SWEep:TIME:AUTO ON) at the end. The receiver's point count is left as set here.
+// REQUIRES profiles with the operations of core::fast_capture_operations (instrument_needs.hpp):
+// source sweep_mode, sweep_start, sweep_stop, sweep_time; receiver set_points, set_sweep_time,
+// set_sweep_time_auto, max_hold_on, max_hold_off. Every line sent comes from the profiles or the
+// recipe. The receiver's sweep time is put back to automatic at the end; its point count is left
+// as set here.
 SweepOutcome run_fast_capture(drivers::Source& source, drivers::Receiver& receiver, const core::Recipe& recipe,
                               const std::atomic<bool>& cancel, const ProgressFn& progress = {},
                               SweepOptions options = {});

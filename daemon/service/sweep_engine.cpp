@@ -158,7 +158,7 @@ Status SweepEngine::configure(const core::Recipe& recipe) {
   setup.center_hz = plan.front();
   setup.span_hz = recipe.receiver.span_hz;
   setup.rbw_hz = recipe.receiver.rbw_hz;
-  setup.vbw_hz = recipe.receiver.vbw_hz > 0 ? recipe.receiver.vbw_hz : recipe.receiver.rbw_hz;
+  setup.vbw_hz = recipe.receiver.vbw_hz;   // 0 = same as RBW
   setup.reference_level_dbm = recipe.receiver.reference_level_dbm;
   setup.attenuation_db = recipe.receiver.attenuation_db;
   if (Status s = receiver_.configure(setup); !s) return s;

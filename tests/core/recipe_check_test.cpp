@@ -131,4 +131,47 @@ TEST(RecipeCheck, SpanNarrowerThanRbwAndSlowSweepsAreWarnings) {
 }
 
 }  // namespace
+// A receiver without VBW, reference level or attenuator (its profile declares them absent):
+// only a recipe that asks for one of them is refused, naming the operation and the profile.
+TEST(RecipeCheck, SettingsTheReceiverLacksAreRefusedOnlyWhenAskedFor) {
+  Recipe r = whip_recipe();
+  r.segments = {Segment{860e6, 970e6, 221}};
+  r.limits.resonance_min_hz.reset();
+  r.limits.resonance_max_hz.reset();
+  r.receiver.vbw_hz = 0;
+  r.receiver.reference_level_dbm.reset();
+  r.receiver.attenuation_db = -1;
+  StationCapability st = station();
+  st.receiver_lacks = {"set_vbw", "set_reference_level", "set_attenuation"};
+  st.receiver_profile = "small-rx";
+  EXPECT_FALSE(has_errors(check_recipe(r, st))) << dump(check_recipe(r, st));
+
+  Recipe asks = r;
+  asks.receiver.vbw_hz = 10e3;
+  asks.receiver.reference_level_dbm = 0;
+  asks.receiver.attenuation_db = 10;
+  auto f = check_recipe(asks, st);
+  ASSERT_TRUE(has_errors(f));
+  const CheckFinding* vbw = find(f, "error", "needs the receiver operation set_vbw, which profile small-rx declares absent");
+  ASSERT_TRUE(vbw) << dump(f);
+  EXPECT_EQ(vbw->key, "/receiver/vbw_hz");
+  EXPECT_TRUE(find(f, "error", "needs the receiver operation set_reference_level, which profile small-rx")) << dump(f);
+  EXPECT_TRUE(find(f, "error", "needs the receiver operation set_attenuation, which profile small-rx")) << dump(f);
+  // The same recipe on a receiver that has them is clean of these errors.
+  EXPECT_FALSE(has_errors(check_recipe(asks, station()))) << dump(check_recipe(asks, station()));
+}
+
+TEST(RecipeCheck, FastCaptureNeedsTheSweepOperations) {
+  Recipe r = whip_recipe();
+  r.segments = {Segment{860e6, 970e6, 221}};
+  r.mode = SweepMode::fast_capture;
+  StationCapability st = station();
+  st.receiver_lacks = {"set_sweep_time"};
+  st.receiver_profile = "small-rx";
+  auto f = check_recipe(r, st);
+  const CheckFinding* e = find(f, "error", "fast capture: needs the receiver operation set_sweep_time, which profile small-rx lacks");
+  ASSERT_TRUE(e) << dump(f);
+  EXPECT_EQ(e->key, "/mode");
+}
+
 }  // namespace echoline::core

@@ -31,13 +31,19 @@ TEST(CommandTemplate, RoundTripsEveryDigit) {
   }
 }
 
-TEST(CommandTemplate, StateAndTraceModeTokens) {
+TEST(CommandTemplate, StateTokensAndMaxHoldFromTheProfile) {
+  // SCPI-1999 Vol 1 7.3: boolean program data ON | OFF.
   auto out = parsed("source", "set_output", "OUTP {state}");
   EXPECT_EQ(out.expand({{"state", true}}).value(), "OUTP ON");
   EXPECT_EQ(out.expand({{"state", false}}).value(), "OUTP OFF");
-  auto mh = parsed("receiver", "set_max_hold", "TRAC1:MODE {trace_mode}");
-  EXPECT_EQ(mh.expand({{"trace_mode", true}}).value(), "TRAC1:MODE MAXH");
-  EXPECT_EQ(mh.expand({{"trace_mode", false}}).value(), "TRAC1:MODE WRIT");
+  // Max hold is two whole commands from the profile; no vendor token is compiled in.
+  EXPECT_EQ(parsed("receiver", "max_hold_on", "TRAC1:MODE MAXH").expand({}).value(), "TRAC1:MODE MAXH");
+  auto old = CommandTemplate::parse("receiver", "set_max_hold", "TRAC1:MODE {trace_mode}");
+  ASSERT_FALSE(old.ok());
+  EXPECT_NE(old.error().message.find("max_hold_on and max_hold_off"), std::string::npos) << old.error().message;
+  auto token = CommandTemplate::parse("receiver", "max_hold_on", "TRAC1:MODE {trace_mode}");
+  ASSERT_FALSE(token.ok());
+  EXPECT_NE(token.error().message.find("unknown placeholder {trace_mode}"), std::string::npos) << token.error().message;
 }
 
 TEST(CommandTemplate, SwitchPositionAndLiteralBraces) {

@@ -3,6 +3,7 @@
 #include "drivers/profile.hpp"
 
 #include <fstream>
+#include <iterator>
 
 #include <gtest/gtest.h>
 
@@ -50,7 +51,7 @@ TEST(Profile, EveryShippedProfileLoads) {
     EXPECT_EQ(p.name, entry.path().stem().string());   // file name and profile name agree
     for (const auto& op : operation_table())
       if (op.role == p.role && op.required) {
-        EXPECT_TRUE(p.has(op.name)) << op.name;
+        EXPECT_TRUE(p.has(op.name) || (op.may_be_absent && p.declares_absent(op.name))) << op.name;
       }
     ++count;
   }
@@ -138,6 +139,36 @@ TEST(Profile, MissingRequiredOperationIsNamed) {
   ConfigError e = load_error(write(dir, "miss.jsonc", text));
   EXPECT_EQ(e.key, "/commands");
   EXPECT_NE(std::string(e.what()).find("\"set_output\" is required"), std::string::npos) << e.what();
+}
+
+TEST(Profile, ReceiverWithoutVbwReferenceLevelOrAttenuatorLoads) {
+  Profile p = load_profile(instruments_dir() / "sim-basic-receiver.jsonc");
+  for (const char* op : {"set_vbw", "set_reference_level", "set_attenuation"}) {
+    EXPECT_TRUE(p.declares_absent(op)) << op;
+    EXPECT_FALSE(p.has(op)) << op;
+  }
+  EXPECT_TRUE(p.has("set_rbw"));
+}
+
+TEST(Profile, OnlySomeOperationsMayBeDeclaredAbsent) {
+  testing::TempDir dir;
+  std::string text = kSourceProfile;
+  // The source cannot work without an output switch.
+  text.replace(text.find("\"OUTP {state}\""), 14, "null");
+  ConfigError e = load_error(write(dir, "nooutput.jsonc", text));
+  EXPECT_EQ(e.key, "/commands/set_output");
+  EXPECT_NE(std::string(e.what()).find("cannot be declared absent"), std::string::npos) << e.what();
+  // A receiver that simply omits set_vbw is told how to declare it absent.
+  std::string rx;
+  {
+    std::ifstream in(instruments_dir() / "sim-basic-receiver.jsonc");
+    rx.assign(std::istreambuf_iterator<char>(in), {});
+  }
+  const std::string vbw = "\"set_vbw\": null,";
+  rx.erase(rx.find(vbw), vbw.size());
+  ConfigError m = load_error(write(dir, "novbw.jsonc", rx));
+  EXPECT_EQ(m.key, "/commands");
+  EXPECT_NE(std::string(m.what()).find("write \"set_vbw\": null if the instrument has none"), std::string::npos) << m.what();
 }
 
 TEST(Profile, ReceiverNeedsItsMaxSafeInput) {

@@ -259,14 +259,68 @@ TEST(ReceiverDriver, Real32TraceInTheProfileByteOrder) {
   EXPECT_EQ(trace.value(), values);
 }
 
-TEST(ReceiverDriver, MaxHoldUsesTheTraceModeToken) {
+TEST(ReceiverDriver, MaxHoldAndSweepTimeComeFromTheProfile) {
   Profile p = sim_profile("sim-receiver.jsonc");
   FakeInstrument inst;
   auto session = inst.session("analyzer", p);
   Receiver rcv(*session, p);
   ASSERT_TRUE(rcv.set_max_hold(true).ok());
   ASSERT_TRUE(rcv.set_max_hold(false).ok());
-  EXPECT_EQ(inst.lines(), (Lines{"TRAC1:MODE MAXH", "SYST:ERR?", "TRAC1:MODE WRIT", "SYST:ERR?"}));
+  ASSERT_TRUE(rcv.set_sweep_time(0.25).ok());
+  ASSERT_TRUE(rcv.set_sweep_time_auto().ok());
+  EXPECT_EQ(inst.lines(), (Lines{"TRAC1:MODE MAXH", "SYST:ERR?", "TRAC1:MODE WRIT", "SYST:ERR?", "SWE:TIME 0.25",
+                                 "SYST:ERR?", "SWE:TIME:AUTO ON", "SYST:ERR?"}));
+  // Another spelling is a profile edit, not code: the driver sends the profile's text verbatim.
+  auto on = CommandTemplate::parse("receiver", "max_hold_on", "TRAC:MAXH ON");
+  ASSERT_TRUE(on.ok());
+  p.commands["max_hold_on"] = on.value();
+  FakeInstrument inst2;
+  auto session2 = inst2.session("analyzer", p);
+  Receiver rcv2(*session2, p);
+  ASSERT_TRUE(rcv2.set_max_hold(true).ok());
+  EXPECT_EQ(inst2.lines().front(), "TRAC:MAXH ON");
+  // Without the operations the driver refuses and sends nothing.
+  p.commands.erase("max_hold_off");
+  p.commands.erase("set_sweep_time");
+  FakeInstrument inst3;
+  auto session3 = inst3.session("analyzer", p);
+  Receiver rcv3(*session3, p);
+  Status off = rcv3.set_max_hold(false);
+  ASSERT_FALSE(off.ok());
+  EXPECT_NE(off.error().message.find("has no operation max_hold_off"), std::string::npos) << off.error().message;
+  EXPECT_FALSE(rcv3.set_sweep_time(1).ok());
+  EXPECT_TRUE(inst3.lines().empty());
+}
+
+TEST(ReceiverDriver, AbsentOperationsAreSkippedUnlessAskedForExplicitly) {
+  // A receiver without VBW, reference level or attenuator (config/instruments/sim-basic-receiver.jsonc).
+  Profile p = sim_profile("sim-basic-receiver.jsonc");
+  ASSERT_TRUE(p.declares_absent("set_vbw"));
+  FakeInstrument inst;
+  auto session = inst.session("analyzer", p);
+  Receiver rcv(*session, p);
+  ReceiverSetup s = setup915();
+  s.reference_level_dbm.reset();
+  s.attenuation_db = -1;
+  ASSERT_TRUE(rcv.configure(s).ok());   // VBW "same as RBW", no level, automatic attenuation
+  EXPECT_EQ(inst.lines(), (Lines{"FREQ:CENT 915000000", "FREQ:SPAN 0", "BAND 10000", "SYST:ERR?"}));
+
+  const std::vector<std::pair<std::string, ReceiverSetup>> asks = {
+      {"set_vbw", [&] { ReceiverSetup x = s; x.vbw_hz = 30e3; return x; }()},
+      {"set_reference_level", [&] { ReceiverSetup x = s; x.reference_level_dbm = 0; return x; }()},
+      {"set_attenuation", [&] { ReceiverSetup x = s; x.attenuation_db = 10; return x; }()},
+  };
+  for (const auto& [op, setup] : asks) {
+    FakeInstrument other;
+    auto sess = other.session("analyzer", p);
+    Receiver r(*sess, p);
+    Status st = r.configure(setup);
+    ASSERT_FALSE(st.ok()) << op;
+    EXPECT_EQ(st.error().kind, ErrorKind::config);
+    EXPECT_NE(st.error().message.find("analyzer: " + op + ": profile sim-basic-receiver declares this operation absent"),
+              std::string::npos) << st.error().message;
+    EXPECT_TRUE(other.lines().empty()) << op;
+  }
 }
 
 TEST(SwitchDriver, SelectSendsThePositionTokenAndWaits) {
