@@ -34,6 +34,8 @@ std::string str(const json& j, const char* key, std::string fallback = "") {
 }
 
 bool is_quit(const std::string& s) { return s == "q" || s == "quit" || s == "Q" || s == "QUIT"; }
+bool is_yes(const std::string& s) { return s == "y" || s == "Y" || s == "yes" || s == "YES"; }
+bool is_no(const std::string& s) { return s == "n" || s == "N" || s == "no" || s == "NO"; }
 
 }  // namespace
 
@@ -162,6 +164,10 @@ Console::Outcome Console::scan_loop() {
       if (!input_.interactive()) out_ << *line << "\n";
       if (line->empty()) continue;
       if (is_quit(*line)) return Outcome::done;
+      if (is_yes(*line) || is_no(*line)) {
+        out_ << "(\"" << *line << "\" answers no open question: ignored; scan a serial)\n" << std::flush;
+        continue;
+      }
       serial = *line;
     }
     if (test_unit(serial, again) == Outcome::done) continue;
@@ -185,9 +191,11 @@ bool Console::confirm(const std::string& prompt) {
   out_ << prompt << " " << std::flush;
   if (input_.interactive()) {
     for (;;) {
-      auto line = input_.next();
+      auto line = input_.next_typed();
       if (!line || is_quit(*line) || *line == "cancel") return false;
       if (line->empty()) return true;
+      // Anything else is a serial scanned ahead: it is tested once this step is done.
+      hold_scanned(*line);
       out_ << "Press Enter once it is connected (or q to cancel): " << std::flush;
     }
   }
@@ -203,6 +211,11 @@ bool Console::confirm(const std::string& prompt) {
   }
   out_ << "\nPiped input: expected an empty line to confirm; cancelled.\n" << std::flush;
   return false;
+}
+
+void Console::hold_scanned(const std::string& serial) {
+  input_.hold(serial);
+  out_ << fmt::format("\n(serial {} kept: it is tested next, {} waiting)\n", serial, input_.held()) << std::flush;
 }
 
 Result<json> Console::job_events(long id, const std::string& label) {
@@ -311,10 +324,17 @@ Console::Outcome Console::test_unit(const std::string& serial, bool again) {
     if (history->ok && history->result.contains("runs")) tested = static_cast<int>(history->result["runs"].size());
   }
   if (tested > 0) {
-    out_ << fmt::format("{} already tested {} time{} — retest? [y/N] ", serial, tested, tested == 1 ? "" : "s") << std::flush;
-    auto answer = input_.next();
-    if (answer && !input_.interactive()) out_ << *answer << "\n";
-    if (!answer || (*answer != "y" && *answer != "Y" && *answer != "yes")) {
+    // Only y, n or Enter answer; a serial scanned meanwhile is kept for the scan loop and the
+    // question stays open.
+    std::optional<std::string> answer;
+    for (;;) {
+      out_ << fmt::format("{} already tested {} time{} — retest? [y/N] ", serial, tested, tested == 1 ? "" : "s") << std::flush;
+      answer = input_.next_typed();
+      if (answer && !input_.interactive()) out_ << *answer << "\n";
+      if (!answer || answer->empty() || is_yes(*answer) || is_no(*answer) || is_quit(*answer)) break;
+      hold_scanned(*answer);
+    }
+    if (!answer || !is_yes(*answer)) {
       out_ << "Not retested: " << serial << "\n" << std::flush;
       return Outcome::done;
     }

@@ -71,6 +71,8 @@ class Console {
   Result<nlohmann::json> job_events(long id, const std::string& label);
   // Waits for the operator's Enter; false when cancelled. See README for piped input.
   bool confirm(const std::string& prompt);
+  // A serial scanned while a prompt waited: kept for the scan loop, and the operator told so.
+  void hold_scanned(const std::string& serial);
   void show_run(const nlohmann::json& run);
   void show_plot(const std::string& run_id);
   void print_summary();

@@ -1,3 +1,4 @@
+// Scanner and keyboard lines: trimming, look-ahead, serials held back at prompts.
 #include "daemon/client/line_input.hpp"
 
 namespace echoline::client {
@@ -24,6 +25,15 @@ std::optional<std::string> LineInput::peek() {
 }
 
 std::optional<std::string> LineInput::next() {
+  if (!held_.empty()) {
+    std::string serial = std::move(held_.front());
+    held_.pop_front();
+    return serial;
+  }
+  return next_typed();
+}
+
+std::optional<std::string> LineInput::next_typed() {
   auto line = peek();
   has_ahead_ = false;
   ahead_.reset();

@@ -7,6 +7,7 @@
 #include <sys/wait.h>
 #include <unistd.h>
 
+#include <csignal>
 #include <cstring>
 #include <fstream>
 #include <map>
@@ -257,6 +258,102 @@ TEST_F(ConsoleBench, NoColorIsRespectedOnATerminal) {
   const std::string screen = run_on_pty(args, "\n\n\nTINY-07\nq\n", {{"TERM", "xterm"}, {"NO_COLOR", "1"}});
   EXPECT_NE(screen.find("Unit TINY-07"), std::string::npos) << screen;
   EXPECT_EQ(screen.find("\x1b["), std::string::npos) << "colour despite NO_COLOR";
+}
+
+// The console on a pseudo-terminal, driven step by step like a person with a barcode scanner
+// that types each serial followed by Enter in one burst.
+class PtyConsole {
+ public:
+  explicit PtyConsole(const std::vector<std::string>& args) {
+    pid_ = ::forkpty(&master_, nullptr, nullptr, nullptr);
+    if (pid_ == 0) {
+      ::setenv("TERM", "xterm", 1);
+      ::setenv("NO_COLOR", "1", 1);
+      std::vector<char*> argv;
+      for (const auto& a : args) argv.push_back(const_cast<char*>(a.c_str()));
+      argv.push_back(nullptr);
+      ::execv(argv[0], argv.data());
+      ::_exit(127);
+    }
+  }
+  ~PtyConsole() {
+    if (master_ >= 0) ::close(master_);
+    if (pid_ > 0) {
+      ::kill(pid_, SIGKILL);
+      int status = 0;
+      ::waitpid(pid_, &status, 0);
+    }
+  }
+  PtyConsole(const PtyConsole&) = delete;
+  PtyConsole& operator=(const PtyConsole&) = delete;
+
+  void type(const std::string& text) { (void)!::write(master_, text.data(), text.size()); }
+  // Reads until `needle` appears after offset `from` of the screen; false at EOF or after 60 s.
+  bool wait_for(const std::string& needle, std::size_t from = 0) {
+    const auto deadline = std::chrono::steady_clock::now() + 60s;
+    while (screen_.find(needle, from) == std::string::npos) {
+      if (std::chrono::steady_clock::now() > deadline) return false;
+      pollfd p{master_, POLLIN, 0};
+      if (::poll(&p, 1, 200) <= 0) continue;
+      char buf[4096];
+      const ssize_t n = ::read(master_, buf, sizeof buf);
+      if (n <= 0) return false;   // EIO: the console exited
+      screen_.append(buf, static_cast<std::size_t>(n));
+    }
+    return true;
+  }
+  // Reads until the console exits; its exit code.
+  int finish() {
+    while (wait_for("\x01never\x01")) {
+    }
+    int status = 0;
+    ::waitpid(pid_, &status, 0);
+    pid_ = -1;
+    return WIFEXITED(status) ? WEXITSTATUS(status) : -1;
+  }
+  const std::string& screen() const { return screen_; }
+
+ private:
+  int master_ = -1;
+  pid_t pid_ = -1;
+  std::string screen_;
+};
+
+// Scan-ahead: a serial scanned while a calibration prompt or the retest question is open is
+// never taken as the answer and never dropped; every scanned unit is tested, in scan order.
+TEST_F(ConsoleBench, SerialsScannedAheadAtPromptsAreKeptAndTested) {
+  PtyConsole pty({client_binary().string(), "station", "--config", config_, "--sim-fixture", control_, "--lot", "TINY"});
+  ASSERT_TRUE(pty.wait_for("Connect the OPEN standard")) << pty.screen();
+  pty.type("TINY-02\n");   // scanned while the calibration waits for Enter
+  ASSERT_TRUE(pty.wait_for("(serial TINY-02 kept: it is tested next, 1 waiting)")) << pty.screen();
+  pty.type("\n");
+  for (const char* standard : {"SHORT", "LOAD"}) {
+    ASSERT_TRUE(pty.wait_for(fmt::format("Connect the {} standard", standard))) << pty.screen();
+    pty.type("\n");
+  }
+  ASSERT_TRUE(pty.wait_for("Unit TINY-02")) << "the kept serial is tested after the calibration\n" << pty.screen();
+
+  // One burst: a unit, the same unit again, and the next unit before the question is answered.
+  ASSERT_TRUE(pty.wait_for("Scan serial:", pty.screen().find("Unit TINY-02"))) << pty.screen();
+  pty.type("TINY-01\nTINY-01\nTINY-03\n");
+  ASSERT_TRUE(pty.wait_for("(serial TINY-03 kept: it is tested next, 1 waiting)")) << pty.screen();
+  const std::size_t asked_again = pty.screen().find("(serial TINY-03 kept");
+  ASSERT_TRUE(pty.wait_for("TINY-01 already tested 1 time — retest? [y/N]", asked_again)) << "question stays open\n"
+                                                                                      << pty.screen();
+  pty.type("TINY-04\n");   // scanned while the question is visibly open
+  ASSERT_TRUE(pty.wait_for("(serial TINY-04 kept: it is tested next, 2 waiting)")) << pty.screen();
+  pty.type("\n");          // Enter: no retest
+  ASSERT_TRUE(pty.wait_for("Not retested: TINY-01")) << pty.screen();
+  ASSERT_TRUE(pty.wait_for("Unit TINY-04")) << pty.screen();
+  pty.type("q\n");
+  EXPECT_EQ(pty.finish(), 0) << pty.screen();
+  const std::string& screen = pty.screen();
+  // Every scanned unit judged once, kept serials in scan order.
+  const auto at = [&](const std::string& unit) { return screen.find("Unit " + unit + "   verdict"); };
+  for (const char* unit : {"TINY-01", "TINY-02", "TINY-03", "TINY-04"})
+    EXPECT_NE(at(unit), std::string::npos) << unit << "\n" << screen;
+  EXPECT_LT(at("TINY-03"), at("TINY-04")) << screen;
+  EXPECT_NE(screen.find("summary units=4 runs=4"), std::string::npos) << screen;
 }
 
 }  // namespace

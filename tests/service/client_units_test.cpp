@@ -220,5 +220,17 @@ TEST(ClientInput, ScannerLinesAreTrimmedAndPeekDoesNotConsume) {
   EXPECT_FALSE(li.next().has_value());
 }
 
+TEST(ClientInput, HeldSerialsComeFirstInScanOrderButNotToPrompts) {
+  std::istringstream in("y\nC\n");
+  LineInput li(in, false);
+  li.hold("A");
+  li.hold("B");
+  EXPECT_EQ(li.next_typed().value(), "y");   // a prompt reads what is typed after it
+  EXPECT_EQ(li.next().value(), "A");
+  EXPECT_EQ(li.next().value(), "B");
+  EXPECT_EQ(li.next().value(), "C");
+  EXPECT_EQ(li.held(), 0u);
+}
+
 }  // namespace
 }  // namespace echoline::client
