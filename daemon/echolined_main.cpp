@@ -23,6 +23,7 @@
 #include "daemon/service/sd_notify.hpp"
 #include "daemon/service/stderr_sink.hpp"
 #include "daemon/service/watchdog.hpp"
+#include "daemon/web/web_server.hpp"
 #include "daemon/service/station.hpp"
 #include "drivers/config_error.hpp"
 #include "drivers/station_config.hpp"
@@ -48,6 +49,10 @@ options:
   --socket PATH            Unix socket path (overrides api.unix_socket)
   --tcp-port N|auto        TCP port on api.tcp_host, 0 to 65535 (0 = off), or auto for any
                            free port (shown in the listening line); overrides api.tcp_port
+  --web-port N|auto        port of the pages and /metrics on web.host, 0 to 65535 (0 = off), or
+                           auto for any free port (shown in the listening line); overrides
+                           web.port. Open http://127.0.0.1:N/ for the operator page and
+                           http://127.0.0.1:N/supervisor for the line supervisor's
   --on-stop abort|finish   on SIGTERM: abort the running test (default, stored as aborted
                            with reason "daemon stopping") or let it finish first
   --log-level LEVEL        trace, debug, info (default), warn, error
@@ -66,7 +71,7 @@ struct Args {
   std::string config;
   std::vector<std::pair<std::string, std::string>> overrides;
   std::string data_dir, log_dir, recipe, socket, log_level = "info", on_stop = "abort";
-  std::optional<int> tcp_port;
+  std::optional<int> tcp_port, web_port;
   bool rf_off = false;
 };
 
@@ -76,6 +81,14 @@ constexpr int kAnyFreePort = -1;
 [[noreturn]] void usage_error(const std::string& message) {
   std::cerr << "echolined: " << message << "\n(see echolined --help)\n";
   std::exit(2);
+}
+
+// A port option: 0 to 65535, or auto (kAnyFreePort); anything else is a usage error.
+int port_option(const char* option, const std::string& v, const char* meaning) {
+  if (v == "auto") return kAnyFreePort;
+  const auto port = drivers::parse_whole_number(v, 0, 65535);
+  if (!port) usage_error(drivers::whole_number_error(option, v, 0, 65535, meaning));
+  return static_cast<int>(*port);
 }
 
 Args parse_args(int argc, char** argv) {
@@ -108,14 +121,9 @@ Args parse_args(int argc, char** argv) {
     } else if (arg == "--socket") {
       a.socket = value(i);
     } else if (arg == "--tcp-port") {
-      const std::string v = value(i);
-      if (v == "auto") {
-        a.tcp_port = kAnyFreePort;
-      } else {
-        const auto port = drivers::parse_whole_number(v, 0, 65535);
-        if (!port) usage_error(drivers::whole_number_error("--tcp-port", v, 0, 65535, "0 = no TCP listener; or auto"));
-        a.tcp_port = static_cast<int>(*port);
-      }
+      a.tcp_port = port_option("--tcp-port", value(i), "0 = no TCP listener; or auto");
+    } else if (arg == "--web-port") {
+      a.web_port = port_option("--web-port", value(i), "0 = no pages; or auto");
     } else if (arg == "--on-stop") {
       a.on_stop = value(i);
       if (a.on_stop != "abort" && a.on_stop != "finish") usage_error("--on-stop must be abort or finish");
@@ -192,6 +200,7 @@ int run(const Args& args) {
   if (!args.recipe.empty()) config.recipe = std::filesystem::absolute(args.recipe);
   if (!args.socket.empty()) config.api.unix_socket = std::filesystem::absolute(args.socket);
   if (args.tcp_port) config.api.tcp_port = *args.tcp_port;
+  if (args.web_port) config.web.port = *args.web_port;
 
   setup_logging(config, args.log_level);
   if (args.rf_off) return rf_off(config);
@@ -209,6 +218,9 @@ int run(const Args& args) {
   service::Station station(config);
   station.connect_instruments();
   service::ApiHandler handler(station, token);
+  // The pages watch the handler's jobs: started before the API serves, stopped after the handler.
+  std::unique_ptr<web::WebServer> pages;
+  if (config.web.port != 0) pages = std::make_unique<web::WebServer>(handler, station, web::WebOptions{config.web.host, config.web.port, token});
   service::ServerOptions so;
   so.unix_socket = config.api.unix_socket;
   so.tcp_host = config.api.tcp_host;
@@ -217,8 +229,10 @@ int run(const Args& args) {
   auto server = service::ApiServer::create(handler, so);
   std::thread io([&] { server->run(); });
 
-  std::cout << "listening unix=" << server->unix_path() << " tcp=" << server->tcp_address() << std::endl;
-  spdlog::info("listening unix={} tcp={}", server->unix_path(), server->tcp_address());
+  const std::string web_address = pages ? "http://" + pages->address() + "/" : "";
+  std::cout << "listening unix=" << server->unix_path() << " tcp=" << server->tcp_address() << " web=" << web_address
+            << std::endl;
+  spdlog::info("listening unix={} tcp={} web={}", server->unix_path(), server->tcp_address(), web_address);
   service::sd_notify_state("READY=1");
   // Under WatchdogSec=: pings only while the sweep engine makes progress (watchdog.hpp).
   std::optional<service::WatchdogNotifier> watchdog;
@@ -236,6 +250,7 @@ int run(const Args& args) {
     handler.finish_and_stop();
   }
   handler.stop("daemon stopping");
+  if (pages) pages->stop();
   server->stop();
   io.join();
   server.reset();

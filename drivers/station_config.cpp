@@ -51,6 +51,20 @@ void load_api(const JsoncDocument& doc, const std::filesystem::path& base, const
                                           "could otherwise drive the instruments", a.tcp_host));
 }
 
+bool is_loopback_host(const std::string& host) { return host == "127.0.0.1" || host == "::1" || host == "localhost"; }
+
+void load_web(const JsoncDocument& doc, const ApiConfig& api, WebConfig& w) {
+  const JsonPointer at = kRoot / "web";
+  doc.check_keys(at, {"host", "port"});
+  w.host = doc.string_or(at / "host", w.host);
+  if (w.host.empty()) doc.fail(at / "host", "must not be empty");
+  w.port = static_cast<int>(doc.integer_or(at / "port", w.port));
+  if (w.port < 0 || w.port > 65535) doc.fail(at / "port", "must be 0 (pages off) or a port 1..65535");
+  if (w.port != 0 && !is_loopback_host(w.host) && api.token_file.empty())
+    doc.fail(at / "host", fmt::format("serving the pages on {} (not loopback) needs api.token_file: anyone on the "
+                                      "network could otherwise drive the instruments", w.host));
+}
+
 void load_instruments(const JsoncDocument& doc, const std::filesystem::path& base, std::vector<InstrumentConfig>& out) {
   const JsonPointer at = kRoot / "instruments";
   const auto& arr = doc.require_array(at);
@@ -88,7 +102,7 @@ StationConfig load_station_config(const std::filesystem::path& file) {
   JsoncDocument doc = JsoncDocument::load(file);
   if (!doc.root().is_object()) doc.fail(kRoot, "a station config is a JSON object {...}");
   doc.check_keys(kRoot, {"station", "data_dir", "log_dir", "recipe", "instruments", "fixture", "api", "serial_pattern",
-                        "calibration_kit"});
+                        "calibration_kit", "web"});
   const std::filesystem::path base = std::filesystem::absolute(file).parent_path();
   StationConfig c;
   c.file = doc.file();
@@ -107,6 +121,7 @@ StationConfig load_station_config(const std::filesystem::path& file) {
     }
   }
   load_api(doc, base, c.data_dir, c.api);
+  load_web(doc, c.api, c.web);
   c.serial_pattern = doc.string_or(kRoot / "serial_pattern", c.serial_pattern);
   try {
     std::regex re(c.serial_pattern, std::regex::ECMAScript);

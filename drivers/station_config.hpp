@@ -33,6 +33,12 @@ struct ApiConfig {
   std::filesystem::path token_file;    // absolute after loading; "" = none
 };
 
+// The browser pages and /metrics (daemon/web/): loopback only unless a token file is configured.
+struct WebConfig {
+  std::string host = "127.0.0.1";      // loopback unless set otherwise
+  int port = 0;                        // 0 = pages off
+};
+
 struct StationConfig {
   std::string station;
   std::filesystem::path data_dir, log_dir, recipe;   // absolute after loading
@@ -40,6 +46,7 @@ struct StationConfig {
   FixtureConfig fixture;
   std::filesystem::path calibration_kit;                    // kit definition file (absolute); "" = built-in conservative kit
   ApiConfig api;
+  WebConfig web;
   std::string serial_pattern = "^[A-Za-z0-9._-]{1,64}$";   // ECMAScript regex for unit serials
   std::string file;                                         // the file it was loaded from
 

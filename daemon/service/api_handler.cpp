@@ -12,6 +12,7 @@
 #include "daemon/store/documents.hpp"
 #include "daemon/store/export.hpp"
 #include "daemon/service/clock.hpp"
+#include "daemon/service/lot_summary.hpp"
 #include "drivers/config_error.hpp"
 #include "echoline/version.hpp"
 
@@ -77,9 +78,12 @@ class ApiHandler::CalPrompter : public Prompter {
     h_.answered_ = false;
     h_.busy_info_["standard"] = standard;
     h_.busy_info_["waiting"] = true;
-    link_->send(event_line(id_, "prompt",
-                           {{"standard", standard},
-                            {"message", fmt::format("connect the {} standard to the test port, then answer", standard)}}));
+    json prompt = {{"standard", standard},
+                   {"message", fmt::format("connect the {} standard to the test port, then answer", standard)}};
+    link_->send(event_line(id_, "prompt", prompt));
+    prompt["event"] = "prompt";
+    prompt["job"] = h_.busy_info_.value("kind", "calibration");
+    h_.tap(std::move(prompt));
     while (!h_.answered_ && !h_.cancel_.cancelled()) {
       if (!link_->alive()) {
         lock.unlock();
@@ -152,19 +156,42 @@ bool ApiHandler::start_job(std::string kind, json busy, std::shared_ptr<ClientLi
   if (worker_.joinable()) worker_.join();   // the previous job has finished (busy_ is false)
   busy_ = true;
   busy_info_ = std::move(busy);
-  busy_info_["kind"] = std::move(kind);
+  busy_info_["kind"] = kind;
   cancel_.reset();
   link->send(std::move(accepted));
-  worker_ = std::thread([this, link = std::move(link), job = std::move(job)] {
+  json started = busy_info_;
+  started["event"] = "started";
+  started["job"] = kind;
+  tap(std::move(started));
+  worker_ = std::thread([this, kind, link = std::move(link), job = std::move(job)] {
     std::string final_event = job();
     {
       std::lock_guard l(mu_);
       busy_ = false;
       busy_info_ = nullptr;
     }
+    if (tap_) {
+      // The watchers get the same final event, without the request's id.
+      json ev = json::parse(final_event, nullptr, /*allow_exceptions=*/false);
+      if (ev.is_object()) {
+        ev.erase("id");
+        ev.erase("v");
+        ev["job"] = kind;
+        tap(std::move(ev));
+      }
+    }
     link->send(std::move(final_event));
   });
   return true;
+}
+
+void ApiHandler::tap(json event) const {
+  if (!tap_) return;
+  try {
+    tap_(event);
+  } catch (const std::exception& e) {
+    spdlog::warn("event watcher: {}", e.what());
+  }
 }
 
 void ApiHandler::set_progress(int point, int of, const std::string& standard) {
@@ -217,6 +244,7 @@ void ApiHandler::dispatch(const std::shared_ptr<ClientLink>& link, ConnectionSta
   if (call == "export") return call_export(link, req);
   if (call == "run.get") return call_run_get(link, req);
   if (call == "recipe.select") return call_recipe_select(link, req);
+  if (call == "lot.summary") return call_lot_summary(link, req);
   fail(link, req.id, "unknown_call", fmt::format("request: unknown call \"{}\"", call));
 }
 
@@ -253,7 +281,10 @@ void ApiHandler::call_test_start(const std::shared_ptr<ClientLink>& link, const 
     ProgressGate gate;
     TestOutcome out = station_.run_test(t, cancel_, [&](int i, int n) {
       set_progress(i, n, "");
-      if (gate.due(i, n)) link->send(event_line(id, "progress", {{"point", i}, {"of", n}}));
+      if (gate.due(i, n)) {
+        link->send(event_line(id, "progress", {{"point", i}, {"of", n}}));
+        tap({{"event", "progress"}, {"job", "test"}, {"serial", t.serial}, {"point", i}, {"of", n}});
+      }
     });
     json run = run_json(out.run);
     run["stored"] = static_cast<bool>(out.stored);
@@ -283,7 +314,10 @@ void ApiHandler::call_cal_start(const std::shared_ptr<ClientLink>& link, const R
     ProgressGate gate;
     auto progress = [&](const std::string& standard, int i, int n) {
       set_progress(i, n, standard);
-      if (gate.due(i, n)) link->send(event_line(id, "progress", {{"standard", standard}, {"point", i}, {"of", n}}));
+      if (gate.due(i, n)) {
+        link->send(event_line(id, "progress", {{"standard", standard}, {"point", i}, {"of", n}}));
+        tap({{"event", "progress"}, {"job", check_only ? "check" : "calibration"}, {"standard", standard}, {"point", i}, {"of", n}});
+      }
     };
     if (check_only) {
       CheckOutcome out = station_.run_check(prompter, cancel_, progress);
@@ -408,6 +442,23 @@ void ApiHandler::call_recipe_select(const std::shared_ptr<ClientLink>& link, con
   } catch (const drivers::ConfigError& e) {
     fail(link, req.id, "config", e.what());
   }
+}
+
+void ApiHandler::call_lot_summary(const std::shared_ptr<ClientLink>& link, const Request& req) {
+  std::string lot = req.args.value("lot", "");
+  if (lot.empty()) {
+    auto latest = station_.store().latest_lot();
+    if (!latest) return fail(link, req.id, "storage", latest.error().message);
+    lot = latest->value_or("");
+  }
+  if (lot.empty()) return reply(link, req.id, lot_summary_json("", {}, std::nullopt, station_.recipe()->limits));
+  auto runs = station_.store().lot_runs(lot, false);
+  if (!runs) return fail(link, req.id, "storage", runs.error().message);
+  auto yields = station_.store().yield_by(store::YieldGroup::lot, lot);
+  if (!yields) return fail(link, req.id, "storage", yields.error().message);
+  std::optional<store::YieldSummary> y;
+  if (!yields->empty()) y = yields->front();
+  reply(link, req.id, lot_summary_json(lot, *runs, y, station_.recipe()->limits));
 }
 
 }  // namespace echoline::service

@@ -11,6 +11,7 @@
 #include <optional>
 #include <string>
 #include <string_view>
+#include <functional>
 #include <thread>
 
 #include <nlohmann/json.hpp>
@@ -36,6 +37,12 @@ struct ConnectionState {
   bool loopback = true;
 };
 
+// Watches every job the station runs, whoever started it (the pages and /metrics): one JSON
+// object per event, {"event":"started"|"progress"|"prompt"|"result"|"error","job":"test"|
+// "calibration"|"check",...} with the fields of the API event (API.md). Called on the worker
+// thread and on the thread that starts a job; must return quickly and never throw.
+using EventTap = std::function<void(const nlohmann::json& event)>;
+
 // Compares two secrets in time that depends only on their lengths' maximum.
 bool constant_time_equal(std::string_view a, std::string_view b);
 
@@ -47,7 +54,11 @@ class ApiHandler {
   ApiHandler(const ApiHandler&) = delete;
   ApiHandler& operator=(const ApiHandler&) = delete;
 
+  // Sets the watcher of every job's events (see EventTap). Call before serving.
+  void set_event_tap(EventTap tap) { tap_ = std::move(tap); }
+
   // Handles one request line; the reply goes to `link` (events later, from the worker).
+  // May be called from several threads at once (the API server's io thread, the page server's).
   // Returns false when the connection must be closed after the reply (oversized line).
   bool handle_line(const std::shared_ptr<ClientLink>& link, ConnectionState& state, std::string_view line);
 
@@ -84,9 +95,12 @@ class ApiHandler {
   void call_export(const std::shared_ptr<ClientLink>&, const Request&);
   void call_run_get(const std::shared_ptr<ClientLink>&, const Request&);
   void call_recipe_select(const std::shared_ptr<ClientLink>&, const Request&);
+  void call_lot_summary(const std::shared_ptr<ClientLink>&, const Request&);
+  void tap(Json event) const;
 
   Station& station_;
   std::string token_;
+  EventTap tap_;
 
   mutable std::mutex mu_;            // guards the job state below
   std::condition_variable cv_;       // calibration answers, cancellation

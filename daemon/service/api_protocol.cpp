@@ -40,6 +40,7 @@ const std::vector<CallSpec>& calls() {
       {"runs.history", {{"serial", ArgType::string, true}}},
       {"runs.lot", {{"lot", ArgType::string, true}}},
       {"run.get", {{"run_id", ArgType::string, true}}},
+      {"lot.summary", {{"lot", ArgType::string, false}}},
       // "path" is accepted only to be refused with a clear message: the daemon writes no file.
       {"report.lot", {{"lot", ArgType::string, true}, {"path", ArgType::string, false}}},
       {"export",

@@ -60,6 +60,8 @@ void Instruments::set_health(const Entry& e, bool healthy, const std::string& id
   std::lock_guard lock(mu_);
   auto& h = health_[e.config.role];
   h.healthy = healthy;
+  if (!healthy && !error.empty()) ++h.errors;
+  if (healthy && e.up_once) ++h.reconnects;
   if (!identity.empty()) h.identity = identity;
   h.last_error = error;
 }
@@ -79,6 +81,7 @@ Status Instruments::bring_up(Entry& e) {
   }
   if (!s) return s;
   set_health(e, true, identity, "");
+  e.up_once = true;
   return {};
 }
 

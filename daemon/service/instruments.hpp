@@ -25,6 +25,8 @@ struct InstrumentHealth {
   std::string identity;     // raw-ish "*IDN?" fields joined by ','; "" until identified
   bool healthy = false;
   std::string last_error;
+  int errors = 0;           // errors reported against this instrument since the daemon started
+  int reconnects = 0;       // successful bring-ups after the first one
 };
 
 class Instruments {
@@ -64,6 +66,7 @@ class Instruments {
     drivers::Profile profile;
     std::unique_ptr<drivers::ScpiSession> session;
     bool ready = false;
+    bool up_once = false;   // brought up at least once (a later bring-up is a reconnect)
   };
   Status bring_up(Entry& e);
   void set_health(const Entry& e, bool healthy, const std::string& identity, const std::string& error);

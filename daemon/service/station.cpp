@@ -214,6 +214,10 @@ json Station::calibration_json() const {
   if (!check_failure_.empty()) st = {true, check_failure_};
   if (calibration_) {
     j.update(calibration_summary_json(*calibration_));
+    // When the next calibration falls due by age or by count (a drifted check standard or a
+    // temperature change can make it due sooner).
+    j["expires_utc"] = utc_iso8601(calibration_created_s_ + recipe_->calibration.max_age_s);
+    j["max_units"] = recipe_->calibration.max_units;
   }
   j["due"] = st.due;
   j["reason"] = st.reason;
@@ -233,7 +237,9 @@ json Station::status_json() const {
                            {"address", h.address},
                            {"identity", h.identity},
                            {"healthy", h.healthy},
-                           {"last_error", h.last_error}});
+                           {"last_error", h.last_error},
+                           {"errors", h.errors},
+                           {"reconnects", h.reconnects}});
   }
   auto r = recipe();
   return {{"station", config_.station},

@@ -537,6 +537,16 @@ Result<int> RunStore::run_count(std::string_view serial) {
   return static_cast<int>(st->integer(0));
 }
 
+Result<std::optional<std::string>> RunStore::latest_lot() {
+  std::lock_guard lock(impl_->mutex);
+  auto st = impl_->db.prepare("SELECT lot FROM runs WHERE lot <> '' ORDER BY started_utc DESC, seq DESC LIMIT 1");
+  if (!st.ok()) return st.error();
+  auto row = st->step();
+  if (!row.ok()) return impl_->fail(row.error(), "finding the latest lot");
+  if (!*row) return std::optional<std::string>{};
+  return std::optional<std::string>(st->text(0));
+}
+
 Result<std::optional<UnitSummary>> RunStore::unit(std::string_view serial) {
   std::lock_guard lock(impl_->mutex);
   auto st = impl_->db.prepare(

@@ -128,6 +128,8 @@ class RunStore {
   Result<std::vector<core::RunResult>> runs_between(std::string_view from_utc, std::string_view to_utc,
                                                     bool with_points = false);
   Result<int> run_count(std::string_view serial);
+  // The lot of the most recently started run that has one; nullopt when none has.
+  Result<std::optional<std::string>> latest_lot();
   Result<std::optional<UnitSummary>> unit(std::string_view serial);
 
   // The most recently created calibration (created_utc, then insertion), with traces.

@@ -110,6 +110,21 @@ TEST(StationConfig, NonLoopbackApiNeedsAToken) {
   EXPECT_EQ(c.api.tcp_port, 7000);
 }
 
+TEST(StationConfig, PagesAreOffByDefaultAndLoopbackOnly) {
+  testing::TempDir dir;
+  StationConfig c = load_station_config(write(dir, station_text()));
+  EXPECT_EQ(c.web.port, 0);
+  EXPECT_EQ(c.web.host, "127.0.0.1");
+  ConfigError range = load_error(write(dir, station_text("", ",\n  \"web\": {\"port\": 70000}")));
+  EXPECT_EQ(range.key, "/web/port");
+  ConfigError open = load_error(write(dir, station_text("", ",\n  \"web\": {\"host\": \"0.0.0.0\", \"port\": 8080}")));
+  EXPECT_EQ(open.key, "/web/host");
+  EXPECT_NE(std::string(open.what()).find("token_file"), std::string::npos) << open.what();
+  c = load_station_config(write(
+      dir, station_text("", ",\n  \"api\": {\"token_file\": \"tok\"},\n  \"web\": {\"host\": \"0.0.0.0\", \"port\": 8080}")));
+  EXPECT_EQ(c.web.port, 8080);
+}
+
 TEST(StationConfig, OutOfRangeFixtureValueNamesUnitAndRange) {
   testing::TempDir dir;
   ConfigError e = load_error(write(dir, station_text("", ",\n  \"fixture\": {\"coupling_db\": -20}")));

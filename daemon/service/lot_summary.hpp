@@ -1,0 +1,25 @@
+// The supervisor's view of one lot (API call lot.summary): yield by the store's one definition,
+// failure Pareto, resonance histogram and spread, the last units. Pure; thread-safe.
+#pragma once
+
+#include <optional>
+#include <string>
+#include <vector>
+
+#include <nlohmann/json.hpp>
+
+#include "daemon/core/recipe.hpp"
+#include "daemon/core/run_result.hpp"
+#include "daemon/store/run_store.hpp"
+
+namespace echoline::service {
+
+inline constexpr int kLastUnitsShown = 50;
+inline constexpr int kResonanceBins = 20;
+
+// `runs`: the lot's runs in run order, without points. `yield`: store::RunStore::yield_by for
+// the lot (nullopt when it has no runs). The result is documented in API.md (lot.summary).
+nlohmann::json lot_summary_json(const std::string& lot, const std::vector<core::RunResult>& runs,
+                                const std::optional<store::YieldSummary>& yield, const core::Limits& limits);
+
+}  // namespace echoline::service

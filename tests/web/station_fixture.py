@@ -1,0 +1,211 @@
+"""A real station for the page tests: echoline-sim and echolined as child processes on
+loopback, a station config with the pages on a fixed free port, the simulator's fixture
+control port (the operator's hands: connect a unit or a standard), the JSON-lines API on the
+Unix socket (the console's way in) and read-only queries of the SQLite run store.
+
+Binaries and the source folder come from the environment ctest sets (tests/web/CMakeLists.txt):
+ECHOLINE_SIM_BIN, ECHOLINE_DAEMON_BIN, ECHOLINE_SOURCE_DIR.
+"""
+import json
+import os
+import shutil
+import socket
+import sqlite3
+import subprocess
+import tempfile
+import time
+import urllib.request
+
+SRC = os.environ.get("ECHOLINE_SOURCE_DIR", os.path.abspath(os.path.join(os.path.dirname(__file__), "..", "..")))
+SIM = os.environ.get("ECHOLINE_SIM_BIN", os.path.join(SRC, "build", "simulator", "echoline-sim"))
+DAEMON = os.environ.get("ECHOLINE_DAEMON_BIN", os.path.join(SRC, "build", "daemon", "echolined"))
+TOKEN = "page-test-token-0123456789abcdef"
+
+
+def free_port():
+    with socket.socket() as s:
+        s.bind(("127.0.0.1", 0))
+        return s.getsockname()[1]
+
+
+def wait_line(proc, prefix, timeout_s, what):
+    """Reads the child's stdout until a line starting with `prefix`; returns that line."""
+    deadline = time.monotonic() + timeout_s
+    seen = []
+    while time.monotonic() < deadline:
+        line = proc.stdout.readline()
+        if not line:
+            raise RuntimeError(f"{what} ended before printing '{prefix}': {seen}")
+        line = line.strip()
+        seen.append(line)
+        if line.startswith(prefix):
+            return line, seen
+    raise RuntimeError(f"{what}: no '{prefix}' line within {timeout_s} s: {seen}")
+
+
+class Station:
+    def __init__(self, lot="config/sim/lots/whip915-lot-a.jsonc", sim_config="config/sim/instant.jsonc"):
+        self.work = tempfile.mkdtemp(prefix="echoline-web-")
+        self.lot = os.path.join(SRC, lot)
+        self.sim_config = os.path.join(SRC, sim_config)
+        self.web_port = free_port()
+        self.sim = None
+        self.daemon = None
+        self.endpoints = {}
+        self.daemon_log = open(os.path.join(self.work, "echolined.stderr"), "ab")
+
+    # --- processes ---
+    def start(self):
+        self.start_sim()
+        self.write_config()
+        self.start_daemon()
+        return self
+
+    def start_sim(self):
+        self.sim = subprocess.Popen([SIM, "--config", self.sim_config, "--lot", self.lot, "--log-level", "warn"],
+                                    stdout=subprocess.PIPE, stderr=subprocess.DEVNULL, text=True)
+        _, lines = wait_line(self.sim, "ready", 30, "echoline-sim")
+        for line in lines:
+            fields = dict(f.split("=", 1) for f in line.split()[1:] if "=" in f)
+            if line.startswith("endpoint"):
+                self.endpoints[fields["role"]] = fields["address"]
+
+    def write_config(self):
+        with open(os.path.join(self.work, "token"), "w") as f:
+            f.write(TOKEN + "\n")
+        config = {
+            "station": "web-bench",
+            "data_dir": os.path.join(self.work, "data"),
+            "log_dir": os.path.join(self.work, "log"),
+            "recipe": os.path.join(SRC, "config/recipes/whip915.jsonc"),
+            "instruments": [
+                {"role": "source", "name": "siggen", "address": self.endpoints["source"],
+                 "profile": os.path.join(SRC, "config/instruments/sim-source.jsonc")},
+                {"role": "receiver", "name": "analyzer", "address": self.endpoints["receiver"],
+                 "profile": os.path.join(SRC, "config/instruments/sim-receiver.jsonc")},
+            ],
+            "calibration_kit": os.path.join(SRC, "config/kits/sim-kit.jsonc"),
+            "fixture": {"coupling_db": 20, "mainline_loss_db": 0.5, "cable_loss_db": 0.3, "source_match_db": 25,
+                        "nominal_directivity_db": 35, "test_port_delay_ns": 2},
+            "api": {"unix_socket": os.path.join(self.work, "api.sock"), "token_file": os.path.join(self.work, "token")},
+            "web": {"host": "127.0.0.1", "port": self.web_port},
+        }
+        with open(os.path.join(self.work, "station.jsonc"), "w") as f:
+            json.dump(config, f, indent=2)
+
+    def start_daemon(self):
+        self.daemon = subprocess.Popen([DAEMON, "--config", os.path.join(self.work, "station.jsonc"), "--log-level", "warn"],
+                                       stdout=subprocess.PIPE, stderr=self.daemon_log, text=True)
+        line, _ = wait_line(self.daemon, "listening", 30, "echolined")
+        self.url = line.split("web=", 1)[1].strip()
+        assert self.url == f"http://127.0.0.1:{self.web_port}/", line
+
+    def stop_daemon(self):
+        if self.daemon and self.daemon.poll() is None:
+            self.daemon.terminate()
+            self.daemon.wait(30)
+        self.daemon = None
+
+    def close(self):
+        self.stop_daemon()
+        if self.sim and self.sim.poll() is None:
+            self.sim.terminate()
+            self.sim.wait(10)
+        self.daemon_log.close()
+        if os.environ.get("ECHOLINE_KEEP_WORK"):
+            print("work folder kept:", self.work)
+        else:
+            shutil.rmtree(self.work, ignore_errors=True)
+
+    # --- the operator's hands on the simulated fixture ---
+    def control(self, request):
+        host, port = self.endpoints["control"][len("tcp://"):].rsplit(":", 1)
+        with socket.create_connection((host, int(port)), timeout=10) as s:
+            s.sendall((json.dumps(request) + "\n").encode())
+            reply = s.makefile().readline()
+        answer = json.loads(reply)
+        assert answer.get("ok"), f"fixture control {request}: {answer}"
+        return answer
+
+    def connect_unit(self, serial):
+        return self.control({"cmd": "connect", "unit": serial})
+
+    def connect_standard(self, standard):
+        return self.control({"cmd": "connect", "standard": standard})
+
+    def units(self):
+        return self.control({"cmd": "units"})["units"]
+
+    # --- the console's way in: the JSON-lines API on the Unix socket ---
+    def api_session(self, role="operator"):
+        return ApiSession(os.path.join(self.work, "api.sock"), role)
+
+    # --- HTTP as a plain client ---
+    def http(self, path, method="GET", body=None, headers=None):
+        req = urllib.request.Request(self.url.rstrip("/") + path, method=method, data=body, headers=headers or {})
+        try:
+            with urllib.request.urlopen(req, timeout=10) as r:
+                return r.status, dict(r.headers), r.read().decode()
+        except urllib.error.HTTPError as e:
+            return e.code, dict(e.headers), e.read().decode()
+
+    # --- the store, read-only ---
+    def store(self):
+        db = sqlite3.connect(f"file:{os.path.join(self.work, 'data', 'web-bench.sqlite')}?mode=ro", uri=True, timeout=10)
+        return db
+
+
+class ApiSession:
+    """One JSON-lines connection, as `echoline station` keeps one."""
+
+    def __init__(self, path, role):
+        self.sock = socket.socket(socket.AF_UNIX)
+        self.sock.connect(path)
+        self.file = self.sock.makefile("rw")
+        self.next_id = 1
+        args = {"role": role, "client": "console in the page test"}
+        if role == "engineer":
+            args["token"] = TOKEN
+        self.call("hello", args)
+
+    def send(self, call, args=None):
+        rid = self.next_id
+        self.next_id += 1
+        self.file.write(json.dumps({"v": 1, "id": rid, "call": call, "args": args or {}}) + "\n")
+        self.file.flush()
+        return rid
+
+    def read(self):
+        return json.loads(self.file.readline())
+
+    def call(self, call, args=None):
+        rid = self.send(call, args)
+        while True:
+            m = self.read()
+            if m.get("id") == rid and "ok" in m:
+                assert m["ok"], f"{call}: {m}"
+                return m["result"]
+
+    def until_event(self, kinds=("result", "error")):
+        while True:
+            m = self.read()
+            if m.get("event") in kinds:
+                return m
+
+    def close(self):
+        self.sock.close()
+
+
+def calibrate_over_api(station, session):
+    """Calibrates as the console does: answer each prompt after connecting the standard."""
+    session.send("cal.start")
+    while True:
+        m = session.read()
+        if m.get("event") == "prompt":
+            station.connect_standard(m["standard"])
+            session.send("cal.answer", {"standard": m["standard"]})
+        elif m.get("event") == "result":
+            assert m["calibration"]["valid"], m
+            return m
+        elif m.get("event") == "error" or m.get("ok") is False:
+            raise AssertionError(f"calibration failed: {m}")
