@@ -72,6 +72,8 @@ class OperatorPageTest(unittest.TestCase):
                                lambda: by_id(d, "cal-go").is_enabled() and "connected" in by_id(d, "cal-go").text
                                and d.find_element(By.CSS_SELECTOR, "#cal-steps li.current").get_attribute("data-standard"))
             self.assertIn(f"Connect the {current} standard", by_id(d, "cal-text").text)
+            if current == "SHORT":
+                screenshot(d, "operator-calibration-1024x600")
             self.station.connect_standard(current)
             press(d, Keys.F2)
             measured.append(current)
@@ -100,6 +102,8 @@ class OperatorPageTest(unittest.TestCase):
                 self.assertTrue(by_id(d, "verdict-reason").text, f"{serial}: a {verdict} needs its reason in words")
             row = self.stored(previous)
             self.assertEqual(row[:3], (serial, verdict, LOT))
+            if verdict == "fail" and "fail" not in seen.values():
+                screenshot(d, "operator-fail-1024x600")
             seen[serial] = verdict
             if len(seen) == 3:
                 screenshot(d, "operator-1024x600")
@@ -187,15 +191,67 @@ class OperatorPageTest(unittest.TestCase):
         press(d, Keys.F2)
         run_id, _ = self.wait_verdict(serial, previous)
         self.assertEqual(self.station.store().execute("SELECT retest FROM runs WHERE run_id = ?", (run_id,)).fetchone()[0], 1)
+        set_viewport(d, 1920, 1080)
+        screenshot(d, "operator-1920x1080")
+        set_viewport(d, 1024, 600)
         # Skipping a retest tests nothing and says so.
         self.scan(serial)
         wait_for("the retest question again", lambda: by_id(d, "question").is_displayed())
         press(d, Keys.ESCAPE)
         wait_for("the skip notice", lambda: "skipped" in by_id(d, "notice").text)
         self.assertEqual(self.station.store().execute("SELECT count(*) FROM runs WHERE serial = ?", (serial,)).fetchone()[0], 2)
-        set_viewport(d, 1920, 1080)
-        screenshot(d, "operator-1920x1080")
-        set_viewport(d, 1024, 600)
+        # The last verdict stays in view after a skip.
+        self.assertTrue(self.verdict_box().is_displayed())
+        self.assertEqual(self.verdict_box().get_attribute("data-run-id"), run_id)
+
+    def test_6_text_contrast_meets_wcag_aa(self):
+        """Every verdict's word on its own background, and the page's other text, reach 4.5:1
+        (WCAG 2.1 success criterion 1.4.3, contrast ratio and relative luminance as defined
+        there), read from the colours Chromium computes."""
+        d = self.driver
+        pairs = d.execute_script("""
+            const out = [];
+            const probe = (cls, parentCls) => {
+              const host = document.createElement('div');
+              if (parentCls) host.className = parentCls;
+              const e = document.createElement('span');
+              e.className = cls; e.textContent = 'x';
+              host.append(e); document.body.append(host);
+              const fg = getComputedStyle(e).color;
+              let n = e, bg = 'rgba(0, 0, 0, 0)';
+              while (n && (bg === 'rgba(0, 0, 0, 0)' || bg === 'transparent')) { bg = getComputedStyle(n).backgroundColor; n = n.parentElement; }
+              host.remove();
+              return [cls + ' in ' + (parentCls || 'page'), fg, bg];
+            };
+            for (const v of ['pass', 'fail', 'inconclusive', 'aborted']) {
+              out.push(probe('verdict-word', 'verdict v-' + v));
+              out.push(probe('vtag v-' + v));
+            }
+            out.push(probe('hint'), probe('verdict-detail'), probe('run-count'), probe('rf-note'), probe('notice'));
+            out.push(probe('brand', 'strip'), probe('strip-item', 'strip'));
+            out.push(probe('keys-link', 'keys'), probe('x', 'keys'));
+            return out;""")
+        for name, fg, bg in pairs:
+            ratio = contrast(parse_rgb(fg), parse_rgb(bg))
+            self.assertGreaterEqual(ratio, 4.5, f"{name}: {fg} on {bg} is {ratio:.2f}:1")
+
+
+def parse_rgb(text):
+    parts = text[text.index("(") + 1:text.index(")")].split(",")
+    return tuple(int(float(p)) for p in parts[:3])
+
+
+def contrast(a, b):
+    """WCAG 2.1 contrast ratio (L1 + 0.05) / (L2 + 0.05) of sRGB colours (W3C WCAG 2.1, definitions
+    of contrast ratio and relative luminance)."""
+    def lum(c):
+        def chan(v):
+            v = v / 255
+            return v / 12.92 if v <= 0.03928 else ((v + 0.055) / 1.055) ** 2.4
+        r, g, b = (chan(v) for v in c)
+        return 0.2126 * r + 0.7152 * g + 0.0722 * b
+    hi, lo = sorted((lum(a), lum(b)), reverse=True)
+    return (hi + 0.05) / (lo + 0.05)
 
 
 if __name__ == "__main__":

@@ -10,6 +10,7 @@ const state = {
   asking: null,       // serial whose retest question is open
   starting: false,    // a test.start or history call is on its way
   calDone: [],        // standards measured in the calibration in progress
+  shown: false,       // a verdict has been shown: it stays until the next unit starts
 };
 
 function show(panel) {
@@ -99,13 +100,13 @@ function renderRun() {
 function renderIdle() {
   if (state.asking) return show("question");
   if (calibrationDue()) return renderCalibration();
-  if (!byId("verdict-panel").hidden) return;
-  show("idle-panel");
+  show(state.shown ? "verdict-panel" : "idle-panel");
 }
 
 function renderVerdict(ev) {
   const run = ev.run;
   const v = run.verdict;
+  state.shown = true;
   show("verdict-panel");
   const box = byId("verdict");
   box.dataset.verdict = v;
@@ -132,7 +133,8 @@ function renderVerdict(ev) {
     img.hidden = true;
   }
   const recent = byId("recent");
-  recent.prepend(el("li", { "data-serial": run.serial, "data-verdict": v, "data-run-id": run.run_id }, verdictTag(v), " ", run.serial));
+  recent.prepend(el("li", { "data-serial": run.serial, "data-verdict": v, "data-run-id": run.run_id }, verdictTag(v),
+                    el("span", { class: "recent-serial" }, run.serial)));
   while (recent.children.length > 30) recent.removeChild(recent.lastChild);
 }
 
@@ -209,7 +211,7 @@ async function answerRetest(yes) {
   if (!serial) return;
   state.asking = null;
   if (yes) {
-    show("idle-panel");
+    renderIdle();
     state.starting = true;
     try { await startTest(serial, true); } finally { state.starting = false; }
   } else {
