@@ -10,6 +10,7 @@
 #include "daemon/client/commands.hpp"
 #include "daemon/client/exit_codes.hpp"
 #include "drivers/config_error.hpp"
+#include "drivers/logging.hpp"
 #include "echoline/version.hpp"
 
 namespace {
@@ -74,6 +75,11 @@ int main(int argc, char** argv) {
     std::cerr << "echoline: unknown command \"" << command << "\"\n(see echoline --help)\n";
     return kExitUsage;
   }
+  // Library warnings (a driver's, a store's) go to stderr, never into the command's output.
+  echoline::LogOptions log;
+  log.program = "echoline";
+  log.level = "warn";
+  echoline::setup_logging(log);
   try {
     return it->second(Argv(args.begin() + 1, args.end()));
   } catch (const CliExit& e) {

@@ -14,14 +14,13 @@
 #include <vector>
 
 #include <fmt/format.h>
-#include <spdlog/sinks/rotating_file_sink.h>
 #include <spdlog/spdlog.h>
 
 #include "daemon/service/api_handler.hpp"
 #include "daemon/service/api_server.hpp"
 #include "daemon/service/instruments.hpp"
 #include "daemon/service/sd_notify.hpp"
-#include "daemon/service/stderr_sink.hpp"
+#include "drivers/logging.hpp"
 #include "daemon/service/watchdog.hpp"
 #include "daemon/web/web_server.hpp"
 #include "daemon/service/station.hpp"
@@ -45,6 +44,7 @@ options:
                            --override source=tcp://127.0.0.1:5025
   --data-dir DIR           run store folder (overrides data_dir)
   --log-dir DIR            log folder (overrides log_dir)
+  --no-log-file            no log file, stderr only (under systemd the journal keeps it)
   --recipe FILE            recipe to load (overrides recipe)
   --socket PATH            Unix socket path (overrides api.unix_socket)
   --tcp-port N|auto        TCP port on api.tcp_host, 0 to 65535 (0 = off), or auto for any
@@ -56,6 +56,9 @@ options:
   --on-stop abort|finish   on SIGTERM: abort the running test (default, stored as aborted
                            with reason "daemon stopping") or let it finish first
   --log-level LEVEL        trace, debug, info (default), warn, error
+                           Log lines go to stderr and to <log_dir>/echolined.log (rotated at
+                           5 MB, 3 files). When stderr is the systemd journal (JOURNAL_STREAM)
+                           they carry its priority prefixes and no timestamp of their own.
   --rf-off                 do not serve: connect the configured source alone, switch its RF
                            output OFF, confirm with *OPC? and exit (0 = confirmed OFF, 1 = not
                            confirmed, 2 = bad config). For the service manager after a crash
@@ -73,6 +76,7 @@ struct Args {
   std::string data_dir, log_dir, recipe, socket, log_level = "info", on_stop = "abort";
   std::optional<int> tcp_port, web_port;
   bool rf_off = false;
+  bool no_log_file = false;
 };
 
 // --tcp-port auto: the API server binds port 0 and the kernel picks a free one.
@@ -116,6 +120,8 @@ Args parse_args(int argc, char** argv) {
       a.data_dir = value(i);
     } else if (arg == "--log-dir") {
       a.log_dir = value(i);
+    } else if (arg == "--no-log-file") {
+      a.no_log_file = true;
     } else if (arg == "--recipe") {
       a.recipe = value(i);
     } else if (arg == "--socket") {
@@ -139,20 +145,17 @@ Args parse_args(int argc, char** argv) {
   return a;
 }
 
-void setup_logging(const drivers::StationConfig& config, const std::string& level) {
-  // SAFETY: never blocks on stderr (a paused terminal must not stall a sweep with RF on).
-  auto console = std::make_shared<service::DroppingStderrSink>();
-  std::vector<spdlog::sink_ptr> sinks{console};
-  if (!config.log_dir.empty()) {
-    auto file = (config.log_dir / "echolined.log").string();
-    sinks.push_back(std::make_shared<spdlog::sinks::rotating_file_sink_mt>(file, 10u << 20, 5));
+void start_logging(const drivers::StationConfig& config, const std::string& level) {
+  LogOptions o;
+  o.program = "echolined";
+  if (!config.log_dir.empty()) o.file = config.log_dir / "echolined.log";
+  o.level = level;
+  o.console_never_blocks = true;   // SAFETY: a paused terminal must not stall a sweep with RF on
+  try {
+    setup_logging(o);
+  } catch (const std::invalid_argument& e) {
+    usage_error(fmt::format("--log-level {}: unknown level", level));
   }
-  auto logger = std::make_shared<spdlog::logger>("echolined", sinks.begin(), sinks.end());
-  const auto lvl = spdlog::level::from_str(level);
-  if (lvl == spdlog::level::off && level != "off") usage_error(fmt::format("--log-level {}: unknown level", level));
-  logger->set_level(lvl);
-  logger->flush_on(spdlog::level::info);
-  spdlog::set_default_logger(logger);
 }
 
 std::string read_token(const std::filesystem::path& file) {
@@ -197,12 +200,13 @@ int run(const Args& args) {
   }
   if (!args.data_dir.empty()) config.data_dir = std::filesystem::absolute(args.data_dir);
   if (!args.log_dir.empty()) config.log_dir = std::filesystem::absolute(args.log_dir);
+  if (args.no_log_file) config.log_dir.clear();
   if (!args.recipe.empty()) config.recipe = std::filesystem::absolute(args.recipe);
   if (!args.socket.empty()) config.api.unix_socket = std::filesystem::absolute(args.socket);
   if (args.tcp_port) config.api.tcp_port = *args.tcp_port;
   if (args.web_port) config.web.port = *args.web_port;
 
-  setup_logging(config, args.log_level);
+  start_logging(config, args.log_level);
   if (args.rf_off) return rf_off(config);
   spdlog::info("{} starting: station {} config {}", version_line("echolined"), config.station, config.file);
 

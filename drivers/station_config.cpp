@@ -109,7 +109,9 @@ StationConfig load_station_config(const std::filesystem::path& file) {
   c.station = doc.require_string(kRoot / "station");
   if (c.station.empty()) doc.fail(kRoot / "station", "must not be empty");
   c.data_dir = resolve(base, doc.require_string(kRoot / "data_dir"));
-  c.log_dir = doc.has(kRoot / "log_dir") ? resolve(base, doc.require_string(kRoot / "log_dir")) : c.data_dir / "log";
+  // null: no log file (under systemd the journal keeps the log).
+  if (!doc.has(kRoot / "log_dir")) c.log_dir = c.data_dir / "log";
+  else if (!doc.at(kRoot / "log_dir").is_null()) c.log_dir = resolve(base, doc.require_string(kRoot / "log_dir"));
   c.recipe = doc.has(kRoot / "recipe") ? resolve(base, doc.require_string(kRoot / "recipe")) : std::filesystem::path{};
   load_instruments(doc, base, c.instruments);
   load_fixture(doc, c.fixture);

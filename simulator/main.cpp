@@ -10,11 +10,10 @@
 #include <string>
 #include <vector>
 
-#include <spdlog/sinks/basic_file_sink.h>
-#include <spdlog/sinks/stdout_sinks.h>
 #include <spdlog/spdlog.h>
 
 #include "drivers/config_error.hpp"
+#include "drivers/logging.hpp"
 #include "echoline/version.hpp"
 #include "simulator/faults.hpp"
 #include "simulator/physics/lot.hpp"
@@ -130,17 +129,16 @@ std::string parse_args(int argc, char** argv, Args& args) {
   return "";
 }
 
-void setup_logging(const Args& args) {
-  std::shared_ptr<spdlog::logger> logger;
+void start_logging(const Args& args) {
+  echoline::LogOptions o;
+  o.program = "echoline-sim";
   if (args.log_file) {
-    logger = std::make_shared<spdlog::logger>("echoline-sim",
-                                              std::make_shared<spdlog::sinks::basic_file_sink_mt>(args.log_file->string()));
-  } else {
-    logger = std::make_shared<spdlog::logger>("echoline-sim", std::make_shared<spdlog::sinks::stderr_sink_mt>());
+    o.file = *args.log_file;
+    o.console = false;   // the command log goes to the file instead of stderr
   }
-  logger->set_level(spdlog::level::from_str(args.log_level));
-  logger->flush_on(spdlog::level::warn);
-  spdlog::set_default_logger(logger);
+  o.level = args.log_level;
+  o.flush_level = "warn";   // every command is an info line: flushed each second instead
+  echoline::setup_logging(o);
   spdlog::flush_every(std::chrono::seconds(1));
 }
 
@@ -163,7 +161,7 @@ int main(int argc, char** argv) {
   std::signal(SIGPIPE, SIG_IGN);
 
   try {
-    setup_logging(args);
+    start_logging(args);
   } catch (const std::exception& e) {
     std::cerr << "echoline-sim: --log-file " << args.log_file->string() << ": " << e.what() << "\n";
     return kExitUsage;

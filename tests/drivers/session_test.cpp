@@ -11,6 +11,8 @@
 #include <string>
 #include <vector>
 
+#include <sys/stat.h>
+
 #include <gtest/gtest.h>
 #include <spdlog/spdlog.h>
 #include <unistd.h>
@@ -300,7 +302,12 @@ TEST(SessionLogging, ExchangesAreLoggedAtTraceWithRoundTrip) {
   auto previous = spdlog::default_logger();
   auto dir = std::filesystem::temp_directory_path() / ("echoline-log-" + std::to_string(::getpid()));
   std::filesystem::remove_all(dir);
-  setup_logging(LogOptions{"session-test", dir / "sub" / "station.log", "trace", false});
+  LogOptions o;
+  o.program = "session-test";
+  o.file = dir / "sub" / "station.log";
+  o.level = "trace";
+  o.console = false;
+  setup_logging(o);
   {
     MemoryBench b;
     b.peer->expect("FREQ?", "9.15E+08\n");
@@ -314,8 +321,29 @@ TEST(SessionLogging, ExchangesAreLoggedAtTraceWithRoundTrip) {
   EXPECT_TRUE(contains(text.str(), "sig-gen (memory://sig-gen): > FREQ? < \"9.15E+08\" [")) << text.str();
   EXPECT_TRUE(contains(text.str(), " us]")) << text.str();
   std::filesystem::remove_all(dir);
-  EXPECT_THROW(setup_logging(LogOptions{"x", {}, "loud", false}), std::invalid_argument);
+  o.file.clear();
+  o.level = "loud";
+  EXPECT_THROW(setup_logging(o), std::invalid_argument);
   spdlog::set_default_logger(previous);
+}
+
+TEST(SessionLogging, JournalPrioritiesAndStreamCheck) {
+  // sd-daemon(3): SD_CRIT <2>, SD_ERR <3>, SD_WARNING <4>, SD_INFO <6>, SD_DEBUG <7>.
+  EXPECT_EQ(journal_prefix("critical"), "<2>");
+  EXPECT_EQ(journal_prefix("error"), "<3>");
+  EXPECT_EQ(journal_prefix("warning"), "<4>");
+  EXPECT_EQ(journal_prefix("info"), "<6>");
+  EXPECT_EQ(journal_prefix("debug"), "<7>");
+  EXPECT_EQ(journal_prefix("trace"), "<7>");
+  // systemd.exec(5): JOURNAL_STREAM is "<device>:<inode>" of the journal stream.
+  struct stat st{};
+  ASSERT_EQ(::fstat(2, &st), 0);
+  const std::string mine = std::to_string(st.st_dev) + ":" + std::to_string(st.st_ino);
+  EXPECT_TRUE(stderr_is_journal(mine.c_str()));
+  EXPECT_FALSE(stderr_is_journal(nullptr));
+  EXPECT_FALSE(stderr_is_journal(""));
+  EXPECT_FALSE(stderr_is_journal("8:x"));
+  EXPECT_FALSE(stderr_is_journal((std::to_string(st.st_dev) + ":" + std::to_string(st.st_ino + 1)).c_str()));
 }
 
 // --- over real loopback TCP ---

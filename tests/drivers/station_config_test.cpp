@@ -69,6 +69,14 @@ TEST(StationConfig, DefaultsAndRelativePaths) {
   EXPECT_EQ(c.serial_pattern, "^[A-Za-z0-9._-]{1,64}$");
 }
 
+TEST(StationConfig, NullLogDirMeansNoLogFile) {
+  testing::TempDir dir;
+  std::string text = station_text();
+  text.replace(text.find("  \"data_dir\""), 0, "  \"log_dir\": null,\n");
+  StationConfig c = load_station_config(write(dir, text));
+  EXPECT_TRUE(c.log_dir.empty());
+}
+
 TEST(StationConfig, SecondSourceIsRefusedAtItsLine) {
   testing::TempDir dir;
   const std::string prof = (testing::source_dir() / "config" / "instruments" / "sim-source.jsonc").string();

@@ -1,5 +1,5 @@
 // Console sink that drops instead of blocking.
-#include "daemon/service/stderr_sink.hpp"
+#include "drivers/log_stderr_sink.hpp"
 
 #include <poll.h>
 #include <unistd.h>
@@ -9,7 +9,7 @@
 
 #include <fmt/format.h>
 
-namespace echoline::service {
+namespace echoline {
 
 bool DroppingStderrSink::write_now(const char* data, std::size_t size) {
   // POLLOUT on a pipe or terminal means a write of one line goes in without waiting (a pipe
@@ -34,8 +34,8 @@ void DroppingStderrSink::sink_it_(const spdlog::details::log_msg& msg) {
   spdlog::memory_buf_t formatted;
   formatter_->format(msg, formatted);
   if (dropped_ > 0) {
-    const std::string note = fmt::format("[echolined] {} log lines not shown here: stderr was not being read "
-                                         "(the log file has them)\n", dropped_);
+    const std::string note = fmt::format("{}: {} log lines not shown here: stderr was not being read "
+                                         "(the log file has them)\n", program_, dropped_);
     if (!write_now(note.data(), note.size())) {
       ++dropped_;
       ++dropped_total_;
@@ -49,4 +49,4 @@ void DroppingStderrSink::sink_it_(const spdlog::details::log_msg& msg) {
   }
 }
 
-}  // namespace echoline::service
+}  // namespace echoline
