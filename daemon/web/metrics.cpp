@@ -98,7 +98,9 @@ std::string render_openmetrics(const MetricsInput& in) {
   o += fmt::format("echoline_cycle_seconds_sum{{station=\"{}\"}} {}\n", st, num(in.cycles.sum_s));
   o += fmt::format("echoline_cycle_seconds_created{{station=\"{}\"}} {}\n", st, num(in.cycles.created_unix_s));
 
-  const json cal = in.status.value("calibration", json::object());
+  // A status that could not be had (null) shows as no calibration and no instruments.
+  const json status = in.status.is_object() ? in.status : json::object();
+  const json cal = status.value("calibration", json::object());
   const bool present = cal.value("present", false);
   family(o, "echoline_calibration_present", "gauge", "1 when the station holds a calibration.");
   o += fmt::format("echoline_calibration_present{{station=\"{}\"}} {}\n", st, present ? 1 : 0);
@@ -115,7 +117,7 @@ std::string render_openmetrics(const MetricsInput& in) {
     o += fmt::format("echoline_calibration_units{{station=\"{}\"}} {}\n", st, cal.value("units_since", 0));
   }
 
-  const json instruments = in.status.value("instruments", json::array());
+  const json instruments = status.value("instruments", json::array());
   family(o, "echoline_instrument_errors", "counter", "Errors reported against each instrument since the daemon started.");
   for (const auto& i : instruments) {
     o += fmt::format("echoline_instrument_errors_total{{station=\"{}\",role=\"{}\",name=\"{}\"}} {}\n", st,
@@ -132,7 +134,7 @@ std::string render_openmetrics(const MetricsInput& in) {
                      escape_label(i.value("role", "")), escape_label(i.value("name", "")), i.value("healthy", false) ? 1 : 0);
   }
   family(o, "echoline_busy", "gauge", "1 while a test, calibration or check runs (the source's RF may be on).");
-  o += fmt::format("echoline_busy{{station=\"{}\"}} {}\n", st, in.status.contains("busy") && !in.status["busy"].is_null() ? 1 : 0);
+  o += fmt::format("echoline_busy{{station=\"{}\"}} {}\n", st, status.contains("busy") && !status["busy"].is_null() ? 1 : 0);
   o += "# EOF\n";
   return o;
 }
