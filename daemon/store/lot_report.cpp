@@ -174,13 +174,13 @@ std::string pareto_svg(const LotStats& st) {
   }
   int total = 0, top = 0;
   for (const auto& [c, n] : st.pareto) { total += n; top = std::max(top, n); }
-  double ylo = 0, yhi = top;
-  detail::nice_range(ylo, yhi, 5);
+  const std::vector<double> ticks = detail::count_ticks(top, 5);   // whole units only
+  const double yhi = ticks.back();
   const double left = 60, plot_top = 20, w = W - 120.0, h = H - 90.0;
   Frame f{left, plot_top, w, h, Scale{0, 1, left, left + w}, Scale{0, yhi, plot_top + h, plot_top}};
   // Frame without x ticks: draw y grid manually via frame_svg on a dummy x range, then bars.
   s += fmt::format("<rect x=\"{}\" y=\"{}\" width=\"{}\" height=\"{}\" class=\"plotbg\"/>\n", left, plot_top, w, h);
-  for (double t : detail::nice_ticks(0, yhi, 5)) {
+  for (double t : ticks) {
     s += fmt::format("<line x1=\"{0}\" y1=\"{1:.1f}\" x2=\"{2}\" y2=\"{1:.1f}\" class=\"grid\"/>", left, f.y(t), left + w);
     s += fmt::format("<text x=\"{}\" y=\"{:.1f}\" class=\"tick\" text-anchor=\"end\">{}</text>\n", left - 6, f.y(t) + 4, fixed(t, 0));
   }
@@ -236,10 +236,9 @@ std::string histogram_svg(const LotStats& st, const core::Limits& limits) {
   const double bw = (hi - lo) / bins;
   std::vector<int> counts(bins, 0);
   for (double v : st.resonances_hz) counts[std::clamp(static_cast<int>((v - lo) / bw), 0, bins - 1)]++;
-  double ylo = 0, yhi = *std::max_element(counts.begin(), counts.end());
-  detail::nice_range(ylo, yhi, 5);
+  const double yhi = detail::count_ticks(*std::max_element(counts.begin(), counts.end()), 5).back();
   Frame f{60, 34, W - 90.0, H - 94.0, Scale{lo, hi, 60, W - 30.0}, Scale{0, yhi, H - 60.0, 34}};
-  s += detail::frame_svg(f, "resonance frequency (MHz)", "units", 1e6, 6, 5);
+  s += detail::frame_svg(f, "resonance frequency (MHz)", "units", 1e6, 6, 5, /*y_counts=*/true);
   for (int b = 0; b < bins; ++b) {
     if (!counts[b]) continue;
     const double x0 = f.x(lo + b * bw), x1 = f.x(lo + (b + 1) * bw);
@@ -336,7 +335,7 @@ std::string build_lot_report(std::string_view lot, const std::vector<core::RunRe
 
   h += "<h2>Yield</h2>\n<div class=\"cards\">\n";
   h += fmt::format("<div class=\"card\"><div class=\"v\">{}</div><div class=\"k\">units</div></div>\n", st.units);
-  h += fmt::format("<div class=\"card\"><div class=\"v\">{}%</div><div class=\"k\">final yield (units whose latest run passed)</div></div>\n",
+  h += fmt::format("<div class=\"card\"><div class=\"v\">{}%</div><div class=\"k\">final yield (units whose latest judged run passed)</div></div>\n",
                    fixed(100 * st.final_yield, 1));
   for (const char* v : {"pass", "fail", "inconclusive", "aborted"}) {
     h += fmt::format("<div class=\"card\"><div class=\"v v-{0}\">{1}</div><div class=\"k\">units {0}</div></div>\n", v,

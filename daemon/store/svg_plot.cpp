@@ -40,8 +40,16 @@ void nice_range(double& lo, double& hi, int count) {
   hi = std::ceil(hi / step - 1e-9) * step;
 }
 
+std::vector<double> count_ticks(double top, int count) {
+  const double step = std::max(1.0, nice_step(0, std::max(top, 1.0), count));   // 1, 2, 5 x 10^n, n >= 0
+  const double last = std::max(step, std::ceil(top / step - 1e-9) * step);
+  std::vector<double> out;
+  for (double v = 0; v <= last + 0.5 && out.size() < 200; v += step) out.push_back(v);
+  return out;
+}
+
 std::string frame_svg(const Frame& f, const std::string& x_title, const std::string& y_title, double x_tick_scale,
-                      int x_ticks, int y_ticks) {
+                      int x_ticks, int y_ticks, bool y_counts) {
   std::string s;
   s += fmt::format("<rect x=\"{}\" y=\"{}\" width=\"{}\" height=\"{}\" class=\"plotbg\"/>\n", f.left, f.top, f.width,
                    f.height);
@@ -55,8 +63,8 @@ std::string frame_svg(const Frame& f, const std::string& x_title, const std::str
                      f.top + f.height + 15, fixed(t, xdec));
   }
   const double ylo = std::min(f.y.lo, f.y.hi), yhi = std::max(f.y.lo, f.y.hi);
-  const auto yt = nice_ticks(ylo, yhi, y_ticks);
-  const int ydec = yt.size() > 1 ? std::max(0, -static_cast<int>(std::floor(std::log10(yt[1] - yt[0]) + 1e-9))) : 0;
+  const auto yt = y_counts ? count_ticks(yhi, y_ticks) : nice_ticks(ylo, yhi, y_ticks);
+  const int ydec = y_counts || yt.size() < 2 ? 0 : std::max(0, -static_cast<int>(std::floor(std::log10(yt[1] - yt[0]) + 1e-9)));
   for (double t : yt) {
     const double py = f.y(t);
     s += fmt::format("<line x1=\"{0}\" y1=\"{1:.1f}\" x2=\"{2}\" y2=\"{1:.1f}\" class=\"grid\"/>\n", f.left, py, f.left + f.width);

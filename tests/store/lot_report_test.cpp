@@ -9,10 +9,12 @@
 #include <cstdio>
 #include <fstream>
 #include <random>
+#include <set>
 
 #include <fmt/format.h>
 
 #include "daemon/store/export.hpp"
+#include "daemon/store/svg_plot.hpp"
 #include "tests/store/store_test_data.hpp"
 
 namespace echoline::store {
@@ -154,6 +156,50 @@ TEST(LotReport, SvgIsWellFormedAndHasOneTracePerUnit) {
   EXPECT_NE(html.find("29.5"), std::string::npos);   // the calibration's minimum directivity
   EXPECT_EQ(occurrences(unit_svg, "<path class=\"trace "), 1u);
   std::filesystem::remove_all(dir);
+}
+
+// Tick labels of the count axis (text-anchor "end", left of the plot) in the SVG whose
+// aria-label is `label`.
+std::vector<std::string> count_axis_labels(const std::string& html, const std::string& label) {
+  const auto start = html.find("aria-label=\"" + label + "\"");
+  const auto end = html.find("</svg>", start);
+  std::vector<std::string> out;
+  const std::string svg = html.substr(start, end - start);
+  const std::string marker = "class=\"tick\" text-anchor=\"end\">";
+  for (auto at = svg.find(marker); at != std::string::npos; at = svg.find(marker, at + 1)) {
+    const auto b = at + marker.size();
+    out.push_back(svg.substr(b, svg.find('<', b) - b));
+  }
+  return out;
+}
+
+// A count of units has no fractions: the Pareto's and the histogram's axes tick at whole numbers
+// only, each label once (common practice, no source).
+TEST(LotReport, CountAxesTickAtWholeNumbersOnly) {
+  for (double top : {1.0, 2.0, 3.0, 4.0, 7.0, 12.0, 25.0, 99.0}) {
+    const auto t = detail::count_ticks(top, 5);
+    ASSERT_GE(t.size(), 2u) << top;
+    EXPECT_EQ(t.front(), 0.0);
+    EXPECT_GE(t.back(), top);
+    EXPECT_LE(t.size(), 8u) << top;
+    for (double v : t) EXPECT_EQ(v, std::round(v)) << "tick " << v << " for top " << top;
+  }
+  // Two units tuned low and one shallow (Pareto top 2); three resonances in separate bins
+  // (histogram top 1): both used to tick at 0.5 or 0.2 units.
+  std::vector<core::RunResult> runs = {
+      testdata::make_run("U1", "L", 0, 898e6, Verdict::fail, FailureClass::tuned_low),
+      testdata::make_run("U2", "L", 7, 899e6, Verdict::fail, FailureClass::tuned_low),
+      testdata::make_run("U3", "L", 14, 915e6, Verdict::fail, FailureClass::shallow)};
+  const std::string html = build_lot_report("L", runs, {}, {});
+  for (const char* chart : {"failure classes", "resonance frequencies"}) {
+    const auto labels = count_axis_labels(html, chart);
+    ASSERT_GE(labels.size(), 2u) << chart;
+    std::set<std::string> seen;
+    for (const auto& l : labels) {
+      EXPECT_EQ(l.find_first_not_of("0123456789"), std::string::npos) << chart << ": tick \"" << l << "\"";
+      EXPECT_TRUE(seen.insert(l).second) << chart << ": tick " << l << " twice";
+    }
+  }
 }
 
 TEST(LotReport, EmptyLotStillRenders) {
