@@ -23,10 +23,13 @@ using nlohmann::json;
 namespace {
 
 constexpr const char* kRunsHelp =
-    "usage: echoline runs --serial SERIAL | --lot LOT [--store FILE] [connection options]\n\n"
+    "usage: echoline runs --serial SERIAL | --lot LOT [--json] [--store FILE] [connection options]\n\n"
     "Lists the stored runs of one unit or one lot, oldest first: time, run id, verdict, failure\n"
     "class, resonance (MHz), depth (dB) and the reason. Through the daemon, or offline from a\n"
-    "run store file with --store FILE. A lot listing ends with its yield.\n\n"
+    "run store file with --store FILE. A lot listing ends with its yield.\n"
+    "--json   one JSON object instead: {\"serial\" or \"lot\": KEY, \"runs\": [API run objects,\n"
+    "         oldest first], and for a lot \"yield\": {\"units\", \"judged\", \"passed\", \"yield\"}}\n"
+    "         (yield as a fraction, the store's definition)\n\n"
     "exit: 0 runs listed, 1 nothing stored under that key, 3 daemon unreachable, 5 storage error\n\n";
 
 constexpr const char* kReportHelp =
@@ -106,7 +109,7 @@ json fetch_runs(const Args& args, const std::string& what, bool by_serial, const
 int cmd_runs(const Argv& argv) {
   std::set<std::string> values = kConnectionOptions;
   values.insert({"--serial", "--lot", "--store"});
-  Args args(argv, "runs", values, {"--help"}, 0);
+  Args args(argv, "runs", values, {"--help", "--json"}, 0);
   if (args.flag("--help")) {
     std::cout << kRunsHelp << kConnectionHelp;
     return kExitOk;
@@ -115,6 +118,15 @@ int cmd_runs(const Argv& argv) {
   const auto lot = args.get("--lot");
   if (!serial == !lot) args.usage_error("give exactly one of --serial SERIAL or --lot LOT");
   const json runs = fetch_runs(args, "runs", serial.has_value(), serial ? *serial : *lot);
+  if (args.flag("--json")) {
+    json out = {{serial ? "serial" : "lot", serial ? *serial : *lot}, {"runs", runs}};
+    if (lot) {
+      const LotYield y = lot_yield(runs);
+      out["yield"] = {{"units", y.units}, {"judged", y.judged}, {"passed", y.passed}, {"yield", y.yield}};
+    }
+    std::cout << out.dump(2) << "\n";
+    return runs.empty() ? kExitNegative : kExitOk;
+  }
   if (runs.empty()) {
     std::cout << "no runs stored for " << (serial ? "serial " + *serial : "lot " + *lot) << "\n";
     return kExitNegative;

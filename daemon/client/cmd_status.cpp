@@ -40,25 +40,32 @@ void print_calibration(const json& c) {
 }
 
 constexpr const char* kStatusHelp =
-    "usage: echoline status [connection options]\n\n"
+    "usage: echoline status [--json] [connection options]\n\n"
     "Shows the daemon's station, recipe, instruments (healthy or not), calibration and what is\n"
     "running.\n"
+    "--json   one JSON object instead: the daemon's status reply (daemon/service/API.md, status)\n"
+    "         with \"ready\": true when every instrument is healthy; same exit codes\n"
     "exit: 0 every instrument ready, 4 an instrument is NOT READY (the station cannot test),\n"
     "      3 the daemon cannot be reached, 2 usage error\n\n";
 
 constexpr const char* kCalHelp =
-    "usage: echoline cal status [connection options]\n"
-    "       echoline cal history [--store FILE] [--config FILE]\n\n"
+    "usage: echoline cal status [--json] [connection options]\n"
+    "       echoline cal history [--json] [--store FILE] [--config FILE]\n\n"
     "status   the calibration in use: valid or not, age, minimum directivity, due or not and why\n"
     "history  the calibrations the stored runs used, oldest first, from the run store file\n"
     "         (--store FILE, default <data_dir>/<station>.sqlite of the station config)\n"
     "         Calibrations no run used yet are not listed (except the latest).\n"
-    "         Calibrating is done from the operator console (echoline station).\n\n";
+    "         Calibrating is done from the operator console (echoline station).\n"
+    "--json   one JSON object instead: status prints the daemon's cal.status reply; history\n"
+    "         prints {\"store\": FILE, \"calibrations\": [{\"id\", \"created_utc\", \"valid\",\n"
+    "         \"min_directivity_db\", \"runs\", \"recipe\": {\"name\", \"version\"}}, ...]}\n"
+    "exit: 0 shown, 1 no calibration stored (history), 2 usage, 3 daemon unreachable,\n"
+    "      5 storage error\n\n";
 
 }  // namespace
 
 int cmd_status(const Argv& argv) {
-  Args args(argv, "status", kConnectionOptions, {"--help"}, 0);
+  Args args(argv, "status", kConnectionOptions, {"--help", "--json"}, 0);
   if (args.flag("--help")) {
     std::cout << kStatusHelp << kConnectionHelp;
     return kExitOk;
@@ -67,6 +74,16 @@ int cmd_status(const Argv& argv) {
   ApiReply r = require_link(api->call("status", json::object()), "status");
   require_ok(r, "status");
   const json& st = r.result;
+  bool healthy = true;
+  if (st.contains("instruments")) {
+    for (const auto& i : st["instruments"]) healthy = healthy && i.value("healthy", false);
+  }
+  if (args.flag("--json")) {
+    json out = st;
+    out["ready"] = healthy;
+    std::cout << out.dump(2) << "\n";
+    return healthy ? kExitOk : kExitInstrument;
+  }
   std::cout << "station: " << s(st, "station") << " (echolined " << s(st, "version")
             << (s(st, "commit").empty() ? "" : " " + s(st, "commit")) << ")\n";
   if (st.contains("recipe")) {
@@ -74,11 +91,9 @@ int cmd_status(const Argv& argv) {
     std::cout << fmt::format("recipe: {} {} ({} points, {} acceptance) {}\n", s(rc, "name"), s(rc, "version"),
                              rc.value("points", 0), s(rc, "decision_rule"), s(rc, "path"));
   }
-  bool healthy = true;
   if (st.contains("instruments")) {
     for (const auto& i : st["instruments"]) {
       const bool ok = i.value("healthy", false);
-      healthy = healthy && ok;
       std::cout << fmt::format("{}: {} {} {} [{}]{}\n", s(i, "role"), s(i, "name"), s(i, "address"), s(i, "identity"),
                                ok ? "ok" : "NOT READY", s(i, "last_error").empty() ? "" : " " + s(i, "last_error"));
     }
@@ -91,7 +106,8 @@ int cmd_status(const Argv& argv) {
 int cmd_cal(const Argv& argv) {
   std::set<std::string> values = kConnectionOptions;
   values.insert("--store");
-  Args args(argv, "cal", values, {"--help"}, 1);
+  Args args(argv, "cal", values, {"--help", "--json"}, 1);
+  const bool as_json = args.flag("--json");
   if (args.flag("--help") || args.positional().empty()) {
     std::cout << kCalHelp << kConnectionHelp;
     return args.flag("--help") ? kExitOk : kExitUsage;
@@ -101,7 +117,8 @@ int cmd_cal(const Argv& argv) {
     auto api = connect_daemon(args, "operator", "echoline cal");
     ApiReply r = require_link(api->call("cal.status", json::object()), "cal status");
     require_ok(r, "cal status");
-    print_calibration(r.result);
+    if (as_json) std::cout << r.result.dump(2) << "\n";
+    else print_calibration(r.result);
     return kExitOk;
   }
   if (what != "history") args.usage_error(fmt::format("unknown cal command \"{}\" (status, history)", what));
@@ -126,8 +143,25 @@ int cmd_cal(const Argv& argv) {
   auto latest = (*store)->latest_calibration();
   if (latest && latest->has_value() && !uses.count((*latest)->id)) ids.push_back((*latest)->id);
   if (ids.empty()) {
-    std::cout << "no calibrations stored in " << file.string() << "\n";
+    if (as_json) std::cout << json{{"store", file.string()}, {"calibrations", json::array()}}.dump(2) << "\n";
+    else std::cout << "no calibrations stored in " << file.string() << "\n";
     return kExitNegative;
+  }
+  if (as_json) {
+    json list = json::array();
+    for (const auto& id : ids) {
+      auto c = (*store)->load_calibration(id);
+      if (!c || !c->has_value()) {
+        list.push_back({{"id", id}, {"found", false}, {"runs", uses[id]}});
+        continue;
+      }
+      const auto& cal = c->value();
+      list.push_back({{"id", cal.id}, {"found", true}, {"created_utc", cal.created_utc}, {"valid", cal.valid},
+                      {"min_directivity_db", cal.min_directivity_db}, {"runs", uses[id]},
+                      {"recipe", {{"name", cal.recipe.name}, {"version", cal.recipe.version}}}});
+    }
+    std::cout << json{{"store", file.string()}, {"calibrations", list}}.dump(2) << "\n";
+    return kExitOk;
   }
   std::cout << fmt::format("{:<44} {:<26} {:<9} {:>10} {:>6}  {}\n", "calibration", "created (UTC)", "valid", "min D dB",
                            "runs", "recipe");

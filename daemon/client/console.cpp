@@ -40,17 +40,13 @@ bool is_no(const std::string& s) { return s == "n" || s == "N" || s == "no" || s
 }  // namespace
 
 double SessionSummary::yield() const {
-  const int judged = units_judged();
-  if (judged == 0) return 0;
-  int passed = 0;
-  for (const auto& [serial, v] : final_verdict) passed += v == "pass";
-  return static_cast<double>(passed) / judged;
+  const auto y = store::summarize_yield(outcomes);
+  return y.empty() ? 0.0 : y.front().final_yield;
 }
 
 int SessionSummary::units_judged() const {
-  int n = 0;
-  for (const auto& [serial, v] : final_verdict) n += v != "aborted";
-  return n;
+  const auto y = store::summarize_yield(outcomes);
+  return y.empty() ? 0 : y.front().units_tested;
 }
 
 Console::Console(ApiClient& api, LineInput& input, std::ostream& out, ConsoleOptions options, PlotSource plot)
@@ -418,6 +414,7 @@ void Console::show_run(const json& run) {
   ++summary_.runs;
   ++summary_.runs_by_verdict[verdict];
   summary_.final_verdict[serial] = verdict;
+  summary_.outcomes.push_back({"session", serial, verdict, str(run, "failure_class")});
 
   out_ << "\n" << verdict_banner(verdict, options_.colour);
   out_ << fmt::format("  Unit {}   verdict {}{}   run {}\n", serial, verdict,
@@ -460,7 +457,7 @@ void Console::print_summary() {
   out_ << fmt::format("  Units tested: {}   runs: {}\n", summary_.final_verdict.size(), summary_.runs);
   out_ << fmt::format("  pass {}   fail {}   inconclusive {}   aborted {}   (runs)\n", count("pass"), count("fail"),
                       count("inconclusive"), count("aborted"));
-  out_ << fmt::format("  Yield: {:.1f} % (units whose latest run passed, of {} judged)\n", 100 * summary_.yield(),
+  out_ << fmt::format("  Yield: {:.1f} % (units whose latest judged run passed, of {} judged)\n", 100 * summary_.yield(),
                       summary_.units_judged());
   if (summary_.interrupted > 0) {
     out_ << fmt::format("  Tests interrupted by a lost station service: {} \n", summary_.interrupted);

@@ -16,6 +16,7 @@
 #include "daemon/client/api_client.hpp"
 #include "daemon/client/fixture_control.hpp"
 #include "daemon/client/line_input.hpp"
+#include "daemon/store/yield.hpp"
 #include "daemon/client/reconnect_wait.hpp"
 #include "daemon/client/text_plot.hpp"
 
@@ -42,8 +43,10 @@ struct SessionSummary {
   int runs = 0;
   std::map<std::string, int> runs_by_verdict;         // pass/fail/inconclusive/aborted
   std::map<std::string, std::string> final_verdict;   // serial -> verdict of its latest run
+  std::vector<store::RunOutcome> outcomes;            // every run of the session, in run order
   int interrupted = 0;                                // tests cut off by a lost daemon link (no result)
-  // Units whose latest run passed / units with a judged (non-aborted) latest run; 0 when none.
+  // Yield as the store defines it (daemon/store/yield.hpp): units whose latest finished run
+  // passed / units with a finished (non-aborted) run; 0 when none.
   double yield() const;
   int units_judged() const;
 };

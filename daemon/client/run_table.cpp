@@ -1,8 +1,11 @@
 #include "daemon/client/run_table.hpp"
 
 #include <map>
+#include <set>
 
 #include <fmt/format.h>
+
+#include "daemon/store/yield.hpp"
 
 namespace echoline::client {
 
@@ -28,15 +31,20 @@ std::string run_table(const json& runs) {
 }
 
 LotYield lot_yield(const json& runs) {
-  std::map<std::string, std::string> latest;
-  for (const auto& r : runs) latest[r.value("serial", "")] = r.value("verdict", "");
-  LotYield y;
-  y.units = static_cast<int>(latest.size());
-  for (const auto& [serial, v] : latest) {
-    if (v != "aborted") ++y.judged;
-    if (v == "pass") ++y.passed;
+  std::vector<store::RunOutcome> rows;
+  std::set<std::string> serials;
+  for (const auto& r : runs) {
+    rows.push_back({"lot", r.value("serial", ""), r.value("verdict", ""), r.value("failure_class", "")});
+    serials.insert(r.value("serial", ""));
   }
-  y.yield = y.judged ? static_cast<double>(y.passed) / y.judged : 0;
+  const auto summary = store::summarize_yield(rows);   // the one definition of yield
+  LotYield y;
+  y.units = static_cast<int>(serials.size());
+  if (!summary.empty()) {
+    y.judged = summary.front().units_tested;
+    y.passed = summary.front().units_final_pass;
+    y.yield = summary.front().final_yield;
+  }
   return y;
 }
 

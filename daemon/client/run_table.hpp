@@ -11,13 +11,14 @@ namespace echoline::client {
 // `runs`: array of API run objects (API.md), oldest first.
 std::string run_table(const nlohmann::json& runs);
 
+// Yield as the store defines it (daemon/store/yield.hpp): a unit's latest finished run decides.
 struct LotYield {
   int units = 0;          // distinct serials
-  int judged = 0;         // units whose latest run is not aborted
-  int passed = 0;         // units whose latest run passed
+  int judged = 0;         // units with at least one finished (non-aborted) run
+  int passed = 0;         // units whose latest finished run passed
   double yield = 0;       // passed / judged, 0 when none judged
 };
-// Latest run per serial decides (runs are oldest first).
+// `runs` oldest first.
 LotYield lot_yield(const nlohmann::json& runs);
 
 }  // namespace echoline::client

@@ -17,6 +17,7 @@
 #include "daemon/core/recipe_loader.hpp"
 #include "daemon/core/rf_math.hpp"
 #include "daemon/core/station_capability.hpp"
+#include "drivers/config_error.hpp"
 #include "daemon/service/clock.hpp"
 #include "daemon/service/fast_capture.hpp"
 #include "daemon/store/export.hpp"
@@ -132,8 +133,9 @@ Station::Station(drivers::StationConfig config) : config_(std::move(config)) {
   if (core::has_errors(findings)) {
     for (const auto& f : findings) {
       if (f.severity == "error") {
-        throw std::runtime_error(fmt::format("recipe {} cannot run on station {}: {}: {}", recipe->source_path,
-                                             config_.station, f.key, f.message));
+        // A configuration error (exit 2): the recipe and the station's instruments do not fit.
+        throw drivers::ConfigError(recipe->source_path, 0, f.key,
+                                   fmt::format("cannot run on station {}: {}", config_.station, f.message));
       }
     }
   }

@@ -15,14 +15,15 @@
 namespace echoline::store {
 
 // Numbers the report shows, computed from the runs (exposed for tests and the client).
-// A unit's "final run" is its latest run by started_utc (ties: later in the input vector).
+// A unit's "final run" is its latest finished run by started_utc (ties: later in the input
+// vector), or its latest aborted run when none finished; yield as defined in yield.hpp.
 struct LotStats {
   int runs = 0;
   int units = 0;
   std::map<std::string, int> runs_by_verdict;        // every verdict name present, counts of runs
   std::map<std::string, int> units_by_final_verdict; // counts of units by their final run
   std::vector<std::pair<std::string, int>> pareto;   // failure classes of final fail/inconclusive runs, descending
-  double final_yield = 0;                            // units whose final run passed / units
+  double final_yield = 0;                            // yield.hpp: units whose final run passed / units with a finished run
   std::vector<double> resonances_hz;                 // final runs that have a resonance
   std::optional<double> mean_hz, stddev_hz;          // sample standard deviation (n-1), n >= 2
   std::optional<double> cpk;                         // min(USL-mean, mean-LSL)/(3 sigma), needs window and sigma > 0
@@ -32,6 +33,8 @@ struct LotStats {
 // Indices into `runs` of each unit's final run, in serial order.
 std::vector<std::size_t> final_runs(const std::vector<core::RunResult>& runs);
 LotStats compute_lot_stats(const std::vector<core::RunResult>& runs, const core::Limits& limits);
+// Final yield of `runs` (any order) by summarize_yield (yield.hpp).
+double lot_final_yield(const std::vector<core::RunResult>& runs);
 
 struct LotReportOptions {
   std::string generated_utc;   // shown in the footer when non-empty

@@ -3,19 +3,40 @@
 #include <cmath>
 
 #include "daemon/store/lot_report.hpp"
+#include "daemon/store/yield.hpp"
 
 namespace echoline::store {
 
 std::vector<std::size_t> final_runs(const std::vector<core::RunResult>& runs) {
+  // A finished (non-aborted) run always wins over an aborted one, as in yield.hpp.
+  const auto later = [&](std::size_t a, std::size_t b) {   // is run a the better final run than b?
+    const bool fa = runs[a].verdict != core::Verdict::aborted, fb = runs[b].verdict != core::Verdict::aborted;
+    if (fa != fb) return fa;
+    return runs[a].started_utc >= runs[b].started_utc;
+  };
   std::map<std::string, std::size_t> last;
   for (std::size_t i = 0; i < runs.size(); ++i) {
     auto [it, fresh] = last.try_emplace(runs[i].serial, i);
-    if (!fresh && runs[i].started_utc >= runs[it->second].started_utc) it->second = i;
+    if (!fresh && later(i, it->second)) it->second = i;
   }
   std::vector<std::size_t> out;
   out.reserve(last.size());
   for (const auto& [serial, i] : last) out.push_back(i);
   return out;
+}
+
+double lot_final_yield(const std::vector<core::RunResult>& runs) {
+  // The one definition of yield (yield.hpp), fed in run order.
+  std::vector<std::size_t> order(runs.size());
+  for (std::size_t i = 0; i < order.size(); ++i) order[i] = i;
+  std::stable_sort(order.begin(), order.end(), [&](std::size_t a, std::size_t b) { return runs[a].started_utc < runs[b].started_utc; });
+  std::vector<RunOutcome> rows;
+  rows.reserve(runs.size());
+  for (std::size_t i : order) {
+    rows.push_back({"lot", runs[i].serial, core::to_string(runs[i].verdict), core::to_string(runs[i].failure_class)});
+  }
+  const auto y = summarize_yield(rows);
+  return y.empty() ? 0.0 : y.front().final_yield;
 }
 
 LotStats compute_lot_stats(const std::vector<core::RunResult>& runs, const core::Limits& limits) {
@@ -45,7 +66,7 @@ LotStats compute_lot_stats(const std::vector<core::RunResult>& runs, const core:
   }
   s.pareto.assign(classes.begin(), classes.end());
   std::stable_sort(s.pareto.begin(), s.pareto.end(), [](auto& a, auto& b) { return a.second > b.second; });
-  if (s.units > 0) s.final_yield = static_cast<double>(s.units_by_final_verdict["pass"]) / s.units;
+  s.final_yield = lot_final_yield(runs);
   const auto n = s.resonances_hz.size();
   if (n >= 1) {
     double sum = 0;

@@ -1,11 +1,13 @@
 // The client's pure parts: verdict banner, return-loss plot, progress, advice to the operator,
 // lot yield, option parsing and API reply decoding.
 #include <gtest/gtest.h>
+#include <fmt/format.h>
 
 #include <cmath>
 #include <sstream>
 
 #include "daemon/client/api_client.hpp"
+#include "daemon/client/console.hpp"
 #include "daemon/client/cli.hpp"
 #include "daemon/client/exit_codes.hpp"
 #include "daemon/client/line_input.hpp"
@@ -14,6 +16,10 @@
 #include "daemon/client/text_plot.hpp"
 #include "daemon/client/unit_advice.hpp"
 #include "daemon/client/verdict_banner.hpp"
+#include "daemon/store/export.hpp"
+#include "daemon/store/lot_report.hpp"
+#include "daemon/store/run_store.hpp"
+#include "tests/support/process.hpp"
 
 namespace echoline::client {
 namespace {
@@ -230,6 +236,61 @@ TEST(ClientInput, HeldSerialsComeFirstInScanOrderButNotToPrompts) {
   EXPECT_EQ(li.next().value(), "B");
   EXPECT_EQ(li.next().value(), "C");
   EXPECT_EQ(li.held(), 0u);
+}
+
+// One definition of yield (daemon/store/README.md, "Queries and yield"): the store's query, the
+// lot report, `echoline runs`/`report` and the console's summary agree on one lot with retests
+// and aborted runs.
+TEST(Yield, StoreLotReportClientAndConsoleAgreeOnOneLot) {
+  struct Row { const char* serial; core::Verdict verdict; };
+  // A: fail then pass (reworked); B: pass, then a run aborted; C: aborted only; D: fail;
+  // E: pass, then fail.
+  const std::vector<Row> rows = {{"A", core::Verdict::fail},    {"B", core::Verdict::pass}, {"C", core::Verdict::aborted},
+                                 {"D", core::Verdict::fail},    {"E", core::Verdict::pass}, {"A", core::Verdict::pass},
+                                 {"B", core::Verdict::aborted}, {"E", core::Verdict::fail}};
+  std::vector<core::RunResult> runs;
+  for (std::size_t i = 0; i < rows.size(); ++i) {
+    core::RunResult r;
+    r.run_id = fmt::format("20261203T100{}00Z-y-{}", i, i);
+    r.serial = rows[i].serial;
+    r.lot = "LOT-Y";
+    r.station = "bench";
+    r.started_utc = fmt::format("2026-12-03T10:0{}:00.000Z", i);
+    r.ended_utc = fmt::format("2026-12-03T10:0{}:30.000Z", i);
+    r.verdict = rows[i].verdict;
+    if (r.verdict == core::Verdict::fail) r.failure_class = core::FailureClass::tuned_low;
+    runs.push_back(r);
+  }
+  // Units with a finished run: A, B, D, E; latest finished run passed: A, B.
+  const double expected = 2.0 / 4.0;
+
+  testing::TempDir dir("echoline-yield");
+  auto st = store::RunStore::open(dir / "y.sqlite");
+  ASSERT_TRUE(st.ok()) << st.error().message;
+  for (const auto& r : runs) ASSERT_TRUE((*st)->save_run(r).ok()) << r.run_id;
+  auto by_lot = (*st)->yield_by(store::YieldGroup::lot, "LOT-Y");
+  ASSERT_TRUE(by_lot.ok() && by_lot->size() == 1u);
+  EXPECT_EQ(by_lot->front().units_tested, 4);
+  EXPECT_DOUBLE_EQ(by_lot->front().final_yield, expected);
+
+  const store::LotStats stats = store::compute_lot_stats(runs, {});
+  EXPECT_DOUBLE_EQ(stats.final_yield, expected);
+  EXPECT_EQ(stats.units_by_final_verdict.at("pass"), 2);
+  const std::string html = store::build_lot_report("LOT-Y", runs, {}, {});
+  EXPECT_NE(html.find(">50.0%<"), std::string::npos);
+
+  json listed = json::array();
+  for (const auto& r : runs) listed.push_back(store::run_to_json(r, false));
+  const LotYield y = lot_yield(listed);
+  EXPECT_EQ(y.units, 5);
+  EXPECT_EQ(y.judged, 4);
+  EXPECT_EQ(y.passed, 2);
+  EXPECT_DOUBLE_EQ(y.yield, expected);
+
+  SessionSummary session;
+  for (const auto& r : runs) session.outcomes.push_back({"session", r.serial, core::to_string(r.verdict), ""});
+  EXPECT_DOUBLE_EQ(session.yield(), expected);
+  EXPECT_EQ(session.units_judged(), 4);
 }
 
 }  // namespace

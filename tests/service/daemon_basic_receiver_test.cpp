@@ -81,7 +81,7 @@ TEST(BasicReceiver, DaemonRefusesToStartWithARecipeThatNeedsAnAbsentOperation) {
   while (auto line = proc.read_line(30s)) err += *line + "\n";
   const auto code = proc.wait(10s);
   ASSERT_TRUE(code.has_value());
-  EXPECT_NE(*code, 0);
+  EXPECT_EQ(*code, 2) << "a recipe the station cannot run is a configuration error (README, Exit codes)";
   for (const char* op : {"set_vbw", "set_reference_level", "set_attenuation"}) {
     EXPECT_NE(err.find(op), std::string::npos) << op << " not named in:\n" << err;
   }
