@@ -153,27 +153,51 @@ class OperatorPageTest(unittest.TestCase):
         self.assertEqual(verdict, "aborted")
         self.assertIn("cancel", self.stored(run_id)[3])
         self.station.control({"cmd": "clear-faults"})
-        # The queued serial was not lost: it is tested next, by itself.
+        # The queued serial was not lost: it waits until its unit is connected (F2), then is tested.
+        wait_for("the next unit's prompt", lambda: by_id(d, "next-bar").is_displayed())
+        self.assertEqual(by_id(d, "next-serial").text, queued)
+        self.assertTrue(self.verdict_box().is_displayed(), "the cancelled unit's verdict stays in view")
+        screenshot(d, "operator-next-1024x600")
+        self.station.connect_unit(queued)
+        press(d, Keys.F2)
         run_id2, _ = self.wait_verdict(queued, run_id)
         self.assertEqual(self.stored(run_id2)[0], queued)
         self.assertEqual(d.find_elements(By.CSS_SELECTOR, "#queue li"), [])
 
     def test_4_daemon_restart_mid_lot(self):
         d = self.driver
-        previous = self.verdict_box().get_attribute("data-run-id")
+        # The daemon stops while a unit is measured (each receiver reply 25 ms late).
+        interrupted = self.serials[UNITS + 3]
+        self.station.control({"cmd": "fault", "role": "receiver", "kind": "slow-reply", "probability": 1.0,
+                              "delay_ms": 25, "seed": 2})
+        self.station.connect_unit(interrupted)
+        self.scan(interrupted)
+        wait_for("the sweep to be under way", lambda: by_id(d, "run-panel").is_displayed()
+                 and by_id(d, "run-serial").text == interrupted and "point" in by_id(d, "run-count").text)
         self.station.stop_daemon()
+        self.station.control({"cmd": "clear-faults"})
         wait_for("the page to say the connection is lost", lambda: by_id(d, "conn").get_attribute("data-state") == "lost")
         # Scanned while the daemon is down: kept in the queue, tested once it is back.
-        serial = self.serials[UNITS + 3]
-        self.station.connect_unit(serial)
+        serial = self.serials[UNITS + 4]
         self.scan(serial)
         self.assertEqual([li.get_attribute("data-serial") for li in d.find_elements(By.CSS_SELECTOR, "#queue li")], [serial])
+        self.station.connect_unit(serial)
         self.station.start_daemon()
         wait_for("the page to be live again", lambda: by_id(d, "conn").get_attribute("data-state") == "live", timeout_s=30)
+        # The interrupted unit's outcome is shown (aborted, as stored), then the queued unit is tested.
+        stored_interrupted = self.station.store().execute(
+            "SELECT run_id, verdict FROM runs WHERE serial = ? ORDER BY seq DESC LIMIT 1", (interrupted,)).fetchone()
+        self.assertEqual(stored_interrupted[1], "aborted")
+        wait_for("the interrupted unit's outcome", lambda: interrupted in
+                 [li.get_attribute("data-serial") for li in d.find_elements(By.CSS_SELECTOR, "#recent li[data-verdict='aborted']")])
+        previous = stored_interrupted[0]
+        wait_for("the next unit's prompt", lambda: by_id(d, "next-bar").is_displayed())
+        self.assertEqual(by_id(d, "next-serial").text, serial)
+        press(d, Keys.F2)
         run_id, verdict = self.wait_verdict(serial, previous)
         self.assertEqual(self.stored(run_id)[:2], (serial, verdict))
         # And scanning goes on as before.
-        serial2 = self.serials[UNITS + 4]
+        serial2 = self.serials[UNITS + 5]
         self.station.connect_unit(serial2)
         self.scan(serial2)
         self.wait_verdict(serial2, run_id)

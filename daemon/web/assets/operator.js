@@ -1,4 +1,5 @@
-// The operator page: scan serials (none is ever dropped: they queue while a unit is measured),
+// The operator page: scan serials (none is ever dropped: they queue while a unit is measured,
+// and a queued unit starts only once the operator says it is connected),
 // calibrate when asked, watch the unit's progress, read the verdict, its reason, the tray and
 // the plot. Everything goes through the station's API (common.js); keyboard alone works.
 "use strict";
@@ -6,15 +7,29 @@
 const state = {
   status: null,       // last status result
   queue: [],          // serials scanned and not yet started, oldest first
+  go: null,           // the queue's first serial may start: scanned at an idle station, or F2 pressed
   job: null,          // {job:"test"|"calibration"|"check", serial?, standard?, point, of, waiting?}
   asking: null,       // serial whose retest question is open
   starting: false,    // a test.start or history call is on its way
   calDone: [],        // standards measured in the calibration in progress
   shown: false,       // a verdict has been shown: it stays until the next unit starts
+  interrupted: null,  // serial under test when the connection was lost
 };
 
 function show(panel) {
   for (const id of ["idle-panel", "run-panel", "cal-panel", "question", "verdict-panel"]) byId(id).hidden = id !== panel;
+  renderNext();
+}
+
+// A serial scanned while another unit was measured waits for its unit to be connected: the
+// station must not measure the previous unit under the next one's serial.
+function waitingForGo() {
+  return !state.job && !state.asking && state.queue.length > 0 && state.go !== state.queue[0] && !calibrationDue();
+}
+function renderNext() {
+  const bar = byId("next-bar");
+  bar.hidden = !waitingForGo();
+  if (!bar.hidden) byId("next-serial").textContent = state.queue[0];
 }
 function focusSerial() { const s = byId("serial"); if (document.activeElement !== s) s.focus(); }
 
@@ -24,7 +39,13 @@ function notice(text) {
   n.hidden = !text;
 }
 
+function dequeue() {
+  state.queue.shift();
+  state.go = null;
+}
+
 function renderQueue() {
+  renderNext();
   const q = clear(byId("queue"));
   state.queue.forEach((serial, i) => q.append(el("li", { "data-serial": serial }, serial, i === 0 && state.asking === serial ? " – asking" : "")));
   byId("queue-count").textContent = String(state.queue.length);
@@ -122,15 +143,16 @@ function renderVerdict(ev) {
   const advice = ev.advice || {};
   byId("verdict-action").textContent = advice.action || "";
   byId("verdict-detail").textContent = [advice.detail, run.trim && run.trim.text ? "Trim: " + run.trim.text : ""].filter(Boolean).join(" ");
-  byId("verdict-metrics").textContent = advice.metrics || "";
+  // An aborted run was not judged: no figures and no plot to read anything from.
+  byId("verdict-metrics").textContent = v === "aborted" ? "" : advice.metrics || "";
   const img = byId("plot");
   img.alt = `Return loss of ${run.serial} against the limit lines`;
-  if (run.points_count > 0 && run.stored !== false) {
+  if (v !== "aborted" && run.points_count > 0 && run.stored !== false) {
     img.src = `/plot/${encodeURIComponent(run.run_id)}.svg?session=${encodeURIComponent(Station.sessionId())}`;
-    img.hidden = false;
+    img.closest("figure").hidden = false;
   } else {
     img.removeAttribute("src");
-    img.hidden = true;
+    img.closest("figure").hidden = true;
   }
   const recent = byId("recent");
   recent.prepend(el("li", { "data-serial": run.serial, "data-verdict": v, "data-run-id": run.run_id }, verdictTag(v),
@@ -161,6 +183,7 @@ async function pump() {
   if (state.job || state.asking || state.starting || state.queue.length === 0) return;
   if (calibrationDue()) { renderCalibration(); return; }
   const serial = state.queue[0];
+  if (state.go !== serial) { renderNext(); return; }
   state.starting = true;
   try {
     const h = await Station.call("runs.history", { serial });
@@ -189,7 +212,8 @@ async function startTest(serial, retest) {
   if (who) args.operator = who;
   const r = await Station.call("test.start", args);
   if (r.ok) {
-    if (state.queue[0] === serial) state.queue.shift();
+    if (state.queue[0] === serial) dequeue();
+    state.go = null;
     notice("");
     if (!state.job) state.job = { job: "test", serial, point: 0, of: r.result.points };
     renderQueue();
@@ -200,7 +224,7 @@ async function startTest(serial, retest) {
   if (code === "busy") return;                       // the station is busy elsewhere: keep it queued
   if (code === "calibration_due" || code === "check_due") { await refreshStatus(); return; }
   // Refused for the serial itself: take it off the queue, but say so with the serial in full.
-  if (state.queue[0] === serial) state.queue.shift();
+  if (state.queue[0] === serial) dequeue();
   notice(`${serial} not tested: ${r.error.message}`);
   renderQueue();
   setTimeout(pump, 0);
@@ -215,7 +239,7 @@ async function answerRetest(yes) {
     state.starting = true;
     try { await startTest(serial, true); } finally { state.starting = false; }
   } else {
-    if (state.queue[0] === serial) state.queue.shift();
+    if (state.queue[0] === serial) dequeue();
     notice(`${serial} skipped (not tested again).`);
     renderQueue();
     renderIdle();
@@ -236,6 +260,7 @@ async function calibrationAction() {
   const due = calibrationDue();
   if (!due) return;
   state.calDone = [];
+  state.go = null;   // the standards take the unit's place at the port: it must be connected again
   const r = await Station.call(due.kind === "check" ? "cal.check" : "cal.start");
   if (!r.ok) notice(r.error.message);
 }
@@ -285,10 +310,33 @@ function onEvent(ev) {
   }
 }
 
+// The connection dropped while a unit was measured (the daemon restarted, say): once back,
+// show what the store holds for it, so the operator is never left without its outcome.
+async function recoverInterrupted() {
+  const serial = state.interrupted;
+  state.interrupted = null;
+  if (!serial || state.job) return;
+  const h = await Station.call("runs.history", { serial });
+  if (!h.ok || h.result.runs.length === 0) return;
+  const run = h.result.runs[h.result.runs.length - 1];
+  const box = byId("verdict");
+  if (box.dataset.runId === run.run_id) return;   // its result did arrive
+  const advice = run.verdict === "aborted"
+    ? { action: "Not judged: the test did not finish. Test the unit again.", detail: "" }
+    : { action: "The station was out of reach when this verdict came; it is shown from the run store.", detail: "" };
+  renderVerdict({ run, advice, received_ms: Date.now() });
+}
+
+function goNext() {
+  state.go = state.queue[0];
+  renderNext();
+  pump();
+}
+
 function onKey(e) {
   if (e.key === "F2") {
     e.preventDefault();
-    if (state.asking) answerRetest(true); else calibrationAction();
+    if (state.asking) answerRetest(true); else if (waitingForGo()) goNext(); else calibrationAction();
   } else if (e.key === "Escape") {
     e.preventDefault();
     if (state.asking) answerRetest(false); else cancelJob();
@@ -303,6 +351,10 @@ function setup() {
     const value = serial.value.trim();
     serial.value = "";
     if (!value) return;
+    // Scanned at an idle station: the unit is at the port, go. Otherwise it waits for F2.
+    if (!state.job && !state.asking && !state.starting && state.queue.length === 0 && byId("conn").dataset.state === "live") {
+      state.go = value;
+    }
     state.queue.push(value);
     renderQueue();
     pump();
@@ -322,19 +374,21 @@ function setup() {
   byId("cal-go").addEventListener("click", () => { calibrationAction(); focusSerial(); });
   byId("cal-cancel").addEventListener("click", () => { cancelJob(); focusSerial(); });
   byId("cancel").addEventListener("click", () => { cancelJob(); focusSerial(); });
+  byId("next-go").addEventListener("click", () => { goNext(); focusSerial(); });
   setInterval(renderStrip, 15000);
 
   const conn = byId("conn");
   Station.on("ready", () => {
     conn.textContent = "live";
     conn.dataset.state = "live";
-    refreshStatus().then(() => { markLive(); pump(); }).catch(() => {});
+    refreshStatus().then(recoverInterrupted).then(() => { markLive(); pump(); }).catch(() => {});
   });
   Station.on("resync", () => refreshStatus().catch(() => {}));
   Station.on("lost", () => {
     conn.textContent = "connection lost – reconnecting…";
     conn.dataset.state = "lost";
     state.starting = false;
+    if (state.job && state.job.job === "test" && state.job.serial) state.interrupted = state.job.serial;
   });
   Station.on("event", onEvent);
   Station.start("operator page");
