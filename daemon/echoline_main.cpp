@@ -33,6 +33,7 @@ constexpr const char* kHelp =
     "  export              runs as CSV or JSON (--scope run|serial|lot, --key, --format, --out)\n"
     "  cal status|history  the calibration in use; the calibrations used so far\n"
     "  status              the daemon's station, recipe, instruments, calibration, current job\n"
+    "  (status, runs and cal take --json: one JSON object on standard output instead of text)\n"
     "\n"
     "  --version           print the version and the commit it was built from, as in\n"
     "                      echoline 0.2.0 (g1234abc), and exit\n"
