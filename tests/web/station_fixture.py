@@ -28,6 +28,18 @@ def free_port():
         return s.getsockname()[1]
 
 
+def non_loopback_address():
+    """An IPv4 address of this machine that is not loopback, or None (no network interface).
+    Connecting a UDP socket only asks the routing table; nothing is sent."""
+    try:
+        with socket.socket(socket.AF_INET, socket.SOCK_DGRAM) as s:
+            s.connect(("192.0.2.1", 9))   # TEST-NET-1 (RFC 5737): never a real peer
+            address = s.getsockname()[0]
+    except OSError:
+        return None
+    return None if address.startswith("127.") else address
+
+
 def wait_line(proc, prefix, timeout_s, what):
     """Reads the child's stdout until a line starting with `prefix`; returns that line."""
     deadline = time.monotonic() + timeout_s
@@ -44,7 +56,9 @@ def wait_line(proc, prefix, timeout_s, what):
 
 
 class Station:
-    def __init__(self, lot="config/sim/lots/whip915-lot-a.jsonc", sim_config="config/sim/instant.jsonc"):
+    def __init__(self, lot="config/sim/lots/whip915-lot-a.jsonc", sim_config="config/sim/instant.jsonc",
+                 web_host="127.0.0.1"):
+        self.web_host = web_host
         self.work = tempfile.mkdtemp(prefix="echoline-web-")
         self.lot = os.path.join(SRC, lot)
         self.sim_config = os.path.join(SRC, sim_config)
@@ -88,7 +102,7 @@ class Station:
             "fixture": {"coupling_db": 20, "mainline_loss_db": 0.5, "cable_loss_db": 0.3, "source_match_db": 25,
                         "nominal_directivity_db": 35, "test_port_delay_ns": 2},
             "api": {"unix_socket": os.path.join(self.work, "api.sock"), "token_file": os.path.join(self.work, "token")},
-            "web": {"host": "127.0.0.1", "port": self.web_port},
+            "web": {"host": self.web_host, "port": self.web_port},
         }
         with open(os.path.join(self.work, "station.jsonc"), "w") as f:
             json.dump(config, f, indent=2)
@@ -98,7 +112,9 @@ class Station:
                                        stdout=subprocess.PIPE, stderr=self.daemon_log, text=True)
         line, _ = wait_line(self.daemon, "listening", 30, "echolined")
         self.url = line.split("web=", 1)[1].strip()
-        assert self.url == f"http://127.0.0.1:{self.web_port}/", line
+        assert self.url == f"http://{self.web_host}:{self.web_port}/", line
+        if self.web_host == "0.0.0.0":
+            self.url = f"http://127.0.0.1:{self.web_port}/"
 
     def stop_daemon(self):
         if self.daemon and self.daemon.poll() is None:
