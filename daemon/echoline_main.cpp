@@ -33,6 +33,9 @@ constexpr const char* kHelp =
     "  export              runs as CSV or JSON (--scope run|serial|lot, --key, --format, --out)\n"
     "  cal status|history  the calibration in use; the calibrations used so far\n"
     "  status              the daemon's station, recipe, instruments, calibration, current job\n"
+    "                      and forwarding to the central database\n"
+    "administrator:\n"
+    "  central migrate     create or upgrade the central PostgreSQL database's schema and roles\n"
     "  (status, runs and cal take --json: one JSON object on standard output instead of text)\n"
     "\n"
     "  --version           print the version and the commit it was built from, as in\n"
@@ -70,6 +73,7 @@ int main(int argc, char** argv) {
   static const std::map<std::string, int (*)(const Argv&)> commands = {
       {"station", cmd_station}, {"recipe", cmd_recipe}, {"dry-run", cmd_dry_run}, {"runs", cmd_runs},
       {"report", cmd_report},   {"export", cmd_export}, {"cal", cmd_cal},         {"status", cmd_status},
+      {"central", cmd_central},
   };
   auto it = commands.find(command);
   if (it == commands.end()) {

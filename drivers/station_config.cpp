@@ -102,7 +102,7 @@ StationConfig load_station_config(const std::filesystem::path& file) {
   JsoncDocument doc = JsoncDocument::load(file);
   if (!doc.root().is_object()) doc.fail(kRoot, "a station config is a JSON object {...}");
   doc.check_keys(kRoot, {"station", "data_dir", "log_dir", "recipe", "instruments", "fixture", "api", "serial_pattern",
-                        "calibration_kit", "web"});
+                        "calibration_kit", "web", "central"});
   const std::filesystem::path base = std::filesystem::absolute(file).parent_path();
   StationConfig c;
   c.file = doc.file();
@@ -124,6 +124,11 @@ StationConfig load_station_config(const std::filesystem::path& file) {
   }
   load_api(doc, base, c.data_dir, c.api);
   load_web(doc, c.api, c.web);
+  if (doc.has(kRoot / "central")) {
+    // Only the path here: the settings file itself is read (and its permissions checked) by the
+    // forwarder and the client, so a station config never holds a password.
+    c.central_settings = resolve(base, doc.require_string(kRoot / "central"));
+  }
   c.serial_pattern = doc.string_or(kRoot / "serial_pattern", c.serial_pattern);
   try {
     std::regex re(c.serial_pattern, std::regex::ECMAScript);

@@ -47,6 +47,9 @@ struct StationConfig {
   std::filesystem::path calibration_kit;                    // kit definition file (absolute); "" = built-in conservative kit
   ApiConfig api;
   WebConfig web;
+  // Connection settings file of the central PostgreSQL database (absolute); "" = runs stay on
+  // the station. Read by the forwarder in echolined and by the client's central readers.
+  std::filesystem::path central_settings;
   std::string serial_pattern = "^[A-Za-z0-9._-]{1,64}$";   // ECMAScript regex for unit serials
   std::string file;                                         // the file it was loaded from
 

@@ -7,6 +7,7 @@
 
 #include <fmt/format.h>
 
+#include "daemon/client/central_access.hpp"
 #include "daemon/client/cli.hpp"
 #include "daemon/client/commands.hpp"
 #include "daemon/client/exit_codes.hpp"
@@ -23,10 +24,13 @@ using nlohmann::json;
 namespace {
 
 constexpr const char* kRunsHelp =
-    "usage: echoline runs --serial SERIAL | --lot LOT [--json] [--store FILE] [connection options]\n\n"
+    "usage: echoline runs --serial SERIAL | --lot LOT [--json]\n"
+    "                     [--store FILE | --db CONNINFO|FILE | --central] [connection options]\n\n"
     "Lists the stored runs of one unit or one lot, oldest first: time, run id, verdict, failure\n"
     "class, resonance (MHz), depth (dB) and the reason. Through the daemon, or offline from a\n"
-    "run store file with --store FILE. A lot listing ends with its yield.\n"
+    "run store file with --store FILE. A lot listing ends with its yield. From the central database\n"
+    "(--db, --central) it lists every station's runs, with a station column, and marks a run of a\n"
+    "unit that was tested on another bench before as a retest on another bench.\n"
     "--json   one JSON object instead: {\"serial\" or \"lot\": KEY, \"runs\": [API run objects,\n"
     "         oldest first], and for a lot \"yield\": {\"units\", \"judged\", \"passed\", \"yield\"}}\n"
     "         (yield as a fraction, the store's definition)\n\n"
@@ -39,7 +43,9 @@ constexpr const char* kReportHelp =
     "Through the daemon (engineer role): the daemon sends the report back and this command writes\n"
     "FILE on this computer; --out - writes it to standard output (the yield line then goes to\n"
     "standard error). Offline from a run store file with --store FILE, opened read-only (the limit\n"
-    "lines come from --recipe FILE, default the station config's recipe).\n\n"
+    "lines come from --recipe FILE, default the station config's recipe). From the central database\n"
+    "(--db, --central) the report spans every station that tested the lot, with yield by station,\n"
+    "operator and calibration and each station's mean resonance and return loss against the others.\n\n"
     "exit: 0 written, 1 no runs for that lot, 2 usage, 3 daemon unreachable, 5 storage error\n\n";
 
 constexpr const char* kExportHelp =
@@ -54,7 +60,7 @@ constexpr const char* kExportHelp =
     "            a scalar station measures no phase, so every angle is 0 (the header says so)\n"
     "Through the daemon (engineer role): the daemon sends the text back and this command writes\n"
     "FILE on this computer; --out - writes it to standard output. Offline from a run store file\n"
-    "with --store FILE, opened read-only.\n\n"
+    "with --store FILE, opened read-only, or from the central database (--db, --central).\n\n"
     "exit: 0 written, 1 nothing stored under KEY, 2 usage, 3 daemon unreachable, 5 storage error\n\n";
 
 // Replies that carry a whole report or export may be large (a 10 000-run lot report is ~30 MB).
@@ -90,6 +96,15 @@ void print_yield(const std::string& lot, const json& runs, std::ostream& os = st
 
 // Runs of a serial or a lot as API run objects, from the daemon or a store.
 json fetch_runs(const Args& args, const std::string& what, bool by_serial, const std::string& key) {
+  if (auto settings = central_settings_from_args(args, what)) {
+    auto reader = open_central(*settings, what);
+    auto runs = by_serial ? reader->history(key, false) : reader->lot_runs(key, false);
+    if (!runs) throw CliExit(kExitStorage, fmt::format("{}: {}", what, runs.error().message));
+    json list = json::array();
+    for (const auto& r : *runs) list.push_back(store::run_to_json(r, false));
+    mark_retests_on_other_benches(list);
+    return list;
+  }
   if (auto file = args.get("--store")) {
     auto st = open_store(*file, what);
     auto runs = by_serial ? st->history(key) : st->lot_runs(key, false);
@@ -109,9 +124,10 @@ json fetch_runs(const Args& args, const std::string& what, bool by_serial, const
 int cmd_runs(const Argv& argv) {
   std::set<std::string> values = kConnectionOptions;
   values.insert({"--serial", "--lot", "--store"});
-  Args args(argv, "runs", values, {"--help", "--json"}, 0);
+  values.insert(kCentralValueOptions.begin(), kCentralValueOptions.end());
+  Args args(argv, "runs", values, {"--help", "--json", "--central"}, 0);
   if (args.flag("--help")) {
-    std::cout << kRunsHelp << kConnectionHelp;
+    std::cout << kRunsHelp << kCentralOptionHelp << kConnectionHelp;
     return kExitOk;
   }
   const auto serial = args.get("--serial");
@@ -139,17 +155,24 @@ int cmd_runs(const Argv& argv) {
 int cmd_report(const Argv& argv) {
   std::set<std::string> values = kConnectionOptions;
   values.insert({"--lot", "--out", "--store", "--recipe"});
-  Args args(argv, "report", values, {"--help"}, 0);
+  values.insert(kCentralValueOptions.begin(), kCentralValueOptions.end());
+  Args args(argv, "report", values, {"--help", "--central"}, 0);
   if (args.flag("--help")) {
-    std::cout << kReportHelp << kConnectionHelp;
+    std::cout << kReportHelp << kCentralOptionHelp << kConnectionHelp;
     return kExitOk;
   }
   const auto lot = args.get("--lot");
   const auto out = args.get("--out");
   if (!lot || !out || out->empty()) args.usage_error("--lot LOT and --out FILE.html (or - for standard output) are required");
   std::ostream& info = *out == "-" ? std::cerr : std::cout;
-  if (auto file = args.get("--store")) {
-    auto st = open_store(*file, "report");
+  std::unique_ptr<store::RunReader> source;
+  if (auto settings = central_settings_from_args(args, "report")) {
+    source = open_central(*settings, "report");
+  } else if (auto file = args.get("--store")) {
+    source = open_store(*file, "report");
+  }
+  if (source) {
+    auto* st = source.get();
     std::string recipe_file = args.get_or("--recipe", "");
     if (recipe_file.empty()) recipe_file = find_station_config(args, true)->recipe.string();
     const core::Recipe recipe = core::load_recipe(recipe_file);
@@ -180,9 +203,10 @@ int cmd_report(const Argv& argv) {
 int cmd_export(const Argv& argv) {
   std::set<std::string> values = kConnectionOptions;
   values.insert({"--scope", "--key", "--run", "--format", "--out", "--store"});
-  Args args(argv, "export", values, {"--help"}, 0);
+  values.insert(kCentralValueOptions.begin(), kCentralValueOptions.end());
+  Args args(argv, "export", values, {"--help", "--central"}, 0);
   if (args.flag("--help")) {
-    std::cout << kExportHelp << kConnectionHelp;
+    std::cout << kExportHelp << kCentralOptionHelp << kConnectionHelp;
     return kExitOk;
   }
   std::string scope = args.get_or("--scope", "");
@@ -202,8 +226,14 @@ int cmd_export(const Argv& argv) {
   if (key.empty() || out.empty()) args.usage_error("--key KEY (or --run RUN_ID) and --out FILE (or - for standard output) are required");
   std::ostream& info = out == "-" ? std::cerr : std::cout;
   store::Document doc;
-  if (auto file = args.get("--store")) {
-    auto st = open_store(*file, "export");
+  std::unique_ptr<store::RunReader> source;
+  if (auto settings = central_settings_from_args(args, "export")) {
+    source = open_central(*settings, "export");
+  } else if (auto file = args.get("--store")) {
+    source = open_store(*file, "export");
+  }
+  if (source) {
+    auto* st = source.get();
     auto made = store::export_document(*st, scope, key, format);
     if (!made) throw CliExit(made.error().kind == ErrorKind::invalid_argument ? kExitUsage : kExitStorage,
                              made.error().message);

@@ -41,8 +41,9 @@ void print_calibration(const json& c) {
 
 constexpr const char* kStatusHelp =
     "usage: echoline status [--json] [connection options]\n\n"
-    "Shows the daemon's station, recipe, instruments (healthy or not), calibration and what is\n"
-    "running.\n"
+    "Shows the daemon's station, recipe, instruments (healthy or not), calibration, forwarding to\n"
+    "the central database (outbox depth, oldest unforwarded run, last successful forward) and\n"
+    "what is running.\n"
     "--json   one JSON object instead: the daemon's status reply (daemon/service/API.md, status)\n"
     "         with \"ready\": true when every instrument is healthy; same exit codes\n"
     "exit: 0 every instrument ready, 4 an instrument is NOT READY (the station cannot test),\n"
@@ -99,6 +100,23 @@ int cmd_status(const Argv& argv) {
     }
   }
   if (st.contains("calibration")) print_calibration(st["calibration"]);
+  if (st.contains("forwarding") && st["forwarding"].is_object()) {
+    const json& f = st["forwarding"];
+    if (!f.value("configured", false)) {
+      std::cout << fmt::format("central database: none configured (outbox {} runs)\n", f.value("outbox_depth", 0LL));
+    } else {
+      std::cout << fmt::format("central database: {} [{}]{}\n", s(f, "target"), s(f, "state"),
+                               s(f, "last_error").empty() ? "" : " " + s(f, "last_error"));
+      std::cout << fmt::format("outbox: {} runs waiting{}{}; last forward {}{}\n", f.value("outbox_depth", 0LL),
+                               s(f, "oldest_unforwarded_run").empty()
+                                   ? ""
+                                   : fmt::format(", oldest {} (committed {})", s(f, "oldest_unforwarded_run"),
+                                                 s(f, "oldest_unforwarded_utc")),
+                               f.value("outbox_refused", 0LL) ? fmt::format(", {} REFUSED (see the log)", f.value("outbox_refused", 0LL)) : "",
+                               s(f, "last_forward_utc").empty() ? "never" : s(f, "last_forward_utc"),
+                               s(f, "last_forwarded_run").empty() ? "" : " (" + s(f, "last_forwarded_run") + ")");
+    }
+  }
   std::cout << "busy: " << (st.contains("busy") && !st["busy"].is_null() ? st["busy"].dump() : std::string("no")) << "\n";
   return healthy ? kExitOk : kExitInstrument;
 }

@@ -18,5 +18,6 @@ int cmd_report(const Argv& argv);        // report --lot L --out FILE.html
 int cmd_export(const Argv& argv);        // export --scope ... --key ... --format ... --out FILE
 int cmd_cal(const Argv& argv);           // cal status | cal history
 int cmd_status(const Argv& argv);        // status
+int cmd_central(const Argv& argv);       // central migrate
 
 }  // namespace echoline::client

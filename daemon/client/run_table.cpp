@@ -11,9 +11,22 @@ namespace echoline::client {
 
 using nlohmann::json;
 
+void mark_retests_on_other_benches(json& runs) {
+  std::map<std::string, std::string> last_station;   // serial -> station of its latest finished run
+  for (auto& r : runs) {
+    const std::string serial = r.value("serial", ""), station = r.value("station", "");
+    auto it = last_station.find(serial);
+    if (it != last_station.end() && it->second != station) r["retest_other_bench"] = it->second;
+    if (r.value("verdict", "") != "aborted") last_station[serial] = station;
+  }
+}
+
 std::string run_table(const json& runs) {
-  std::string out = fmt::format("{:<24} {:<40} {:<12} {:<11} {:>10} {:>8}  {}\n", "time (UTC)", "run id", "verdict",
-                                "class", "res. MHz", "depth dB", "reason");
+  std::set<std::string> stations;
+  for (const auto& r : runs) stations.insert(r.value("station", ""));
+  const bool by_station = stations.size() > 1;
+  std::string out = fmt::format("{:<24} {:<54} {:<12} {:<11} {:>10} {:>8}  {}{}\n", "time (UTC)", "run id", "verdict",
+                                "class", "res. MHz", "depth dB", by_station ? "station  " : "", "reason");
   for (const auto& r : runs) {
     const json m = r.contains("metrics") && r["metrics"].is_object() ? r["metrics"] : json::object();
     const auto res = m.contains("resonance_hz") && m["resonance_hz"].is_number()
@@ -24,8 +37,14 @@ std::string run_table(const json& runs) {
                            : std::string("-");
     std::string cls = r.value("failure_class", "");
     if (cls.empty()) cls = "-";
-    out += fmt::format("{:<24} {:<40} {:<12} {:<11} {:>10} {:>8}  {}\n", r.value("started_utc", ""),
-                       r.value("run_id", ""), r.value("verdict", ""), cls, res, depth, r.value("reason", ""));
+    std::string reason = r.value("reason", "");
+    if (r.contains("retest_other_bench")) {
+      reason = fmt::format("RETEST on another bench (before: {}){}{}", r.value("retest_other_bench", ""),
+                           reason.empty() ? "" : "; ", reason);
+    }
+    out += fmt::format("{:<24} {:<54} {:<12} {:<11} {:>10} {:>8}  {}{}\n", r.value("started_utc", ""),
+                       r.value("run_id", ""), r.value("verdict", ""), cls, res, depth,
+                       by_station ? r.value("station", "") + "  " : "", reason);
   }
   return out;
 }

@@ -8,8 +8,14 @@
 
 namespace echoline::client {
 
-// `runs`: array of API run objects (API.md), oldest first.
+// `runs`: array of API run objects (API.md), oldest first. When the runs come from more than one
+// station a station column is added, and a run marked retest_other_bench says so before its reason.
 std::string run_table(const nlohmann::json& runs);
+
+// Marks each run (oldest first) whose serial already had a finished run on another station:
+// "retest_other_bench" = that station (the latest such). A station cannot know this itself, so
+// only a reader of the central database sees it.
+void mark_retests_on_other_benches(nlohmann::json& runs);
 
 // Yield as the store defines it (daemon/store/yield.hpp): a unit's latest finished run decides.
 struct LotYield {

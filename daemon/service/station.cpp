@@ -153,12 +153,27 @@ Station::Station(drivers::StationConfig config) : config_(std::move(config)) {
     spdlog::error("recipe text not kept for offline re-judging: {}", s.error().message);
   }
 
+  auto instance = store_->instance_id();
+  if (!instance) throw std::runtime_error(instance.error().message);
+  instance_id_ = *instance;
+  auto last_seq = store_->last_run_seq();
+  if (!last_seq) throw std::runtime_error(last_seq.error().message);
+  run_counter_ = static_cast<std::uint64_t>(*last_seq);
+
   // Runs a killed or crashed daemon left in progress: on record as aborted, never as a pass.
   auto interrupted = store_->finalize_interrupted(store::kStoppedUnexpectedlyReason, utc_iso8601(unix_now_s()));
   if (!interrupted) throw std::runtime_error(interrupted.error().message);
   for (const auto& id : *interrupted) {
     spdlog::warn("run {} was still in progress when the daemon stopped: stored as aborted ({})", id,
                  store::kStoppedUnexpectedlyReason);
+  }
+
+  if (!config_.central_settings.empty()) {
+    auto settings = central::load_settings(config_.central_settings);
+    if (!settings) throw std::runtime_error(settings.error().message);
+    forwarder_ = std::make_unique<central::Forwarder>(db, so, std::move(settings.value()), central::kit_document(kit_));
+  } else {
+    spdlog::info("no central database configured: runs stay in {}", db.string());
   }
 
   auto latest = store_->latest_calibration();
@@ -187,6 +202,8 @@ void Station::connect_instruments() {
 
 void Station::shutdown() {
   instruments_->close_all();
+  if (forwarder_) forwarder_->stop();
+  forwarder_.reset();
   store_.reset();
 }
 
@@ -248,7 +265,37 @@ json Station::status_json() const {
           {"version", std::string(version())},
           {"recipe", recipe_json(*r)},
           {"instruments", instruments},
-          {"calibration", calibration_json()}};
+          {"calibration", calibration_json()},
+          {"forwarding", forwarding_json()}};
+}
+
+void Station::note_commit(double ms) {
+  std::lock_guard lock(mu_);
+  commit_ms_last_ = ms;
+  commit_ms_max_ = std::max(commit_ms_max_, ms);
+  ++commits_;
+}
+
+json Station::forwarding_json() const {
+  json j = {{"configured", forwarder_ != nullptr}};
+  if (forwarder_) j.update(forwarder_->status_json());
+  if (store_) {
+    auto st = store_->outbox_status();
+    if (st) {
+      j["outbox_depth"] = st->depth;
+      j["outbox_refused"] = st->refused;
+      j["oldest_unforwarded_run"] = st->oldest_run_id;
+      j["oldest_unforwarded_utc"] = st->oldest_committed_utc;
+      j["last_forward_utc"] = st->last_forward_utc;
+      j["last_forwarded_run"] = st->last_run_id;
+      j["forwarded_runs"] = st->forwarded_runs;
+    } else {
+      j["outbox_error"] = st.error().message;
+    }
+  }
+  std::lock_guard lock(mu_);
+  j["store_commit_ms"] = {{"last", commit_ms_last_}, {"max", commit_ms_max_}, {"runs", commits_}};
+  return j;
 }
 
 std::optional<Refusal> Station::precheck_test(const TestRequest& request) const {
@@ -270,7 +317,9 @@ std::optional<Refusal> Station::precheck_test(const TestRequest& request) const 
 std::string Station::next_run_id(double now_s) {
   std::lock_guard lock(mu_);
   ++run_counter_;
-  return fmt::format("{}-{}-{:04}-{}", compact_utc(now_s), config_.station, run_counter_ % 10000, random_hex4());
+  // Globally unique (store/README.md, "Run ids"): time, station name, the store's random instance
+  // id (a re-installed station draws a new one) and the store's run counter.
+  return fmt::format("{}-{}-{}-{:06}", compact_utc(now_s), config_.station, instance_id_.substr(0, 8), run_counter_);
 }
 
 TestOutcome Station::run_test(const TestRequest& request, const CancelToken& cancel, const ProgressFn& progress) {
@@ -299,11 +348,15 @@ TestOutcome Station::run_test(const TestRequest& request, const CancelToken& can
   auto history = store_->history(request.serial);
   run.retest = request.retest || (history && !history->empty());
 
+  double begin_ms = 0;   // time begin_run took (0 when the run never got that far)
   auto finish = [&]() {
     run.ended_utc = utc_iso8601(unix_now_s());
     run.timings.total_s = seconds_since(t0);
     run.instruments = instruments_->identities();
+    const auto c0 = Clock::now();
     TestOutcome out{run, store_->save_run(run)};
+    note_commit(begin_ms + 1000 * seconds_since(c0));
+    if (forwarder_) forwarder_->nudge();
     if (!out.stored) spdlog::error("run {} of {} NOT stored: {}", run.run_id, run.serial, out.stored.error().message);
     if (run.verdict != core::Verdict::aborted) {
       std::lock_guard lock(mu_);
@@ -336,7 +389,10 @@ TestOutcome Station::run_test(const TestRequest& request, const CancelToken& can
   // Write-ahead: the run is on record (as in progress) before the source's RF goes on, so a
   // daemon killed mid-sweep leaves a run that the next start finalizes as aborted.
   run.instruments = instruments_->identities();
-  if (Status s = store_->begin_run(run); !s) {
+  const auto b0 = Clock::now();
+  Status begun = store_->begin_run(run);
+  begin_ms = 1000 * seconds_since(b0);
+  if (Status s = begun; !s) {
     run.reason = fmt::format("RF not switched on: the run store did not record the start of the run: {}",
                              s.error().message);
     return finish();
@@ -425,7 +481,7 @@ CalibrationOutcome Station::run_calibration(Prompter& prompter, const CancelToke
     }
   }
   const double now = unix_now_s();
-  std::string id = fmt::format("cal-{}-{}-{}", compact_utc(now), config_.station, random_hex4());
+  std::string id = fmt::format("cal-{}-{}-{}-{}", compact_utc(now), config_.station, instance_id_.substr(0, 8), random_hex4());
   core::CalibrationRecord rec = core::build_calibration(*recipe, traces, capability(*recipe), id, utc_iso8601(now));
   rec.station = config_.station;
   rec.instruments = instruments_->identities();

@@ -15,6 +15,7 @@
 
 #include <nlohmann/json.hpp>
 
+#include "daemon/central/forwarder.hpp"
 #include "daemon/core/calibration.hpp"
 #include "daemon/core/recipe.hpp"
 #include "daemon/core/recipe_check.hpp"
@@ -95,6 +96,9 @@ class Station {
   // --- any thread ---
   nlohmann::json status_json() const;
   nlohmann::json calibration_json() const;
+  // Outbox depth, oldest unforwarded run, last successful forward, the forwarder's state, and
+  // how long the store took to record runs (API.md, status).
+  nlohmann::json forwarding_json() const;
   std::optional<Refusal> precheck_test(const TestRequest& request) const;
   std::vector<std::string> standards() const;        // calibration order
   int plan_points() const;
@@ -113,6 +117,7 @@ class Station {
  private:
   core::StationCapability capability(const core::Recipe& recipe) const;
   std::string next_run_id(double now_s);
+  void note_commit(double ms);
   Result<std::vector<core::Reading>> sweep_standard(const std::string& standard, const core::Recipe& recipe,
                                                     Prompter& prompter, const CancelToken& cancel,
                                                     const StandardProgressFn& progress, bool connect = true);
@@ -121,6 +126,7 @@ class Station {
   core::CalKit kit_;   // the calibration kit the station config names (or the built-in conservative one)
   std::unique_ptr<Instruments> instruments_;
   std::unique_ptr<store::RunStore> store_;
+  std::unique_ptr<central::Forwarder> forwarder_;   // null when the config names no central database
 
   mutable std::mutex mu_;   // guards everything below
   std::shared_ptr<const core::Recipe> recipe_;
@@ -128,7 +134,12 @@ class Station {
   double calibration_created_s_ = 0;
   int units_since_check_ = 0;
   std::string check_failure_;   // check standard drifted, or the stored calibration is not valid: calibration due
-  std::uint64_t run_counter_ = 0;
+  std::uint64_t run_counter_ = 0;   // counts on from the store's last run number
+  std::string instance_id_;          // the store's random instance id (run ids)
+  // How long the store took to record runs (begin_run + save_run of one run), for status: the
+  // forwarder shares the store file, and this shows whether it ever held a test up.
+  double commit_ms_last_ = 0, commit_ms_max_ = 0;
+  long long commits_ = 0;
 };
 
 // The run as the API shows it (the store's JSON without points; "points_count" = stored points).

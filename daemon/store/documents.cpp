@@ -35,7 +35,7 @@ Status check_touchstone(const core::RunResult& run) {
 }
 }  // namespace
 
-Result<Document> export_document(RunStore& store, std::string_view scope, std::string_view key, std::string_view format) {
+Result<Document> export_document(RunReader& store, std::string_view scope, std::string_view key, std::string_view format) {
   if (format != "csv" && format != "runs-csv" && format != "json" && format != "s1p") {
     return make_error(ErrorKind::invalid_argument,
                       fmt::format("export: format must be {}, not \"{}\"", export_formats_text(), format));
@@ -78,7 +78,7 @@ Result<Document> export_document(RunStore& store, std::string_view scope, std::s
   return doc;
 }
 
-Result<Document> lot_report_document(RunStore& store, std::string_view lot, const core::Limits& limits,
+Result<Document> lot_report_document(RunReader& store, std::string_view lot, const core::Limits& limits,
                                      std::string_view generated_utc) {
   auto runs = store.lot_runs(lot, true);
   if (!runs) return runs.error();

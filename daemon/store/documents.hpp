@@ -9,7 +9,7 @@
 #include <string_view>
 
 #include "daemon/core/recipe.hpp"
-#include "daemon/store/run_store.hpp"
+#include "daemon/store/run_reader.hpp"
 #include "drivers/result.hpp"
 
 namespace echoline::store {
@@ -24,11 +24,11 @@ struct Document {
 // (one row per run, kRunCsvColumns), "json", "s1p" (Touchstone, scope run only).
 // Errors: invalid_argument naming the bad scope, format or combination, or a run that cannot be
 // a Touchstone file (a point without a calibrated return loss); storage.
-Result<Document> export_document(RunStore& store, std::string_view scope, std::string_view key, std::string_view format);
+Result<Document> export_document(RunReader& store, std::string_view scope, std::string_view key, std::string_view format);
 
 // The lot report (build_lot_report) with the calibrations its runs used, limit lines from `limits`.
 // runs == 0 when the lot has no runs. Errors: storage.
-Result<Document> lot_report_document(RunStore& store, std::string_view lot, const core::Limits& limits,
+Result<Document> lot_report_document(RunReader& store, std::string_view lot, const core::Limits& limits,
                                      std::string_view generated_utc);
 
 // The formats export_document takes, for messages and help: "csv, runs-csv, json or s1p".

@@ -152,11 +152,13 @@ json run_to_json(const core::RunResult& r, bool with_points) {
         {"band_low_hz", jnum(m.band_low_hz)}, {"band_high_hz", jnum(m.band_high_hz)},
         {"min_margin_db", jnum(m.min_margin_db)}, {"vswr_at_resonance", jnum(m.vswr_at_resonance)},
         {"mismatch_loss_db", jnum(m.mismatch_loss_db)}, {"directivity_db", jnum(m.directivity_db)},
-        {"resonance_low_hz", jnum(m.resonance_low_hz)}, {"resonance_high_hz", jnum(m.resonance_high_hz)}}},
+        {"resonance_low_hz", jnum(m.resonance_low_hz)}, {"resonance_high_hz", jnum(m.resonance_high_hz)},
+        {"resonance_interval", m.resonance_interval_kind}}},
       {"trim", nullptr},
       {"timings", {{"total_s", jnum(r.timings.total_s)}, {"sweep_s", jnum(r.timings.sweep_s)},
                    {"analysis_s", jnum(r.timings.analysis_s)}}},
       {"points_count", r.points.size()},
+      {"software", r.software},
   };
   if (r.trim) {
     j["trim"] = {{"element_length_mm", jnum(r.trim->element_length_mm)}, {"change_mm", jnum(r.trim->change_mm)},
@@ -233,6 +235,8 @@ Result<core::RunResult> run_from_json(const json& j) {
     r.metrics.vswr_at_resonance = get_num(m, "vswr_at_resonance", kInf);
     r.metrics.mismatch_loss_db = get_num(m, "mismatch_loss_db");
     r.metrics.directivity_db = get_num(m, "directivity_db");
+    r.metrics.resonance_interval_kind = m.value("resonance_interval", std::string());   // absent before schema 6
+    r.software = j.value("software", std::string());
     if (!j.at("trim").is_null()) {
       const json& t = j.at("trim");
       r.trim = core::TrimAdvice{get_num(t, "element_length_mm"), get_num(t, "change_mm"), get_num(t, "measured_hz"),

@@ -8,6 +8,7 @@
 #include <cmath>
 #include <set>
 
+#include "daemon/store/station_compare.hpp"
 #include "daemon/store/svg_plot.hpp"
 
 namespace echoline::store {
@@ -39,7 +40,7 @@ namespace {
 
 constexpr const char* kCss = R"css(
 body{font-family:"DejaVu Sans",Helvetica,Arial,sans-serif;margin:24px 32px;color:#1d2430;background:#fbfbf8;max-width:1200px}
-h1{font-size:26px;margin:0 0 4px 0} h2{font-size:18px;margin:28px 0 8px 0;border-bottom:2px solid #d6d3c4;padding-bottom:3px}
+h1{font-size:26px;margin:0 0 4px 0} h3{font-size:15px;margin:16px 0 6px 0} tr.drift td{background:#f6e3d8} h2{font-size:18px;margin:28px 0 8px 0;border-bottom:2px solid #d6d3c4;padding-bottom:3px}
 .meta{color:#4a5363;font-size:13px;margin-bottom:12px} .meta b{color:#1d2430}
 .cards{display:flex;gap:12px;flex-wrap:wrap} .card{border:1px solid #d6d3c4;border-radius:6px;padding:8px 14px;background:#fff;min-width:110px}
 .card .v{font-size:24px;font-weight:bold} .card .k{font-size:12px;color:#4a5363}
@@ -305,6 +306,57 @@ std::string unit_trace_svg(const core::RunResult& run, const core::Limits& limit
   return s;
 }
 
+namespace {
+
+std::string opt_cell(const std::optional<double>& v, double scale, int digits, bool sign = false) {
+  if (!v || !std::isfinite(*v)) return "–";
+  const std::string text = fixed(*v / scale, digits);
+  return sign && *v > 0 ? "+" + text : text;
+}
+
+std::string group_table(const char* title, const std::vector<GroupYield>& groups, bool stations) {
+  std::string h = fmt::format("<h3>{}</h3>\n<table>\n<tr><th>{}</th><th>units</th><th>finished runs</th><th>passed</th>"
+                              "<th>run yield</th><th>retests from another bench</th><th>mean resonance (MHz)</th>"
+                              "<th>σ (MHz)</th><th>mean return loss at resonance (dB)</th><th>σ (dB)</th>",
+                              title, title);
+  if (stations) h += "<th>resonance vs other stations (MHz)</th><th>z</th><th>return loss vs others (dB)</th><th>z</th>";
+  h += "</tr>\n";
+  for (const auto& g : groups) {
+    h += fmt::format("<tr{}><td>{}{}</td><td class=\"n\">{}</td><td class=\"n\">{}</td><td class=\"n\">{}</td>"
+                     "<td class=\"n\">{}%</td><td class=\"n\">{}</td><td class=\"n\">{}</td><td class=\"n\">{}</td>"
+                     "<td class=\"n\">{}</td><td class=\"n\">{}</td>",
+                     g.stands_out ? " class=\"drift\"" : "", html_escape(g.key), g.stands_out ? " <b>(stands out)</b>" : "",
+                     g.units, g.finished_runs, g.passed_runs, fixed(100 * g.run_yield, 1), g.retests_other_bench,
+                     opt_cell(g.resonance_hz.mean, 1e6, 3), opt_cell(g.resonance_hz.sd, 1e6, 3),
+                     opt_cell(g.depth_db.mean, 1, 2), opt_cell(g.depth_db.sd, 1, 2));
+    if (stations) {
+      h += fmt::format("<td class=\"n\">{}</td><td class=\"n\">{}</td><td class=\"n\">{}</td><td class=\"n\">{}</td>",
+                       opt_cell(g.resonance_diff_hz, 1e6, 3, true), opt_cell(g.resonance_z, 1, 1, true),
+                       opt_cell(g.depth_diff_db, 1, 2, true), opt_cell(g.depth_z, 1, 1, true));
+    }
+    h += "</tr>\n";
+  }
+  return h + "</table>\n";
+}
+
+// Only for a lot tested on more than one station.
+std::string stations_section(const std::vector<core::RunResult>& runs) {
+  const StationComparison c = compare_stations(runs);
+  if (c.by_station.size() < 2) return {};
+  std::string h = "<h2>Stations</h2>\n";
+  h += group_table("station", c.by_station, true);
+  h += group_table("operator", c.by_operator, false);
+  h += group_table("calibration", c.by_calibration, false);
+  h += "<p class=\"small\">Finished runs only (aborted runs left out); run yield = passed runs / finished runs, retests "
+       "included. A retest from another bench is a run of a unit whose first finished run was on another station. "
+       "Each station's means are compared with the runs of every other station; z is the difference over its standard "
+       "error (Welch), and a station with |z| &gt; 3 on resonance or return loss stands out: look at its fixture, "
+       "cable and calibration.</p>\n";
+  return h;
+}
+
+}  // namespace
+
 std::string build_lot_report(std::string_view lot, const std::vector<core::RunResult>& runs,
                              const std::vector<core::CalibrationRecord>& calibrations, const core::Limits& limits,
                              const LotReportOptions& options) {
@@ -357,6 +409,8 @@ std::string build_lot_report(std::string_view lot, const std::vector<core::RunRe
   h += overlay_svg(runs, finals, limits);
   h += "<p class=\"small\">Limit lines show the minimum return loss each segment requires; a trace must lie below a line "
        "(more return loss) to meet it. The shaded band is the resonance window.</p>\n";
+
+  h += stations_section(runs);
 
   h += "<h2>Calibrations</h2>\n<table>\n<tr><th>id</th><th>created (UTC)</th><th>station</th><th>recipe</th>"
        "<th>min directivity (dB)</th><th>valid</th><th>runs in this lot</th><th>warnings</th></tr>\n";

@@ -10,6 +10,7 @@
 #include <nlohmann/json.hpp>
 
 #include "daemon/store/budget_json.hpp"
+#include "daemon/store/run_store_impl.hpp"
 #include "daemon/store/schema.hpp"
 #include "daemon/store/sqlite_db.hpp"
 #include "daemon/store/yield.hpp"
@@ -125,37 +126,6 @@ core::RunResult run_from_row(const Statement& s) {
 }
 
 }  // namespace
-
-struct RunStore::Impl {
-  Database db;
-  StoreOptions options;
-  std::filesystem::path file;
-  std::mutex mutex;
-
-  Error fail(const Error& e, std::string_view doing) const {
-    return e.with_context(fmt::format("run store {}: {}", file.string(), doing));
-  }
-
-  // Runs `body` inside BEGIN IMMEDIATE .. COMMIT; rolls back on any error.
-  template <typename F>
-  Status transaction(std::string_view doing, F&& body) {
-    if (auto s = db.exec("BEGIN IMMEDIATE"); !s.ok()) return fail(s.error(), doing);
-    Status s = body();
-    if (s.ok()) {
-      s = db.exec("COMMIT");
-      if (!s.ok()) s = fail(s.error(), doing);
-    }
-    if (!s.ok() && !sqlite3_get_autocommit(db.handle())) (void)db.exec("ROLLBACK");
-    return s;
-  }
-
-  Status store_run(const core::RunResult& run, bool in_progress);
-  Result<std::vector<std::string>> in_progress_ids();
-  Result<std::vector<core::RunResult>> select_runs(std::string_view where, const std::vector<std::string>& params,
-                                                   bool with_points, std::string_view doing);
-  Status load_points(core::RunResult& run);
-  Result<std::optional<core::CalibrationRecord>> select_calibration(std::string_view where, std::string_view param);
-};
 
 RunStore::RunStore(std::unique_ptr<Impl> impl) : impl_(std::move(impl)) {}
 RunStore::~RunStore() = default;
@@ -310,6 +280,8 @@ Status RunStore::Impl::store_run(const core::RunResult& run, bool in_progress) {
       else mark->bind_null(3);
       if (auto st = mark->run(); !st.ok()) return fail(st.error(), doing);
     }
+    // A finished run is committed: it waits in the outbox until the central database has it.
+    if (!in_progress) return enqueue(run.run_id);
     return Status::success();
   });
 }
@@ -346,6 +318,9 @@ Result<std::vector<std::string>> RunStore::finalize_interrupted(std::string_view
     if (!st.ok()) return st.error();
     st->bind(1, reason).bind(2, ended_utc);
     if (auto r = st->run(); !r.ok()) return impl_->fail(r.error(), "finalizing runs left in progress");
+    for (const auto& id : ids) {
+      if (auto q = impl_->enqueue(id); !q.ok()) return q;
+    }
     return Status::success();
   });
   if (!s.ok()) return s.error();

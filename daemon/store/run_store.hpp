@@ -14,6 +14,7 @@
 #include <vector>
 
 #include "daemon/core/run_result.hpp"
+#include "daemon/store/run_reader.hpp"
 #include "daemon/store/serial.hpp"
 #include "drivers/result.hpp"
 
@@ -21,7 +22,7 @@ namespace echoline::store {
 
 // Schema version this code writes (PRAGMA user_version). Older files are migrated on open;
 // newer files are refused (ErrorKind::storage, message names both versions).
-inline constexpr int kSchemaVersion = 7;
+inline constexpr int kSchemaVersion = 8;
 
 // The reason a run carries while it is in progress, and the reason it gets when a starting daemon
 // finds it still in progress (the daemon that ran it was killed or crashed).
@@ -44,6 +45,22 @@ struct UnitSummary {
   int run_count = 0;
 };
 
+// The forwarding outbox (outbox.cpp): committed runs not yet in the central database.
+struct OutboxEntry {
+  long long seq = 0;            // commit order
+  std::string run_id;
+  std::string committed_utc;
+};
+struct OutboxStatus {
+  long long depth = 0;              // runs waiting (refused ones excluded)
+  long long refused = 0;            // runs the central database refused (content differs): kept, not retried
+  std::string oldest_run_id;        // the oldest waiting run, "" when none
+  std::string oldest_committed_utc;
+  std::string last_forward_utc;     // the last successful forward, "" when never
+  std::string last_run_id;          // the last run forwarded
+  long long forwarded_runs = 0;     // runs forwarded since the store was made
+};
+
 enum class YieldGroup { lot, recipe, station };
 
 // Yield of one group (a lot, a recipe name, a station). Definitions (see README):
@@ -64,7 +81,7 @@ struct YieldSummary {
   double final_yield = 0;
 };
 
-class RunStore {
+class RunStore : public RunReader {
  public:
   // Opens or creates `file`. Sets journal_mode=WAL, synchronous=FULL, foreign_keys=ON, the busy
   // timeout; migrates an older schema in one transaction; refuses a newer one.
@@ -76,7 +93,7 @@ class RunStore {
   // versions). Every write call on it fails with a storage error.
   static Result<std::unique_ptr<RunStore>> open_read_only(const std::filesystem::path& file, StoreOptions options = {});
 
-  ~RunStore();
+  ~RunStore() override;
   RunStore(const RunStore&) = delete;
   RunStore& operator=(const RunStore&) = delete;
 
@@ -118,11 +135,11 @@ class RunStore {
   Status invalidate_calibration(std::string_view id, std::string_view reason);
 
   // Loads one run with its points. Unknown id: ErrorKind::invalid_argument.
-  Result<core::RunResult> load_run(std::string_view run_id);
+  Result<core::RunResult> load_run(std::string_view run_id) override;
   // A serial's runs, oldest first (started_utc, then insertion order). Points omitted unless asked.
-  Result<std::vector<core::RunResult>> history(std::string_view serial, bool with_points = false);
+  Result<std::vector<core::RunResult>> history(std::string_view serial, bool with_points = false) override;
   // A lot's runs in the same order.
-  Result<std::vector<core::RunResult>> lot_runs(std::string_view lot, bool with_points);
+  Result<std::vector<core::RunResult>> lot_runs(std::string_view lot, bool with_points) override;
   // Runs with from_utc <= started_utc < to_utc (ISO 8601 strings compare as times when they
   // share the "YYYY-MM-DDTHH:MM:SS[.fff]Z" form the station writes).
   Result<std::vector<core::RunResult>> runs_between(std::string_view from_utc, std::string_view to_utc,
@@ -134,10 +151,26 @@ class RunStore {
 
   // The most recently created calibration (created_utc, then insertion), with traces.
   Result<std::optional<core::CalibrationRecord>> latest_calibration();
-  Result<std::optional<core::CalibrationRecord>> load_calibration(std::string_view id);
+  Result<std::optional<core::CalibrationRecord>> load_calibration(std::string_view id) override;
 
   // Yield per group; `only` restricts to one group value when non-empty.
   Result<std::vector<YieldSummary>> yield_by(YieldGroup group, std::string_view only = {});
+
+  // --- forwarding (outbox.cpp) ---
+  // The station's instance id: 16 hex digits drawn when the store was made (schema 8). Part of
+  // every run id, so run ids stay unique when two stations share a name or one is re-installed.
+  Result<std::string> instance_id();
+  // The highest insertion number a run has had (0 for an empty store): run ids count on from it.
+  Result<long long> last_run_seq();
+  // Every finished run (save_run, finalize_interrupted) is queued in the same transaction that
+  // stores it. Up to `limit` waiting runs, oldest commit first (refused ones skipped).
+  Result<std::vector<OutboxEntry>> outbox_peek(int limit);
+  // Removes forwarded runs from the outbox and records the forward time, in one transaction.
+  Status outbox_done(const std::vector<std::string>& run_ids, std::string_view utc);
+  // Keeps a run in the outbox but stops retrying it (the central database holds different
+  // content under its id); `why` is shown by status.
+  Status outbox_refuse(std::string_view run_id, std::string_view why);
+  Result<OutboxStatus> outbox_status();
 
   // "ok" or SQLite's list of problems (PRAGMA integrity_check).
   Result<std::string> integrity_check();

@@ -140,6 +140,34 @@ ALTER TABLE runs ADD COLUMN in_progress INTEGER NOT NULL DEFAULT 0 CHECK (in_pro
 CREATE INDEX runs_in_progress ON runs(in_progress) WHERE in_progress = 1;
 )sql";
 
+// Forwarding to the central database: the station's random instance id (part of every run id, so
+// ids stay unique across stations and across a re-installed station with the same name), the
+// outbox of committed runs not yet forwarded (commit order = seq), and the forwarder's last success.
+// Runs stored before this version are queued too, oldest first: the whole history is forwarded.
+constexpr std::string_view kVersion8 = R"sql(
+CREATE TABLE station_identity (
+  id INTEGER PRIMARY KEY CHECK (id = 1),
+  instance_id TEXT NOT NULL,
+  created_utc TEXT NOT NULL
+);
+INSERT INTO station_identity(id, instance_id, created_utc)
+  VALUES (1, lower(hex(randomblob(8))), strftime('%Y-%m-%dT%H:%M:%fZ', 'now'));
+CREATE TABLE outbox (
+  seq INTEGER PRIMARY KEY AUTOINCREMENT,
+  run_id TEXT NOT NULL UNIQUE,
+  committed_utc TEXT NOT NULL,
+  refused TEXT
+);
+INSERT INTO outbox(run_id, committed_utc) SELECT run_id, ended_utc FROM runs WHERE in_progress = 0 ORDER BY seq;
+CREATE TABLE forwarding (
+  id INTEGER PRIMARY KEY CHECK (id = 1),
+  last_forward_utc TEXT,
+  last_run_id TEXT,
+  forwarded_runs INTEGER NOT NULL DEFAULT 0
+);
+INSERT INTO forwarding(id) VALUES (1);
+)sql";
+
 }  // namespace
 
 const std::vector<Migration>& migrations() {
@@ -152,6 +180,8 @@ const std::vector<Migration>& migrations() {
       {6, "calibration kit and uncertainty budget per calibration; software per run and calibration; which "
           "resonance interval decided; recipe texts by content hash (offline re-judging)", kVersion6},
       {7, "write-ahead runs: a run in progress is on record before RF goes on", kVersion7},
+      {8, "station instance id, outbox of runs not yet forwarded to the central database, last forward",
+       kVersion8},
   };
   return steps;
 }

@@ -149,7 +149,7 @@ void StationUnderTest::write_station_config() {
   // No switch: the calibration prompts, and the harness connects each standard on the
   // fixture control port as an operator would by hand.
   json station = {
-      {"station", "soak-bench"},
+      {"station", setup_.station_name},
       {"data_dir", (setup_.work_dir / "data").string()},
       {"log_dir", log_dir().string()},
       {"recipe", fs::absolute(setup_.recipe).string()},
@@ -163,6 +163,7 @@ void StationUnderTest::write_station_config() {
        {{"coupling_db", 20}, {"mainline_loss_db", 0.5}, {"cable_loss_db", 0.3}, {"source_match_db", 25},
         {"nominal_directivity_db", setup_.nominal_directivity_db}, {"test_port_delay_ns", 2}}},
       {"api", {{"unix_socket", unix_socket_}}}};
+  if (!setup_.central_settings.empty()) station["central"] = setup_.central_settings.string();
   write_file(setup_.work_dir / "station.jsonc", station.dump(2) + "\n");
 }
 
@@ -308,7 +309,7 @@ bool StationUnderTest::check_standard(std::string* why) {
 UnitOutcome StationUnderTest::test_unit(const std::string& serial, double stop_after_s) {
   UnitOutcome out;
   control({{"cmd", "connect"}, {"unit", serial}});
-  auto r = api().call("test.start", {{"serial", serial}, {"lot", setup_.lot_name}, {"operator", "soak"}});
+  auto r = api().call("test.start", {{"serial", serial}, {"lot", setup_.lot_name}, {"operator", setup_.operator_name}});
   if (!r) {
     out.lost_daemon = true;
     out.reason = r.error().message;
@@ -392,7 +393,7 @@ std::string StationUnderTest::query_source(const std::string& query) {
   return *line;
 }
 
-fs::path StationUnderTest::store_file() const { return setup_.work_dir / "data" / "soak-bench.sqlite"; }
+fs::path StationUnderTest::store_file() const { return setup_.work_dir / "data" / (setup_.station_name + ".sqlite"); }
 
 std::string StationUnderTest::integrity_check() const {
   Db db(store_file());

@@ -37,6 +37,9 @@ struct StationSetup {
   double nominal_directivity_db = 30;
   std::string lot_name = "SOAK-LOT";   // the lot the runs are stored under
   std::string client_name = "echoline-soak";   // the API hello's client name
+  std::string station_name = "soak-bench";     // the station config's "station"
+  std::filesystem::path central_settings;      // the station config's "central" ("" = none)
+  std::string operator_name = "soak";          // the operator the runs are stored under
 };
 
 // What one test of one unit came to, as the API reported it.

@@ -1,0 +1,25 @@
+// What reports and exports read runs from: the station's run store (RunStore) or the central
+// database (central::CentralReader). Implementations say their own threading rule.
+#pragma once
+
+#include <optional>
+#include <string_view>
+#include <vector>
+
+#include "daemon/core/run_result.hpp"
+#include "drivers/result.hpp"
+
+namespace echoline::store {
+
+class RunReader {
+ public:
+  virtual ~RunReader() = default;
+  // One run with its points. Unknown id: ErrorKind::invalid_argument.
+  virtual Result<core::RunResult> load_run(std::string_view run_id) = 0;
+  // A serial's or a lot's runs, oldest first (started_utc, then insertion).
+  virtual Result<std::vector<core::RunResult>> history(std::string_view serial, bool with_points) = 0;
+  virtual Result<std::vector<core::RunResult>> lot_runs(std::string_view lot, bool with_points) = 0;
+  virtual Result<std::optional<core::CalibrationRecord>> load_calibration(std::string_view id) = 0;
+};
+
+}  // namespace echoline::store

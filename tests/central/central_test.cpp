@@ -1,0 +1,227 @@
+// The central database as a station and a reader see it, against a real PostgreSQL server made
+// by the test fixture (initdb + pg_ctl): schema and roles, the settings file and its
+// permissions, passwords kept out of every message, idempotent sends; and the station store's
+// outbox that feeds the forwarder.
+#include <sys/stat.h>
+
+#include <fstream>
+
+#include <gtest/gtest.h>
+#include <pqxx/pqxx>
+
+#include "daemon/central/documents.hpp"
+#include "daemon/central/reader.hpp"
+#include "daemon/central/schema.hpp"
+#include "daemon/central/settings.hpp"
+#include "daemon/central/writer.hpp"
+#include "daemon/core/cal_kit.hpp"
+#include "daemon/store/run_store.hpp"
+#include "tests/support/postgres_server.hpp"
+#include "tests/support/process.hpp"
+
+namespace echoline::central {
+namespace {
+
+using testing::PostgresServer;
+using testing::TempDir;
+
+core::RunResult sample_run(const std::string& id, const std::string& serial) {
+  core::RunResult r;
+  r.run_id = id;
+  r.serial = serial;
+  r.lot = "LOT-7";
+  r.station = "bench-a";
+  r.operator_name = "op";
+  r.recipe = {"whip915", "1", "abc123"};
+  r.decision_rule = "guarded";
+  r.started_utc = "2026-12-01T10:00:00.000Z";
+  r.ended_utc = "2026-12-01T10:00:01.000Z";
+  r.verdict = core::Verdict::pass;
+  r.metrics.resonance_hz = 915.2e6;
+  r.metrics.depth_db = 22.5;
+  for (int i = 0; i < 5; ++i) {
+    r.points.push_back({900e6 + i * 5e6, -30.0 - i, 10.0 + i, 9.0 + i, i == 4 ? INFINITY : 12.0 + i});
+  }
+  return r;
+}
+
+void write_file(const std::filesystem::path& p, const std::string& text, mode_t mode) {
+  std::ofstream(p) << text;
+  ::chmod(p.c_str(), mode);
+}
+
+TEST(CentralSettings, FileThatGroupOrOthersMayReadIsRefusedWithoutShowingThePassword) {
+  TempDir dir;
+  const auto file = dir / "central.jsonc";
+  write_file(file, R"({"host": "db.example", "user": "bench", "password": "s3cret-Pw"})", 0640);
+  auto s = load_settings(file);
+  ASSERT_FALSE(s.ok());
+  EXPECT_NE(s.error().message.find("mode 0640"), std::string::npos) << s.error().message;
+  EXPECT_NE(s.error().message.find("chmod 600"), std::string::npos) << s.error().message;
+  EXPECT_EQ(s.error().message.find("s3cret-Pw"), std::string::npos);
+  ::chmod(file.c_str(), 0600);
+  auto ok = load_settings(file);
+  ASSERT_TRUE(ok.ok()) << ok.error().message;
+  EXPECT_EQ(ok->description.find("s3cret-Pw"), std::string::npos);
+  EXPECT_NE(ok->conninfo.find("password='s3cret-Pw'"), std::string::npos);
+}
+
+TEST(CentralSettings, TlsSettingsPassThroughAndBadModeIsNamed) {
+  TempDir dir;
+  const auto file = dir / "central.jsonc";
+  write_file(file, R"({"host": "db", "sslmode": "verify-full", "sslrootcert": "ca.crt", "sslcert": "/etc/c.crt",
+                       "sslkey": "/etc/c.key"})",
+             0600);
+  auto s = load_settings(file);
+  ASSERT_TRUE(s.ok()) << s.error().message;
+  EXPECT_NE(s->conninfo.find("sslmode='verify-full'"), std::string::npos);
+  EXPECT_NE(s->conninfo.find("sslrootcert='" + (dir / "ca.crt").string() + "'"), std::string::npos) << s->conninfo;
+  EXPECT_NE(s->conninfo.find("sslkey='/etc/c.key'"), std::string::npos);
+  write_file(file, "{\"sslmode\": \"sometimes\"}", 0600);
+  auto bad = load_settings(file);
+  ASSERT_FALSE(bad.ok());
+  EXPECT_NE(bad.error().message.find("/sslmode"), std::string::npos) << bad.error().message;
+}
+
+TEST(CentralSettings, ScrubMasksPasswordsInKeyValueAndUriForms) {
+  EXPECT_EQ(scrub("host=x password='a b' user=y", ""), "host=x password=******** user=y");
+  EXPECT_EQ(scrub("postgresql://bench:pw9@db/echoline", ""), "postgresql://bench:********@db/echoline");
+  EXPECT_EQ(scrub("failed for hunter2 here", "hunter2"), "failed for ******** here");
+}
+
+class CentralDb : public ::testing::Test {
+ protected:
+  static void SetUpTestSuite() {
+    if (auto why = PostgresServer::unavailable()) return;
+    server_ = new PostgresServer();
+    pqxx::connection admin(server_->admin_conninfo());
+    migrate(admin);
+    server_->psql("CREATE ROLE bench LOGIN PASSWORD 'Bench-Pw-41' IN ROLE echoline_station; "
+                  "CREATE ROLE quality LOGIN PASSWORD 'Quality-Pw-42' IN ROLE echoline_reader;");
+  }
+  static void TearDownTestSuite() {
+    delete server_;
+    server_ = nullptr;
+  }
+  void SetUp() override {
+    if (!server_) GTEST_SKIP() << *PostgresServer::unavailable();
+  }
+  static CentralSettings settings(const std::string& user, const std::string& password) {
+    return settings_from_connection_string(server_->tcp_conninfo(user, password)).value();
+  }
+  static inline PostgresServer* server_ = nullptr;
+};
+
+TEST_F(CentralDb, MigrationIsRecordedAndRepeatingItAppliesNothing) {
+  pqxx::connection admin(server_->admin_conninfo());
+  EXPECT_EQ(schema_version(admin), kCentralSchemaVersion);
+  EXPECT_TRUE(migrate(admin).empty());
+}
+
+TEST_F(CentralDb, SendIsIdempotentAndOtherContentUnderTheSameIdIsRefused) {
+  CentralWriter w(settings("bench", "Bench-Pw-41"), "00aa11bb22cc33dd", kit_document(core::builtin_conservative_kit()));
+  OutgoingRun o;
+  o.station_seq = 1;
+  o.run = sample_run("run-idem-1", "SN-1");
+  o.document = run_document(o.run);
+  auto first = w.send({o});
+  ASSERT_TRUE(first.ok()) << first.error().message;
+  EXPECT_EQ(first->at(0).result, SendResult::stored);
+  auto again = w.send({o});
+  ASSERT_TRUE(again.ok()) << again.error().message;
+  EXPECT_EQ(again->at(0).result, SendResult::already_there);
+  OutgoingRun changed = o;
+  changed.run.verdict = core::Verdict::fail;
+  changed.document = run_document(changed.run);
+  auto refused = w.send({changed});
+  ASSERT_TRUE(refused.ok()) << refused.error().message;
+  EXPECT_EQ(refused->at(0).result, SendResult::different_content);
+  EXPECT_EQ(refused->at(0).central_hash, o.document.content_hash);
+  EXPECT_EQ(server_->psql("SELECT count(*) FROM echoline.runs WHERE run_id = 'run-idem-1'"), "1\n");
+
+  // The reader gets the run back with its points (+inf best bound included) and the same hash.
+  auto reader = CentralReader::open(settings("quality", "Quality-Pw-42"));
+  ASSERT_TRUE(reader.ok()) << reader.error().message;
+  auto back = (*reader)->load_run("run-idem-1");
+  ASSERT_TRUE(back.ok()) << back.error().message;
+  ASSERT_EQ(back->points.size(), 5u);
+  EXPECT_TRUE(std::isinf(back->points[4].return_loss_best_db));
+  EXPECT_EQ(run_document(*back).content_hash, o.document.content_hash);
+}
+
+TEST_F(CentralDb, StationRoleInsertsButCannotReadChangeOrDelete) {
+  pqxx::connection station(server_->tcp_conninfo("bench", "Bench-Pw-41"));
+  for (const char* sql : {"SELECT document FROM echoline.runs", "UPDATE echoline.runs SET lot = 'x'",
+                          "DELETE FROM echoline.runs", "DROP TABLE echoline.runs"}) {
+    pqxx::work tx(station);
+    EXPECT_THROW(tx.exec(sql), pqxx::sql_error) << sql;
+  }
+  pqxx::connection reader(server_->tcp_conninfo("quality", "Quality-Pw-42"));
+  pqxx::work tx(reader);
+  EXPECT_THROW(tx.exec("INSERT INTO echoline.recipes(content_hash, name, version, text) VALUES ('h','n','v','t')"),
+               pqxx::sql_error);
+}
+
+TEST_F(CentralDb, WrongPasswordAndUnreachableServerNeverShowThePassword) {
+  const std::string pw = "Wrong-Pw-Zq81";
+  CentralWriter w(settings("bench", pw), "00aa", kit_document(core::builtin_conservative_kit()));
+  Status s = w.connect();
+  ASSERT_FALSE(s.ok());
+  EXPECT_NE(s.error().message.find("bench@127.0.0.1"), std::string::npos) << s.error().message;
+  EXPECT_EQ(s.error().message.find(pw), std::string::npos) << s.error().message;
+  auto r = CentralReader::open(settings_from_connection_string("postgresql://quality:" + pw +
+                                                               "@127.0.0.1:1/echoline?connect_timeout=2")
+                                   .value());
+  ASSERT_FALSE(r.ok());
+  EXPECT_EQ(r.error().message.find(pw), std::string::npos) << r.error().message;
+  auto bad = settings_from_connection_string("host=x password=" + pw + " nonsense");
+  ASSERT_FALSE(bad.ok());
+  EXPECT_EQ(bad.error().message.find(pw), std::string::npos) << bad.error().message;
+}
+
+// The outbox lives in the station store: every finished run is queued in the transaction that
+// stores it, in commit order; a run in progress is not; a finalized interrupted run is.
+TEST(StationOutbox, QueuesFinishedRunsInCommitOrderAndRecordsTheForward) {
+  TempDir dir;
+  auto st = store::RunStore::open(dir / "s.sqlite");
+  ASSERT_TRUE(st.ok()) << st.error().message;
+  auto& s = **st;
+  auto id = s.instance_id();
+  ASSERT_TRUE(id.ok());
+  EXPECT_EQ(id->size(), 16u);
+  ASSERT_TRUE(s.save_run(sample_run("r2", "SN-2")).ok());
+  ASSERT_TRUE(s.begin_run(sample_run("r3", "SN-3")).ok());
+  ASSERT_TRUE(s.save_run(sample_run("r1", "SN-1")).ok());
+  auto peek = s.outbox_peek(10);
+  ASSERT_TRUE(peek.ok());
+  ASSERT_EQ(peek->size(), 2u);
+  EXPECT_EQ((*peek)[0].run_id, "r2");
+  EXPECT_EQ((*peek)[1].run_id, "r1");
+  auto fin = s.finalize_interrupted("daemon stopped unexpectedly", "2026-12-01T11:00:00.000Z");
+  ASSERT_TRUE(fin.ok());
+  auto status = s.outbox_status();
+  ASSERT_TRUE(status.ok());
+  EXPECT_EQ(status->depth, 3);
+  EXPECT_EQ(status->oldest_run_id, "r2");
+  EXPECT_EQ(status->last_forward_utc, "");
+  ASSERT_TRUE(s.outbox_done({"r2", "r1"}, "2026-12-01T12:00:00.000Z").ok());
+  status = s.outbox_status();
+  EXPECT_EQ(status->depth, 1);
+  EXPECT_EQ(status->oldest_run_id, "r3");
+  EXPECT_EQ(status->last_forward_utc, "2026-12-01T12:00:00.000Z");
+  EXPECT_EQ(status->last_run_id, "r1");
+  EXPECT_EQ(status->forwarded_runs, 2);
+  ASSERT_TRUE(s.outbox_refuse("r3", "differs").ok());
+  status = s.outbox_status();
+  EXPECT_EQ(status->depth, 0);
+  EXPECT_EQ(status->refused, 1);
+  // The instance id survives reopening; a new store file draws another.
+  st->reset();
+  auto again = store::RunStore::open(dir / "s.sqlite");
+  EXPECT_EQ(*(*again)->instance_id(), *id);
+  auto other = store::RunStore::open(dir / "t.sqlite");
+  EXPECT_NE(*(*other)->instance_id(), *id);
+}
+
+}  // namespace
+}  // namespace echoline::central
