@@ -10,6 +10,7 @@
 
 #include "daemon/core/recipe.hpp"
 #include "daemon/store/run_reader.hpp"
+#include "daemon/store/run_store.hpp"
 #include "drivers/result.hpp"
 
 namespace echoline::store {
