@@ -93,30 +93,27 @@ Result<std::optional<core::CalibrationRecord>> CentralReader::load_calibration(s
   }
 }
 
-Result<std::map<std::string, std::string>> CentralReader::content_hashes(std::string_view station_instance) {
+Result<std::map<std::string, std::string>> CentralReader::hashes(std::string_view station_instance, bool recompute) {
   try {
     pqxx::read_transaction tx(*conn_);
     const pqxx::result rows = tx.exec_params(
-        "SELECT run_id, content_hash FROM echoline.runs WHERE $1 = '' OR station_instance = $1", std::string(station_instance));
+        fmt::format("SELECT run_id, {} FROM echoline.runs WHERE $1 = '' OR station_instance = $1",
+                    recompute ? "document::text" : "content_hash"),
+        std::string(station_instance));
     std::map<std::string, std::string> out;
-    for (const auto& row : rows) out[row[0].c_str()] = row[1].c_str();
+    for (const auto& row : rows) out[row[0].c_str()] = recompute ? core::sha256_hex(row[1].c_str()) : row[1].c_str();
     return out;
   } catch (const std::exception& e) {
-    return failure("reading content hashes", e.what());
+    return failure(recompute ? "reading run documents" : "reading content hashes", e.what());
   }
 }
 
+Result<std::map<std::string, std::string>> CentralReader::content_hashes(std::string_view station_instance) {
+  return hashes(station_instance, false);
+}
+
 Result<std::map<std::string, std::string>> CentralReader::document_hashes(std::string_view station_instance) {
-  try {
-    pqxx::read_transaction tx(*conn_);
-    const pqxx::result rows = tx.exec_params(
-        "SELECT run_id, document::text FROM echoline.runs WHERE $1 = '' OR station_instance = $1", std::string(station_instance));
-    std::map<std::string, std::string> out;
-    for (const auto& row : rows) out[row[0].c_str()] = core::sha256_hex(row[1].c_str());
-    return out;
-  } catch (const std::exception& e) {
-    return failure("reading run documents", e.what());
-  }
+  return hashes(station_instance, true);
 }
 
 }  // namespace echoline::central

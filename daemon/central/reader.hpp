@@ -36,6 +36,7 @@ class CentralReader : public store::RunReader {
   Result<std::vector<core::RunResult>> select(std::string_view where, std::string_view key, bool with_points,
                                               std::string_view doing);
   Error failure(std::string_view doing, std::string_view what) const;
+  Result<std::map<std::string, std::string>> hashes(std::string_view station_instance, bool recompute);
   CentralSettings settings_;
   std::unique_ptr<pqxx::connection> conn_;
 };

@@ -88,6 +88,14 @@ std::unique_ptr<store::RunStore> open_store(const std::string& file, const std::
   return std::move(s.value());
 }
 
+// The runs to read without the daemon: the central database (--db, --central) or a run store
+// file (--store); null when neither was given (the daemon answers).
+std::unique_ptr<store::RunReader> offline_source(const Args& args, const std::string& what) {
+  if (auto settings = central_settings_from_args(args, what)) return open_central(*settings, what);
+  if (auto file = args.get("--store")) return open_store(*file, what);
+  return nullptr;
+}
+
 void print_yield(const std::string& lot, const json& runs, std::ostream& os = std::cout) {
   const LotYield y = lot_yield(runs);
   os << fmt::format("lot {}: {} units, {} judged, {} passed, yield {:.1f} %\n", lot, y.units, y.judged, y.passed,
@@ -165,12 +173,7 @@ int cmd_report(const Argv& argv) {
   const auto out = args.get("--out");
   if (!lot || !out || out->empty()) args.usage_error("--lot LOT and --out FILE.html (or - for standard output) are required");
   std::ostream& info = *out == "-" ? std::cerr : std::cout;
-  std::unique_ptr<store::RunReader> source;
-  if (auto settings = central_settings_from_args(args, "report")) {
-    source = open_central(*settings, "report");
-  } else if (auto file = args.get("--store")) {
-    source = open_store(*file, "report");
-  }
+  std::unique_ptr<store::RunReader> source = offline_source(args, "report");
   if (source) {
     auto* st = source.get();
     std::string recipe_file = args.get_or("--recipe", "");
@@ -226,12 +229,7 @@ int cmd_export(const Argv& argv) {
   if (key.empty() || out.empty()) args.usage_error("--key KEY (or --run RUN_ID) and --out FILE (or - for standard output) are required");
   std::ostream& info = out == "-" ? std::cerr : std::cout;
   store::Document doc;
-  std::unique_ptr<store::RunReader> source;
-  if (auto settings = central_settings_from_args(args, "export")) {
-    source = open_central(*settings, "export");
-  } else if (auto file = args.get("--store")) {
-    source = open_store(*file, "export");
-  }
+  std::unique_ptr<store::RunReader> source = offline_source(args, "export");
   if (source) {
     auto* st = source.get();
     auto made = store::export_document(*st, scope, key, format);
