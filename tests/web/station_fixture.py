@@ -212,6 +212,33 @@ class ApiSession:
         self.sock.close()
 
 
+def test_over_api(station, session, serial, lot):
+    """Tests one connected unit as the console does; measures the check standard first when the
+    station asks for it (every N units, the recipe's rule). Returns the run."""
+    for _ in range(2):
+        rid = session.send("test.start", {"serial": serial, "lot": lot})
+        reply = session.read()
+        while reply.get("id") != rid or "ok" not in reply:
+            reply = session.read()
+        if reply["ok"]:
+            ev = session.until_event()
+            assert ev["event"] == "result", ev
+            return ev["run"]
+        if reply["error"]["code"] != "check_due":
+            raise AssertionError(f"test.start {serial}: {reply}")
+        session.send("cal.check")
+        while True:
+            m = session.read()
+            if m.get("event") == "prompt":
+                station.connect_standard(m["standard"])
+                session.send("cal.answer", {"standard": m["standard"]})
+            elif m.get("event") in ("result", "error") or m.get("ok") is False:
+                assert m.get("event") == "result", f"check standard: {m}"
+                break
+        station.connect_unit(serial)
+    raise AssertionError(f"test.start {serial}: refused twice")
+
+
 def calibrate_over_api(station, session):
     """Calibrates as the console does: answer each prompt after connecting the standard."""
     session.send("cal.start")
