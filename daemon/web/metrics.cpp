@@ -133,6 +133,13 @@ std::string render_openmetrics(const MetricsInput& in) {
     o += fmt::format("echoline_instrument_up{{station=\"{}\",role=\"{}\",name=\"{}\"}} {}\n", st,
                      escape_label(i.value("role", "")), escape_label(i.value("name", "")), i.value("healthy", false) ? 1 : 0);
   }
+  const json fwd = status.value("forwarding", json::object());
+  if (fwd.contains("outbox_depth")) {
+    family(o, "echoline_outbox_depth", "gauge", "Stored runs not yet forwarded to the central database.");
+    o += fmt::format("echoline_outbox_depth{{station=\"{}\"}} {}\n", st, fwd.value("outbox_depth", 0));
+    family(o, "echoline_outbox_refused", "gauge", "Runs the central database refused (kept, not retried).");
+    o += fmt::format("echoline_outbox_refused{{station=\"{}\"}} {}\n", st, fwd.value("outbox_refused", 0));
+  }
   family(o, "echoline_busy", "gauge", "1 while a test, calibration or check runs (the source's RF may be on).");
   o += fmt::format("echoline_busy{{station=\"{}\"}} {}\n", st, status.contains("busy") && !status["busy"].is_null() ? 1 : 0);
   o += "# EOF\n";

@@ -1,7 +1,7 @@
 // /metrics: the station's numbers in the OpenMetrics text format (OpenMetrics 1.0): runs by
 // verdict and failure class from the store, a histogram of cycle times, calibration age and
-// state, instrument errors, reconnects and health. CycleHistogram is thread-safe; rendering
-// is a pure function of its inputs.
+// state, instrument errors, reconnects and health, the forwarding outbox's depth.
+// CycleHistogram is thread-safe; rendering is a pure function of its inputs.
 #pragma once
 
 #include <array>
@@ -40,7 +40,7 @@ class CycleHistogram {
 struct MetricsInput {
   std::string station;
   store::YieldSummary yield;     // this station's runs (store::RunStore::yield_by station)
-  nlohmann::json status;         // the API's status result (instruments, calibration, busy)
+  nlohmann::json status;         // the API's status result (instruments, calibration, forwarding, busy)
   CycleSnapshot cycles;
   double now_unix_s = 0;
 };

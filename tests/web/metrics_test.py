@@ -82,6 +82,13 @@ class MetricsTest(unittest.TestCase):
         self.assertEqual(set(errors), {"source", "receiver"})
         self.assertIn("echoline_instrument_reconnects", f)
 
+    def test_outbox_depth_matches_the_store(self):
+        f = self.scrape()
+        depth = f["echoline_outbox_depth"].samples[0].value
+        stored = self.station.store().execute("SELECT count(*) FROM outbox WHERE refused IS NULL").fetchone()[0]
+        self.assertEqual(depth, stored)
+        self.assertEqual(depth, UNITS + 1)   # no central database configured: every run waits
+
     def test_every_page_carries_a_content_security_policy(self):
         for path in ("/", "/supervisor", "/assets/operator.js", "/metrics"):
             status, headers, _ = self.station.http(path)
