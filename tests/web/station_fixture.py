@@ -212,6 +212,21 @@ class ApiSession:
         self.sock.close()
 
 
+def answer_prompts(station, session, call):
+    """Runs cal.start or cal.check as the console does: connects each prompted standard, then
+    answers. Returns the final result event; an error event or a refusal fails."""
+    session.send(call)
+    while True:
+        m = session.read()
+        if m.get("event") == "prompt":
+            station.connect_standard(m["standard"])
+            session.send("cal.answer", {"standard": m["standard"]})
+        elif m.get("event") == "result":
+            return m
+        elif m.get("event") == "error" or m.get("ok") is False:
+            raise AssertionError(f"{call} failed: {m}")
+
+
 def test_over_api(station, session, serial, lot):
     """Tests one connected unit as the console does; measures the check standard first when the
     station asks for it (every N units, the recipe's rule). Returns the run."""
@@ -226,29 +241,13 @@ def test_over_api(station, session, serial, lot):
             return ev["run"]
         if reply["error"]["code"] != "check_due":
             raise AssertionError(f"test.start {serial}: {reply}")
-        session.send("cal.check")
-        while True:
-            m = session.read()
-            if m.get("event") == "prompt":
-                station.connect_standard(m["standard"])
-                session.send("cal.answer", {"standard": m["standard"]})
-            elif m.get("event") in ("result", "error") or m.get("ok") is False:
-                assert m.get("event") == "result", f"check standard: {m}"
-                break
+        answer_prompts(station, session, "cal.check")
         station.connect_unit(serial)
     raise AssertionError(f"test.start {serial}: refused twice")
 
 
 def calibrate_over_api(station, session):
-    """Calibrates as the console does: answer each prompt after connecting the standard."""
-    session.send("cal.start")
-    while True:
-        m = session.read()
-        if m.get("event") == "prompt":
-            station.connect_standard(m["standard"])
-            session.send("cal.answer", {"standard": m["standard"]})
-        elif m.get("event") == "result":
-            assert m["calibration"]["valid"], m
-            return m
-        elif m.get("event") == "error" or m.get("ok") is False:
-            raise AssertionError(f"calibration failed: {m}")
+    """Calibrates as the console does; the calibration must come out valid."""
+    m = answer_prompts(station, session, "cal.start")
+    assert m["calibration"]["valid"], m
+    return m
