@@ -40,7 +40,10 @@ CalibratedTrace calibrate_points(const CalibrationRecord& cal, const std::vector
     const double s_d = reading_sigma_db(cal.budget, i, dut[i].raw_dbm);
     const double s_r = cal.budget.reference_noise_db[i];
     out.shift.sigma_db.push_back(std::sqrt(s_d * s_d + s_r * s_r));
+    out.shift.reading_sigma_db.push_back(s_d);
+    out.shift.error_vector.push_back(cal.budget.directivity_bound[i] + cal.budget.coverage_factor * cal.budget.connection);
   }
+  out.shift.source_match = cal.budget.source_match;
   return out;
 }
 
@@ -247,10 +250,10 @@ std::optional<Resonance> find_resonance(const std::vector<PointResult>& points, 
   r.depth_db = points[best].return_loss_db;
   const std::size_t n = points.size();
   const Band interval = resonance_interval(points, best);
-  r.low_hz = interval.low_hz;
-  r.high_hz = interval.high_hz;
-  r.low_open = interval.low_open;
-  r.high_open = interval.high_open;
+  r.low_hz = r.rigorous_low_hz = interval.low_hz;
+  r.high_hz = r.rigorous_high_hz = interval.high_hz;
+  r.low_open = r.rigorous_low_open = interval.low_open;
+  r.high_open = r.rigorous_high_open = interval.high_open;
   if (n == 1 || best == 0 || best == n - 1) {
     // The maximum is on the first or last point: the true resonance may lie outside the sweep
     // (resonance_interval is then open on that side, since the peak itself qualifies).
@@ -364,6 +367,39 @@ std::vector<SegmentMargin> mask_margins(const std::vector<PointResult>& points,
   return out;
 }
 
+namespace {
+
+// The dip fit (dip_fit.hpp) on a trace whose resonance was found: when a model passes, the
+// resonance interval becomes its intersection with the fitted interval (both hold), and the
+// resonance the unit's own, from the fit. An empty intersection refuses the fit.
+void apply_fit(Resonance& r, const std::vector<PointResult>& pts, const ShiftContext& ctx, double threshold_db,
+               int erratic_jumps, std::optional<DipFit>& out) {
+  DipFitContext fc;
+  fc.sigma_db = ctx.reading_sigma_db;
+  fc.error_vector = ctx.error_vector;
+  fc.source_match = ctx.source_match;
+  fc.error_delay_s = ctx.error_delay_s;
+  fc.coverage_factor = ctx.coverage_factor;
+  out = fit_dip(pts, r.index, fc, threshold_db, erratic_jumps);
+  DipFit& f = *out;
+  if (!f.used) return;
+  const double low = std::max(r.low_hz, f.resonance_low_hz);
+  const double high = std::min(r.high_hz, f.resonance_high_hz);
+  if (!(low <= high)) {
+    f.used = false;
+    f.refused = "the fitted interval lies outside the interval the points allow";
+    return;
+  }
+  if (f.resonance_low_hz > r.low_hz) r.low_open = false;
+  if (f.resonance_high_hz < r.high_hz) r.high_open = false;
+  r.fit_used = f.resonance_low_hz > r.low_hz || f.resonance_high_hz < r.high_hz;
+  r.low_hz = low;
+  r.high_hz = high;
+  r.frequency_hz = std::clamp(f.resonance_hz, low, high);
+}
+
+}  // namespace
+
 Analysis analyze(const Recipe& recipe, const CalibratedTrace& trace) {
   Analysis a;
   a.clamped_points = trace.clamped_points;
@@ -373,7 +409,11 @@ Analysis analyze(const Recipe& recipe, const CalibratedTrace& trace) {
   for (std::size_t i = 1; i < pts.size(); ++i) {
     if (std::fabs(pts[i].return_loss_db - pts[i - 1].return_loss_db) > 6.0) ++a.erratic_jumps;
   }
-  a.resonance = find_resonance(pts, trace.shift.gamma_error.size() == pts.size() ? &trace.shift : nullptr);
+  const bool have_context = trace.shift.gamma_error.size() == pts.size();
+  a.resonance = find_resonance(pts, have_context ? &trace.shift : nullptr);
+  if (a.resonance && have_context && trace.shift.fit && trace.shift.error_vector.size() == pts.size()) {
+    apply_fit(*a.resonance, pts, trace.shift, recipe.limits.bandwidth_threshold_db, a.erratic_jumps, a.fit);
+  }
   if (a.resonance) {
     const double thr = recipe.limits.bandwidth_threshold_db;
     a.band = find_band(pts, a.resonance->index, thr, TraceValue::measured);

@@ -8,6 +8,7 @@
 #include <string>
 #include <vector>
 
+#include "daemon/core/dip_fit.hpp"
 #include "daemon/core/recipe.hpp"
 #include "daemon/core/run_result.hpp"
 
@@ -21,6 +22,12 @@ struct ShiftContext {
   std::vector<double> sigma_db;      // per point, standard uncertainty of the RL reading
   double coverage_factor = 3;
   double error_delay_s = 5e-9;
+  // For the dip fit (dip_fit.hpp): the reading noise alone (σ of one reading, dB), the error
+  // vector's bound (directivity bound + k·connection, |Γ|) and the source-match bound.
+  std::vector<double> reading_sigma_db;
+  std::vector<double> error_vector;
+  double source_match = 0;
+  bool fit = true;                   // try the dip fit (false: the intervals of the points alone)
 };
 
 // RL = reference − P_dut per point; bounds from the calibration's uncertainty budget
@@ -59,6 +66,10 @@ struct Resonance {
   bool low_open = false;
   bool high_open = false;
   bool shift_bound_used = false;   // the smooth-error bound tightened the rigorous interval
+  bool fit_used = false;           // the dip fit's interval decided (analyze(); MEASUREMENT.md)
+  // The rigorous interval alone (before the shift bound and the fit), for comparison.
+  double rigorous_low_hz = 0, rigorous_high_hz = 0;
+  bool rigorous_low_open = false, rigorous_high_open = false;
 };
 // Empty when there are no points. Without a context the error radius is read from the points'
 // worst-case bounds and the error delay is 5 ns, with no statistical term.
@@ -133,6 +144,7 @@ struct Analysis {
   double max_return_loss_db = 0;       // largest measured RL over the sweep
   std::size_t clamped_points = 0;
   int erratic_jumps = 0;               // neighbouring points more than kErraticJumpDb apart (decision.hpp)
+  std::optional<DipFit> fit;           // the dip fit, tried when the context allows (used or refused)
 };
 Analysis analyze(const Recipe& recipe, const CalibratedTrace& trace);
 

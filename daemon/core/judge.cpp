@@ -46,7 +46,8 @@ std::string mismatch(const CalibrationRecord& cal, const std::vector<Reading>& d
 
 }  // namespace
 
-Judgement judge(const Recipe& recipe, const CalibrationRecord& cal, const std::vector<Reading>& dut) {
+Judgement judge(const Recipe& recipe, const CalibrationRecord& cal, const std::vector<Reading>& dut,
+                const JudgeOptions& options) {
   if (!cal.valid) return aborted(fmt::format("calibration {} is not valid; calibrate again", cal.id));
   if (cal.budget.frequency_hz.size() != cal.reference_dbm.size()) {
     return aborted(fmt::format("calibration {} has no uncertainty budget (made by an older version); calibrate again",
@@ -57,6 +58,7 @@ Judgement judge(const Recipe& recipe, const CalibrationRecord& cal, const std::v
   }
 
   CalibratedTrace trace = calibrate_points(cal, dut);
+  trace.shift.fit = options.fit;
   const Analysis analysis = analyze(recipe, trace);
   const Decision decision = decide(recipe, trace.points, analysis);
 
@@ -79,7 +81,24 @@ Judgement judge(const Recipe& recipe, const CalibrationRecord& cal, const std::v
     m.mismatch_loss_db = mismatch_loss_from_return_loss(m.depth_db);
     if (!analysis.resonance->low_open) m.resonance_low_hz = analysis.resonance->low_hz;
     if (!analysis.resonance->high_open) m.resonance_high_hz = analysis.resonance->high_hz;
-    m.resonance_interval_kind = analysis.resonance->shift_bound_used ? "shift-bound" : "rigorous";
+    const Resonance& r = *analysis.resonance;
+    m.resonance_interval_kind = r.fit_used ? "fit" : r.shift_bound_used ? "shift-bound" : "rigorous";
+    if (!r.rigorous_low_open) m.rigorous_low_hz = r.rigorous_low_hz;
+    if (!r.rigorous_high_open) m.rigorous_high_hz = r.rigorous_high_hz;
+  }
+  if (analysis.fit) {
+    const DipFit& f = *analysis.fit;
+    m.fit_refused = f.refused;
+    if (f.used) {
+      m.fit_model = to_string(f.models[f.best].model);
+      m.fit_resonance_hz = f.resonance_hz;
+      m.fit_depth_db = f.depth_db;
+      m.fit_depth_low_db = f.depth_low_db;
+      m.fit_depth_high_db = f.depth_high_db;
+      m.fit_bandwidth_hz = f.bandwidth_hz;
+      m.fit_bandwidth_low_hz = f.bandwidth_low_hz;
+      m.fit_bandwidth_high_hz = f.bandwidth_high_hz;
+    }
   }
   if (analysis.band) {
     m.bandwidth_hz = analysis.band->width_hz();

@@ -24,6 +24,10 @@ struct Judgement {
 // invalid calibration or non-finite readings give Verdict::aborted with the reason — never pass.
 // The bounds come from the calibration's uncertainty budget (which holds the source match); a
 // calibration without one (made by an older version) gives aborted with "calibrate again".
-Judgement judge(const Recipe& recipe, const CalibrationRecord& cal, const std::vector<Reading>& dut);
+struct JudgeOptions {
+  bool fit = true;   // try the dip fit (false: the resonance intervals of the points alone)
+};
+Judgement judge(const Recipe& recipe, const CalibrationRecord& cal, const std::vector<Reading>& dut,
+                const JudgeOptions& options = {});
 
 }  // namespace echoline::core

@@ -49,8 +49,18 @@ struct Metrics {
   std::optional<double> resonance_low_hz;
   std::optional<double> resonance_high_hz;
   // Which interval decided the resonance: "rigorous" (every point's bounds, any error phase),
-  // "shift-bound" (smooth error terms over the dip; its assumptions checked), or "" (none).
+  // "shift-bound" (smooth error terms over the dip; its assumptions checked), "fit" (the dip
+  // fit passed its goodness-of-fit test and narrowed the interval), or "" (none).
   std::string resonance_interval_kind;
+  // The dip fit (daemon/core/dip_fit.hpp), when it was tried: the model that fitted best ("" when
+  // none passed), why it was refused, and the unit's own depth and bandwidth with their
+  // intervals. Computed when judging; not kept by the run store (re-judging recomputes them).
+  std::string fit_model;
+  std::string fit_refused;
+  std::optional<double> fit_resonance_hz, fit_depth_db, fit_depth_low_db, fit_depth_high_db;
+  std::optional<double> fit_bandwidth_hz, fit_bandwidth_low_hz, fit_bandwidth_high_hz;
+  // The rigorous interval alone, for comparison (absent on a side open at the sweep's end).
+  std::optional<double> rigorous_low_hz, rigorous_high_hz;
 };
 
 struct TrimAdvice {
