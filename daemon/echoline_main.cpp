@@ -34,6 +34,9 @@ constexpr const char* kHelp =
     "  cal status|history  the calibration in use; the calibrations used so far\n"
     "  status              the daemon's station, recipe, instruments, calibration, current job\n"
     "                      and forwarding to the central database\n"
+    "  rejudge             a lot's stored runs judged again offline (--store, --lot), with the\n"
+    "                      points' intervals alone and with the dip fit, optionally under another\n"
+    "                      recipe's limits (--recipe); prints the comparison\n"
     "  (status, runs and cal take --json: one JSON object on standard output instead of text)\n"
     "administrator:\n"
     "  central migrate     create or upgrade the central PostgreSQL database's schema and roles\n"
@@ -74,6 +77,7 @@ int main(int argc, char** argv) {
       {"station", cmd_station}, {"recipe", cmd_recipe}, {"dry-run", cmd_dry_run}, {"runs", cmd_runs},
       {"report", cmd_report},   {"export", cmd_export}, {"cal", cmd_cal},         {"status", cmd_status},
       {"central", cmd_central},
+      {"rejudge", cmd_rejudge},
   };
   auto it = commands.find(command);
   if (it == commands.end()) {

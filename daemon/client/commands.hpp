@@ -19,5 +19,6 @@ int cmd_export(const Argv& argv);        // export --scope ... --key ... --forma
 int cmd_cal(const Argv& argv);           // cal status | cal history
 int cmd_status(const Argv& argv);        // status
 int cmd_central(const Argv& argv);       // central migrate
+int cmd_rejudge(const Argv& argv);       // rejudge --store FILE --lot LOT [--recipe FILE] (offline)
 
 }  // namespace echoline::client

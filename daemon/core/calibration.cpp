@@ -275,4 +275,14 @@ bool check_standard_drifted(const CalibrationRecord& cal, const std::string& sta
   return false;
 }
 
+CalibrationRecord as_when_used(CalibrationRecord cal) {
+  if (cal.valid || cal.errors.empty()) return cal;
+  for (const std::string& e : cal.errors) {
+    if (e.rfind("invalidated at ", 0) != 0) return cal;
+  }
+  cal.errors.clear();
+  cal.valid = true;
+  return cal;
+}
+
 }  // namespace echoline::core

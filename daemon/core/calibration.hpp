@@ -54,4 +54,9 @@ bool check_standard_drifted(const CalibrationRecord& cal, const std::string& sta
                             const std::vector<Reading>& remeasured, double limit_db,
                             std::string* why);
 
+// A calibration as it was when it judged its runs: one that a drifted check standard later
+// invalidated ("invalidated at ..." errors only) was valid then, since the runs measured with it
+// came before the check. Any other error keeps it invalid. For re-judging stored runs.
+CalibrationRecord as_when_used(CalibrationRecord cal);
+
 }  // namespace echoline::core

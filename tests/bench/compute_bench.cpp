@@ -1,6 +1,6 @@
 // Benchmarks of the pure computation and the run store: calibration build and judging per run
-// (201 and 1601 points), one synchronous store commit per 201-point run, and the lot report
-// over 10 000 runs. Prints numbers only (Google Benchmark); asserts nothing about time.
+// (201 and 1601 points; with and without the dip fit, and the fit alone), one synchronous store
+// commit per 201-point run, and the lot report over 10 000 runs. Prints numbers only (Google Benchmark); asserts nothing about time.
 // Single-threaded. Store files live in a temp folder removed at exit.
 #include <unistd.h>
 
@@ -14,7 +14,9 @@
 #include <benchmark/benchmark.h>
 #include <fmt/format.h>
 
+#include "daemon/core/analysis.hpp"
 #include "daemon/core/calibration.hpp"
+#include "daemon/core/dip_fit.hpp"
 #include "daemon/core/judge.hpp"
 #include "daemon/store/lot_report.hpp"
 #include "daemon/store/run_store.hpp"
@@ -63,6 +65,41 @@ void BM_Judge(benchmark::State& state) {
     state.SkipWithError("the synthetic run was judged aborted");
 }
 BENCHMARK(BM_Judge)->Arg(201)->Arg(1601)->Unit(benchmark::kMicrosecond);
+
+// Judging without the dip fit (the resonance intervals of the points alone), for comparison.
+void BM_JudgeWithoutFit(benchmark::State& state) {
+  const core::Recipe recipe = bench::whip_recipe(static_cast<int>(state.range(0)));
+  const auto cal = calibrate(recipe);
+  const auto dut = bench::dut_readings(recipe, 912e6);
+  for (auto _ : state) {
+    auto j = core::judge(recipe, cal, dut, core::JudgeOptions{false});
+    benchmark::DoNotOptimize(j);
+  }
+}
+BENCHMARK(BM_JudgeWithoutFit)->Arg(201)->Unit(benchmark::kMicrosecond);
+
+// The dip fit alone on one calibrated 201-point unit: both unit models from three starts each
+// (dip_fit.hpp). Budget: 2 ms per unit, so that the test cycle does not slow.
+void BM_DipFit(benchmark::State& state) {
+  const core::Recipe recipe = bench::whip_recipe(static_cast<int>(state.range(0)));
+  const auto cal = calibrate(recipe);
+  const core::CalibratedTrace trace = core::calibrate_points(cal, bench::dut_readings(recipe, 912e6));
+  const core::ShiftContext& c = trace.shift;
+  core::DipFitContext ctx{c.reading_sigma_db, c.error_vector, c.source_match, c.error_delay_s, c.coverage_factor};
+  std::size_t peak = 0;
+  for (std::size_t i = 1; i < trace.points.size(); ++i) {
+    if (trace.points[i].return_loss_db > trace.points[peak].return_loss_db) peak = i;
+  }
+  for (auto _ : state) {
+    auto fit = core::fit_dip(trace.points, peak, ctx, recipe.limits.bandwidth_threshold_db, 0);
+    benchmark::DoNotOptimize(fit);
+  }
+  const auto fit = core::fit_dip(trace.points, peak, ctx, recipe.limits.bandwidth_threshold_db, 0);
+  state.counters["models_fitted"] = static_cast<double>(fit.models.size());
+  state.counters["window_points"] = fit.points;
+  if (fit.models.empty()) state.SkipWithError(("the fit stopped before fitting: " + fit.refused).c_str());
+}
+BENCHMARK(BM_DipFit)->Arg(201)->Unit(benchmark::kMicrosecond);
 
 // One synchronous commit (WAL, synchronous=FULL as shipped) of a 201-point run with its points.
 void BM_StoreCommitRun(benchmark::State& state) {

@@ -68,7 +68,7 @@ json bounds_json(const BoundsFigures& b) {
 bool ScoreResult::safety_met() const {
   for (const AcceptanceCheck& c : checks) {
     const bool safety = c.name == "points outside bounds" || c.name == "escapes" || c.name == "false rejects" ||
-                        c.name == "trim advice on non-length defects";
+                        c.name == "trim advice on non-length defects" || c.name == "true resonance outside interval";
     if (safety && !c.met) return false;
   }
   return !checks.empty();
@@ -102,6 +102,17 @@ std::vector<AcceptanceCheck> acceptance(const VerdictFigures& v, const ClassFigu
                                            100 * w.observed_fraction(), w.difference_pp())
                              : std::string("no prediction"),
                  "<= 10 pp", w.predicted && std::fabs(w.difference_pp()) <= 10.0});
+  out.push_back({"true resonance outside interval",
+                 fmt::format("{} of {}", w.truth_outside.size(), w.truth_checked), "0", w.truth_outside.empty()});
+  const double ratio = w.rigorous_half_width_all_median_hz > 0 ? w.observed_half_width_median_hz / w.rigorous_half_width_all_median_hz : 1e9;
+  out.push_back({"window: half-width / rigorous",
+                 fmt::format("{:.2f} ({:.2f} / {:.2f} MHz, fit decided {} of {})", ratio, w.observed_half_width_median_hz / 1e6,
+                             w.rigorous_half_width_all_median_hz / 1e6, w.fit_used, w.judged),
+                 "<= 0.25 (median)", ratio <= 0.25});
+  out.push_back({"window: inconclusive",
+                 fmt::format("{} of {} ({:.1f} %; {:.1f} % without the fit)", w.inconclusive, w.judged,
+                             100 * w.observed_fraction(), w.judged ? 100.0 * w.inconclusive_without_fit / w.judged : 0.0),
+                 "<= 5 % (35 dB coupler)", w.observed_fraction() <= 0.05 + 1e-9});
   return out;
 }
 
@@ -155,6 +166,12 @@ void print_report(std::FILE* out, const ScoreResult& r) {
                  w.observed_half_width_median_hz / 1e6, w.intervals_closed, w.intervals_shift_bound, w.intervals_rigorous,
                  w.observed_error_radius_median);
   }
+  std::fprintf(out, "    dip fit: decided %d of %d runs; where it decided, median half-width %.2f MHz against %.2f MHz "
+               "rigorous; rigorous median over all closed intervals %.2f MHz; inconclusive without the fit %d\n",
+               w.fit_used, w.judged, w.fit_half_width_median_hz / 1e6, w.rigorous_half_width_median_hz / 1e6,
+               w.rigorous_half_width_all_median_hz / 1e6, w.inconclusive_without_fit);
+  print_reasons(out, "dip fit refused", w.fit_refused);
+  print_list(out, "true resonance outside the reported interval", w.truth_outside);
   print_reasons(out, "window inconclusive reasons", w.inconclusive_reasons);
   print_list(out, "window problems", w.problems);
 
@@ -219,6 +236,14 @@ json report_json(const ScoreResult& r) {
         {"intervals_shift_bound", w.intervals_shift_bound},
         {"intervals_rigorous", w.intervals_rigorous},
         {"observed_error_radius_median", w.observed_error_radius_median},
+        {"fit_used", w.fit_used},
+        {"fit_refused", w.fit_refused},
+        {"fit_half_width_median_hz", w.fit_half_width_median_hz},
+        {"rigorous_half_width_median_hz", w.rigorous_half_width_median_hz},
+        {"rigorous_half_width_all_median_hz", w.rigorous_half_width_all_median_hz},
+        {"truth_checked", w.truth_checked},
+        {"truth_outside", w.truth_outside},
+        {"inconclusive_without_fit", w.inconclusive_without_fit},
         {"error_radius", w.error_radius},
         {"calibration_id", w.calibration_id},
         {"calibrations_used", w.calibrations_used},

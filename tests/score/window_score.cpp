@@ -8,6 +8,7 @@
 
 #include <fmt/format.h>
 
+#include "daemon/core/calibration.hpp"
 #include "daemon/core/centring_prediction.hpp"
 #include "daemon/core/judge.hpp"
 #include "daemon/core/uncertainty.hpp"
@@ -32,19 +33,6 @@ bool set_depth(Nominal& nominal, double depth_db) {
   } else {
     return false;
   }
-}
-
-// A calibration as it was when it judged its runs: one that a drifted check standard later
-// invalidated was valid then (the runs measured with it came before the check). Any other error
-// keeps it invalid.
-core::CalibrationRecord as_when_used(core::CalibrationRecord cal) {
-  if (cal.valid || cal.errors.empty()) return cal;
-  for (const std::string& e : cal.errors) {
-    if (e.rfind("invalidated at ", 0) != 0) return cal;
-  }
-  cal.errors.clear();
-  cal.valid = true;
-  return cal;
 }
 
 // The largest per-point error radius over the contiguous points within 6 dB of the deepest one
@@ -139,7 +127,7 @@ WindowFigures score_window(store::RunStore& store_copy, const std::vector<UnitRe
 
   std::map<std::string, std::unique_ptr<core::CalibrationRecord>> cals;
   std::map<std::string, int> runs_per_cal;
-  std::vector<double> half_widths, dip_radii;
+  std::vector<double> half_widths, dip_radii, fit_hw, fit_rig_hw, rig_hw;
   for (const UnitRecord& u : units) {
     const core::RunResult& run = u.run;
     if (run.verdict == core::Verdict::aborted) continue;
@@ -149,7 +137,7 @@ WindowFigures score_window(store::RunStore& store_copy, const std::vector<UnitRe
       std::unique_ptr<core::CalibrationRecord> cal;
       if (!loaded) w.problems.push_back(fmt::format("calibration {}: {}", run.calibration_id, loaded.error().message));
       else if (!*loaded) w.problems.push_back(fmt::format("calibration {}: not in the store", run.calibration_id));
-      else cal = std::make_unique<core::CalibrationRecord>(as_when_used(std::move(**loaded)));
+      else cal = std::make_unique<core::CalibrationRecord>(core::as_when_used(std::move(**loaded)));
       it = cals.emplace(run.calibration_id, std::move(cal)).first;
     }
     if (!it->second) continue;
@@ -157,6 +145,8 @@ WindowFigures score_window(store::RunStore& store_copy, const std::vector<UnitRe
     readings.reserve(run.points.size());
     for (const core::PointResult& p : run.points) readings.push_back({p.frequency_hz, p.raw_dbm});
     const core::Judgement j = core::judge(window, *it->second, readings);
+    const core::Judgement plain = core::judge(window, *it->second, readings, core::JudgeOptions{false});
+    if (plain.verdict == core::Verdict::inconclusive) ++w.inconclusive_without_fit;
     ++w.judged;
     ++runs_per_cal[run.calibration_id];
     ++w.verdicts[core::to_string(j.verdict)];
@@ -168,6 +158,30 @@ WindowFigures score_window(store::RunStore& store_copy, const std::vector<UnitRe
     }
     if (m.resonance_interval_kind == "rigorous") ++w.intervals_rigorous;
     if (m.resonance_low_hz && m.resonance_high_hz) half_widths.push_back((*m.resonance_high_hz - *m.resonance_low_hz) / 2);
+    const bool rig_closed = m.rigorous_low_hz && m.rigorous_high_hz;
+    if (rig_closed) rig_hw.push_back((*m.rigorous_high_hz - *m.rigorous_low_hz) / 2);
+    if (m.resonance_interval_kind == "fit") {
+      ++w.fit_used;
+      if (m.resonance_low_hz && m.resonance_high_hz && rig_closed) {
+        fit_hw.push_back((*m.resonance_high_hz - *m.resonance_low_hz) / 2);
+        fit_rig_hw.push_back((*m.rigorous_high_hz - *m.rigorous_low_hz) / 2);
+      }
+    } else if (!m.fit_refused.empty()) {
+      ++w.fit_refused[first_characters(m.fit_refused, 60)];
+    }
+    // The truth against the reported interval, for units with one resonance in the sweep (not
+    // the open, shorted or intermittent feeds, whose "resonance" is no dip).
+    const std::string& defect = u.truth.defect;
+    const bool has_dip = defect != "open-feed" && defect != "shorted-feed" && defect != "intermittent";
+    if (has_dip && m.resonance_hz && u.truth.f0_hz > 0 && !j.points.empty() &&
+        u.truth.f0_hz >= j.points.front().frequency_hz && u.truth.f0_hz <= j.points.back().frequency_hz) {
+      ++w.truth_checked;
+      const double lo = m.resonance_low_hz.value_or(-1e300), hi = m.resonance_high_hz.value_or(1e300);
+      if (u.truth.f0_hz < lo || u.truth.f0_hz > hi) {
+        w.truth_outside.push_back(fmt::format("{}: true resonance {:.3f} MHz outside [{:.3f}, {:.3f}] MHz ({})", run.serial,
+                                              u.truth.f0_hz / 1e6, lo / 1e6, hi / 1e6, m.resonance_interval_kind));
+      }
+    }
     if (j.verdict == core::Verdict::inconclusive) {
       ++w.inconclusive;
       if (j.reason.find("window") != std::string::npos) ++w.inconclusive_for_window;
@@ -177,6 +191,11 @@ WindowFigures score_window(store::RunStore& store_copy, const std::vector<UnitRe
   w.intervals_closed = static_cast<int>(half_widths.size());
   if (!half_widths.empty()) w.observed_half_width_median_hz = median(half_widths);
   if (!dip_radii.empty()) w.observed_error_radius_median = median(dip_radii);
+  if (!fit_hw.empty()) {
+    w.fit_half_width_median_hz = median(fit_hw);
+    w.rigorous_half_width_median_hz = median(fit_rig_hw);
+  }
+  if (!rig_hw.empty()) w.rigorous_half_width_all_median_hz = median(rig_hw);
   if (w.reference.count == 0) {
     w.problems.push_back("no run passed: no reference units, so the window recipe's own nominal unit predicts");
   }

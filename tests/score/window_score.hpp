@@ -63,6 +63,19 @@ struct WindowFigures {
   // (uncertainty.hpp, gamma_error_radius) over the points within 6 dB of the dip; median over
   // the runs whose interval the shift bound decided.
   double observed_error_radius_median = 0;
+  // The dip fit (daemon/core/dip_fit.hpp) on the re-judged runs: how often it decided, the
+  // median half-width of the reported intervals where it did, the median rigorous half-width
+  // over the same runs, why it was refused, and the units whose true resonance (simulator truth)
+  // lies outside the interval reported (open sides reach beyond the sweep). Also the
+  // inconclusive share with the fit switched off, for comparison.
+  int fit_used = 0;
+  std::map<std::string, int> fit_refused;   // first 60 characters of the reason
+  double fit_half_width_median_hz = 0;      // over runs where the fit decided
+  double rigorous_half_width_median_hz = 0; // over the same runs
+  double rigorous_half_width_all_median_hz = 0;  // over every run with a closed rigorous interval
+  int truth_checked = 0;
+  std::vector<std::string> truth_outside;   // "serial: truth f MHz outside [lo, hi]"
+  int inconclusive_without_fit = 0;
   std::vector<std::string> problems;       // what stopped a run or the prediction
   double observed_fraction() const { return judged == 0 ? 0.0 : static_cast<double>(inconclusive) / judged; }
   double difference_pp() const { return 100.0 * (predicted_fraction - observed_fraction()); }

@@ -1,0 +1,194 @@
+// echoline rejudge: judges a lot's stored runs again offline, from a run store file opened
+// read-only, each from its raw readings and its own calibration: once with the resonance
+// intervals of the points alone and once with the dip fit, under the runs' own recipe or
+// another recipe's limits, and prints the comparison. Nothing is written. Edge code; one thread.
+#include <algorithm>
+#include <filesystem>
+#include <iostream>
+#include <map>
+#include <memory>
+#include <set>
+#include <vector>
+
+#include <fmt/format.h>
+
+#include "daemon/client/cli.hpp"
+#include "daemon/client/commands.hpp"
+#include "daemon/client/exit_codes.hpp"
+#include "daemon/core/calibration.hpp"
+#include "daemon/core/judge.hpp"
+#include "daemon/core/recipe_loader.hpp"
+#include "daemon/store/run_store.hpp"
+
+namespace echoline::client {
+namespace {
+
+constexpr const char* kRejudgeHelp =
+    "usage: echoline rejudge --store FILE --lot LOT [--recipe FILE] [--list N]\n\n"
+    "Judges every unit's final stored run of the lot again, offline, from its raw readings and the\n"
+    "calibration it was measured with, twice: with the resonance intervals the points alone give\n"
+    "(as the station judged before the dip fit existed) and with the dip fit, which narrows the\n"
+    "resonance interval only when a unit model passes its goodness-of-fit test. By default each\n"
+    "run is judged under its own recipe as stored; --recipe FILE judges under that recipe's limits\n"
+    "instead (it must sweep the same points). Prints the verdicts stored and re-judged, the units\n"
+    "whose verdict the fit changes (up to --list N, default 20), the median resonance-interval\n"
+    "half-widths and why the fit was refused. The store is opened read-only; nothing is written.\n\n"
+    "Compare the two columns on a whole lot before switching a line over to the fit.\n\n"
+    "exit: 0 compared, 1 no runs for the lot, 2 usage or recipe error, 5 the store could not be read\n";
+
+double median(std::vector<double> v) {
+  if (v.empty()) return 0;
+  std::sort(v.begin(), v.end());
+  const std::size_t n = v.size();
+  return n % 2 == 1 ? v[n / 2] : (v[n / 2 - 1] + v[n / 2]) / 2;
+}
+
+std::string interval_text(const core::Metrics& m) {
+  if (!m.resonance_hz) return "no resonance";
+  return fmt::format("{}–{} MHz", m.resonance_low_hz ? fmt::format("{:.2f}", *m.resonance_low_hz / 1e6) : "sweep start",
+                     m.resonance_high_hz ? fmt::format("{:.2f}", *m.resonance_high_hz / 1e6) : "sweep end");
+}
+
+struct Column {
+  std::map<std::string, int> verdicts;
+  std::vector<double> half_widths;
+};
+
+void count(Column& c, const core::Judgement& j) {
+  ++c.verdicts[core::to_string(j.verdict)];
+  if (j.metrics.resonance_low_hz && j.metrics.resonance_high_hz) {
+    c.half_widths.push_back((*j.metrics.resonance_high_hz - *j.metrics.resonance_low_hz) / 2);
+  }
+}
+
+}  // namespace
+
+int cmd_rejudge(const Argv& argv) {
+  Args args(argv, "rejudge", {"--store", "--lot", "--recipe", "--list"}, {"--help"}, 0);
+  if (args.flag("--help")) {
+    std::cout << kRejudgeHelp;
+    return kExitOk;
+  }
+  const auto file = args.get("--store");
+  const auto lot = args.get("--lot");
+  if (!file || !lot) args.usage_error("give --store FILE and --lot LOT");
+  std::size_t list = 20;
+  if (auto l = args.get("--list")) {
+    try {
+      list = static_cast<std::size_t>(std::stoul(*l));
+    } catch (const std::exception&) {
+      args.usage_error("--list needs a number");
+    }
+  }
+  std::optional<core::Recipe> other;
+  if (auto r = args.get("--recipe")) other = core::load_recipe(*r);
+
+  std::error_code ec;
+  if (!std::filesystem::exists(*file, ec)) throw CliExit(kExitStorage, fmt::format("rejudge: {}: no such store file", *file));
+  auto opened = store::RunStore::open_read_only(*file);
+  if (!opened) throw CliExit(kExitStorage, "rejudge: " + opened.error().message);
+  store::RunStore& st = **opened;
+  auto runs = st.lot_runs(*lot, true);
+  if (!runs) throw CliExit(kExitStorage, "rejudge: " + runs.error().message);
+  // The final run of each serial (the store lists a lot's runs in the order they were made).
+  std::map<std::string, std::size_t> last;
+  std::vector<std::string> order;
+  for (std::size_t i = 0; i < runs->size(); ++i) {
+    const std::string& s = (*runs)[i].serial;
+    if (!last.count(s)) order.push_back(s);
+    last[s] = i;
+  }
+  if (order.empty()) {
+    std::cout << "no runs stored for lot " << *lot << "\n";
+    return kExitNegative;
+  }
+
+  std::map<std::string, std::unique_ptr<core::CalibrationRecord>> cals;
+  std::map<std::string, std::unique_ptr<core::Recipe>> recipes;
+  Column stored, plain, fitted;
+  std::map<std::string, int> refused;
+  std::vector<std::string> changed, problems;
+  int fit_decided = 0;
+  std::size_t done = 0;
+  for (const std::string& serial : order) {
+    const core::RunResult& run = (*runs)[last[serial]];
+    if (++done % 100 == 0) std::cerr << fmt::format("rejudge: {} of {} units\n", done, order.size());
+    ++stored.verdicts[core::to_string(run.verdict)];
+    auto ci = cals.find(run.calibration_id);
+    if (ci == cals.end()) {
+      auto loaded = st.load_calibration(run.calibration_id);
+      std::unique_ptr<core::CalibrationRecord> cal;
+      if (!loaded) problems.push_back(fmt::format("calibration {}: {}", run.calibration_id, loaded.error().message));
+      else if (!*loaded) problems.push_back(fmt::format("calibration {} is not in the store", run.calibration_id));
+      else cal = std::make_unique<core::CalibrationRecord>(core::as_when_used(std::move(**loaded)));
+      ci = cals.emplace(run.calibration_id, std::move(cal)).first;
+    }
+    const core::Recipe* recipe = other ? &*other : nullptr;
+    if (!recipe) {
+      auto ri = recipes.find(run.recipe.content_hash);
+      if (ri == recipes.end()) {
+        std::unique_ptr<core::Recipe> r;
+        auto text = st.recipe_text(run.recipe.content_hash);
+        if (!text || !*text) {
+          problems.push_back(fmt::format("recipe {} {} ({}) is not in the store", run.recipe.name, run.recipe.version,
+                                         run.recipe.content_hash.substr(0, 12)));
+        } else {
+          try {
+            r = std::make_unique<core::Recipe>(core::parse_recipe(**text, run.recipe.name + " (stored)"));
+          } catch (const std::exception& e) {
+            problems.push_back(fmt::format("stored recipe {}: {}", run.recipe.name, e.what()));
+          }
+        }
+        ri = recipes.emplace(run.recipe.content_hash, std::move(r)).first;
+      }
+      recipe = ri->second.get();
+    }
+    if (!ci->second || !recipe || run.points.empty()) {
+      if (run.points.empty() && run.verdict != core::Verdict::aborted) problems.push_back(serial + ": no readings stored");
+      continue;
+    }
+    std::vector<core::Reading> readings;
+    for (const core::PointResult& p : run.points) readings.push_back({p.frequency_hz, p.raw_dbm});
+    const core::Judgement a = core::judge(*recipe, *ci->second, readings, core::JudgeOptions{false});
+    const core::Judgement b = core::judge(*recipe, *ci->second, readings, core::JudgeOptions{true});
+    count(plain, a);
+    count(fitted, b);
+    if (b.metrics.resonance_interval_kind == "fit") ++fit_decided;
+    else if (!b.metrics.fit_refused.empty()) ++refused[b.metrics.fit_refused.substr(0, 70)];
+    if (a.verdict != b.verdict) {
+      changed.push_back(fmt::format("{}: {} -> {}; resonance {} -> {}", serial, core::to_string(a.verdict),
+                                    core::to_string(b.verdict), interval_text(a.metrics), interval_text(b.metrics)));
+    }
+  }
+
+  std::cout << fmt::format("re-judged lot {} from {}: {} units (final runs), {}\n", *lot, *file, order.size(),
+                           other ? fmt::format("under recipe {} {} ({})", other->name, other->version, other->source_path)
+                                 : std::string("each under its own stored recipe"));
+  std::cout << fmt::format("  {:<14}{:>10}{:>16}{:>16}\n", "verdict", "stored", "points alone", "with the fit");
+  for (const char* v : {"pass", "fail", "inconclusive", "aborted"}) {
+    auto get = [&](const Column& c) { auto it = c.verdicts.find(v); return it == c.verdicts.end() ? 0 : it->second; };
+    std::cout << fmt::format("  {:<14}{:>10}{:>16}{:>16}\n", v, get(stored), get(plain), get(fitted));
+  }
+  std::cout << fmt::format("  resonance interval, median half-width: points alone {:.2f} MHz ({} closed), with the fit "
+                           "{:.2f} MHz ({} closed)\n",
+                           median(plain.half_widths) / 1e6, plain.half_widths.size(), median(fitted.half_widths) / 1e6,
+                           fitted.half_widths.size());
+  std::cout << fmt::format("  the fit decided the resonance interval of {} units\n", fit_decided);
+  if (!refused.empty()) {
+    std::vector<std::pair<int, std::string>> sorted;
+    for (const auto& [why, n] : refused) sorted.push_back({n, why});
+    std::sort(sorted.rbegin(), sorted.rend());
+    std::cout << "  the fit was refused:\n";
+    for (const auto& [n, why] : sorted) std::cout << fmt::format("    {:>5}  {}\n", n, why);
+  }
+  std::cout << fmt::format("  verdicts the fit changes: {}\n", changed.size());
+  for (std::size_t i = 0; i < changed.size() && i < list; ++i) std::cout << "    " << changed[i] << "\n";
+  if (changed.size() > list) std::cout << fmt::format("    ... {} more (--list N)\n", changed.size() - list);
+  if (!problems.empty()) {
+    std::cout << fmt::format("  not re-judged ({}):\n", problems.size());
+    for (std::size_t i = 0; i < problems.size() && i < list; ++i) std::cout << "    " << problems[i] << "\n";
+  }
+  return kExitOk;
+}
+
+}  // namespace echoline::client
