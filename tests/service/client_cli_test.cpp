@@ -37,7 +37,8 @@ TEST(ClientCli, HelpOnTheProgramAndEverySubcommandExitsZero) {
   for (const auto& sub : std::vector<std::vector<std::string>>{{"station", "--help"}, {"recipe", "--help"},
                                                                {"dry-run", "--help"}, {"runs", "--help"},
                                                                {"report", "--help"}, {"export", "--help"},
-                                                               {"cal", "--help"},     {"status", "--help"}}) {
+                                                               {"cal", "--help"},     {"status", "--help"},
+                                                               {"rejudge", "--help"}}) {
     const Outcome o = run_client(sub);
     EXPECT_EQ(o.code, 0) << sub[0] << ": " << o.output;
     EXPECT_NE(o.output.find("usage: echoline " + sub[0]), std::string::npos) << o.output;
