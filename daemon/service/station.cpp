@@ -270,7 +270,10 @@ json Station::status_json() const {
 }
 
 void Station::note_commit(double ms) {
+  const double waited = store_->take_lock_wait_ms();
   std::lock_guard lock(mu_);
+  lock_wait_ms_last_ = waited;
+  lock_wait_ms_max_ = std::max(lock_wait_ms_max_, waited);
   commit_ms_last_ = ms;
   commit_ms_max_ = std::max(commit_ms_max_, ms);
   ++commits_;
@@ -294,7 +297,11 @@ json Station::forwarding_json() const {
     }
   }
   std::lock_guard lock(mu_);
-  j["store_commit_ms"] = {{"last", commit_ms_last_}, {"max", commit_ms_max_}, {"runs", commits_}};
+  j["store_commit_ms"] = {{"last", commit_ms_last_},
+                          {"max", commit_ms_max_},
+                          {"runs", commits_},
+                          {"lock_wait_last", lock_wait_ms_last_},
+                          {"lock_wait_max", lock_wait_ms_max_}};
   return j;
 }
 

@@ -139,6 +139,7 @@ class Station {
   // How long the store took to record runs (begin_run + save_run of one run), for status: the
   // forwarder shares the store file, and this shows whether it ever held a test up.
   double commit_ms_last_ = 0, commit_ms_max_ = 0;
+  double lock_wait_ms_last_ = 0, lock_wait_ms_max_ = 0;   // of those, waiting for the forwarder's lock
   long long commits_ = 0;
 };
 

@@ -4,6 +4,7 @@
 
 #include <fmt/format.h>
 
+#include <chrono>
 #include <cmath>
 #include <limits>
 #include <mutex>
@@ -128,6 +129,13 @@ core::RunResult run_from_row(const Statement& s) {
 }  // namespace
 
 RunStore::RunStore(std::unique_ptr<Impl> impl) : impl_(std::move(impl)) {}
+
+double RunStore::take_lock_wait_ms() {
+  std::lock_guard lock(impl_->mutex);
+  const double w = impl_->lock_wait_ms;
+  impl_->lock_wait_ms = 0;
+  return w;
+}
 RunStore::~RunStore() = default;
 
 const std::filesystem::path& RunStore::path() const { return impl_->file; }
@@ -143,6 +151,7 @@ Result<std::unique_ptr<RunStore>> RunStore::open(const std::filesystem::path& fi
   impl->db = std::move(*db);
   impl->options = std::move(options);
   impl->file = file;
+  sqlite3_busy_handler(impl->db.handle(), &Impl::wait_for_lock, impl.get());
   return std::unique_ptr<RunStore>(new RunStore(std::move(impl)));
 }
 

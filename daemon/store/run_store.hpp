@@ -172,6 +172,10 @@ class RunStore : public RunReader {
   Status outbox_refuse(std::string_view run_id, std::string_view why);
   Result<OutboxStatus> outbox_status();
 
+  // Milliseconds this connection waited for another connection's write lock since the last call
+  // (then reset). In echolined the other writer is the forwarder: this is what it cost a test.
+  double take_lock_wait_ms();
+
   // "ok" or SQLite's list of problems (PRAGMA integrity_check).
   Result<std::string> integrity_check();
   const std::filesystem::path& path() const;

@@ -3,6 +3,7 @@
 // Internal to daemon/store. Callers hold `mutex` around every use of `db`.
 #pragma once
 
+#include <chrono>
 #include <filesystem>
 #include <mutex>
 #include <optional>
@@ -22,6 +23,23 @@ struct RunStore::Impl {
   StoreOptions options;
   std::filesystem::path file;
   std::mutex mutex;
+  // Time this connection spent waiting for another connection's write lock (the busy handler,
+  // run_store.cpp), in ms: in echolined the only other writer is the forwarder's connection.
+  double lock_wait_ms = 0;
+  std::chrono::steady_clock::time_point lock_wait_started;
+
+  // SQLite's busy handler: waits in 1 ms steps up to the busy timeout and adds the time it waited
+  // to lock_wait_ms (what another connection's write lock cost this one).
+  static int wait_for_lock(void* impl_ptr, int attempt) {
+    auto* impl = static_cast<Impl*>(impl_ptr);
+    const auto now = std::chrono::steady_clock::now();
+    if (attempt == 0) impl->lock_wait_started = now;
+    const double waited = std::chrono::duration<double, std::milli>(now - impl->lock_wait_started).count();
+    if (waited >= impl->options.busy_timeout_ms) return 0;
+    sqlite3_sleep(1);
+    impl->lock_wait_ms += std::chrono::duration<double, std::milli>(std::chrono::steady_clock::now() - now).count();
+    return 1;
+  }
 
   Error fail(const Error& e, std::string_view doing) const {
     return e.with_context(fmt::format("run store {}: {}", file.string(), doing));

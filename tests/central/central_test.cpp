@@ -4,7 +4,10 @@
 // outbox that feeds the forwarder.
 #include <sys/stat.h>
 
+#include <sqlite3.h>
+
 #include <fstream>
+#include <thread>
 
 #include <gtest/gtest.h>
 #include <pqxx/pqxx>
@@ -221,6 +224,27 @@ TEST(StationOutbox, QueuesFinishedRunsInCommitOrderAndRecordsTheForward) {
   EXPECT_EQ(*(*again)->instance_id(), *id);
   auto other = store::RunStore::open(dir / "t.sqlite");
   EXPECT_NE(*(*other)->instance_id(), *id);
+}
+
+// What the forwarder's write lock costs a test is measured: a save that had to wait for another
+// connection's transaction reports the wait, and the counter resets when read.
+TEST(StationOutbox, WaitForAnotherConnectionsWriteLockIsCounted) {
+  TempDir dir;
+  auto st = store::RunStore::open(dir / "s.sqlite");
+  ASSERT_TRUE(st.ok()) << st.error().message;
+  EXPECT_EQ((*st)->take_lock_wait_ms(), 0.0);
+  sqlite3* other = nullptr;
+  ASSERT_EQ(sqlite3_open((dir / "s.sqlite").c_str(), &other), SQLITE_OK);
+  ASSERT_EQ(sqlite3_exec(other, "BEGIN IMMEDIATE", nullptr, nullptr, nullptr), SQLITE_OK);
+  std::thread holder([&] {
+    std::this_thread::sleep_for(std::chrono::milliseconds(150));
+    sqlite3_exec(other, "COMMIT", nullptr, nullptr, nullptr);
+  });
+  EXPECT_TRUE((*st)->save_run(sample_run("r-wait", "SN-W")).ok());
+  holder.join();
+  sqlite3_close(other);
+  EXPECT_GT((*st)->take_lock_wait_ms(), 0.0);
+  EXPECT_EQ((*st)->take_lock_wait_ms(), 0.0);
 }
 
 }  // namespace
