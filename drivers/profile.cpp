@@ -68,6 +68,42 @@ void load_receiver(const JsoncDocument& doc, Profile& p) {
   p.byte_order = doc.enum_or(r / "byte_order", p.byte_order, {"normal", "swapped"});
 }
 
+// "sweep": {"time_range_s": [min, max], "retrace_s"} for a source; {"time_range_s", "rearm_s",
+// "max_points", "rbw_steps_hz": [...]} for a receiver. Optional.
+void load_sweep(const JsoncDocument& doc, Profile& p) {
+  const JsonPointer s = kRoot / "sweep";
+  if (!doc.has(s)) return;
+  if (p.role == "switch") doc.fail(s, "a switch profile has no sweep section");
+  doc.require_object(s);
+  if (p.role == "source") doc.check_keys(s, {"time_range_s", "retrace_s"});
+  else doc.check_keys(s, {"time_range_s", "rearm_s", "max_points", "rbw_steps_hz"});
+  SweepLimits& w = p.sweep;
+  if (doc.has(s / "time_range_s")) {
+    const json& range = doc.require_array(s / "time_range_s");
+    if (range.size() != 2) doc.fail(s / "time_range_s", "expected [shortest, longest] in seconds");
+    w.min_time_s = doc.require_number(s / "time_range_s" / std::size_t{0}, "s");
+    w.max_time_s = doc.require_number(s / "time_range_s" / std::size_t{1}, "s");
+    if (!(w.min_time_s > 0) || !(w.max_time_s >= w.min_time_s))
+      doc.fail(s / "time_range_s", fmt::format("[{}, {}]: need 0 < shortest <= longest", w.min_time_s, w.max_time_s));
+  }
+  w.retrace_s = doc.number_in(s / "retrace_s", 0, 0, 10, "s");
+  w.rearm_s = doc.number_in(s / "rearm_s", 0, 0, 10, "s");
+  if (doc.has(s / "max_points")) {
+    const auto n = doc.require_integer(s / "max_points");
+    if (n < 3 || n > 1000000) doc.fail(s / "max_points", fmt::format("{}: must be 3 to 1000000", n));
+    w.max_points = static_cast<int>(n);
+  }
+  if (doc.has(s / "rbw_steps_hz")) {
+    const json& steps = doc.require_array(s / "rbw_steps_hz");
+    for (std::size_t i = 0; i < steps.size(); ++i) {
+      const double v = doc.require_number(s / "rbw_steps_hz" / i, "Hz");
+      if (!(v > 0) || (!w.rbw_steps_hz.empty() && v <= w.rbw_steps_hz.back()))
+        doc.fail(s / "rbw_steps_hz" / i, fmt::format("{} Hz: steps must be above 0 Hz and increasing", v));
+      w.rbw_steps_hz.push_back(v);
+    }
+  }
+}
+
 void load_switch(const JsoncDocument& doc, Profile& p) {
   const JsonPointer s = kRoot / "switch";
   if (p.role != "switch") {
@@ -127,7 +163,7 @@ Profile load_profile(const std::filesystem::path& file) {
   JsoncDocument doc = JsoncDocument::load(file);
   if (!doc.root().is_object()) doc.fail(kRoot, "a profile is a JSON object {...}");
   doc.check_keys(kRoot, {"name", "role", "description", "identity", "io", "check_errors", "reset_on_initialize",
-                         "limits", "receiver", "switch", "init", "commands"});
+                         "limits", "receiver", "sweep", "switch", "init", "commands"});
   Profile p;
   p.file = doc.file();
   p.name = doc.require_string(kRoot / "name");
@@ -143,6 +179,7 @@ Profile load_profile(const std::filesystem::path& file) {
   load_limits(doc, p);
   load_receiver(doc, p);
   load_switch(doc, p);
+  load_sweep(doc, p);
   p.init = doc.string_list_or_empty(kRoot / "init");
   for (std::size_t i = 0; i < p.init.size(); ++i) {
     const std::string& line = p.init[i];

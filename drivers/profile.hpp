@@ -19,6 +19,16 @@
 
 namespace echoline::drivers {
 
+// Sweep figures of a source (its frequency ramp) or a receiver (its swept trace), for planning a
+// fast capture. 0 / empty = not given in the profile (the planner's generic figures apply).
+struct SweepLimits {
+  double min_time_s = 0, max_time_s = 0;   // one ramp (source) or one sweep (receiver), s
+  double retrace_s = 0;                    // source: ramp end back to its start, s
+  double rearm_s = 0;                      // receiver: end of a triggered sweep to the next start, s
+  int max_points = 0;                      // receiver: trace points
+  std::vector<double> rbw_steps_hz;        // receiver: the RBWs it offers, increasing
+};
+
 struct Profile {
   std::string name, role /*source|receiver|switch*/, description, file;
   std::string identity_manufacturer, identity_model;   // expected *IDN? fields ("" = any; '*' and '?' wildcards)
@@ -32,6 +42,7 @@ struct Profile {
   double max_attenuation_db = 0;                       // receiver: input attenuator range 0..max (dB)
   std::string trace_format = "ascii";                  // receiver: "ascii" | "real32"
   std::string byte_order = "normal";                   // receiver, real32: "normal" (big-endian) | "swapped"
+  SweepLimits sweep;                                   // source and receiver: "sweep" section
   std::map<std::string, CommandTemplate> commands;     // by operation name
   std::set<std::string> absent;                        // operations declared absent (`"set_vbw": null`)
   std::vector<std::string> init;                       // lines sent on initialize()

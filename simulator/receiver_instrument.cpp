@@ -15,12 +15,13 @@
 // sweep_time / (points - 1) long; the sample detector looks only at the bin's instant). The
 // tone is seen at the closest approach |f_src(t) - f_rx(t)| during the dwell, through the RBW
 // shape, so a bin gets the tone's full peak when the source passes the bin frequency while the
-// analyzer dwells there. Timing condition (what a fast-capture setup must meet):
-//   dwell >= one source sweep, i.e. receiver sweep time >= (points - 1) x source sweep time:
-//   then every bin sees every source frequency once per receiver sweep (a sawtooth passes
-//   each frequency once per period), and one receiver sweep with max hold fills the trace.
-// A shorter receiver sweep leaves bins that missed the tone at the noise floor; max hold over
-// more receiver sweeps fills them only as the two sweeps' phases happen to line up.
+// analyzer dwells there. Timing condition (what a fast-capture setup must meet): relative to the
+// analyzer, which moves one bin b during a dwell, the ramp must cover its whole band B in one
+// dwell: dwell >= source sweep x (B + b) / B (derived in daemon/core/MEASUREMENT.md §11; a dwell
+// of exactly one source sweep leaves one bin whose tone passes just outside it). Then one
+// receiver sweep with max hold fills the trace. A shorter receiver sweep leaves bins that
+// missed the tone low or at the noise floor; max hold over more receiver sweeps fills them only
+// as the two sweeps' phases happen to line up.
 // A tone crossing the RBW at rate R (Hz/s) loses peak power: a linear FM through a Gaussian
 // filter of 3 dB bandwidth B peaks (1 + x^2)^(-1/2) in power with x = 2 ln2 R / (pi B^2)
 // (derived here from the Gaussian's impulse response; the same form as the sweep-rate loss

@@ -11,6 +11,7 @@
 #include "daemon/client/commands.hpp"
 #include "daemon/client/exit_codes.hpp"
 #include "daemon/core/centring_prediction.hpp"
+#include "daemon/core/frequency_text.hpp"
 #include "daemon/core/recipe_check.hpp"
 #include "daemon/core/recipe_loader.hpp"
 #include "drivers/config_error.hpp"
@@ -38,7 +39,9 @@ constexpr const char* kDryRunHelp =
     "recipe check, the sweep plan (segments, points, frequencies), the source level and the\n"
     "worst-case power at the receiver, the calibration standards, and an estimate of the sweep\n"
     "time from the receiver settings (settling + k*span/RBW^2 per reading, k = 2.5; instrument\n"
-    "command overhead not included, so real sweeps take longer).\n\n"
+    "command overhead not included, so real sweeps take longer). For a fast-capture recipe: the\n"
+    "plan the station chooses (RBW, source ramp, receiver sweep, arrangement), why, and the\n"
+    "expected capture time.\n\n"
     "  --station CONFIG   station config (default $ECHOLINE_CONFIG, else config/station.jsonc,\n"
     "                     else " ECHOLINE_INSTALLED_STATION_CONFIG ")\n"
     "  --select           then ask the running daemon to load the recipe (recipe.select, engineer\n"
@@ -108,6 +111,48 @@ int count(const std::vector<core::CheckFinding>& fs, const char* severity) {
   return n;
 }
 
+// Step sweep: the time estimate from the receiver settings.
+void print_step_estimate(const core::Recipe& r, std::size_t points) {
+  const double vbw = r.receiver.vbw_hz > 0 ? r.receiver.vbw_hz : r.receiver.rbw_hz;
+  // Swept-analyzer time per reading: ST = k*span/RBW^2, with k from 2 to 3 for analog,
+  // near-Gaussian resolution filters (common practice); we take k = 2.5. VBW < RBW lengthens it
+  // by RBW/VBW (from memory).
+  double per_reading = 0;
+  if (r.receiver.span_hz > 0 && r.receiver.rbw_hz > 0) {
+    per_reading = 2.5 * r.receiver.span_hz / (r.receiver.rbw_hz * r.receiver.rbw_hz);
+    if (vbw < r.receiver.rbw_hz) per_reading *= r.receiver.rbw_hz / vbw;
+  }
+  const double per_point = r.source.settle_s + per_reading * std::max(r.receiver.averages, 1);
+  const double sweep = per_point * static_cast<double>(points);
+  std::cout << fmt::format("  estimated sweep time {:.2f} s per unit ({:.4f} s per point, command overhead not included)\n",
+                           sweep, per_point);
+  std::cout << fmt::format("  estimated calibration {:.2f} s of sweeps ({} standards, 2 repeats)\n",
+                           sweep * (r.calibration.use_short ? 5 : 4), r.calibration.use_short ? 3 : 2);
+}
+
+// Fast capture: the plan the station chose, why, and the expected time.
+void print_fast_capture_plan(const drivers::StationConfig& config, const core::Recipe& r, int calibration_captures) {
+  auto plan = fast_capture_plan(config, r);
+  if (!plan) {
+    std::cout << "  fast capture: no plan: " << plan.error().message << "\n";
+    return;
+  }
+  const core::FastCapturePlan& p = *plan;
+  std::cout << fmt::format("  fast capture plan: {}\n", core::to_string(p.arrangement));
+  std::cout << fmt::format("    receiver RBW {}, {} bins {:.6f} to {:.6f} MHz ({} plan points and one bin beyond each end), "
+                           "sweep {:.4g} s{}\n",
+                           core::format_frequency(p.rbw_hz), p.axis.points, p.axis.start_hz / 1e6, p.axis.stop_hz / 1e6,
+                           p.axis.bins_on_plan ? fmt::format("{}", p.axis.points - 2) : "interpolated",
+                           p.receiver_sweep_s, p.receiver_sweeps > 1 ? fmt::format(" x {} max-hold sweeps", p.receiver_sweeps) : "");
+  std::cout << fmt::format("    source ramp {:.6f} to {:.6f} MHz in {:.4g} ms, repeating\n", p.source_start_hz / 1e6,
+                           p.source_stop_hz / 1e6, p.source_sweep_s * 1e3);
+  std::cout << fmt::format("    why: {}\n", p.reason);
+  std::cout << fmt::format("  expected capture {:.3f} s per unit (recipe limit {} s; command overhead not included)\n",
+                           p.capture_s, r.fast_capture.max_capture_s);
+  std::cout << fmt::format("  estimated calibration {:.2f} s of captures ({} captures)\n", p.capture_s * calibration_captures,
+                           calibration_captures);
+}
+
 }  // namespace
 
 int cmd_recipe(const Argv& argv) {
@@ -150,10 +195,17 @@ int cmd_dry_run(const Argv& argv) {
   }
   std::cout << fmt::format("  {} frequencies in all{}\n", freqs.size(),
                            freqs.size() > 1 ? fmt::format(", {:.3f} to {:.3f} MHz", freqs.front() / 1e6, freqs.back() / 1e6) : "");
-  std::cout << fmt::format("  source {:.1f} dBm CW, settle {:.4f} s per frequency\n", r.source.power_dbm, r.source.settle_s);
+  std::cout << fmt::format("  source {:.1f} dBm{}, settle {:.4f} s{}\n", r.source.power_dbm,
+                           r.mode == core::SweepMode::fast_capture ? " ramped" : " CW", r.source.settle_s,
+                           r.mode == core::SweepMode::fast_capture ? " before the capture" : " per frequency");
   const double vbw = r.receiver.vbw_hz > 0 ? r.receiver.vbw_hz : r.receiver.rbw_hz;
-  std::cout << fmt::format("  receiver RBW {:.0f} Hz, VBW {:.0f} Hz, span {:.0f} Hz, {} reading{} per point\n", r.receiver.rbw_hz,
-                           vbw, r.receiver.span_hz, r.receiver.averages, r.receiver.averages == 1 ? "" : "s");
+  if (r.mode == core::SweepMode::fast_capture) {
+    std::cout << fmt::format("  receiver attenuation {:.0f} dB, reference level {:.1f} dBm (RBW and sweep: the plan below)\n",
+                             std::max(0.0, r.receiver.attenuation_db), r.receiver.reference_level_dbm);
+  } else {
+    std::cout << fmt::format("  receiver RBW {:.0f} Hz, VBW {:.0f} Hz, span {:.0f} Hz, {} reading{} per point\n", r.receiver.rbw_hz,
+                             vbw, r.receiver.span_hz, r.receiver.averages, r.receiver.averages == 1 ? "" : "s");
+  }
   const double worst = core::worst_case_receiver_dbm(r.source.power_dbm, c.capability);
   std::cout << fmt::format("  worst-case power at the receiver {:.1f} dBm (maximum safe input {:.1f} dBm)\n", worst,
                            c.capability.receiver_max_safe_input_dbm);
@@ -161,20 +213,11 @@ int cmd_dry_run(const Argv& argv) {
             << " (OPEN and LOAD swept twice: the repeat measures the reading noise)\n";
   std::cout << fmt::format("  calibration kit: {} serial {}\n", c.capability.kit.identity, c.capability.kit.serial);
   print_centring(r, c.capability, "  ");
-  // Swept-analyzer time per reading: ST = k*span/RBW^2, with k from 2 to 3 for analog,
-  // near-Gaussian resolution filters (common practice); we take k = 2.5. VBW < RBW lengthens it
-  // by RBW/VBW (from memory).
-  double per_reading = 0;
-  if (r.receiver.span_hz > 0 && r.receiver.rbw_hz > 0) {
-    per_reading = 2.5 * r.receiver.span_hz / (r.receiver.rbw_hz * r.receiver.rbw_hz);
-    if (vbw < r.receiver.rbw_hz) per_reading *= r.receiver.rbw_hz / vbw;
+  if (r.mode == core::SweepMode::fast_capture) {
+    print_fast_capture_plan(config, r, c.recipe.calibration.use_short ? 5 : 4);
+  } else {
+    print_step_estimate(r, freqs.size());
   }
-  const double per_point = r.source.settle_s + per_reading * std::max(r.receiver.averages, 1);
-  const double sweep = per_point * static_cast<double>(freqs.size());
-  std::cout << fmt::format("  estimated sweep time {:.2f} s per unit ({:.4f} s per point, command overhead not included)\n",
-                           sweep, per_point);
-  std::cout << fmt::format("  estimated calibration {:.2f} s of sweeps ({} standards, 2 repeats)\n",
-                           sweep * (r.calibration.use_short ? 5 : 4), r.calibration.use_short ? 3 : 2);
   if (c.errors) {
     std::cout << "\nThe recipe has errors: it cannot run on this station.\n";
     return kExitNegative;

@@ -1,16 +1,26 @@
-// Fast-capture planning: from a recipe's frequency plan to the receiver axis, the source ramp
-// and the sweep times, and from the captured trace back to the plan's points. Pure functions of
-// values; thread-safe.
+// Fast-capture planning: chooses the RBW, the source ramp, the receiver sweep time and the
+// arrangement that capture a recipe's plan in the least time the physics allows, within the
+// recipe's limits and the instruments'; maps the captured trace back to the plan's points.
+// Pure functions of values; thread-safe. The rules and their sources: MEASUREMENT.md §11.
 //
-// Timing rule (the simulator models the same physics, simulator/receiver_instrument.cpp):
-//   1. the tone must not cross the RBW faster than a swept analyzer would sweep it:
-//      source sweep time >= k x band / RBW^2 with k = 2.5 (the swept-analyzer sweep-time rule for near-Gaussian RBW filters; common practice, from memory);
-//   2. every receiver bin must dwell long enough to see one whole source ramp (a sawtooth passes
-//      each frequency once per period): receiver sweep time / (bins - 1) >= source sweep time.
-//      Edge bins dwell half as long (the analyzer's sweep starts and stops on them), so the
-//      automatic receiver sweep time is kDwellMargin = 2 times that minimum.
+// Timing rules (the simulator enforces the same physics, simulator/receiver_instrument.cpp):
+//   R1 RBW settling: a tone may cross the RBW no faster than r^2 / k (Hz/s), k = 2.5, the
+//      swept-analyzer rule for near-Gaussian filters (common practice, from memory);
+//   R2 dwell (one receiver sweep under repeated ramps): while the receiver dwells on a bin the
+//      tone must pass it, so the ramp must travel its whole band B relative to the receiver,
+//      which itself moves one bin b: dwell >= ramp x (B + b) / B + retrace, and receiver sweep
+//      >= (bins - 1) x dwell;
+//   R3 revisit (one ramp under repeated max-hold sweeps): each sweep crosses the slow tone once,
+//      and successive crossings may be at most one bin apart: ramp >= (B / b) x (sweep +
+//      re-arm) + (B / span) x sweep;
+//   R4 edge bins: an analyzer's first and last bins dwell half as long (the sweep starts and
+//      stops on them), so the axis carries one extra bin beyond each end of the plan and the
+//      plan's points are all interior bins.
+// Dynamic range: the LOAD must read at least the recipe's margin above the noise floor at the
+// chosen RBW (kTB + NF + attenuation).
 #pragma once
 
+#include <string>
 #include <vector>
 
 #include "daemon/core/recipe.hpp"
@@ -19,41 +29,74 @@
 
 namespace echoline::core {
 
-inline constexpr double kFastCaptureK = 2.5;          // sweep-time factor (common practice, from memory)
-inline constexpr double kFastCaptureMinSweepS = 1e-3; // shortest source ramp accepted, s
-inline constexpr double kDwellMargin = 2.0;           // automatic receiver sweep time / minimum
-inline constexpr int kFastCaptureMaxBins = 10001;     // receiver trace points (common analyzer limit)
+inline constexpr double kFastCaptureK = 2.5;   // R1 sweep-time factor (common practice, from memory)
 
-// The receiver axis for a plan: one bin per plan point when the plan is evenly spaced
-// (bins_on_plan), otherwise the smallest plan step over the plan's range (points capped at
-// kFastCaptureMaxBins) and the trace is interpolated onto the plan.
+// What the instruments allow (from their profiles; defaults are the generic figures).
+struct FastCaptureInstruments {
+  double source_min_sweep_s = 1e-3, source_max_sweep_s = 1000;   // one ramp
+  double source_retrace_s = 0;                                   // ramp end back to start
+  double receiver_min_sweep_s = 1e-3, receiver_max_sweep_s = 3600;
+  double receiver_rearm_s = 0.01;     // end of one triggered sweep to the start of the next
+  int receiver_max_points = 10001;
+  int receiver_max_sweeps = 1000;     // max-hold sweeps the capture may trigger
+  std::vector<double> rbw_steps_hz;   // the RBWs the receiver offers, increasing
+  double noise_figure_db = 25;
+};
+
+// The 1-3-10 series from `lo` to `hi` (the RBW steps of a receiver whose profile names none).
+std::vector<double> rbw_series_1_3(double lo_hz, double hi_hz);
+
+// The receiver axis: evenly spaced bins over the plan's range, plus one bin beyond each end
+// (R4). bins_on_plan: the plan is evenly spaced and plan point i is bin i + 1; otherwise the bin
+// step is the plan's smallest step and the trace is interpolated onto the plan.
 struct FastCaptureAxis {
-  double start_hz = 0, stop_hz = 0;
-  int points = 0;             // may exceed kFastCaptureMaxBins: callers check
+  double start_hz = 0, stop_hz = 0;   // first and last bin (the extra ones)
+  int points = 0;                     // may exceed a receiver's limit: callers check
   bool bins_on_plan = true;
   double bin_hz() const { return points > 1 ? (stop_hz - start_hz) / (points - 1) : 0.0; }
 };
 // REQUIRES: plan has at least 2 increasing frequencies.
 FastCaptureAxis fast_capture_axis(const std::vector<double>& plan);
 
-// The shortest source ramp for rule 1 over `band_hz` at `rbw_hz` (at least kFastCaptureMinSweepS).
-double min_source_sweep_s(double band_hz, double rbw_hz);
-// The shortest receiver sweep for rule 2.
-double min_receiver_sweep_s(int bins, double source_sweep_s);
+enum class FastArrangement {
+  ramps_under_sweep,   // fast repeated source ramps under one slow receiver sweep
+  ramp_under_sweeps,   // one slow source ramp under repeated max-hold receiver sweeps
+};
+const char* to_string(FastArrangement a);
+
+// One candidate the planner weighed.
+struct FastCaptureOption {
+  double rbw_hz = 0;
+  FastArrangement arrangement = FastArrangement::ramps_under_sweep;
+  bool feasible = false;
+  double capture_s = 0;     // source settle + every receiver sweep and re-arm
+  std::string bound;        // the rule or limit that sets the time, or why it is infeasible
+};
 
 struct FastCapturePlan {
   FastCaptureAxis axis;
-  double source_start_hz = 0, source_stop_hz = 0;   // half a bin beyond each end of the axis
+  FastArrangement arrangement = FastArrangement::ramps_under_sweep;
+  double source_start_hz = 0, source_stop_hz = 0;   // half a bin beyond the plan's ends
   double source_sweep_s = 0;
   double receiver_sweep_s = 0;
   int receiver_sweeps = 1;
   double rbw_hz = 0;
+  double noise_floor_dbm = 0;    // at rbw_hz, with the recipe's attenuation
+  double load_dbm = 0;           // the LOAD level the margin was taken from
+  double capture_s = 0;          // expected: settle + sweeps + re-arms (command time not included)
+  std::string reason;            // why this plan: the margin, the binding rule, the runner-up
+  std::vector<FastCaptureOption> considered;
 };
-// Resolves the automatic values and checks both rules. Error (invalid_argument) names the
-// recipe and the setting at fault.
-Result<FastCapturePlan> plan_fast_capture(const Recipe& recipe);
 
-// Readings at the plan's frequencies from the trace (bin i = plan point i when bins_on_plan;
+// R1: the shortest ramp across `band_hz` at `rbw_hz`.
+double min_ramp_s(double band_hz, double rbw_hz);
+
+// Chooses the quickest plan. `load_dbm`: the LOAD's expected level at the receiver. Error
+// (invalid_argument) names the recipe and the limit no plan meets, with the closest plan.
+Result<FastCapturePlan> plan_fast_capture(const Recipe& recipe, const FastCaptureInstruments& instruments,
+                                          double load_dbm);
+
+// Readings at the plan's frequencies from the trace (bins_on_plan: plan point i is bin i + 1;
 // otherwise linear interpolation in dB between the two nearest bins). Error when the trace
 // does not have axis.points values.
 Result<std::vector<Reading>> trace_to_plan(const FastCaptureAxis& axis, const std::vector<double>& trace_dbm,

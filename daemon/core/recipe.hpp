@@ -66,13 +66,12 @@ struct Trim {
 enum class SweepMode { step, fast_capture };
 
 // Fast capture (mode "fast-capture"): the source ramps across the band on its own while the
-// receiver spans the whole plan and max-holds; one trace read returns every point. The timing
-// rule and the automatic values are in fast_capture_plan.hpp. 0 = automatic.
-struct FastCaptureSettings {
-  double rbw_hz = 300e3;             // receiver RBW during the capture (wider than a step sweep's)
-  double source_sweep_time_s = 0;    // one source ramp across the band, s; 0 = automatic
-  double receiver_sweep_time_s = 0;  // one receiver sweep, s; 0 = automatic
-  int receiver_sweeps = 1;           // receiver sweeps max-held into the trace
+// receiver spans the whole plan and max-holds; one trace read returns every point. The recipe
+// sets limits only; the plan (RBW, ramp, sweep times, arrangement) is chosen by
+// plan_fast_capture (fast_capture_plan.hpp) for the station's instruments.
+struct FastCaptureLimits {
+  double max_capture_s = 10;          // longest capture the recipe accepts, s
+  double min_load_margin_db = 20;     // least LOAD level above the noise floor at the chosen RBW, dB
 };
 
 // What the recipe's author expects of a good unit, for predictions only (recipe check and dry
@@ -96,7 +95,7 @@ struct Recipe {
   std::vector<Segment> segments;
   SourceSettings source;
   ReceiverSettings receiver;
-  FastCaptureSettings fast_capture;   // used when mode == fast_capture
+  FastCaptureLimits fast_capture;     // used when mode == fast_capture
   CalibrationPolicy calibration;
   Limits limits;
   DecisionRule rule = DecisionRule::guarded;

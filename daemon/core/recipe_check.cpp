@@ -74,6 +74,9 @@ std::vector<CheckFinding> check_recipe(const Recipe& r, const StationCapability&
                          : "declares absent (the instrument has none); leave " + need.key.substr(need.key.rfind('/') + 1) +
                                " out of the recipe"));
   }
+  if (r.mode == SweepMode::fast_capture && !st.fast_capture_problem.empty()) {
+    add(out, "error", "/fast_capture", st.fast_capture_problem);
+  }
 
   // Frequency ranges: the source sets each point; the receiver looks span/2 either side.
   for (std::size_t i = 0; i < r.segments.size(); ++i) {

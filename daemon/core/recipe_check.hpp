@@ -32,6 +32,7 @@ struct StationCapability {
   double receiver_min_hz = 0, receiver_max_hz = 0;
   double source_max_power_dbm = 0;
   CalKit kit = builtin_conservative_kit();  // the standards the station calibrates with
+  std::string fast_capture_problem;  // fast-capture mode: why no plan meets the recipe's limits ("" = planned)
   double test_port_delay_s = 5e-9;   // one-way electrical delay coupler -> test port (error-term rotation)
   // Profile operations the instruments lack (declared absent, or optional and left out), and the
   // profiles' names for messages. Empty: every operation is there.

@@ -11,7 +11,6 @@
 
 #include <fmt/format.h>
 
-#include "daemon/core/fast_capture_plan.hpp"
 #include "daemon/core/frequency_text.hpp"
 #include "daemon/core/sha256.hpp"
 #include "drivers/config_error.hpp"
@@ -201,58 +200,28 @@ class Loader {
     }
   }
 
-  // "fast_capture": {rbw_hz, source_sweep_time_s, receiver_sweep_time_s, receiver_sweeps}. The
-  // block may be present in a step recipe (kept for switching modes); its timing rules
-  // (fast_capture_plan.hpp) are checked against the plan in either case when it is given, and
-  // always in fast-capture mode.
+  // "fast_capture": {max_capture_s, min_load_margin_db}: limits for the plan the station chooses
+  // (fast_capture_plan.hpp). The block may be present in a step recipe (kept for switching
+  // modes). Hand-set timing keys of earlier versions are refused with a pointer to the limits.
   void load_fast_capture(Recipe& r) {
     const JsonPointer at("/fast_capture");
     const bool given = doc_.has(at);
     if (given) {
       doc_.require_object(at);
-      doc_.check_keys(at, {"rbw_hz", "source_sweep_time_s", "receiver_sweep_time_s", "receiver_sweeps"});
+      for (const char* old : {"rbw_hz", "source_sweep_time_s", "receiver_sweep_time_s", "receiver_sweeps"}) {
+        if (doc_.has(at / old)) {
+          doc_.fail(at / old, "the station now plans the RBW and the sweep times itself (echoline dry-run shows the plan); "
+                              "give limits instead: max_capture_s and min_load_margin_db");
+        }
+      }
+      doc_.check_keys(at, {"max_capture_s", "min_load_margin_db"});
     }
     if (!given && r.mode != SweepMode::fast_capture) return;
-    FastCaptureSettings& fc = r.fast_capture;
-    if (doc_.has(at / "rbw_hz")) {
-      fc.rbw_hz = frequency(at / "rbw_hz");
-      if (fc.rbw_hz > 10e6) doc_.fail(at / "rbw_hz", fmt::format("{} is above 10 MHz", format_frequency(fc.rbw_hz)));
-    }
-    if (doc_.has(at / "source_sweep_time_s")) {
-      fc.source_sweep_time_s = doc_.number_in(at / "source_sweep_time_s", 0, kFastCaptureMinSweepS, 1000, "s");
-    }
-    if (doc_.has(at / "receiver_sweep_time_s")) {
-      fc.receiver_sweep_time_s = doc_.number_in(at / "receiver_sweep_time_s", 0, kFastCaptureMinSweepS, 3600, "s");
-    }
-    if (doc_.has(at / "receiver_sweeps")) {
-      const auto n = doc_.require_integer(at / "receiver_sweeps");
-      if (n < 1 || n > 100) doc_.fail(at / "receiver_sweeps", fmt::format("{} sweeps: must be 1 to 100", n));
-      fc.receiver_sweeps = static_cast<int>(n);
-    }
+    FastCaptureLimits& fc = r.fast_capture;
+    fc.max_capture_s = doc_.number_in(at / "max_capture_s", fc.max_capture_s, 1e-3, 3600, "s");
+    fc.min_load_margin_db = doc_.number_in(at / "min_load_margin_db", fc.min_load_margin_db, 0, 100, "dB");
     const std::vector<double> plan = plan_frequencies(r);
     if (plan.size() < 2) doc_.fail(ptr("/segments"), "fast capture needs at least 2 plan frequencies");
-    const FastCaptureAxis axis = fast_capture_axis(plan);
-    if (axis.points > kFastCaptureMaxBins) {
-      doc_.fail(ptr("/segments"), fmt::format("fast capture: the plan has {} points; a receiver trace holds at most {}",
-                                              axis.points, kFastCaptureMaxBins));
-    }
-    const double band = (axis.stop_hz - axis.start_hz) + axis.bin_hz();
-    const double min_src = min_source_sweep_s(band, fc.rbw_hz);
-    if (fc.source_sweep_time_s > 0 && fc.source_sweep_time_s < min_src * (1 - 1e-9)) {
-      doc_.fail(at / "source_sweep_time_s",
-                fmt::format("{} s is too short: over {} at RBW {} the tone would cross the RBW too fast; at least {:.6g} s "
-                            "(k x band / RBW^2, k = {})",
-                            fc.source_sweep_time_s, format_frequency(band), format_frequency(fc.rbw_hz), min_src,
-                            kFastCaptureK));
-    }
-    const double src = fc.source_sweep_time_s > 0 ? fc.source_sweep_time_s : min_src;
-    const double min_rx = min_receiver_sweep_s(axis.points, src);
-    if (fc.receiver_sweep_time_s > 0 && fc.receiver_sweep_time_s < min_rx * (1 - 1e-9)) {
-      doc_.fail(at / "receiver_sweep_time_s",
-                fmt::format("{} s is too short: each of the {} bins must dwell one whole source sweep of {:.6g} s; at "
-                            "least {:.6g} s",
-                            fc.receiver_sweep_time_s, axis.points, src, min_rx));
-    }
   }
 
   double zero_or_frequency(const JsonPointer& at, double fallback) const {

@@ -7,18 +7,59 @@
 
 namespace echoline::core {
 
-StationCapability station_capability(const drivers::FixtureConfig& fixture, const drivers::Profile& source,
-                                     const drivers::Profile& receiver, const Recipe& recipe, const CalKit* kit) {
+FastCaptureInstruments fast_capture_instruments(const drivers::Profile& source, const drivers::Profile& receiver) {
+  FastCaptureInstruments in;
+  const drivers::SweepLimits& s = source.sweep;
+  const drivers::SweepLimits& r = receiver.sweep;
+  if (s.max_time_s > 0) {
+    in.source_min_sweep_s = s.min_time_s;
+    in.source_max_sweep_s = s.max_time_s;
+  }
+  in.source_retrace_s = s.retrace_s;
+  if (r.max_time_s > 0) {
+    in.receiver_min_sweep_s = r.min_time_s;
+    in.receiver_max_sweep_s = r.max_time_s;
+  }
+  if (r.rearm_s > 0) in.receiver_rearm_s = r.rearm_s;
+  if (r.max_points > 0) in.receiver_max_points = r.max_points;
+  in.rbw_steps_hz = r.rbw_steps_hz.empty() ? rbw_series_1_3(10, 3e6) : r.rbw_steps_hz;
+  in.noise_figure_db = receiver.noise_figure_db;
+  return in;
+}
+
+namespace {
+
+StationCapability nominal(const drivers::FixtureConfig& fixture) {
   StationCapability c;
   c.directivity_db = fixture.nominal_directivity_db;
   c.source_match_db = fixture.source_match_db;
   c.coupling_db = fixture.coupling_db;
   c.mainline_loss_db = fixture.mainline_loss_db;
   c.cable_loss_db = fixture.cable_loss_db;
-  // The RBW the readings are taken with (fast capture has its own), and the input attenuator:
-  // the displayed noise level referred to the input rises dB for dB with it (spectrum-analyzer
-  // practice, from memory). "auto" (-1) counts as 0.
-  const double rbw_hz = recipe.mode == SweepMode::fast_capture ? recipe.fast_capture.rbw_hz : recipe.receiver.rbw_hz;
+  return c;
+}
+
+}  // namespace
+
+Result<FastCapturePlan> plan_fast_capture(const Recipe& recipe, const drivers::FixtureConfig& fixture,
+                                          const drivers::Profile& source, const drivers::Profile& receiver) {
+  const StationCapability c = nominal(fixture);
+  const double load_dbm = expected_reflection_dbm(recipe.source.power_dbm, c) - c.directivity_db;
+  return plan_fast_capture(recipe, fast_capture_instruments(source, receiver), load_dbm);
+}
+
+StationCapability station_capability(const drivers::FixtureConfig& fixture, const drivers::Profile& source,
+                                     const drivers::Profile& receiver, const Recipe& recipe, const CalKit* kit) {
+  StationCapability c = nominal(fixture);
+  // The RBW the readings are taken with (fast capture: the planned one), and the input
+  // attenuator: the displayed noise level referred to the input rises dB for dB with it
+  // (spectrum-analyzer practice, from memory). "auto" (-1) counts as 0.
+  double rbw_hz = recipe.receiver.rbw_hz;
+  if (recipe.mode == SweepMode::fast_capture) {
+    auto plan = plan_fast_capture(recipe, fixture, source, receiver);
+    if (plan) rbw_hz = plan->rbw_hz;
+    else c.fast_capture_problem = plan.error().message;
+  }
   c.noise_floor_dbm = thermal_noise_floor_dbm(rbw_hz, receiver.noise_figure_db) + std::max(0.0, recipe.receiver.attenuation_db);
   c.receiver_max_safe_input_dbm = receiver.max_safe_input_dbm;
   c.source_min_hz = source.min_frequency_hz;

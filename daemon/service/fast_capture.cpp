@@ -73,6 +73,13 @@ class Capture {
     }
     if (Status s = require_ops(src_.profile(), src_.session().name()); !s) return s;
     if (Status s = require_ops(rx_.profile(), rx_.session().name()); !s) return s;
+    const drivers::Profile& rp = rx_.profile();
+    if (plan.axis.start_hz < rp.min_frequency_hz || plan.axis.stop_hz > rp.max_frequency_hz) {
+      return make_error(ErrorKind::invalid_argument,
+                        fmt::format("{}: fast capture axis {:.6f} to {:.6f} MHz is outside profile {} ({:.6f} to {:.6f} MHz)",
+                                    rx_.session().name(), plan.axis.start_hz / 1e6, plan.axis.stop_hz / 1e6, rp.name,
+                                    rp.min_frequency_hz / 1e6, rp.max_frequency_hz / 1e6));
+    }
     const drivers::Profile& sp = src_.profile();
     if (plan.source_start_hz < sp.min_frequency_hz || plan.source_stop_hz > sp.max_frequency_hz) {
       return make_error(ErrorKind::invalid_argument,
@@ -167,15 +174,12 @@ class Capture {
 }  // namespace
 
 SweepOutcome run_fast_capture(drivers::Source& source, drivers::Receiver& receiver, const core::Recipe& recipe,
-                              const std::atomic<bool>& cancel, const ProgressFn& progress, SweepOptions options) {
+                              const core::FastCapturePlan& fast_plan, const std::atomic<bool>& cancel,
+                              const ProgressFn& progress, SweepOptions options) {
   SweepOutcome out;
   const auto t0 = Clock::now();
   const std::vector<double> freqs = core::plan_frequencies(recipe);
-  auto plan = core::plan_fast_capture(recipe);
-  if (!plan) {
-    out.error = plan.error();
-    return out;
-  }
+  const core::FastCapturePlan* plan = &fast_plan;
   Capture cap(source, receiver, recipe, options);
   if (Status s = cap.check(*plan); !s) {
     out.error = s.error();

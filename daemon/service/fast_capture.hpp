@@ -9,6 +9,7 @@
 
 #include <atomic>
 
+#include "daemon/core/fast_capture_plan.hpp"
 #include "daemon/core/recipe.hpp"
 #include "daemon/service/sweep_engine.hpp"
 #include "drivers/receiver.hpp"
@@ -16,17 +17,20 @@
 
 namespace echoline::service {
 
-// Runs recipe in fast-capture mode (timing from core::plan_fast_capture). Never throws; an
+// Runs recipe in fast-capture mode with `plan` (core::plan_fast_capture for this station's
+// profiles and fixture): one receiver sweep under repeated source ramps, or max-hold receiver
+// sweeps under one slow ramp, as the plan says. Never throws; an
 // instrument error, a timeout or cancellation ends it with `error` set and no readings (a capture
 // is all or nothing). Readings: one per plan frequency; bins land on the plan points when the
-// plan is evenly spaced, otherwise the trace is interpolated (core::trace_to_plan).
+// plan is evenly spaced (the axis has one extra bin beyond each end), otherwise the trace is
+// interpolated (core::trace_to_plan).
 // REQUIRES profiles with the operations of core::fast_capture_operations (instrument_needs.hpp):
 // source sweep_mode, sweep_start, sweep_stop, sweep_time; receiver set_points, set_sweep_time,
 // set_sweep_time_auto, max_hold_on, max_hold_off. Every line sent comes from the profiles or the
 // recipe. The receiver's sweep time is put back to automatic at the end; its point count is left
 // as set here.
 SweepOutcome run_fast_capture(drivers::Source& source, drivers::Receiver& receiver, const core::Recipe& recipe,
-                              const std::atomic<bool>& cancel, const ProgressFn& progress = {},
+                              const core::FastCapturePlan& plan, const std::atomic<bool>& cancel, const ProgressFn& progress = {},
                               SweepOptions options = {});
 
 }  // namespace echoline::service

@@ -58,7 +58,13 @@ SweepOutcome run_sweep(Instruments& instruments, const core::Recipe& recipe, con
   SweepOptions so;
   so.coupling_db = fixture.coupling_db;
   if (recipe.mode == core::SweepMode::fast_capture) {
-    return run_fast_capture(instruments.source(), instruments.receiver(), recipe, cancel, progress, so);
+    auto plan = core::plan_fast_capture(recipe, fixture, instruments.source_profile(), instruments.receiver_profile());
+    if (!plan) {
+      SweepOutcome out;
+      out.error = plan.error();
+      return out;
+    }
+    return run_fast_capture(instruments.source(), instruments.receiver(), recipe, *plan, cancel, progress, so);
   }
   SweepEngine engine(instruments.source(), instruments.receiver(), so);
   return engine.run(recipe, cancel, progress);

@@ -5,12 +5,17 @@
 //     script (scripts/plain_sweep.py), on the `instant` latency profile;
 //   - the cycle time on the `bench` latency profile against the time the instruments impose
 //     (replies x command time + sweeps x sweep time + points x settle), from the sim's counters;
+//   - fast capture against the step sweep on the same units of the lot on the `bench` profile:
+//     cycle time, return loss where RL < 25 dB, the step run's bounds, verdicts (--fast-units);
 //   - the daemon's resident memory after 100, 1000 and 10 000 units (--memory-units).
 // Prints progress on stderr and one JSON document (raw samples) on stdout or --json FILE.
 // Asserts nothing about time. Single-threaded.
 #include <unistd.h>
 
 #include <algorithm>
+#include <array>
+#include <limits>
+#include <map>
 #include <cstdlib>
 #include <fstream>
 #include <iostream>
@@ -25,11 +30,14 @@
 #include "daemon/core/fast_capture_plan.hpp"
 #include "daemon/core/recipe.hpp"
 #include "daemon/core/recipe_loader.hpp"
+#include "daemon/core/station_capability.hpp"
+#include "drivers/profile.hpp"
 #include "drivers/scpi_session.hpp"
 #include "drivers/transport.hpp"
 #include "drivers/whole_number.hpp"
 #include "tests/bench/floor_client.hpp"
 #include "tests/bench/station_rig.hpp"
+#include "tests/support/demo_fixture.hpp"
 #include "tests/support/process.hpp"
 
 namespace {
@@ -38,11 +46,13 @@ using namespace echoline;
 using namespace echoline::bench;
 using json = nlohmann::json;
 
-constexpr const char* kUsage = R"(usage: bench_station [--quick] [--reps N] [--memory-units N] [--json FILE] [--skip PART]
-N: --reps 1 to 1000, --memory-units 1 to 1000000.
+constexpr const char* kUsage = R"(usage: bench_station [--quick] [--reps N] [--memory-units N] [--fast-units N] [--json FILE] [--skip PART]
+N: --reps 1 to 1000, --memory-units 1 to 1000000, --fast-units 1 to 100000 (default: the whole lot;
+10 with --quick).
 
 Times the Echoline step sweep through echolined against the loopback floor and a plain Python
-script, the cycle time on the bench latency profile, and the daemon's memory over many units.
+script, the cycle time on the bench latency profile, fast capture against the step sweep on the
+same units (speed, return loss, verdicts), and the daemon's memory over many units.
 PART: instant, bench, fast, memory (repeatable). Raw samples go to stdout (or FILE) as JSON.
 RF note: only the simulator is used here; nothing radiates.
 )";
@@ -180,10 +190,26 @@ json bench_profile(const std::filesystem::path& dir, int points, int reps) {
   return out;
 }
 
-// Fast capture on the bench profile: cycle time against what the instruments impose (the max-hold
-// sweeps, the recipe's settle, and the command time of each reply), beside a 201-point step
-// sweep of the same units with the shipped step recipe.
-json fast_capture_profile(const std::filesystem::path& dir, int reps) {
+// The points of a stored run: {frequency, RL, RL worst, RL best (+inf when unbounded)}.
+struct RunPoints {
+  std::vector<std::array<double, 4>> rows;
+};
+RunPoints run_points(DaemonProcess& daemon, const std::string& run_id) {
+  const json run = daemon.run(run_id);
+  RunPoints out;
+  for (const auto& p : run.at("points")) {
+    const double best = p.at(4).is_null() ? std::numeric_limits<double>::infinity() : p.at(4).get<double>();
+    out.rows.push_back({p.at(0).get<double>(), p.at(2).get<double>(), p.at(3).get<double>(), best});
+  }
+  return out;
+}
+
+// Fast capture on the bench profile against the step sweep, unit by unit on the same simulated
+// units of the lot: cycle time (and what the instruments impose: the capture the plan expects
+// plus the command time of each reply), return loss where the step sweep reads RL < 25 dB, the
+// step run's uncertainty interval, and the verdict. Step sweeps first, then fast captures, each
+// with its own calibration.
+json fast_capture_profile(const std::filesystem::path& dir, int unit_count) {
   SimProcess sim(dir, "bench.jsonc", "bench");
   const auto fast_file = write_recipe(testing::source_dir() / "config/recipes/whip915-fast.jsonc", dir / "whip915-fast-bench.json", -1);
   const auto step_file = write_recipe(testing::source_dir() / "config/recipes/whip915.jsonc", dir / "whip915-step-bench.json", -1);
@@ -193,26 +219,42 @@ json fast_capture_profile(const std::filesystem::path& dir, int reps) {
     json cfg = json::parse(std::ifstream(testing::source_dir() / "config/sim/bench.jsonc"), nullptr, true, true);
     command_s = cfg["latency"].value("command_ms", 3.0) / 1e3;
   }
-  auto plan = core::plan_fast_capture(fast);
+  // The plan the daemon makes: the station the rig writes (station_rig.cpp) and the sim profiles.
+  const drivers::FixtureConfig fixture = testing::demo_fixture();
+  const auto profiles = testing::source_dir() / "config/instruments";
+  auto plan = core::plan_fast_capture(fast, fixture, drivers::load_profile(profiles / "sim-source.jsonc"),
+                                      drivers::load_profile(profiles / "sim-receiver.jsonc"));
   if (!plan) throw std::runtime_error(plan.error().message);
-  const double capture_s = plan->receiver_sweeps * plan->receiver_sweep_s + fast.source.settle_s;
-  const auto units = sim.units();
-  json out = {{"recipe", fast.name}, {"points", core::plan_frequencies(fast).size()}, {"capture_s", capture_s}, {"command_s", command_s}};
-  std::vector<double> step_cycles;
+  const double capture_s = plan->capture_s;
+  auto units = sim.units();
+  if (unit_count > 0 && static_cast<std::size_t>(unit_count) < units.size()) units.resize(static_cast<std::size_t>(unit_count));
+  json out = {{"recipe", fast.name}, {"points", core::plan_frequencies(fast).size()}, {"capture_s", capture_s},
+              {"command_s", command_s}, {"units", units.size()},
+              {"plan", {{"arrangement", core::to_string(plan->arrangement)}, {"rbw_hz", plan->rbw_hz},
+                        {"source_sweep_s", plan->source_sweep_s}, {"receiver_sweep_s", plan->receiver_sweep_s},
+                        {"receiver_sweeps", plan->receiver_sweeps}, {"bins", plan->axis.points}, {"reason", plan->reason}}}};
+  std::cerr << "  plan: " << plan->reason << "\n";
+  std::vector<std::string> step_verdicts;
+  std::vector<RunPoints> step_points;
   {
     DaemonProcess daemon(dir, sim, step_file);
     out["step_calibration_s"] = daemon.calibrate();
-    for (int r = 0; r < reps; ++r) {
-      const auto t = daemon.test_unit(units[static_cast<std::size_t>(r) % units.size()], fmt::format("STEP-{:04d}", r + 1));
-      step_cycles.push_back(t.seconds);
+    for (std::size_t r = 0; r < units.size(); ++r) {
+      const auto t = daemon.test_unit(units[r], fmt::format("STEP-{:04d}", r + 1));
       out["step_cycle_s"].push_back(t.seconds);
+      step_verdicts.push_back(t.verdict);
+      step_points.push_back(run_points(daemon, t.run_id));
+      if ((r + 1) % 20 == 0 || r + 1 == units.size()) std::cerr << fmt::format("  step sweep: {} of {} units\n", r + 1, units.size());
     }
   }
   DaemonProcess daemon(dir, sim, fast_file);
   out["calibration_s"] = daemon.calibrate();
-  for (int r = 0; r < reps; ++r) {
+  std::vector<double> diffs;
+  int outside_bounds = 0, same_verdict = 0;
+  std::map<std::string, int> pairs;
+  for (std::size_t r = 0; r < units.size(); ++r) {
     const auto before = replies(sim);
-    const auto t = daemon.test_unit(units[static_cast<std::size_t>(r) % units.size()], fmt::format("FAST-{:04d}", r + 1));
+    const auto t = daemon.test_unit(units[r], fmt::format("FAST-{:04d}", r + 1));
     const auto after = replies(sim);
     const double reply_count = (after.first - before.first) + (after.second - before.second);
     const double imposed = capture_s + reply_count * command_s;
@@ -221,11 +263,36 @@ json fast_capture_profile(const std::filesystem::path& dir, int reps) {
     out["imposed_s"].push_back(imposed);
     out["overhead_pct"].push_back(100.0 * (t.seconds / imposed - 1.0));
     out["overhead_vs_capture_pct"].push_back(100.0 * (t.seconds / capture_s - 1.0));
-    out["step_over_fast"].push_back(step_cycles[static_cast<std::size_t>(r)] / t.seconds);
-    std::cerr << fmt::format("  rep {}: fast capture cycle {:.3f} s, imposed {:.3f} s ({} replies; capture alone {:.3f} s); "
-                             "step sweep {:.3f} s\n", r + 1, t.seconds, imposed, reply_count, capture_s,
-                             step_cycles[static_cast<std::size_t>(r)]);
+    out["step_over_fast"].push_back(out["step_cycle_s"][r].get<double>() / t.seconds);
+    same_verdict += t.verdict == step_verdicts[r];
+    ++pairs[step_verdicts[r] + " -> " + t.verdict];
+    const RunPoints f = run_points(daemon, t.run_id);
+    const RunPoints& st = step_points[r];
+    if (f.rows.size() != st.rows.size()) throw std::runtime_error("fast and step runs have different point counts");
+    for (std::size_t i = 0; i < f.rows.size(); ++i) {
+      if (!(st.rows[i][1] < 25)) continue;
+      diffs.push_back(std::abs(f.rows[i][1] - st.rows[i][1]));
+      outside_bounds += f.rows[i][1] < st.rows[i][2] || f.rows[i][1] > st.rows[i][3];
+    }
+    if ((r + 1) % 20 == 0 || r + 1 == units.size()) {
+      std::cerr << fmt::format("  fast capture: {} of {} units, last cycle {:.3f} s (step {:.3f} s), verdicts the same {}\n", r + 1,
+                               units.size(), t.seconds, out["step_cycle_s"][r].get<double>(), same_verdict);
+    }
   }
+  std::sort(diffs.begin(), diffs.end());
+  const auto quantile = [&](double q) { return diffs.empty() ? 0.0 : diffs[static_cast<std::size_t>(q * (diffs.size() - 1))]; };
+  out["rl_points_compared"] = diffs.size();
+  out["rl_diff_max_db"] = diffs.empty() ? 0.0 : diffs.back();
+  out["rl_diff_p99_db"] = quantile(0.99);
+  out["rl_diff_median_db"] = quantile(0.5);
+  out["rl_points_over_half_db"] = std::count_if(diffs.begin(), diffs.end(), [](double d) { return d > 0.5; });
+  out["rl_outside_step_bounds"] = outside_bounds;
+  out["verdicts_same"] = same_verdict;
+  out["verdict_pairs"] = pairs;
+  std::cerr << fmt::format("  {} units: verdicts the same {}; RL<25 dB points {}: max |fast - step| {:.3f} dB, 99th percentile {:.3f} dB; "
+                           "{} fast readings outside the step run's bounds\n",
+                           units.size(), same_verdict, diffs.size(), out["rl_diff_max_db"].get<double>(),
+                           out["rl_diff_p99_db"].get<double>(), outside_bounds);
   return out;
 }
 
@@ -264,7 +331,7 @@ long long whole(const std::string& option, const std::string& text, long long mi
 
 int main(int argc, char** argv) try {
   bool quick = false;
-  int reps = 0, memory_units = 10000;
+  int reps = 0, memory_units = 10000, fast_units = 0;
   std::string json_file;
   std::vector<std::string> skip;
   for (int i = 1; i < argc; ++i) {
@@ -282,6 +349,8 @@ int main(int argc, char** argv) try {
       reps = static_cast<int>(whole(a, value(), 1, 1000));
     } else if (a == "--memory-units") {
       memory_units = static_cast<int>(whole(a, value(), 1, 1000000));
+    } else if (a == "--fast-units") {
+      fast_units = static_cast<int>(whole(a, value(), 1, 100000));
     } else if (a == "--json") {
       json_file = value();
     } else if (a == "--skip") {
@@ -320,8 +389,8 @@ int main(int argc, char** argv) try {
     result["bench_profile"] = bench_profile(dir.path(), points, quick ? 2 : 3);
   }
   if (!skipped("fast")) {
-    std::cerr << "bench latency profile, fast capture (whip915-fast) beside the 201-point step sweep:\n";
-    result["fast_capture"] = fast_capture_profile(dir.path(), quick ? 2 : 3);
+    std::cerr << "bench latency profile, fast capture (whip915-fast) against the step sweep (whip915), unit by unit:\n";
+    result["fast_capture"] = fast_capture_profile(dir.path(), fast_units > 0 ? fast_units : (quick ? 10 : 0));
   }
   if (json_file.empty()) {
     std::cout << result.dump(2) << "\n";

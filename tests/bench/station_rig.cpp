@@ -178,6 +178,7 @@ UnitTiming DaemonProcess::test_unit(const std::string& sim_unit, const std::stri
     UnitTiming t;
     t.seconds = std::chrono::duration<double>(Clock::now() - t0).count();
     t.verdict = m["run"].value("verdict", std::string());
+    t.run_id = m["run"].value("run_id", std::string());
     // The run summary (daemon/service/station.cpp run_json) names the count "points_count".
     const nlohmann::json& run = m["run"];
     t.points = run.value("points_count", run.value("point_count", run.contains("points") && run["points"].is_number() ? run["points"].get<int>() : 0));
@@ -188,6 +189,12 @@ UnitTiming DaemonProcess::test_unit(const std::string& sim_unit, const std::stri
     if (t.verdict == "aborted") throw std::runtime_error("test aborted: " + m["run"].value("reason", std::string()));
     return t;
   }
+}
+
+nlohmann::json DaemonProcess::run(const std::string& run_id) {
+  auto reply = value_or_throw(api_->call("run.get", {{"run_id", run_id}}), "run.get");
+  if (!reply.ok) throw std::runtime_error("run.get refused: " + reply.message);
+  return reply.result.at("run");
 }
 
 long DaemonProcess::rss_kb() const {

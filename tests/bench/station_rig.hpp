@@ -49,6 +49,7 @@ struct UnitTiming {
   int points = 0;
   double sweep_s = 0;      // the daemon's own timing of the sweep (run.timings.sweep_s)
   double run_s = 0;        // the daemon's own timing of the run before the store commit (total_s)
+  std::string run_id;
 };
 
 class DaemonProcess {
@@ -62,6 +63,8 @@ class DaemonProcess {
   double calibrate();
   // Connects `sim_unit` on the sim, runs test.start for `serial`, waits for the result event.
   UnitTiming test_unit(const std::string& sim_unit, const std::string& serial);
+  // The stored run with its points (run.get): "points" rows as "point_columns" names them.
+  nlohmann::json run(const std::string& run_id);
   int pid() const { return child_.pid(); }
   long rss_kb() const;   // VmRSS from /proc/<pid>/status
 

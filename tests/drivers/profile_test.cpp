@@ -209,6 +209,41 @@ TEST(Profile, SectionForAnotherRoleIsRefused) {
   EXPECT_EQ(e.key, "/switch");
 }
 
+// The "sweep" section (fast capture): loaded as given; shipped sim profiles carry the
+// simulator's own figures (1 ms shortest ramp, 0.1 ms shortest sweep, 10001 points).
+TEST(Profile, SweepSectionLoadsAndIsChecked) {
+  const Profile src = load_profile(instruments_dir() / "sim-source.jsonc");
+  EXPECT_EQ(src.sweep.min_time_s, 1e-3);
+  EXPECT_EQ(src.sweep.max_time_s, 1000);
+  const Profile rx = load_profile(instruments_dir() / "sim-receiver.jsonc");
+  EXPECT_EQ(rx.sweep.min_time_s, 1e-4);
+  EXPECT_EQ(rx.sweep.max_points, 10001);
+  ASSERT_FALSE(rx.sweep.rbw_steps_hz.empty());
+  EXPECT_EQ(rx.sweep.rbw_steps_hz.back(), 10e6);
+  testing::TempDir dir;
+  auto with = [&](const std::string& sweep) {
+    std::string text = kSourceProfile;
+    text.replace(text.find("\"commands\""), 0, "\"sweep\": " + sweep + ",\n  ");
+    return write(dir, "sweep.jsonc", text);
+  };
+  EXPECT_EQ(load_profile(with(R"({"time_range_s": [0.002, 10], "retrace_s": 0.001})")).sweep.retrace_s, 0.001);
+  EXPECT_EQ(load_error(with(R"({"time_range_s": [10, 0.002]})")).key, "/sweep/time_range_s");
+  EXPECT_EQ(load_error(with(R"({"time_range_s": [0.002]})")).key, "/sweep/time_range_s");
+  // A receiver's keys in a source profile.
+  EXPECT_EQ(load_error(with(R"({"rbw_steps_hz": [1e3]})")).key, "/sweep/rbw_steps_hz");
+  testing::TempDir rdir;
+  std::string rtext = R"({
+  "name": "r", "role": "receiver",
+  "limits": { "min_frequency_hz": 9e3, "max_frequency_hz": 3e9, "min_power_dbm": -100, "max_power_dbm": 20 },
+  "receiver": { "max_safe_input_dbm": 10, "noise_figure_db": 24 },
+  "sweep": { "rbw_steps_hz": [1e3, 3e3, 3e3] },
+  "commands": {}
+})";
+  ConfigError e = load_error(write(rdir, "r.jsonc", rtext));
+  EXPECT_EQ(e.key, "/sweep/rbw_steps_hz/2");
+  EXPECT_EQ(e.line, 5);
+}
+
 TEST(Profile, IdentityPatterns) {
   EXPECT_TRUE(identity_field_matches("", "anything"));
   EXPECT_TRUE(identity_field_matches("SIM-SRC", "SIM-SRC"));

@@ -103,6 +103,19 @@ TEST(ClientCli, DryRunPrintsThePlanWithoutADaemon) {
   EXPECT_NE(o.output.find("worst-case power at the receiver"), std::string::npos) << o.output;
 }
 
+// A fast-capture recipe: the plan the station chooses on the simulator's profiles, why, and the
+// expected time. 1 MHz RBW: the LOAD at 0 - 20 - 0.5 - 0.6 - 30 = -51.1 dBm must stay 35 dB over
+// kTB + NF 24 dB (-174 + 60 + 24 = -90 dBm at 1 MHz, 38.9 dB under; 3 MHz gives only 34.1 dB).
+TEST(ClientCli, DryRunShowsTheFastCapturePlanAndWhy) {
+  const Outcome o = run_client({"dry-run", "config/recipes/whip915-fast.jsonc", "--station", "config/station.jsonc"});
+  EXPECT_EQ(o.code, 0) << o.output;
+  EXPECT_NE(o.output.find("fast capture plan: source ramps under one receiver sweep"), std::string::npos) << o.output;
+  EXPECT_NE(o.output.find("receiver RBW 1 MHz, 223 bins"), std::string::npos) << o.output;
+  EXPECT_NE(o.output.find("why: "), std::string::npos) << o.output;
+  EXPECT_NE(o.output.find("38.9 dB under the LOAD"), std::string::npos) << o.output;
+  EXPECT_NE(o.output.find("expected capture 0.224 s per unit"), std::string::npos) << o.output;
+}
+
 TEST(ClientCli, DaemonUnreachableExitsThreeWithAClearMessage) {
   TempDir dir;
   const std::string sock = (dir / "nobody.sock").string();

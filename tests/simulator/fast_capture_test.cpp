@@ -56,13 +56,13 @@ class FastCapture : public ::testing::Test {
   }
 
   // One receiver sweep across the band with max hold, RBW 300 kHz, the given sweep time.
-  std::vector<double> capture(double rbw_hz, double rx_sweep_s) {
+  std::vector<double> capture(double rbw_hz, double rx_sweep_s, double start_s = 2) {
     rx->handle("INIT:CONT OFF;:DET POS;:FREQ:STAR 860 MHZ;:FREQ:STOP 970 MHZ;:SWE:POIN 201");
     rx->handle("BAND " + std::to_string(rbw_hz) + ";:BAND:VID " + std::to_string(rbw_hz));
     rx->handle("SWE:TIME " + std::to_string(rx_sweep_s) + ";:TRAC:MODE MAXH");
-    world.now_s = 2;
+    world.now_s = start_s;
     rx->handle("INIT");
-    world.now_s = 2 + rx_sweep_s + 1;
+    world.now_s = start_s + rx_sweep_s + 1;
     return trace();
   }
 
@@ -176,6 +176,37 @@ TEST_F(FastCapture, ShortReceiverSweepLeavesBinsAtTheNoiseFloor) {
   const auto missed = std::count_if(fast.begin(), fast.end(), [&](double v) { return v < open_level - 30; });
   EXPECT_GT(missed, kPoints / 2);
   EXPECT_LT(missed, kPoints);   // some bins still catch it
+}
+
+// The dwell rule with the receiver's own motion (daemon/core/fast_capture_plan.hpp, R2): while
+// the receiver dwells on a bin it moves one bin b, so relative to it the ramp covers its band B
+// less b in one ramp time. A dwell of exactly one ramp (1 s / 200 bins = 5 ms) leaves one bin
+// whose tone passes just outside its dwell (derived in MEASUREMENT.md §11); that bin reads the
+// tone up to half a bin off its peak. The sweep starts at 2.002 s, the ramp at 1.002 s (after the
+// source's 2 ms settling): bin 0's dwell opens half-way through a ramp, which puts bin 100 in
+// the middle of the gap, half a bin (0.275 MHz) from the tone: -3.01 x (2 x 0.275 / 0.3)^2 =
+// -10 dB at 300 kHz RBW. A dwell of ramp x (B + b) / B = 5 ms x 202 / 201 misses none. Interior
+// bins only: the analyzer's first and last bins dwell half as long.
+TEST_F(FastCapture, DwellOfOneRampMissesABinAndTheRelativeRuleDoesNot) {
+  world.connected = make_open();
+  start_ramp(0.005);
+  const std::vector<double> step = stepped(300e3);
+  start_ramp(0.005);
+  const std::vector<double> exact = capture(300e3, 200 * 0.005, 2.002);
+  start_ramp(0.005);
+  const std::vector<double> relative = capture(300e3, 200 * 0.005 * 202.0 / 201.0, 2.002);
+  ASSERT_EQ(exact.size(), step.size());
+  int low_exact = 0, low_relative = 0;
+  double worst_relative = 0;
+  for (std::size_t i = 1; i + 1 < step.size(); ++i) {
+    low_exact += exact[i] < step[i] - 3;
+    low_relative += relative[i] < step[i] - 3;
+    worst_relative = std::max(worst_relative, std::abs(relative[i] - step[i]));
+  }
+  EXPECT_GE(low_exact, 1);
+  EXPECT_NEAR(exact[100] - step[100], -10.0, 1.0);
+  EXPECT_EQ(low_relative, 0);
+  EXPECT_LT(worst_relative, 0.2);   // as on the OPEN with a 10 ms dwell (test above)
 }
 
 // Breaking the crossing rule: a 1 ms ramp over 110 MHz crosses a 30 kHz RBW at 1.1e11 Hz/s,
