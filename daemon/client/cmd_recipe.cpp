@@ -200,8 +200,10 @@ int cmd_dry_run(const Argv& argv) {
                            r.mode == core::SweepMode::fast_capture ? " before the capture" : " per frequency");
   const double vbw = r.receiver.vbw_hz > 0 ? r.receiver.vbw_hz : r.receiver.rbw_hz;
   if (r.mode == core::SweepMode::fast_capture) {
-    std::cout << fmt::format("  receiver attenuation {:.0f} dB, reference level {:.1f} dBm (RBW and sweep: the plan below)\n",
-                             std::max(0.0, r.receiver.attenuation_db), r.receiver.reference_level_dbm);
+    std::cout << fmt::format("  receiver attenuation {}, reference level {} (RBW and sweep: the plan below)\n",
+                             r.receiver.attenuation_db < 0 ? std::string("auto") : fmt::format("{:.0f} dB", r.receiver.attenuation_db),
+                             r.receiver.reference_level_dbm ? fmt::format("{:.1f} dBm", *r.receiver.reference_level_dbm)
+                                                            : std::string("left to the instrument"));
   } else {
     std::cout << fmt::format("  receiver RBW {:.0f} Hz, VBW {:.0f} Hz, span {:.0f} Hz, {} reading{} per point\n", r.receiver.rbw_hz,
                              vbw, r.receiver.span_hz, r.receiver.averages, r.receiver.averages == 1 ? "" : "s");

@@ -266,6 +266,10 @@ json fast_capture_profile(const std::filesystem::path& dir, int unit_count) {
     out["step_over_fast"].push_back(out["step_cycle_s"][r].get<double>() / t.seconds);
     same_verdict += t.verdict == step_verdicts[r];
     ++pairs[step_verdicts[r] + " -> " + t.verdict];
+    if (t.verdict != step_verdicts[r]) {
+      out["verdict_changes"].push_back({{"unit", units[r]}, {"step", step_verdicts[r]}, {"fast", t.verdict}});
+      std::cerr << fmt::format("  {}: step {}, fast capture {}\n", units[r], step_verdicts[r], t.verdict);
+    }
     const RunPoints f = run_points(daemon, t.run_id);
     const RunPoints& st = step_points[r];
     if (f.rows.size() != st.rows.size()) throw std::runtime_error("fast and step runs have different point counts");
