@@ -193,10 +193,12 @@ json bench_profile(const std::filesystem::path& dir, int points, int reps) {
 // The points of a stored run: {frequency, RL, RL worst, RL best (+inf when unbounded)}.
 struct RunPoints {
   std::vector<std::array<double, 4>> rows;
+  std::string reason;   // the verdict's reason
 };
 RunPoints run_points(DaemonProcess& daemon, const std::string& run_id) {
   const json run = daemon.run(run_id);
   RunPoints out;
+  out.reason = run.value("reason", std::string());
   for (const auto& p : run.at("points")) {
     const double best = p.at(4).is_null() ? std::numeric_limits<double>::infinity() : p.at(4).get<double>();
     out.rows.push_back({p.at(0).get<double>(), p.at(2).get<double>(), p.at(3).get<double>(), best});
@@ -273,10 +275,17 @@ json fast_capture_profile(const std::filesystem::path& dir, int unit_count) {
     const RunPoints f = run_points(daemon, t.run_id);
     const RunPoints& st = step_points[r];
     if (f.rows.size() != st.rows.size()) throw std::runtime_error("fast and step runs have different point counts");
+    double unit_max = 0;
     for (std::size_t i = 0; i < f.rows.size(); ++i) {
       if (!(st.rows[i][1] < 25)) continue;
       diffs.push_back(std::abs(f.rows[i][1] - st.rows[i][1]));
+      unit_max = std::max(unit_max, diffs.back());
       outside_bounds += f.rows[i][1] < st.rows[i][2] || f.rows[i][1] > st.rows[i][3];
+    }
+    // Units whose return loss differs by more than 0.5 dB somewhere, with the step run's reason
+    // (an intermittent feed changes between any two sweeps).
+    if (unit_max > 0.5) {
+      out["rl_units_over_half_db"].push_back({{"unit", units[r]}, {"max_db", unit_max}, {"step_reason", st.reason}});
     }
     if ((r + 1) % 20 == 0 || r + 1 == units.size()) {
       std::cerr << fmt::format("  fast capture: {} of {} units, last cycle {:.3f} s (step {:.3f} s), verdicts the same {}\n", r + 1,
