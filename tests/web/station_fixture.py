@@ -8,6 +8,7 @@ ECHOLINE_SIM_BIN, ECHOLINE_DAEMON_BIN, ECHOLINE_SOURCE_DIR.
 """
 import json
 import os
+import re
 import shutil
 import socket
 import sqlite3
@@ -19,6 +20,7 @@ import urllib.request
 SRC = os.environ.get("ECHOLINE_SOURCE_DIR", os.path.abspath(os.path.join(os.path.dirname(__file__), "..", "..")))
 SIM = os.environ.get("ECHOLINE_SIM_BIN", os.path.join(SRC, "build", "simulator", "echoline-sim"))
 DAEMON = os.environ.get("ECHOLINE_DAEMON_BIN", os.path.join(SRC, "build", "daemon", "echolined"))
+CLIENT = os.environ.get("ECHOLINE_CLIENT_BIN", os.path.join(SRC, "build", "daemon", "echoline"))
 TOKEN = "page-test-token-0123456789abcdef"
 
 
@@ -151,6 +153,22 @@ class Station:
 
     def units(self):
         return self.control({"cmd": "units"})["units"]
+
+    # --- the operator console itself, `echoline station`, fed as a scanner feeds it ---
+    def console(self, serials, lot, operator="console", timeout_s=120):
+        """Runs `echoline station` on this station with the serials piped in as a scanner types
+        them (serial, Enter), the console's hands on the simulated fixture connecting each unit;
+        returns {serial: verdict} from its "Unit <serial>   verdict <v>" lines and its output."""
+        proc = subprocess.run([CLIENT, "station", "--config", os.path.join(self.work, "station.jsonc"),
+                               "--sim-fixture", self.endpoints["control"], "--lot", lot, "--operator", operator],
+                              input="".join(s + "\n" for s in serials), capture_output=True, text=True,
+                              timeout=timeout_s)
+        verdicts = {}
+        for line in proc.stdout.splitlines():
+            m = re.search(r"^\s+Unit (\S+)\s+verdict (\w+)", line)
+            if m:
+                verdicts[m.group(1)] = m.group(2)
+        return verdicts, proc.returncode, proc.stdout + proc.stderr
 
     # --- the console's way in: the JSON-lines API on the Unix socket ---
     def api_session(self, role="operator"):
