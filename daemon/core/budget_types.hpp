@@ -37,6 +37,16 @@ struct UncertaintyBudget {
   std::vector<double> directivity_bound;        // |E_D| bound relative to T, linear, LOAD residual included
   std::vector<double> directivity_measured;     // 10^((P_load − R)/20): what the LOAD alone says
   std::vector<double> load_residual;            // the kit's |Γ_load| bound at the point
+  // The directivity vector d = e00/e01 from two known-mismatch standards (directivity_vector.hpp),
+  // per point; empty when the calibration measured none. |d − d̂| <= directivity_vector_bound
+  // (bounded terms plus the noise at the coverage factor); of that, the bounded terms alone and
+  // the noise's standard uncertainty. A point whose d could not be solved has bound 1
+  // (|Γ| units: nothing known).
+  std::vector<double> directivity_re, directivity_im;
+  std::vector<double> directivity_vector_bound;
+  std::vector<double> directivity_vector_systematic;
+  std::vector<double> directivity_vector_sigma;
+  bool has_directivity_vector() const { return !directivity_re.empty() && directivity_re.size() == frequency_hz.size(); }
   bool empty() const { return frequency_hz.empty(); }
 };
 

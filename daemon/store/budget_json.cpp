@@ -30,6 +30,13 @@ std::string budget_to_json(const core::UncertaintyBudget& b) {
             {"directivity_bound", b.directivity_bound},
             {"directivity_measured", b.directivity_measured},
             {"load_residual", b.load_residual}};
+  if (b.has_directivity_vector()) {
+    j["directivity_re"] = b.directivity_re;
+    j["directivity_im"] = b.directivity_im;
+    j["directivity_vector_bound"] = b.directivity_vector_bound;
+    j["directivity_vector_systematic"] = b.directivity_vector_systematic;
+    j["directivity_vector_sigma"] = b.directivity_vector_sigma;
+  }
   return j.dump();
 }
 
@@ -65,6 +72,13 @@ std::optional<core::UncertaintyBudget> budget_from_json(const std::string& text)
     b.directivity_bound = j.at("directivity_bound").get<std::vector<double>>();
     b.directivity_measured = j.at("directivity_measured").get<std::vector<double>>();
     b.load_residual = j.at("load_residual").get<std::vector<double>>();
+    if (j.contains("directivity_re")) {
+      b.directivity_re = j.at("directivity_re").get<std::vector<double>>();
+      b.directivity_im = j.at("directivity_im").get<std::vector<double>>();
+      b.directivity_vector_bound = j.at("directivity_vector_bound").get<std::vector<double>>();
+      b.directivity_vector_systematic = j.at("directivity_vector_systematic").get<std::vector<double>>();
+      b.directivity_vector_sigma = j.at("directivity_vector_sigma").get<std::vector<double>>();
+    }
   } catch (const json::exception&) {
     return std::nullopt;
   }
@@ -72,6 +86,11 @@ std::optional<core::UncertaintyBudget> budget_from_json(const std::string& text)
   if (b.reference_error_low_db.size() != n || b.reference_error_high_db.size() != n ||
       b.reference_noise_db.size() != n || b.directivity_bound.size() != n || b.directivity_measured.size() != n ||
       b.load_residual.size() != n) {
+    return std::nullopt;
+  }
+  if (!b.directivity_re.empty() &&
+      (b.directivity_re.size() != n || b.directivity_im.size() != n || b.directivity_vector_bound.size() != n ||
+       b.directivity_vector_systematic.size() != n || b.directivity_vector_sigma.size() != n)) {
     return std::nullopt;
   }
   return b;

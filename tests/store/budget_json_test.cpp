@@ -1,0 +1,62 @@
+// The stored budget (calibrations.budget_json) keeps the directivity vector from known
+// mismatches when a calibration has one, and budgets stored before it existed still load.
+#include <gtest/gtest.h>
+
+#include "daemon/store/budget_json.hpp"
+
+namespace echoline::store {
+namespace {
+
+core::UncertaintyBudget two_points() {
+  core::UncertaintyBudget b;
+  b.coverage_factor = 3;
+  b.source_match = 0.056;
+  b.frequency_hz = {900e6, 910e6};
+  b.reference_error_low_db = {-0.05, -0.05};
+  b.reference_error_high_db = {0.03, 0.03};
+  b.reference_noise_db = {0.01, 0.01};
+  b.directivity_bound = {0.03, 0.03};
+  b.directivity_measured = {0.02, 0.02};
+  b.load_residual = {0.01, 0.01};
+  return b;
+}
+
+core::UncertaintyBudget with_vector() {
+  core::UncertaintyBudget b = two_points();
+  b.directivity_re = {0.011, -0.004};
+  b.directivity_im = {0.002, 0.015};
+  b.directivity_vector_bound = {0.004, 0.0045};
+  b.directivity_vector_systematic = {0.0035, 0.004};
+  b.directivity_vector_sigma = {0.0002, 0.00021};
+  return b;
+}
+
+TEST(BudgetJson, KeepsTheDirectivityVector) {
+  const core::UncertaintyBudget b = with_vector();
+  const auto back = budget_from_json(budget_to_json(b));
+  ASSERT_TRUE(back);
+  ASSERT_TRUE(back->has_directivity_vector());
+  EXPECT_EQ(back->directivity_re, b.directivity_re);
+  EXPECT_EQ(back->directivity_im, b.directivity_im);
+  EXPECT_EQ(back->directivity_vector_bound, b.directivity_vector_bound);
+  EXPECT_EQ(back->directivity_vector_systematic, b.directivity_vector_systematic);
+  EXPECT_EQ(back->directivity_vector_sigma, b.directivity_vector_sigma);
+}
+
+TEST(BudgetJson, ABudgetWithoutItStaysWithout) {
+  const auto back = budget_from_json(budget_to_json(two_points()));
+  ASSERT_TRUE(back);
+  EXPECT_FALSE(back->has_directivity_vector());
+  EXPECT_EQ(budget_to_json(two_points()).find("directivity_re"), std::string::npos);
+}
+
+TEST(BudgetJson, AShortDirectivityVectorIsRefused) {
+  std::string text = budget_to_json(with_vector());
+  const std::string full = "\"directivity_re\":[0.011,-0.004]";
+  ASSERT_NE(text.find(full), std::string::npos) << text;
+  text.replace(text.find(full), full.size(), "\"directivity_re\":[0.011]");
+  EXPECT_FALSE(budget_from_json(text));
+}
+
+}  // namespace
+}  // namespace echoline::store
