@@ -1,6 +1,7 @@
 // Loading instrument profiles and checking an instrument's identity against one.
 #include "drivers/profile.hpp"
 
+#include <algorithm>
 #include <cmath>
 
 #include <fmt/format.h>
@@ -114,9 +115,16 @@ void load_switch(const JsoncDocument& doc, Profile& p) {
   doc.check_keys(s, {"positions"});
   const JsonPointer pos = s / "positions";
   const json& obj = doc.require_object(pos);
-  doc.check_keys(pos, {"OPEN", "SHORT", "LOAD", "DUT"});
   if (obj.empty()) doc.fail(pos, "at least one position (OPEN, SHORT, LOAD, DUT) is needed");
   for (const auto& [name, value] : obj.items()) {
+    // OPEN, SHORT, LOAD, DUT, or a kit's mismatch standard (its name: capitals, digits, '-').
+    const bool spelled = !name.empty() && std::all_of(name.begin(), name.end(), [](char c) {
+      return (c >= 'A' && c <= 'Z') || (c >= '0' && c <= '9') || c == '-';
+    });
+    if (!spelled) {
+      doc.fail(pos / name, fmt::format("\"{}\" is not a standard's name: OPEN, SHORT, LOAD, DUT or a kit's mismatch "
+                                       "standard such as MISMATCH-A (capitals, digits and '-')", name));
+    }
     std::string token;
     if (value.is_number_integer()) token = std::to_string(value.get<long long>());
     else token = doc.require_string(pos / name);

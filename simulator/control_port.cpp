@@ -97,15 +97,9 @@ const SimUnit* ControlService::unit_of(const json& req, std::string& error) cons
 json ControlService::connect(const json& req) {
   if (req.contains("standard")) {
     const std::string standard = string_field(req, "standard");
-    if (standard == "OPEN") {
-      world_.connected = make_open(world_.standards);
-    } else if (standard == "SHORT") {
-      world_.connected = make_short(world_.standards);
-    } else if (standard == "LOAD") {
-      world_.connected = make_load(world_.standards);
-    } else {
-      return fail("connect: standard must be OPEN, SHORT or LOAD");
-    }
+    auto dut = make_standard(standard, world_.standards);
+    if (!dut) return fail(std::string("connect: standard must be one of ") + standard_names());
+    world_.connected = std::move(dut);
     world_.connected_name = standard;
   } else if (req.contains("unit")) {
     std::string error;
@@ -114,7 +108,7 @@ json ControlService::connect(const json& req) {
     world_.connected = make_unit_dut(*unit, lot_->seed);
     world_.connected_name = unit->serial;
   } else {
-    return fail("connect: needs \"standard\" (OPEN|SHORT|LOAD) or \"unit\" (a serial)");
+    return fail(std::string("connect: needs \"standard\" (") + standard_names() + ") or \"unit\" (a serial)");
   }
   spdlog::info("control: {} connected at the test port", world_.connected_name);
   return json{{"ok", true}, {"connected", world_.connected_name}};

@@ -17,7 +17,7 @@
 namespace echoline::sim {
 
 // Requests (see simulator/README.md for the full list):
-//   {"cmd":"connect","standard":"OPEN"|"SHORT"|"LOAD"}  {"cmd":"connect","unit":"<serial>"}
+//   {"cmd":"connect","standard":"OPEN"|"SHORT"|"LOAD"|"MISMATCH-A"|"MISMATCH-B"}  {"cmd":"connect","unit":"<serial>"}
 //   {"cmd":"disconnect"}  {"cmd":"units"}  {"cmd":"status"}
 //   {"cmd":"truth","unit":"<serial>","frequencies_hz":[...]}
 //   {"cmd":"fault","role":"source","kind":"garble","probability":0.5,"seed":1,"delay_ms":500}

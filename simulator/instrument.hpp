@@ -79,8 +79,8 @@ class SimInstrument {
 //   "seed"                integer 7                 seeds reading noise
 // make_switch_instrument:
 //   "identity"            string  "Echoline,SIM-SW,SW0001,1.0"
-//   "positions"           object  {"1":"OPEN","2":"SHORT","3":"LOAD","4":"DUT"}
-//                                 channel number -> what it connects: OPEN|SHORT|LOAD connect
+//   "positions"           object  {"1":"OPEN","2":"SHORT","3":"LOAD","4":"DUT","5":"MISMATCH-A","6":"MISMATCH-B"}
+//                                 channel number -> what it connects: OPEN|SHORT|LOAD|MISMATCH-A|MISMATCH-B connect
 //                                 that standard; DUT leaves the World's connected DUT alone
 //                                 (the server's control port connects units)
 //   "load_return_loss_db" number  (none)           RL of the LOAD standard at 1 GHz, dB (6 .. 80);

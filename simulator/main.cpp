@@ -61,7 +61,7 @@ slave device, removed at exit.
 
 Control port (TCP, one JSON object per line, one reply line each with "ok" and, when false,
 "error"):
-  {"cmd":"connect","standard":"OPEN"|"SHORT"|"LOAD"}   {"cmd":"connect","unit":"<serial>"}
+  {"cmd":"connect","standard":"OPEN"|"SHORT"|"LOAD"|"MISMATCH-A"|"MISMATCH-B"}   {"cmd":"connect","unit":"<serial>"}
   {"cmd":"disconnect"}   {"cmd":"units"}   {"cmd":"status"}
   {"cmd":"truth","unit":"<serial>","frequencies_hz":[...]}  -> true return loss, defect, f0
   {"cmd":"fault","role":"source|receiver|switch","kind":"<kind>","probability":1,"seed":1,

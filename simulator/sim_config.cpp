@@ -53,6 +53,17 @@ BenchParams read_bench(const JsoncDocument& doc, const JsonPointer& at) {
   return b;
 }
 
+// "standards"/"mismatch_a" or "mismatch_b": a mismatch standard's true value, every key optional.
+MismatchParams read_mismatch(const JsoncDocument& doc, const JsonPointer& at, MismatchParams m) {
+  if (!doc.has(at)) return m;
+  doc.require_object(at);
+  doc.check_keys(at, {"magnitude", "phase_deg", "offset_delay_ps"});
+  m.magnitude = doc.number_in(at / "magnitude", m.magnitude, 0, 1, "");
+  m.phase_deg = doc.number_in(at / "phase_deg", m.phase_deg, -180, 180, "degrees");
+  m.offset_delay_ps = doc.number_in(at / "offset_delay_ps", m.offset_delay_ps, 0, 1e5, "ps");
+  return m;
+}
+
 // "standards": every key optional, defaults in StandardsParams. A switch's older
 // "load_return_loss_db" setting still works; given in both places, the two must agree.
 StandardsParams read_standards(const JsoncDocument& doc, const JsonPointer& at) {
@@ -60,12 +71,14 @@ StandardsParams read_standards(const JsoncDocument& doc, const JsonPointer& at) 
   if (!doc.has(at)) return s;
   doc.require_object(at);
   doc.check_keys(at, {"open_gamma_magnitude", "open_capacitance_ff", "short_gamma_magnitude", "short_inductance_ph",
-                      "load_return_loss_db"});
+                      "load_return_loss_db", "mismatch_a", "mismatch_b"});
   s.open_gamma_magnitude = doc.number_in(at / "open_gamma_magnitude", s.open_gamma_magnitude, 0.5, 1, "");
   s.open_capacitance_ff = doc.number_in(at / "open_capacitance_ff", s.open_capacitance_ff, 0, 1000, "fF");
   s.short_gamma_magnitude = doc.number_in(at / "short_gamma_magnitude", s.short_gamma_magnitude, 0.5, 1, "");
   s.short_inductance_ph = doc.number_in(at / "short_inductance_ph", s.short_inductance_ph, 0, 1000, "pH");
   s.load_return_loss_db = doc.number_in(at / "load_return_loss_db", s.load_return_loss_db, 6, 80, "dB");
+  s.mismatch_a = read_mismatch(doc, at / "mismatch_a", s.mismatch_a);
+  s.mismatch_b = read_mismatch(doc, at / "mismatch_b", s.mismatch_b);
   return s;
 }
 

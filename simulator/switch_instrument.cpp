@@ -23,7 +23,7 @@ SwitchConfig switch_config_from_json(const nlohmann::json& config) {
   }
   if (config.is_object() && config.contains("positions")) {
     const auto& p = config.at("positions");
-    if (!p.is_object() || p.empty()) throw std::invalid_argument("instrument settings: \"positions\": must be an object {\"<channel>\": \"OPEN|SHORT|LOAD|DUT\"}");
+    if (!p.is_object() || p.empty()) throw std::invalid_argument("instrument settings: \"positions\": must be an object {\"<channel>\": \"OPEN|SHORT|LOAD|MISMATCH-A|MISMATCH-B|DUT\"}");
     c.positions.clear();
     for (const auto& [key, value] : p.items()) {
       int channel = 0;
@@ -32,8 +32,9 @@ SwitchConfig switch_config_from_json(const nlohmann::json& config) {
         throw std::invalid_argument("instrument settings: \"positions\": key \"" + key + "\" is not a channel number 1..9999");
       if (!value.is_string()) throw std::invalid_argument("instrument settings: \"positions/" + key + "\": must be a string");
       const std::string what = value.get<std::string>();
-      if (what != "OPEN" && what != "SHORT" && what != "LOAD" && what != "DUT")
-        throw std::invalid_argument("instrument settings: \"positions/" + key + "\": \"" + what + "\" is not OPEN|SHORT|LOAD|DUT");
+      if (what != "DUT" && !make_standard(what))
+        throw std::invalid_argument("instrument settings: \"positions/" + key + "\": \"" + what + "\" is not DUT or a standard (" +
+                                    standard_names() + ")");
       c.positions[channel] = what;
     }
   }
@@ -75,9 +76,7 @@ class SwitchInstrument final : public SimInstrument {
         parked_ = std::move(world_.connected);
         parked_name_ = world_.connected_name;
       }
-      if (what == "OPEN") world_.connected = make_open(world_.standards);
-      else if (what == "SHORT") world_.connected = make_short(world_.standards);
-      else world_.connected = make_load(world_.standards);
+      world_.connected = make_standard(what, world_.standards);
       world_.connected_name = what;
       placed_name_ = what;
     }

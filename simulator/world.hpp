@@ -47,7 +47,7 @@ struct World {
   // What sits at the test port. nullptr = nothing connected: the unterminated port
   // reflects like an OPEN (the receiver models it so).
   std::unique_ptr<Dut> connected;
-  std::string connected_name;           // "OPEN", "SHORT", "LOAD", a unit serial, or ""
+  std::string connected_name;           // "OPEN", "SHORT", "LOAD", "MISMATCH-A", "MISMATCH-B", a unit serial, or ""
   const Lot* lot = nullptr;             // the loaded lot, if any (owned by the server)
 
   std::uint64_t sweep_counter = 0;      // incremented by the receiver at each INIT

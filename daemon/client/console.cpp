@@ -247,7 +247,10 @@ Result<json> Console::job_events(long id, const std::string& label) {
         }
       }
       if (connected) {
-        connected = confirm(fmt::format("\n>>> Connect the {} standard to the test port, then press Enter:", standard));
+        const std::string what = str(j, "description");
+        connected = confirm(what.empty()
+                                ? fmt::format("\n>>> Connect the {} standard to the test port, then press Enter:", standard)
+                                : fmt::format("\n>>> Connect {} ({}) to the test port, then press Enter:", standard, what));
       }
       json args = {{"standard", standard}};
       if (!connected) args["connected"] = false;

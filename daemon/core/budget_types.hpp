@@ -6,6 +6,8 @@
 #include <string>
 #include <vector>
 
+#include "daemon/core/cal_kit.hpp"
+
 namespace echoline::core {
 
 // Reading noise of one recipe segment, from two back-to-back sweeps of the OPEN (full-reflection
@@ -29,6 +31,9 @@ struct UncertaintyBudget {
   std::string kit_identity;
   std::string kit_serial;
   std::vector<SegmentNoise> noise;
+  // The kit's definitions of the mismatch standards this calibration measured (their traces are
+  // under the same names), so a stored calibration can be worked again offline. Empty: none.
+  std::vector<MismatchStandard> mismatch;
   // Per plan point:
   std::vector<double> frequency_hz;
   std::vector<double> reference_error_low_db;   // bounded: R − T ∈ [low, high] (R: reference, T: true |Γ|=1 level)

@@ -6,6 +6,8 @@
 #include <cmath>
 #include <numbers>
 
+#include <fmt/format.h>
+
 namespace echoline::core {
 namespace {
 constexpr double kTwoPi = 2 * std::numbers::pi;
@@ -38,6 +40,30 @@ std::complex<double> short_gamma(const ReflectStandard& s, double f, double z0) 
   const double w = kTwoPi * f;
   const std::complex<double> jwl(0, w * s.inductance_h);
   return (jwl - z0) / (jwl + z0) * std::polar(1.0, -2 * w * s.offset_delay_s);
+}
+
+std::complex<double> mismatch_gamma(const MismatchStandard& s, double f) {
+  return std::polar(s.magnitude, s.phase_rad - 2 * kTwoPi * f * s.offset_delay_s);
+}
+
+const MismatchStandard* find_mismatch(const CalKit& kit, const std::string& name) {
+  for (const MismatchStandard& m : kit.mismatch) {
+    if (m.name == name) return &m;
+  }
+  return nullptr;
+}
+
+std::string describe_mismatch(const MismatchStandard& s, double z0) {
+  const std::complex<double> g = std::polar(s.magnitude, s.phase_rad);
+  const std::complex<double> z = z0 * (1.0 + g) / (1.0 - g);
+  std::string what;
+  if (std::fabs(z.imag()) < 0.05 * std::fabs(z.real())) {
+    what = fmt::format("{:.1f} ohm termination", z.real());
+  } else {
+    what = fmt::format("|\u0393| {:.3f} at {:.0f}\u00b0 termination", s.magnitude, s.phase_rad / kDegree);
+  }
+  const double ps = s.offset_delay_s * 1e12;
+  return ps > 0 ? fmt::format("{}, {:.0f} ps offset", what, ps) : what + ", no offset";
 }
 
 double load_gamma_bound(const CalKit& kit, double f) {

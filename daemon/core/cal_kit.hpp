@@ -1,6 +1,6 @@
-// Calibration-kit definitions: what the OPEN, SHORT and LOAD standards really are (|Γ|, fringing
-// capacitance, inductance, offset delay, the LOAD's worst-case match against frequency) and the
-// kit's identity, as plain values. Loading is in cal_kit_loader.hpp. Pure; thread-safe.
+// Calibration-kit definitions: what the OPEN, SHORT, LOAD and the optional mismatch standards
+// really are (|Γ|, fringing capacitance, inductance, offset delay, the LOAD's worst-case match
+// against frequency, a mismatch's known |Γ| and phase) and the kit's identity, as plain values. Loading is in cal_kit_loader.hpp. Pure; thread-safe.
 #pragma once
 
 #include <complex>
@@ -27,6 +27,18 @@ struct LoadStep {
   double min_return_loss_db = 0;
 };
 
+// A known mismatch (a termination other than Z0, e.g. 61.1 ohm: |Γ| = 0.1), possibly behind an
+// offset line. Model: Γ = magnitude·e^(j·phase)·e^(−j2ωτ), τ the one-way offset delay. Measured
+// at two offsets it separates the directivity leakage from the source match (MEASUREMENT.md §6.3).
+struct MismatchStandard {
+  std::string name;                    // as the operator and the traces know it, e.g. "MISMATCH-A"
+  double magnitude = 0;                // nominal |Γ|, in (0, 0.5]
+  double magnitude_tolerance = 0;      // the true |Γ| lies within ±this of `magnitude`
+  double phase_rad = 0;                // Γ's phase at the standard's own plane (0: R > Z0, π: R < Z0)
+  double offset_delay_s = 0;           // one-way electrical delay of its offset line, s
+  double phase_tolerance_rad = 0;      // how far the true phase may be from the model's
+};
+
 struct CalKit {
   std::string identity;                // e.g. "Echoline SIM-KIT-N"
   std::string serial;                  // the physical kit's serial number
@@ -36,6 +48,7 @@ struct CalKit {
   std::vector<LoadStep> load;          // ascending up_to_hz; above the last step: not specified
   // Standard uncertainty of one connection's repeatability, as a reflection magnitude (linear).
   double connection_repeatability = 0;
+  std::vector<MismatchStandard> mismatch;   // optional; empty for a plain OPEN/SHORT/LOAD kit
 };
 
 // The kit used when the station config names none: deliberately pessimistic figures for an
@@ -45,6 +58,17 @@ CalKit builtin_conservative_kit();
 // Model reflection coefficient of the OPEN / SHORT at f (magnitude 1; z0 in ohm).
 std::complex<double> open_gamma(const ReflectStandard& s, double frequency_hz, double z0_ohm = 50);
 std::complex<double> short_gamma(const ReflectStandard& s, double frequency_hz, double z0_ohm = 50);
+
+// Model reflection coefficient of a mismatch standard at f:
+//   Γ = magnitude·e^(j·phase)·e^(−j2·2πf·offset_delay).
+std::complex<double> mismatch_gamma(const MismatchStandard& s, double frequency_hz);
+
+// The kit's mismatch standard of that name, or nullptr.
+const MismatchStandard* find_mismatch(const CalKit& kit, const std::string& name);
+
+// Plain words for the operator: "61.1 ohm termination, no offset" (the resistance a real Γ of
+// that magnitude and phase would be, against z0; "137 ps offset" when offset).
+std::string describe_mismatch(const MismatchStandard& s, double z0_ohm = 50);
 
 // Upper bound of the LOAD's |Γ| at f; 1.0 (nothing known) above the kit's last step.
 double load_gamma_bound(const CalKit& kit, double frequency_hz);

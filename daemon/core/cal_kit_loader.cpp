@@ -6,6 +6,8 @@
 #include <fstream>
 #include <iterator>
 #include <numbers>
+#include <algorithm>
+#include <set>
 
 #include <fmt/format.h>
 
@@ -53,13 +55,50 @@ ReflectStandard reflect(const JsoncDocument& doc, const JsonPointer& at, bool op
   return s;
 }
 
+// "mismatch": [{name, magnitude, magnitude_tolerance, phase_deg, offset_delay_ps,
+// phase_tolerance_deg}, ...]: names unique, spelled as the operator and the traces see them.
+std::vector<MismatchStandard> mismatch_list(const JsoncDocument& doc, const JsonPointer& at) {
+  std::vector<MismatchStandard> out;
+  if (!doc.has(at)) return out;
+  const auto& list = doc.require_array(at);
+  std::set<std::string> seen;
+  for (std::size_t i = 0; i < list.size(); ++i) {
+    const JsonPointer m = at / i;
+    doc.require_object(m);
+    doc.check_keys(m, {"name", "magnitude", "magnitude_tolerance", "phase_deg", "offset_delay_ps", "phase_tolerance_deg"});
+    MismatchStandard s;
+    s.name = doc.require_string(m / "name");
+    const bool spelled = !s.name.empty() && std::all_of(s.name.begin(), s.name.end(), [](char c) {
+      return (c >= 'A' && c <= 'Z') || (c >= '0' && c <= '9') || c == '-';
+    });
+    if (!spelled) {
+      doc.fail(m / "name", fmt::format("\"{}\": a standard's name is capital letters, digits and '-' (e.g. MISMATCH-A)", s.name));
+    }
+    if (s.name == "OPEN" || s.name == "SHORT" || s.name == "LOAD" || s.name == "DUT") {
+      doc.fail(m / "name", fmt::format("\"{}\" is already the name of another standard or the DUT position", s.name));
+    }
+    if (!seen.insert(s.name).second) doc.fail(m / "name", fmt::format("\"{}\" is named twice in the kit", s.name));
+    s.magnitude = doc.require_number(m / "magnitude", "");
+    if (!(s.magnitude > 0 && s.magnitude <= 0.5)) {
+      doc.fail(m / "magnitude", fmt::format("{}: |Γ| of a mismatch standard must be above 0 and at most 0.5", s.magnitude));
+    }
+    s.magnitude_tolerance = doc.number_in(m / "magnitude_tolerance", 0, 0, 0.5, "");
+    s.phase_rad = doc.number_in(m / "phase_deg", 0, -180, 180, "degrees") * kDegree;
+    s.offset_delay_s = doc.number_in(m / "offset_delay_ps", 0, 0, 1e5, "ps") * 1e-12;
+    s.phase_tolerance_rad = doc.number_in(m / "phase_tolerance_deg", 0, 0, 45, "degrees") * kDegree;
+    out.push_back(std::move(s));
+  }
+  return out;
+}
+
 }  // namespace
 
 CalKit parse_cal_kit(std::string text, std::string file_name) {
   const JsoncDocument doc = JsoncDocument::parse(std::move(text), file_name);
   const JsonPointer root("");
   doc.require_object(root);
-  doc.check_keys(root, {"identity", "serial", "description", "open", "short", "load", "connection_repeatability_db"});
+  doc.check_keys(root, {"identity", "serial", "description", "open", "short", "load", "connection_repeatability_db",
+                        "mismatch"});
   CalKit k;
   k.source = file_name;
   k.identity = doc.require_string(JsonPointer("/identity"));
@@ -92,6 +131,7 @@ CalKit parse_cal_kit(std::string text, std::string file_name) {
   // (standard uncertainty); 0 / absent = not known, which the budget then leaves out.
   const double rep_db = doc.number_in(JsonPointer("/connection_repeatability_db"), 0, 0, 100, "dB");
   k.connection_repeatability = rep_db > 0 ? std::pow(10.0, -rep_db / 20) : 0;
+  k.mismatch = mismatch_list(doc, JsonPointer("/mismatch"));
   return k;
 }
 

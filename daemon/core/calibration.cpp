@@ -76,6 +76,10 @@ CalibrationRecord build_calibration(const Recipe& recipe, const std::map<std::st
   const std::vector<double> plan = plan_frequencies(recipe);
   std::vector<std::string> needed = {"OPEN", "LOAD"};
   if (recipe.calibration.use_short) needed.insert(needed.begin() + 1, "SHORT");
+  if (recipe.calibration.use_mismatch) {
+    if (station.kit.mismatch.empty()) rec.errors.push_back("the recipe asks for mismatch standards but the kit has none");
+    for (const MismatchStandard& m : station.kit.mismatch) needed.push_back(m.name);
+  }
   for (const std::string& name : needed) {
     auto it = traces.find(name);
     if (it == traces.end()) {

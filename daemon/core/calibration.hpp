@@ -23,7 +23,9 @@ struct CalibrationLimits {
 };
 
 // traces: "OPEN", "LOAD" and (when recipe.calibration.use_short) "SHORT", each one reading per
-// plan point (plan_frequencies(recipe)), in plan order.
+// plan point (plan_frequencies(recipe)), in plan order; with recipe.calibration.use_mismatch also
+// one trace per mismatch standard of station.kit, under its name (e.g. "MISMATCH-A"). The record
+// keeps every trace, and its budget the kit's definitions of the mismatch standards measured.
 // reference = (P_open + P_short)/2 in dB per point (P_open alone without SHORT, with a warning);
 // directivity = reference − P_load. Problems that make the record unusable set valid = false and
 // are listed in `errors`; remarks go to `warnings`. Never throws.

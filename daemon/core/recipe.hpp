@@ -39,6 +39,9 @@ struct CalibrationPolicy {
   int check_every_units = 50;       // re-measure the check standard every N units (0 = never)
   std::string check_standard = "LOAD";   // OPEN, SHORT or LOAD
   double check_drift_limit_db = 1.0;     // drift beyond this makes calibration due
+  // Also measure the kit's mismatch standards (cal_kit.hpp, MismatchStandard) after the LOAD;
+  // their traces are stored under their names. The kit must have some (recipe_check).
+  bool use_mismatch = false;
 };
 
 // Minimum return loss over a frequency range (a limit-line segment).

@@ -78,6 +78,17 @@ std::vector<CheckFinding> check_recipe(const Recipe& r, const StationCapability&
     add(out, "error", "/fast_capture", st.fast_capture_problem);
   }
 
+  // Mismatch standards come from the kit: a recipe cannot ask for what the kit lacks.
+  if (r.calibration.use_mismatch && st.kit.mismatch.empty()) {
+    const std::string kit = st.kit.source.empty()
+                                ? std::string("the built-in conservative kit (the station config names no calibration_kit)")
+                                : fmt::format("kit file {} ({})", st.kit.source, st.kit.identity);
+    add(out, "error", "/calibration/use_mismatch",
+        fmt::format("the recipe asks for the mismatch standards, but {} defines none; add a \"mismatch\" list to the "
+                    "kit file (config/README.md, calibration kits) or set use_mismatch to false",
+                    kit));
+  }
+
   // Frequency ranges: the source sets each point; the receiver looks span/2 either side.
   for (std::size_t i = 0; i < r.segments.size(); ++i) {
     const Segment& s = r.segments[i];

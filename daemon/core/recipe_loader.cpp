@@ -234,9 +234,10 @@ class Loader {
   void load_calibration(Recipe& r) {
     const JsonPointer at("/calibration");
     doc_.check_keys(at, {"use_short", "max_age_s", "max_units", "max_temperature_change_c", "check_every_units",
-                         "check_standard", "check_drift_limit_db"});
+                         "check_standard", "check_drift_limit_db", "use_mismatch"});
     CalibrationPolicy& c = r.calibration;
     c.use_short = doc_.bool_or(at / "use_short", c.use_short);
+    c.use_mismatch = doc_.bool_or(at / "use_mismatch", c.use_mismatch);
     c.max_age_s = positive(at / "max_age_s", c.max_age_s, "s", 7 * 24 * 3600.0);
     if (doc_.has(at / "max_units")) {
       const auto n = doc_.require_integer(at / "max_units");

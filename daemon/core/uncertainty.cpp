@@ -100,6 +100,9 @@ UncertaintyBudget build_budget(const Recipe& recipe, const std::map<std::string,
   b.error_delay_s = in.error_delay_s;
   b.kit_identity = kit.identity;
   b.kit_serial = kit.serial;
+  for (const MismatchStandard& m : kit.mismatch) {
+    if (traces.count(m.name) > 0) b.mismatch.push_back(m);
+  }
   const std::vector<Reading>& open = traces.at("OPEN");
   const std::vector<Reading>& load = traces.at("LOAD");
   const bool with_short = traces.count("SHORT") > 0;

@@ -78,8 +78,13 @@ class ApiHandler::CalPrompter : public Prompter {
     h_.answered_ = false;
     h_.busy_info_["standard"] = standard;
     h_.busy_info_["waiting"] = true;
+    const std::string description = h_.station_.standard_description(standard);
     json prompt = {{"standard", standard},
-                   {"message", fmt::format("connect the {} standard to the test port, then answer", standard)}};
+                   {"message", description.empty()
+                                   ? fmt::format("connect the {} standard to the test port, then answer", standard)
+                                   : fmt::format("connect the {} standard ({}) to the test port, then answer", standard,
+                                                 description)}};
+    if (!description.empty()) prompt["description"] = description;
     link_->send(event_line(id_, "prompt", prompt));
     prompt["event"] = "prompt";
     prompt["job"] = h_.busy_info_.value("kind", "calibration");

@@ -224,9 +224,21 @@ core::StationCapability Station::capability(const core::Recipe& recipe) const {
 }
 
 std::vector<std::string> Station::standards() const {
-  auto r = recipe();
-  if (r->calibration.use_short) return {"OPEN", "SHORT", "LOAD"};
-  return {"OPEN", "LOAD"};
+  return standards_of(*recipe());
+}
+
+std::vector<std::string> Station::standards_of(const core::Recipe& r) const {
+  std::vector<std::string> out = {"OPEN", "LOAD"};
+  if (r.calibration.use_short) out.insert(out.begin() + 1, "SHORT");
+  if (r.calibration.use_mismatch) {
+    for (const core::MismatchStandard& m : kit_.mismatch) out.push_back(m.name);
+  }
+  return out;
+}
+
+std::string Station::standard_description(const std::string& standard) const {
+  const core::MismatchStandard* m = core::find_mismatch(kit_, standard);
+  return m ? core::describe_mismatch(*m) : std::string();
 }
 
 int Station::plan_points() const { return static_cast<int>(core::plan_frequencies(*recipe()).size()); }
@@ -246,6 +258,11 @@ json Station::calibration_json() const {
   }
   j["due"] = st.due;
   j["reason"] = st.reason;
+  json standards = json::array();
+  for (const auto& name : standards_of(*recipe_)) {
+    standards.push_back({{"name", name}, {"description", standard_description(name)}});
+  }
+  j["standards"] = standards;
   const int every = recipe_->calibration.check_every_units;
   j["check"] = {{"standard", recipe_->calibration.check_standard},
                 {"every_units", every},

@@ -101,6 +101,9 @@ class Station {
   nlohmann::json forwarding_json() const;
   std::optional<Refusal> precheck_test(const TestRequest& request) const;
   std::vector<std::string> standards() const;        // calibration order
+  // What the operator connects, in plain words, for standards that need saying ("61.1 ohm
+  // termination, no offset" for a kit's mismatch standard); "" for OPEN, SHORT and LOAD.
+  std::string standard_description(const std::string& standard) const;
   int plan_points() const;
   const drivers::StationConfig& config() const { return config_; }
   store::RunStore& store() { return *store_; }
@@ -116,6 +119,7 @@ class Station {
 
  private:
   core::StationCapability capability(const core::Recipe& recipe) const;
+  std::vector<std::string> standards_of(const core::Recipe& recipe) const;   // needs no lock
   std::string next_run_id(double now_s);
   void note_commit(double ms);
   Result<std::vector<core::Reading>> sweep_standard(const std::string& standard, const core::Recipe& recipe,

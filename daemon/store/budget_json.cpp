@@ -15,6 +15,12 @@ std::string budget_to_json(const core::UncertaintyBudget& b) {
                      {"high_level_db", n.high_level_db}, {"load_level_db", n.load_level_db},
                      {"load_level_dbm", n.load_level_dbm}, {"measured", n.measured}});
   }
+  json mismatch = json::array();
+  for (const auto& m : b.mismatch) {
+    mismatch.push_back({{"name", m.name}, {"magnitude", m.magnitude}, {"magnitude_tolerance", m.magnitude_tolerance},
+                        {"phase_rad", m.phase_rad}, {"offset_delay_s", m.offset_delay_s},
+                        {"phase_tolerance_rad", m.phase_tolerance_rad}});
+  }
   json j = {{"coverage_factor", b.coverage_factor},
             {"source_match", b.source_match},
             {"connection", b.connection},
@@ -37,6 +43,7 @@ std::string budget_to_json(const core::UncertaintyBudget& b) {
     j["directivity_vector_systematic"] = b.directivity_vector_systematic;
     j["directivity_vector_sigma"] = b.directivity_vector_sigma;
   }
+  if (!mismatch.empty()) j["mismatch"] = mismatch;   // absent in budgets without mismatch standards
   return j.dump();
 }
 
@@ -64,6 +71,18 @@ std::optional<core::UncertaintyBudget> budget_from_json(const std::string& text)
       s.load_level_dbm = n.at("load_level_dbm").get<double>();
       s.measured = n.at("measured").get<bool>();
       b.noise.push_back(s);
+    }
+    if (j.contains("mismatch")) {
+      for (const auto& m : j.at("mismatch")) {
+        core::MismatchStandard s;
+        s.name = m.at("name").get<std::string>();
+        s.magnitude = m.at("magnitude").get<double>();
+        s.magnitude_tolerance = m.at("magnitude_tolerance").get<double>();
+        s.phase_rad = m.at("phase_rad").get<double>();
+        s.offset_delay_s = m.at("offset_delay_s").get<double>();
+        s.phase_tolerance_rad = m.at("phase_tolerance_rad").get<double>();
+        b.mismatch.push_back(std::move(s));
+      }
     }
     b.frequency_hz = j.at("frequency_hz").get<std::vector<double>>();
     b.reference_error_low_db = j.at("reference_error_low_db").get<std::vector<double>>();

@@ -1,5 +1,6 @@
 // OPEN, SHORT and LOAD standards with their loss, fringing capacitance, series inductance and
-// return loss taken from StandardsParams.
+// return loss, and the mismatch standards with their true |Gamma|, phase and offset, taken from
+// StandardsParams.
 #include "simulator/physics/standards.hpp"
 
 #include <algorithm>
@@ -64,7 +65,39 @@ class LoadStandard final : public Dut {
   double rho_1ghz_;
 };
 
+// A termination other than Z0 behind a lossless offset line of delay tau (one way).
+class MismatchStandard final : public Dut {
+ public:
+  MismatchStandard(std::string name, const MismatchParams& m) : name_(std::move(name)), m_(m) {}
+  Complex gamma(double f) const override {
+    return std::polar(m_.magnitude, m_.phase_deg * std::numbers::pi / 180.0 - 2.0 * kTwoPi * f * m_.offset_delay_ps * 1e-12);
+  }
+  std::string describe() const override {
+    return fmt::format("{} standard (|Gamma| {:.4f} at {:.2f} degrees, {:.1f} ps offset)", name_, m_.magnitude, m_.phase_deg,
+                       m_.offset_delay_ps);
+  }
+
+ private:
+  std::string name_;
+  MismatchParams m_;
+};
+
 }  // namespace
+
+std::unique_ptr<Dut> make_mismatch(const std::string& name, const MismatchParams& m) {
+  return std::make_unique<MismatchStandard>(name, m);
+}
+
+std::unique_ptr<Dut> make_standard(const std::string& name, const StandardsParams& s) {
+  if (name == "OPEN") return make_open(s);
+  if (name == "SHORT") return make_short(s);
+  if (name == "LOAD") return make_load(s);
+  if (name == "MISMATCH-A") return make_mismatch(name, s.mismatch_a);
+  if (name == "MISMATCH-B") return make_mismatch(name, s.mismatch_b);
+  return nullptr;
+}
+
+const char* standard_names() { return "OPEN, SHORT, LOAD, MISMATCH-A, MISMATCH-B"; }
 
 std::unique_ptr<Dut> make_open(const StandardsParams& s) {
   return std::make_unique<OpenStandard>(s.open_gamma_magnitude, s.open_capacitance_ff * 1e-15);

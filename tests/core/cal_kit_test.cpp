@@ -27,6 +27,19 @@ TEST(CalKit, ShippedKitsLoad) {
   EXPECT_DOUBLE_EQ(generic.open.min_magnitude, builtin.open.min_magnitude);
   EXPECT_NEAR(load_gamma_bound(generic, 1e9), load_gamma_bound(builtin, 1e9), 1e-12);
   EXPECT_NEAR(generic.connection_repeatability, builtin.connection_repeatability, 1e-5);
+  // Only the simulator's kit has mismatch standards; the conservative kits have none.
+  ASSERT_EQ(sim.mismatch.size(), 2u);
+  EXPECT_EQ(sim.mismatch[0].name, "MISMATCH-A");
+  EXPECT_EQ(sim.mismatch[1].name, "MISMATCH-B");
+  EXPECT_DOUBLE_EQ(sim.mismatch[0].magnitude, 0.1);
+  EXPECT_DOUBLE_EQ(sim.mismatch[0].magnitude_tolerance, 0.002);
+  EXPECT_NEAR(sim.mismatch[0].phase_tolerance_rad, std::numbers::pi / 180, 1e-15);
+  EXPECT_DOUBLE_EQ(sim.mismatch[0].offset_delay_s, 0);
+  EXPECT_NEAR(sim.mismatch[1].offset_delay_s, 137e-12, 1e-24);
+  EXPECT_EQ(find_mismatch(sim, "MISMATCH-B"), &sim.mismatch[1]);
+  EXPECT_EQ(find_mismatch(sim, "OPEN"), nullptr);
+  EXPECT_TRUE(generic.mismatch.empty());
+  EXPECT_TRUE(builtin.mismatch.empty());
 }
 
 std::string error_of(const std::string& text) {
@@ -57,6 +70,77 @@ TEST(CalKit, MistakesNameFileLineAndKey) {
   std::string descending = ok;
   descending.replace(descending.find("[{"), 2, "[{\"up_to_hz\": \"4 GHz\", \"return_loss_db\": 30}, {");
   EXPECT_NE(error_of(descending).find("ascending"), std::string::npos) << error_of(descending);
+}
+
+// A kit with a "mismatch" list: each mistake names the file, line and key path.
+TEST(CalKit, MismatchMistakesNameFileLineAndKey) {
+  auto kit = [](const std::string& mismatch) {
+    return R"({
+  "identity": "k", "serial": "1",
+  "open": {"min_magnitude": 0.99},
+  "short": {"min_magnitude": 0.99},
+  "load": {"worst_return_loss": [{"up_to_hz": "3 GHz", "return_loss_db": 30}]},
+  "mismatch": [
+)" + mismatch + "\n]\n}";
+  };
+  const std::string a = R"({"name": "MISMATCH-A", "magnitude": 0.1, "magnitude_tolerance": 0.002})";
+  const std::string b = R"({"name": "MISMATCH-B", "magnitude": 0.1, "offset_delay_ps": 137, "phase_tolerance_deg": 1})";
+  EXPECT_EQ(error_of(kit(a + ",\n" + b)), "");
+  const CalKit k = parse_cal_kit(kit(a + ",\n" + b), "kit.jsonc");
+  ASSERT_EQ(k.mismatch.size(), 2u);
+  EXPECT_EQ(k.mismatch[1].phase_rad, 0);   // phase_deg left out: 0 (a resistance above Z0)
+
+  const std::string big = error_of(kit(R"({"name": "MISMATCH-A", "magnitude": 0.6})"));
+  EXPECT_NE(big.find("kit.jsonc:7"), std::string::npos) << big;
+  EXPECT_NE(big.find("/mismatch/0/magnitude"), std::string::npos) << big;
+  EXPECT_NE(error_of(kit(R"({"name": "MISMATCH-A", "magnitude": 0})")).find("/mismatch/0/magnitude"), std::string::npos);
+  const std::string tol = error_of(kit(R"({"name": "MISMATCH-A", "magnitude": 0.1, "magnitude_tolerance": -0.001})"));
+  EXPECT_NE(tol.find("/mismatch/0/magnitude_tolerance"), std::string::npos) << tol;
+  const std::string twice = error_of(kit(a + ",\n" + a));
+  EXPECT_NE(twice.find("kit.jsonc:8"), std::string::npos) << twice;
+  EXPECT_NE(twice.find("/mismatch/1/name"), std::string::npos) << twice;
+  EXPECT_NE(twice.find("named twice"), std::string::npos) << twice;
+  const std::string lower = error_of(kit(R"({"name": "mismatch a", "magnitude": 0.1})"));
+  EXPECT_NE(lower.find("/mismatch/0/name"), std::string::npos) << lower;
+  EXPECT_NE(error_of(kit(R"({"name": "LOAD", "magnitude": 0.1})")).find("already the name"), std::string::npos);
+  const std::string typo = error_of(kit(R"({"name": "MISMATCH-A", "magnitude": 0.1, "ofset_delay_ps": 137})"));
+  EXPECT_NE(typo.find("ofset_delay_ps"), std::string::npos) << typo;
+  EXPECT_NE(error_of(kit(R"({"magnitude": 0.1})")).find("/mismatch/0/name"), std::string::npos);
+}
+
+// A 61.1 ohm termination: |Γ| = (61.1 − 50)/(61.1 + 50) = 0.0999, and 40.9 ohm the same at 180°
+// (definition of Γ, common practice, no source). An eighth wave at 915 MHz in air is
+// λ/8 = c/(8f) = 40.96 mm, 136.6 ps one way (c = 299 792 458 m/s, SI definition); its round trip
+// turns Γ by 2·ω·τ = 90°.
+TEST(CalKit, MismatchModel) {
+  EXPECT_NEAR((61.1 - 50) / (61.1 + 50), 0.1, 1e-3);
+  EXPECT_NEAR((40.9 - 50) / (40.9 + 50), -0.1, 1e-3);
+  MismatchStandard a;
+  a.name = "MISMATCH-A";
+  a.magnitude = 0.1;
+  EXPECT_NEAR(std::abs(mismatch_gamma(a, 915e6) - std::complex<double>(0.1, 0)), 0, 1e-15);
+  EXPECT_EQ(describe_mismatch(a), "61.1 ohm termination, no offset");
+  MismatchStandard low = a;
+  low.phase_rad = std::numbers::pi;
+  EXPECT_NEAR(std::real(mismatch_gamma(low, 915e6)), -0.1, 1e-15);
+  EXPECT_EQ(describe_mismatch(low), "40.9 ohm termination, no offset");
+
+  const double c = 299792458.0;
+  const double eighth_wave_m = c / 915e6 / 8;
+  EXPECT_NEAR(eighth_wave_m * 1e3, 40.96, 0.01);
+  MismatchStandard b = a;
+  b.offset_delay_s = eighth_wave_m / c;   // 136.6 ps
+  EXPECT_NEAR(b.offset_delay_s * 1e12, 136.6, 0.05);
+  const double turn_deg = std::arg(mismatch_gamma(b, 915e6) / mismatch_gamma(a, 915e6)) * 180 / std::numbers::pi;
+  EXPECT_NEAR(turn_deg, -90.0, 1e-9);                  // behind: the phase lags
+  EXPECT_NEAR(std::abs(mismatch_gamma(b, 915e6)), 0.1, 1e-15);
+  // The kit's 137 ps: 90.3° at 915 MHz, and between 84.8° and 95.7° over the 860-970 MHz sweep.
+  b.offset_delay_s = 137e-12;
+  auto turn = [&](double f) { return -std::arg(mismatch_gamma(b, f) / mismatch_gamma(a, f)) * 180 / std::numbers::pi; };
+  EXPECT_NEAR(turn(915e6), 90.26, 0.01);
+  EXPECT_NEAR(turn(860e6), 84.83, 0.01);
+  EXPECT_NEAR(turn(970e6), 95.68, 0.01);
+  EXPECT_EQ(describe_mismatch(b), "61.1 ohm termination, 137 ps offset");
 }
 
 // An ideal open is Γ = 1 and an ideal short Γ = −1 (definition). A 10 fF fringe at 1 GHz turns

@@ -212,5 +212,46 @@ TEST(CheckStandard, DriftBeyondTheLimitIsReported) {
   EXPECT_TRUE(check_standard_drifted(cal, "THRU", cal.traces.at("OPEN"), 1.0, nullptr));
 }
 
+// With use_mismatch the kit's mismatch standards are part of the calibration: their traces are
+// kept under their names, their definitions go into the budget, and a missing one is an error.
+TEST(Calibration, MismatchTracesAreKeptWithTheKitsDefinitions) {
+  Recipe r = whip_recipe();
+  r.calibration.use_mismatch = true;
+  StationCapability st = station();
+  MismatchStandard a;
+  a.name = "MISMATCH-A";
+  a.magnitude = 0.1;
+  a.magnitude_tolerance = 0.002;
+  MismatchStandard b = a;
+  b.name = "MISMATCH-B";
+  b.offset_delay_s = 137e-12;
+  st.kit.mismatch = {a, b};
+  const Bench bench;
+  auto traces = standards(r, bench);
+  traces["MISMATCH-A"] = measure(r, bench, [&](double f) { return mismatch_gamma(a, f); });
+  traces["MISMATCH-B"] = measure(r, bench, [&](double f) { return mismatch_gamma(b, f); });
+  CalibrationRecord cal = build_calibration(r, traces, st, "cal-mm", "2026-12-01T08:00:00Z");
+  ASSERT_TRUE(cal.valid) << joined(cal.errors);
+  EXPECT_EQ(cal.traces.at("MISMATCH-B").size(), 201u);
+  EXPECT_EQ(cal.traces.at("MISMATCH-B")[7].raw_dbm, traces.at("MISMATCH-B")[7].raw_dbm);
+  ASSERT_EQ(cal.budget.mismatch.size(), 2u);
+  EXPECT_EQ(cal.budget.mismatch[1].name, "MISMATCH-B");
+  EXPECT_DOUBLE_EQ(cal.budget.mismatch[1].offset_delay_s, 137e-12);
+  EXPECT_DOUBLE_EQ(cal.budget.mismatch[0].magnitude_tolerance, 0.002);
+
+  traces.erase("MISMATCH-B");
+  cal = build_calibration(r, traces, st, "cal-mm2", "2026-12-01T08:00:00Z");
+  EXPECT_FALSE(cal.valid);
+  EXPECT_TRUE(any_contains(cal.errors, "the MISMATCH-B standard was not measured")) << joined(cal.errors);
+
+  // Without use_mismatch the same traces are kept but not required, and definitions are stored
+  // only for the standards measured.
+  r.calibration.use_mismatch = false;
+  cal = build_calibration(r, traces, st, "cal-mm3", "2026-12-01T08:00:00Z");
+  ASSERT_TRUE(cal.valid) << joined(cal.errors);
+  ASSERT_EQ(cal.budget.mismatch.size(), 1u);
+  EXPECT_EQ(cal.budget.mismatch[0].name, "MISMATCH-A");
+}
+
 }  // namespace
 }  // namespace echoline::core

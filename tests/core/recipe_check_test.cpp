@@ -174,4 +174,35 @@ TEST(RecipeCheck, FastCaptureNeedsTheSweepOperations) {
   EXPECT_EQ(e->key, "/mode");
 }
 
+// A recipe asking for the mismatch standards needs a kit that defines them; the refusal names
+// the recipe key and the kit file (or says the built-in kit applies).
+TEST(RecipeCheck, MismatchStandardsNeedAKitThatHasThem) {
+  Recipe r = whip_recipe();
+  r.segments = {Segment{860e6, 970e6, 221}};
+  r.limits.resonance_min_hz.reset();
+  r.limits.resonance_max_hz.reset();
+  r.calibration.use_mismatch = true;
+  StationCapability st = station();
+  st.kit.source = "/etc/echoline/kits/bench-kit.jsonc";
+  auto f = check_recipe(r, st);
+  ASSERT_TRUE(has_errors(f)) << dump(f);
+  const CheckFinding* e = find(f, "error", "mismatch");
+  ASSERT_NE(e, nullptr) << dump(f);
+  EXPECT_EQ(e->key, "/calibration/use_mismatch");
+  EXPECT_NE(e->message.find("kit file /etc/echoline/kits/bench-kit.jsonc"), std::string::npos) << e->message;
+  st.kit.source.clear();
+  e = find(check_recipe(r, st), "error", "mismatch");
+  ASSERT_NE(e, nullptr);
+  EXPECT_NE(e->message.find("built-in conservative kit"), std::string::npos) << e->message;
+
+  MismatchStandard a;
+  a.name = "MISMATCH-A";
+  a.magnitude = 0.1;
+  st.kit.mismatch = {a};
+  f = check_recipe(r, st);
+  EXPECT_FALSE(has_errors(f)) << dump(f);
+  r.calibration.use_mismatch = false;   // a kit with them does not oblige a recipe to use them
+  EXPECT_FALSE(has_errors(check_recipe(r, station())));
+}
+
 }  // namespace echoline::core

@@ -71,6 +71,7 @@ TEST(Profile, SimProfilesMatchTheSimulator) {
   EXPECT_EQ(sw.identity_model, "SIM-SW");
   // The simulator's switch channels: OPEN=1 SHORT=2 LOAD=3 DUT=4.
   EXPECT_EQ(sw.positions.at("OPEN"), "1");
+  EXPECT_EQ(sw.positions.at("MISMATCH-B"), "6");   // the kit's mismatch standards have positions too
   EXPECT_EQ(sw.positions.at("DUT"), "4");
   EXPECT_EQ(sw.command("select").expand({{"position", sw.positions.at("LOAD")}}).value(), "ROUT:CLOS (@3)");
 }
@@ -199,6 +200,20 @@ TEST(Profile, InitLinesMayNotBeQueries) {
   text.replace(text.find("\"commands\""), 0, "\"init\": [\"*RST\", \"*IDN?\"],\n  ");
   ConfigError e = load_error(write(dir, "init.jsonc", text));
   EXPECT_EQ(e.key, "/init/1");
+}
+
+// Switch positions: OPEN, SHORT, LOAD, DUT and a kit's mismatch standards (capitals, digits, '-');
+// anything else is a typo, refused with its key.
+TEST(Profile, SwitchPositionsAreStandardNames) {
+  testing::TempDir dir;
+  std::ifstream in(instruments_dir() / "sim-switch.jsonc");
+  const std::string good((std::istreambuf_iterator<char>(in)), std::istreambuf_iterator<char>());
+  std::string text = good;
+  const std::string from = "\"MISMATCH-A\": \"5\"";
+  ASSERT_NE(text.find(from), std::string::npos);
+  text.replace(text.find(from), from.size(), "\"Mismatch A\": \"5\"");
+  ConfigError e = load_error(write(dir, "sw.jsonc", text));
+  EXPECT_EQ(e.key, "/switch/positions/Mismatch A");
 }
 
 TEST(Profile, SectionForAnotherRoleIsRefused) {

@@ -67,6 +67,34 @@ TEST(ClientCli, ShippedRecipesPassTheCheckOnTheShippedStation) {
   EXPECT_NE(o.output.find("0 errors"), std::string::npos) << o.output;
 }
 
+// A recipe asking for the kit's mismatch standards passes on the shipped station (its kit has
+// them) and is refused on a station whose kit has none, naming the recipe key and the kit file.
+TEST(ClientCli, MismatchRecipeNeedsAKitWithMismatchStandards) {
+  const Outcome ok = run_client({"recipe", "check", "config/recipes/whip915-mm.jsonc", "--station", "config/station.jsonc"});
+  EXPECT_EQ(ok.code, 0) << ok.output;
+  const Outcome window = run_client({"recipe", "check", "config/recipes/whip915-window-mm.jsonc", "--station", "config/station.jsonc"});
+  EXPECT_EQ(window.code, 0) << window.output;
+  TempDir dir;
+  std::ifstream in(source_dir() / "config/station.jsonc");
+  std::string text((std::istreambuf_iterator<char>(in)), std::istreambuf_iterator<char>());
+  const std::string config = (source_dir() / "config").string() + "/";
+  for (const std::string from : {"\"recipes/", "\"instruments/"}) {
+    for (auto at = text.find(from); at != std::string::npos; at = text.find(from, at + 1)) text.insert(at + 1, config);
+  }
+  const std::string kit = "\"kits/sim-kit.jsonc\"";
+  const auto at = text.find(kit);
+  ASSERT_NE(at, std::string::npos);
+  const std::string generic = config + "kits/generic-conservative.jsonc";
+  text.replace(at, kit.size(), "\"" + generic + "\"");
+  std::ofstream(dir / "station.jsonc") << text;
+  const Outcome o = run_client({"recipe", "check", "config/recipes/whip915-mm.jsonc", "--station", (dir / "station.jsonc").string()});
+  EXPECT_EQ(o.code, 1) << o.output;
+  EXPECT_NE(o.output.find("/calibration/use_mismatch"), std::string::npos) << o.output;
+  EXPECT_NE(o.output.find(generic), std::string::npos) << o.output;
+  const Outcome plain = run_client({"recipe", "check", "config/recipes/whip915.jsonc", "--station", (dir / "station.jsonc").string()});
+  EXPECT_EQ(plain.code, 0) << plain.output;   // the same station runs the plain recipe
+}
+
 TEST(ClientCli, RecipeBeyondTheSourceExitsOneWithFileLineAndKey) {
   TempDir dir;
   const auto file = dir / "hot.jsonc";

@@ -9,6 +9,7 @@
 
 #include <gtest/gtest.h>
 
+#include "daemon/store/run_store.hpp"
 #include "tests/core/e2e_station.hpp"
 
 namespace echoline::e2e {
@@ -331,6 +332,127 @@ TEST(DaemonFastCapture, CalibratesAndJudgesAUnitFromOneTrace) {
   const double replies = after["instruments"]["receiver"]["replies"].get<double>() -
                          before["instruments"]["receiver"]["replies"].get<double>();
   EXPECT_LT(replies, 10) << replies;
+}
+
+}  // namespace
+}  // namespace echoline::e2e
+
+namespace echoline::e2e {
+namespace {
+
+// The kit's mismatch standards in the calibration (recipe whip915-mm, calibration.use_mismatch):
+// the operator is prompted for each by name and in plain words, the simulator connects them with
+// its bench physics, and the store keeps their traces and the kit's definitions.
+TEST(DaemonMismatch, CalibrationMeasuresTheMismatchStandardsAndStoresTheirTraces) {
+  testing::TempDir dir("echoline-daemon-mm");
+  Sim sim("tiny-lot.jsonc");
+  std::optional<Daemon> daemon;
+  daemon.emplace(write_station_config(dir.path(), sim, "whip915-mm.jsonc"));
+  Api api = Api::connect(*daemon);
+  json status = api.call("status");
+  const json& listed = status["result"]["calibration"]["standards"];
+  ASSERT_EQ(listed.size(), 5u) << status.dump();
+  EXPECT_EQ(listed[3]["name"], "MISMATCH-A");
+  EXPECT_EQ(listed[4]["description"], "61.1 ohm termination, 137 ps offset");
+  EXPECT_EQ(listed[0]["description"], "");
+
+  json r = api.call("cal.start");
+  ASSERT_TRUE(r["ok"].get<bool>()) << r.dump();
+  EXPECT_EQ(r["result"]["standards"].size(), 5u);
+  std::vector<std::string> prompted;
+  std::map<std::string, std::string> messages;
+  json last;
+  for (;;) {
+    json e = api.next_event();
+    if (e["event"] == "prompt") {
+      prompted.push_back(e["standard"]);
+      messages[e["standard"]] = e["message"];
+      sim.connect_standard(e["standard"]);
+      ASSERT_TRUE(api.call("cal.answer", {{"standard", e["standard"]}})["ok"].get<bool>());
+    } else if (e["event"] == "result" || e["event"] == "error") {
+      last = e;
+      break;
+    }
+  }
+  EXPECT_EQ(prompted, (std::vector<std::string>{"OPEN", "SHORT", "LOAD", "MISMATCH-A", "MISMATCH-B"}));
+  EXPECT_EQ(messages["MISMATCH-A"], "connect the MISMATCH-A standard (61.1 ohm termination, no offset) to the test port, then answer");
+  EXPECT_EQ(messages["OPEN"], "connect the OPEN standard to the test port, then answer");
+  ASSERT_EQ(last["event"], "result") << last.dump();
+  EXPECT_TRUE(last["calibration"]["valid"].get<bool>()) << last.dump();
+  json run = test_unit(api, sim, "TINY-01", "TINY");   // the calibration judges units as before
+  EXPECT_NE(run["verdict"], "aborted") << run.dump();
+  ASSERT_EQ(daemon->process().terminate(30s), 0);
+  daemon.reset();
+
+  auto store = store::RunStore::open_read_only(dir / "data" / "e2e-bench.sqlite");
+  ASSERT_TRUE(store.ok()) << store.error().message;
+  auto cal = (*store)->latest_calibration();
+  ASSERT_TRUE(cal.ok() && cal->has_value());
+  const core::CalibrationRecord& c = **cal;
+  for (const char* name : {"OPEN", "SHORT", "LOAD", "MISMATCH-A", "MISMATCH-B"}) {
+    ASSERT_EQ(c.traces.count(name), 1u) << name;
+    EXPECT_EQ(c.traces.at(name).size(), 221u) << name;
+  }
+  // The kit's definitions travel with the record, for offline recomputation.
+  ASSERT_EQ(c.budget.mismatch.size(), 2u);
+  EXPECT_EQ(c.budget.mismatch[1].name, "MISMATCH-B");
+  EXPECT_DOUBLE_EQ(c.budget.mismatch[1].magnitude, 0.1);
+  EXPECT_NEAR(c.budget.mismatch[1].offset_delay_s, 137e-12, 1e-20);
+  EXPECT_DOUBLE_EQ(c.budget.mismatch[0].magnitude_tolerance, 0.002);
+  // |Gamma| 0.1 is a return loss of 20 dB (definition): the mismatch reads about 20 dB below the
+  // OPEN, give or take the 35 dB coupler's leakage (20 log10(1 +- 0.018/0.1): -1.7/+1.4 dB).
+  // The eighth-wave offset turns B's reflection against the leakage, so B's ripple differs from A's.
+  const auto& open = c.traces.at("OPEN");
+  const auto& a = c.traces.at("MISMATCH-A");
+  const auto& b = c.traces.at("MISMATCH-B");
+  double mean_below = 0, most_apart = 0;
+  for (std::size_t i = 0; i < a.size(); ++i) {
+    EXPECT_EQ(a[i].frequency_hz, open[i].frequency_hz);
+    const double below = open[i].raw_dbm - a[i].raw_dbm;
+    EXPECT_GT(below, 18.0) << i;
+    EXPECT_LT(below, 22.5) << i;
+    mean_below += below / static_cast<double>(a.size());
+    most_apart = std::max(most_apart, std::abs(a[i].raw_dbm - b[i].raw_dbm));
+  }
+  EXPECT_NEAR(mean_below, 20.0, 1.0);
+  EXPECT_GT(most_apart, 0.5);
+}
+
+// A station whose kit has no mismatch standards refuses a recipe that asks for them, naming the
+// recipe key and the kit file: at recipe.select, and at start-up (exit 2, a configuration error).
+TEST(DaemonMismatch, RecipeAskingForMismatchIsRefusedWhenTheKitHasNone) {
+  testing::TempDir dir("echoline-daemon-mm-refused");
+  Sim sim("tiny-lot.jsonc");
+  const auto token_file = dir / "token";
+  std::ofstream(token_file) << "0123456789abcdef0123\n";
+  const auto src = testing::source_dir();
+  const auto generic = src / "config/kits/generic-conservative.jsonc";
+  auto config = write_station_config(dir.path(), sim, "whip915.jsonc", json({{"token_file", token_file.string()}}).dump());
+  json cfg = json::parse(std::ifstream(config));
+  cfg["calibration_kit"] = generic.string();
+  std::ofstream(config) << cfg.dump(2) << "\n";
+  {
+    Daemon daemon(config);
+    Api api = Api::connect(daemon);
+    ASSERT_TRUE(api.call("hello", {{"role", "engineer"}, {"token", "0123456789abcdef0123"}})["ok"].get<bool>());
+    json r = api.call("recipe.select", {{"path", (src / "config/recipes/whip915-mm.jsonc").string()}});
+    ASSERT_FALSE(r["ok"].get<bool>()) << r.dump();
+    const std::string m = r["error"]["message"];
+    EXPECT_NE(m.find("/calibration/use_mismatch"), std::string::npos) << m;
+    EXPECT_NE(m.find(generic.string()), std::string::npos) << m;
+    EXPECT_EQ(api.call("status")["result"]["recipe"]["name"], "whip915");   // the station keeps its recipe
+    EXPECT_EQ(daemon.process().terminate(30s), 0);
+  }
+  cfg["recipe"] = (src / "config/recipes/whip915-mm.jsonc").string();
+  std::ofstream(config) << cfg.dump(2) << "\n";
+  testing::ChildProcess::Options po;
+  po.merge_stderr = true;
+  auto child = testing::ChildProcess::start({testing::daemon_binary().string(), "--config", config.string()}, po);
+  std::string text;
+  while (auto line = child.read_line(30s)) text += *line + "\n";
+  EXPECT_EQ(child.wait(10s), 2) << text;
+  EXPECT_NE(text.find("/calibration/use_mismatch"), std::string::npos) << text;
+  EXPECT_NE(text.find("generic-conservative.jsonc"), std::string::npos) << text;
 }
 
 }  // namespace

@@ -112,6 +112,69 @@ TEST(Standards, SwitchAndControlPortConnectTheConfiguredStandards) {
   EXPECT_EQ(older.standards.load_return_loss_db, 44);
 }
 
+// The mismatch standards: Gamma = magnitude * e^(j phase) * e^(-j 2 w tau) with the bench file's
+// true values; by default near, never at, the kit's nominal 0.1 (config/kits/sim-kit.jsonc:
+// +-0.002, +-1 degree over the whip sweep). Both the control port and the switch connect them.
+TEST(Standards, MismatchStandardsReflectTheirTrueValuesAndConnect) {
+  const StandardsParams d;
+  const double f = 915e6;
+  const Complex a = make_standard("MISMATCH-A", d)->gamma(f);
+  EXPECT_NEAR(std::abs(a), 0.1013, 1e-12);
+  EXPECT_NEAR(std::arg(a), 0.6 * kPi / 180, 1e-12);
+  // B: -0.4 degrees, and 137.5 ps one way lags the round trip by 2 w tau (90.6 degrees here).
+  const Complex b = make_standard("MISMATCH-B", d)->gamma(f);
+  EXPECT_NEAR(std::abs(b), 0.0989, 1e-12);
+  const Complex expected_b = std::polar(0.0989, -0.4 * kPi / 180 - 2 * (2 * kPi * f) * 137.5e-12);
+  EXPECT_NEAR(std::abs(b - expected_b), 0, 1e-12);
+  for (const MismatchParams& m : {d.mismatch_a, d.mismatch_b}) {
+    EXPECT_NE(m.magnitude, 0.1);                    // never the nominal value
+    EXPECT_LE(std::abs(m.magnitude - 0.1), 0.002);  // within the kit's tolerance
+  }
+  // Phase against the kit's nominal (0 degrees, offsets 0 and 137 ps) over 860-970 MHz: within 1 degree.
+  for (double fr : {860e6, 915e6, 970e6}) {
+    const double wa = std::arg(make_standard("MISMATCH-A", d)->gamma(fr)) * 180 / kPi;
+    const double wb = std::arg(make_standard("MISMATCH-B", d)->gamma(fr) * std::polar(1.0, 2 * (2 * kPi * fr) * 137e-12)) * 180 / kPi;
+    EXPECT_LT(std::abs(wa), 1.0) << fr;
+    EXPECT_LT(std::abs(wb), 1.0) << fr;
+    EXPECT_GT(std::abs(wb), 0.1) << fr;
+  }
+  EXPECT_EQ(make_standard("MISMATCH-C", d), nullptr);
+
+  // The bench file's "standards" sets the true values; mistakes name the key.
+  const SimConfig some = parse_sim_config(
+      instant_with({{"mismatch_b", {{"magnitude", 0.33}, {"phase_deg", 180}, {"offset_delay_ps", 50}}}}), "sim.jsonc");
+  EXPECT_EQ(some.standards.mismatch_b.magnitude, 0.33);
+  EXPECT_EQ(some.standards.mismatch_b.phase_deg, 180);
+  EXPECT_EQ(some.standards.mismatch_a.magnitude, 0.1013);   // the other keeps its default
+  EXPECT_NE(config_error(instant_with({{"mismatch_a", {{"magnitud", 0.1}}}})).find("magnitud"), std::string::npos);
+  EXPECT_NE(config_error(instant_with({{"mismatch_a", {{"magnitude", 1.5}}}})).find("/standards/mismatch_a/magnitude"),
+            std::string::npos);
+  const SimConfig shipped = load_sim_config(repo_file("config/sim/instant.jsonc"));
+  EXPECT_EQ(shipped.standards.mismatch_b.offset_delay_ps, 137.5);
+
+  World world;
+  world.standards.mismatch_a.magnitude = 0.2;
+  SimClock clock(*latency_profile("instant"));
+  ControlService control(world, nullptr, {}, clock, "instant");
+  json r = control.handle(R"({"cmd":"connect","standard":"MISMATCH-A"})");
+  ASSERT_TRUE(r.value("ok", false)) << r.dump();
+  EXPECT_EQ(world.connected_name, "MISMATCH-A");
+  EXPECT_NEAR(std::abs(world.connected->gamma(f)), 0.2, 1e-12);
+  r = control.handle(R"({"cmd":"connect","standard":"MISMATCH-C"})");
+  EXPECT_FALSE(r.value("ok", true));
+  EXPECT_NE(r.dump().find("MISMATCH-B"), std::string::npos) << r.dump();   // the message lists the names
+
+  // The switch's default positions 5 and 6 are the mismatch standards; a position can name them.
+  auto sw = make_switch_instrument(world, json::object());
+  sw->handle("ROUT:CLOS (@6)");
+  EXPECT_EQ(world.connected_name, "MISMATCH-B");
+  EXPECT_NEAR(std::abs(world.connected->gamma(f)), 0.0989, 1e-12);
+  auto sw2 = make_switch_instrument(world, json{{"positions", {{"1", "MISMATCH-A"}, {"2", "DUT"}}}});
+  sw2->handle("ROUT:CLOS (@1)");
+  EXPECT_NEAR(std::abs(world.connected->gamma(f)), 0.2, 1e-12);
+  EXPECT_THROW(make_switch_instrument(world, json{{"positions", {{"1", "MISMATCH-Z"}}}}), std::invalid_argument);
+}
+
 TEST(PoorCouplers, TwentyFiveDecibelBenchLoadsAndTwentyIsAccepted) {
   const SimConfig d25 = load_sim_config(repo_file("config/sim/instant-d25.jsonc"));
   EXPECT_EQ(d25.bench.directivity_db, 25);

@@ -58,5 +58,30 @@ TEST(BudgetJson, AShortDirectivityVectorIsRefused) {
   EXPECT_FALSE(budget_from_json(text));
 }
 
+// The kit's definitions of the mismatch standards measured travel with the budget, so a stored
+// calibration can be worked again offline; a budget without them stays without the key.
+TEST(BudgetJson, KeepsTheMismatchDefinitions) {
+  core::UncertaintyBudget b = two_points();
+  core::MismatchStandard m;
+  m.name = "MISMATCH-B";
+  m.magnitude = 0.1;
+  m.magnitude_tolerance = 0.002;
+  m.phase_rad = 0.01;
+  m.offset_delay_s = 137e-12;
+  m.phase_tolerance_rad = 0.0175;
+  b.mismatch = {m};
+  const auto back = budget_from_json(budget_to_json(b));
+  ASSERT_TRUE(back);
+  ASSERT_EQ(back->mismatch.size(), 1u);
+  EXPECT_EQ(back->mismatch[0].name, "MISMATCH-B");
+  EXPECT_EQ(back->mismatch[0].magnitude, 0.1);
+  EXPECT_EQ(back->mismatch[0].magnitude_tolerance, 0.002);
+  EXPECT_EQ(back->mismatch[0].phase_rad, 0.01);
+  EXPECT_EQ(back->mismatch[0].offset_delay_s, 137e-12);
+  EXPECT_EQ(back->mismatch[0].phase_tolerance_rad, 0.0175);
+  EXPECT_EQ(budget_to_json(two_points()).find("mismatch"), std::string::npos);
+  EXPECT_TRUE(budget_from_json(budget_to_json(two_points()))->mismatch.empty());
+}
+
 }  // namespace
 }  // namespace echoline::store

@@ -77,6 +77,20 @@ function renderStrip() {
 }
 
 const STANDARDS_DEFAULT = ["OPEN", "SHORT", "LOAD"];
+// The recipe's calibration order from status (the kit's mismatch standards included), with
+// the plain words the daemon gives for standards that need them.
+function calStandards() {
+  const list = state.status && state.status.calibration && state.status.calibration.standards;
+  return list && list.length ? list : STANDARDS_DEFAULT.map((name) => ({ name, description: "" }));
+}
+function connectText(standard, description) {
+  const what = description ? `${standard} (${description})` : `the ${standard} standard`;
+  return `Connect ${what} to the test port, then press F2.`;
+}
+function describeStandard(standard) {
+  const found = calStandards().find((s) => s.name === standard);
+  return found ? found.description : "";
+}
 function renderCalibration(message) {
   const due = calibrationDue();
   const job = state.job && state.job.job !== "test" ? state.job : null;
@@ -84,7 +98,7 @@ function renderCalibration(message) {
   byId("cal-reason").textContent = job ? (job.job === "check" ? "Check standard" : "Calibrating the test port")
                                        : `Calibration needed: ${due ? due.reason : ""}.`;
   const steps = clear(byId("cal-steps"));
-  const list = job && job.job === "check" ? [job.standard] : (due && due.kind === "check" ? [state.status.calibration.check.standard] : STANDARDS_DEFAULT);
+  const list = job && job.job === "check" ? [job.standard] : (due && due.kind === "check" ? [state.status.calibration.check.standard] : calStandards().map((s) => s.name));
   for (const std of list) {
     const done = state.calDone.includes(std);
     const current = job && job.standard === std;
@@ -98,7 +112,7 @@ function renderCalibration(message) {
     go.append(due && due.kind === "check" ? "Measure the check standard " : "Begin calibration ", el("kbd", {}, "F2"));
     go.disabled = false;
   } else if (job.waiting) {
-    byId("cal-text").textContent = message || `Connect the ${job.standard} standard to the test port, then press F2.`;
+    byId("cal-text").textContent = message || connectText(job.standard, describeStandard(job.standard));
     go.textContent = "";
     go.append(`${job.standard} connected: measure `, el("kbd", {}, "F2"));
     go.disabled = false;
@@ -293,7 +307,7 @@ function onEvent(ev) {
       state.calDone.push(state.job.standard);
     }
     Object.assign(state.job, { standard: ev.standard, waiting: true, point: 0, of: 0 });
-    renderCalibration(`Connect the ${ev.standard} standard to the test port, then press F2.`);
+    renderCalibration(connectText(ev.standard, ev.description || describeStandard(ev.standard)));
   } else if (ev.event === "result" || ev.event === "error") {
     const job = ev.job;
     state.job = null;
