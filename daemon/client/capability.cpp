@@ -1,5 +1,7 @@
 #include "daemon/client/capability.hpp"
 
+#include <optional>
+
 #include "daemon/core/cal_kit_loader.hpp"
 #include "daemon/core/station_capability.hpp"
 #include "drivers/config_error.hpp"
@@ -33,9 +35,12 @@ core::StationCapability station_capability(const drivers::StationConfig& config,
   const Profiles profiles = load_profiles(config);
   const drivers::Profile& sp = profiles.source;
   const drivers::Profile& rp = profiles.receiver;
-  if (config.calibration_kit.empty()) return core::station_capability(config.fixture, sp, rp, recipe);
+  std::optional<drivers::Profile> switch_profile;
+  if (const auto* sw = config.find_role("switch")) switch_profile = drivers::load_profile(sw->profile);
+  const drivers::Profile* swp = switch_profile ? &*switch_profile : nullptr;
+  if (config.calibration_kit.empty()) return core::station_capability(config.fixture, sp, rp, recipe, nullptr, swp);
   const core::CalKit kit = core::load_cal_kit(config.calibration_kit);
-  return core::station_capability(config.fixture, sp, rp, recipe, &kit);
+  return core::station_capability(config.fixture, sp, rp, recipe, &kit, swp);
 }
 
 }  // namespace echoline::client

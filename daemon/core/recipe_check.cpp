@@ -89,6 +89,22 @@ std::vector<CheckFinding> check_recipe(const Recipe& r, const StationCapability&
                     kit));
   }
 
+  // A calibration switch must have a position for every standard the recipe calibrates with.
+  if (st.has_switch) {
+    std::vector<std::pair<std::string, std::string>> needed = {{"OPEN", "/calibration"}, {"LOAD", "/calibration"}};
+    if (r.calibration.use_short) needed.emplace_back("SHORT", "/calibration/use_short");
+    if (r.calibration.use_mismatch) {
+      for (const MismatchStandard& m : st.kit.mismatch) needed.emplace_back(m.name, "/calibration/use_mismatch");
+    }
+    for (const auto& [name, key] : needed) {
+      if (st.switch_positions.count(name) > 0) continue;
+      add(out, "error", key,
+          fmt::format("the calibration switch (profile {}) has no position for the {} standard; add \"{}\" to the "
+                      "profile's switch.positions",
+                      st.switch_profile, name, name));
+    }
+  }
+
   // Frequency ranges: the source sets each point; the receiver looks span/2 either side.
   for (std::size_t i = 0; i < r.segments.size(); ++i) {
     const Segment& s = r.segments[i];

@@ -38,6 +38,10 @@ struct StationCapability {
   // profiles' names for messages. Empty: every operation is there.
   std::set<std::string> source_lacks, receiver_lacks;
   std::string source_profile = "source", receiver_profile = "receiver";
+  // A calibration switch, when the station has one: the standards its profile has positions for.
+  bool has_switch = false;
+  std::set<std::string> switch_positions;
+  std::string switch_profile = "switch";
 };
 
 // Findings in recipe order; any "error" means the recipe must not run on this station.

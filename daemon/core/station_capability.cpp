@@ -49,7 +49,8 @@ Result<FastCapturePlan> plan_fast_capture(const Recipe& recipe, const drivers::F
 }
 
 StationCapability station_capability(const drivers::FixtureConfig& fixture, const drivers::Profile& source,
-                                     const drivers::Profile& receiver, const Recipe& recipe, const CalKit* kit) {
+                                     const drivers::Profile& receiver, const Recipe& recipe, const CalKit* kit,
+                                     const drivers::Profile* switch_profile) {
   StationCapability c = nominal(fixture);
   // The RBW the readings are taken with (fast capture: the planned one), and the input
   // attenuator: the displayed noise level referred to the input rises dB for dB with it
@@ -75,6 +76,11 @@ StationCapability station_capability(const drivers::FixtureConfig& fixture, cons
   }
   c.source_profile = source.name;
   c.receiver_profile = receiver.name;
+  if (switch_profile) {
+    c.has_switch = true;
+    for (const auto& [name, token] : switch_profile->positions) c.switch_positions.insert(name);
+    c.switch_profile = switch_profile->name;
+  }
   return c;
 }
 

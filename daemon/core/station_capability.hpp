@@ -25,8 +25,9 @@ Result<FastCapturePlan> plan_fast_capture(const Recipe& recipe, const drivers::F
 // the noise floor is kTB + NF at the RBW the recipe measures with (in fast-capture mode the
 // planned one), plus its input attenuation.
 // `kit`: the station's calibration kit (nullptr: the built-in conservative kit).
+// `switch_profile`: the calibration switch's profile (nullptr: no switch, the operator connects).
 StationCapability station_capability(const drivers::FixtureConfig& fixture, const drivers::Profile& source,
                                      const drivers::Profile& receiver, const Recipe& recipe,
-                                     const CalKit* kit = nullptr);
+                                     const CalKit* kit = nullptr, const drivers::Profile* switch_profile = nullptr);
 
 }  // namespace echoline::core

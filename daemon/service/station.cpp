@@ -219,8 +219,9 @@ std::shared_ptr<const core::Recipe> Station::recipe() const {
 }
 
 core::StationCapability Station::capability(const core::Recipe& recipe) const {
+  const drivers::Switch* sw = instruments_->switch_();
   return core::station_capability(config_.fixture, instruments_->source_profile(), instruments_->receiver_profile(), recipe,
-                                  &kit_);
+                                  &kit_, sw ? &sw->profile() : nullptr);
 }
 
 std::vector<std::string> Station::standards() const {

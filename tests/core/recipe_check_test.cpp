@@ -203,6 +203,22 @@ TEST(RecipeCheck, MismatchStandardsNeedAKitThatHasThem) {
   EXPECT_FALSE(has_errors(f)) << dump(f);
   r.calibration.use_mismatch = false;   // a kit with them does not oblige a recipe to use them
   EXPECT_FALSE(has_errors(check_recipe(r, station())));
+
+  // A calibration switch needs a position for each standard the recipe calibrates with.
+  r.calibration.use_mismatch = true;
+  st.has_switch = true;
+  st.switch_profile = "bench-switch";
+  st.switch_positions = {"OPEN", "SHORT", "LOAD", "DUT"};
+  f = check_recipe(r, st);
+  e = find(f, "error", "no position for the MISMATCH-A standard");
+  ASSERT_NE(e, nullptr) << dump(f);
+  EXPECT_EQ(e->key, "/calibration/use_mismatch");
+  EXPECT_NE(e->message.find("profile bench-switch"), std::string::npos) << e->message;
+  st.switch_positions.insert("MISMATCH-A");
+  f = check_recipe(r, st);
+  EXPECT_FALSE(has_errors(f)) << dump(f);
+  st.switch_positions.erase("SHORT");
+  EXPECT_NE(find(check_recipe(r, st), "error", "no position for the SHORT standard"), nullptr);
 }
 
 }  // namespace echoline::core
