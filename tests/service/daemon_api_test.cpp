@@ -418,6 +418,52 @@ TEST(DaemonMismatch, CalibrationMeasuresTheMismatchStandardsAndStoresTheirTraces
   EXPECT_GT(most_apart, 0.5);
 }
 
+// With the simulator's calibration switch in the station the daemon selects every standard
+// itself (sim-switch positions 5 and 6 are the mismatch standards): no prompt, five traces.
+TEST(DaemonMismatch, CalibrationSwitchSelectsTheMismatchStandards) {
+  testing::TempDir dir("echoline-daemon-mm-switch");
+  Sim sim("tiny-lot.jsonc");
+  auto config = write_station_config(dir.path(), sim, "whip915-mm.jsonc");
+  json cfg = json::parse(std::ifstream(config));
+  cfg["instruments"].push_back({{"role", "switch"}, {"name", "calswitch"}, {"address", sim.endpoint("switch")},
+                                {"profile", (testing::source_dir() / "config/instruments/sim-switch.jsonc").string()}});
+  std::ofstream(config) << cfg.dump(2) << "\n";
+  std::optional<Daemon> daemon;
+  daemon.emplace(config);
+  Api api = Api::connect(*daemon);
+  ASSERT_TRUE(api.call("cal.start")["ok"].get<bool>());
+  json last;
+  int prompts = 0;
+  for (;;) {
+    json e = api.next_event();
+    if (e["event"] == "prompt") ++prompts;
+    if (e["event"] == "result" || e["event"] == "error") {
+      last = e;
+      break;
+    }
+  }
+  EXPECT_EQ(prompts, 0);
+  ASSERT_EQ(last["event"], "result") << last.dump();
+  EXPECT_TRUE(last["calibration"]["valid"].get<bool>()) << last.dump();
+  ASSERT_EQ(daemon->process().terminate(30s), 0);
+  daemon.reset();
+  auto store = store::RunStore::open_read_only(dir / "data" / "e2e-bench.sqlite");
+  ASSERT_TRUE(store.ok()) << store.error().message;
+  auto cal = (*store)->latest_calibration();
+  ASSERT_TRUE(cal.ok() && cal->has_value());
+  const auto& traces = (**cal).traces;
+  const auto& open = traces.at("OPEN");
+  for (const char* name : {"MISMATCH-A", "MISMATCH-B"}) {
+    // 20 dB below the OPEN on average (|Gamma| 0.1): the switch connected the mismatch, not
+    // another standard or the empty DUT socket.
+    const auto& m = traces.at(name);
+    ASSERT_EQ(m.size(), open.size()) << name;
+    double below = 0;
+    for (std::size_t i = 0; i < m.size(); ++i) below += (open[i].raw_dbm - m[i].raw_dbm) / static_cast<double>(m.size());
+    EXPECT_NEAR(below, 20.0, 1.5) << name;
+  }
+}
+
 // A station whose kit has no mismatch standards refuses a recipe that asks for them, naming the
 // recipe key and the kit file: at recipe.select, and at start-up (exit 2, a configuration error).
 TEST(DaemonMismatch, RecipeAskingForMismatchIsRefusedWhenTheKitHasNone) {
