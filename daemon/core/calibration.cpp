@@ -9,6 +9,7 @@
 
 #include <fmt/format.h>
 
+#include "daemon/core/directivity_vector.hpp"
 #include "daemon/core/frequency_text.hpp"
 #include "daemon/core/uncertainty.hpp"
 
@@ -194,6 +195,20 @@ CalibrationRecord build_calibration(const Recipe& recipe, const std::map<std::st
         "with the kit's LOAD residual and the reading noise the directivity bound is only {:.1f} dB at {}: no return "
         "loss can be verified; use a better coupler or LOAD",
         -20 * std::log10(worst_bound), format_mhz(plan[worst_at])));
+  }
+  // The directivity vector from the first two known mismatches measured (MEASUREMENT.md 6.5).
+  if (rec.errors.empty() && rec.budget.mismatch.size() >= 2) {
+    const MismatchStandard& ma = rec.budget.mismatch[0];
+    const MismatchStandard& mb = rec.budget.mismatch[1];
+    const double conn = rec.budget.coverage_factor * rec.budget.connection;
+    MismatchModels models;
+    models.tolerance_a = mismatch_tolerance(ma.magnitude, ma.magnitude_tolerance, ma.phase_tolerance_rad, conn);
+    models.tolerance_b = mismatch_tolerance(mb.magnitude, mb.magnitude_tolerance, mb.phase_tolerance_rad, conn);
+    for (double f : plan) {
+      models.gamma_a.push_back(mismatch_gamma(ma, f));
+      models.gamma_b.push_back(mismatch_gamma(mb, f));
+    }
+    add_directivity_vector(rec.budget, rec, station.kit, traces.at(ma.name), traces.at(mb.name), models, rec.warnings);
   }
   rec.valid = rec.errors.empty();
   return rec;

@@ -188,12 +188,14 @@ TEST(DirectivityVector, InconsistentReadingsAreRefused) {
   EXPECT_FALSE(e.problem.empty());
 }
 
-// The whole chain on a calibration: OPEN/SHORT/LOAD through build_calibration (its budget gives
-// the reference error and the LOAD's |d|), then the two mismatches, on benches whose leakage and
-// source match turn with frequency; 35 and 25 dB couplers, 25 dB test-port match.
+// The whole chain through build_calibration: OPEN/SHORT/LOAD and the kit's two mismatches (its
+// budget gives the reference error and the LOAD's |d|), on benches whose leakage and source match
+// turn with frequency; 35 and 25 dB couplers, 25 dB test-port match.
 TEST(DirectivityVector, FromACalibrationHoldsTheTrueVector) {
   namespace tb = testing_bench;
-  const Recipe recipe = tb::whip_recipe();
+  Recipe recipe = tb::whip_recipe();
+  recipe.calibration.use_mismatch = true;
+  const Kit kit;
   for (double directivity : {35.0, 25.0}) {
     for (double delay : {1e-9, 5e-9}) {
       tb::Bench bench;
@@ -202,38 +204,41 @@ TEST(DirectivityVector, FromACalibrationHoldsTheTrueVector) {
       bench.delay_s = delay;
       StationCapability st = tb::station();
       st.source_match_db = 25;
-      const CalibrationRecord cal = build_calibration(recipe, tb::standards(recipe, bench), st, "cal-mm", "2026-12-03T08:00:00Z");
-      ASSERT_TRUE(cal.valid);
-      const std::vector<double> plan = plan_frequencies(recipe);
-      MismatchModels models;
-      const Kit kit;
-      models.tolerance_a = models.tolerance_b = mismatch_tolerance(kit.magnitude, kit.magnitude_tolerance, kit.phase_tolerance, 0);
-      for (double f : plan) {
-        models.gamma_a.emplace_back(kit.magnitude, 0);
-        models.gamma_b.push_back(std::polar(kit.magnitude, -2 * 2 * kPi * f * kit.offset_b_s));
-      }
-      // The true standards at the edge of their tolerance.
-      const auto a = tb::measure(recipe, bench, [&](double) { return cd(kit.magnitude + kit.magnitude_tolerance, 0); });
-      const auto b = tb::measure(recipe, bench, [&](double f) {
+      st.kit.mismatch = {MismatchStandard{"MISMATCH-A", kit.magnitude, kit.magnitude_tolerance, 0, 0, kit.phase_tolerance},
+                         MismatchStandard{"MISMATCH-B", kit.magnitude, kit.magnitude_tolerance, 0, kit.offset_b_s,
+                                          kit.phase_tolerance}};
+      auto traces = tb::standards(recipe, bench);
+      // The true standards at the corners of their tolerance.
+      traces["MISMATCH-A"] = tb::measure(recipe, bench, [&](double) { return cd(kit.magnitude + kit.magnitude_tolerance, 0); });
+      traces["MISMATCH-B"] = tb::measure(recipe, bench, [&](double f) {
         return std::polar(kit.magnitude - kit.magnitude_tolerance, kit.phase_tolerance - 2 * 2 * kPi * f * kit.offset_b_s);
       });
-      UncertaintyBudget budget = cal.budget;
-      std::vector<std::string> warnings;
-      add_directivity_vector(budget, cal, st.kit, a, b, models, warnings);
+      const CalibrationRecord cal = build_calibration(recipe, traces, st, "cal-mm", "2026-12-03T08:00:00Z");
+      ASSERT_TRUE(cal.valid);
+      const UncertaintyBudget& budget = cal.budget;
       ASSERT_TRUE(budget.has_directivity_vector());
+      const std::vector<double> plan = plan_frequencies(recipe);
       std::vector<double> bounds;
       for (std::size_t i = 0; i < plan.size(); ++i) {
         // The bench's leakage relative to T (synthetic_bench.hpp: reading_dbm).
         const cd d = std::polar(std::pow(10.0, -directivity / 20), 2 * kPi * plan[i] * delay);
         const cd est(budget.directivity_re[i], budget.directivity_im[i]);
         EXPECT_LE(std::abs(est - d), budget.directivity_vector_bound[i]) << directivity << " dB, " << plan[i];
+        EXPECT_LE(budget.directivity_vector_systematic[i], budget.directivity_vector_bound[i]);
         bounds.push_back(budget.directivity_vector_bound[i]);
       }
       std::printf("calibration chain, %.0f dB coupler, %.0f ns: median bound %.4f against |d| %.4f (%zu warnings)\n",
-                  directivity, delay * 1e9, median(bounds), std::pow(10.0, -directivity / 20), warnings.size());
+                  directivity, delay * 1e9, median(bounds), std::pow(10.0, -directivity / 20), cal.warnings.size());
       EXPECT_LT(median(bounds), 0.015);
     }
   }
+}
+
+TEST(DirectivityVector, ACalibrationWithoutMismatchesHasNone) {
+  namespace tb = testing_bench;
+  const CalibrationRecord cal = tb::calibrate(tb::whip_recipe());
+  ASSERT_TRUE(cal.valid);
+  EXPECT_FALSE(cal.budget.has_directivity_vector());
 }
 
 }  // namespace
