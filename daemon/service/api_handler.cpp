@@ -450,20 +450,9 @@ void ApiHandler::call_recipe_select(const std::shared_ptr<ClientLink>& link, con
 }
 
 void ApiHandler::call_lot_summary(const std::shared_ptr<ClientLink>& link, const Request& req) {
-  std::string lot = req.args.value("lot", "");
-  if (lot.empty()) {
-    auto latest = station_.store().latest_lot();
-    if (!latest) return fail(link, req.id, "storage", latest.error().message);
-    lot = latest->value_or("");
-  }
-  if (lot.empty()) return reply(link, req.id, lot_summary_json("", {}, std::nullopt, station_.recipe()->limits));
-  auto runs = station_.store().lot_runs(lot, false);
-  if (!runs) return fail(link, req.id, "storage", runs.error().message);
-  auto yields = station_.store().yield_by(store::YieldGroup::lot, lot);
-  if (!yields) return fail(link, req.id, "storage", yields.error().message);
-  std::optional<store::YieldSummary> y;
-  if (!yields->empty()) y = yields->front();
-  reply(link, req.id, lot_summary_json(lot, *runs, y, station_.recipe()->limits));
+  auto summary = lot_summary(station_.store(), req.args.value("lot", ""), station_.recipe()->limits);
+  if (!summary) return fail(link, req.id, "storage", summary.error().message);
+  reply(link, req.id, std::move(summary.value()));
 }
 
 }  // namespace echoline::service

@@ -86,4 +86,20 @@ json lot_summary_json(const std::string& lot, const std::vector<core::RunResult>
           {"last_runs", last}};
 }
 
+Result<json> lot_summary(store::RunStore& store, std::string lot, const core::Limits& limits) {
+  if (lot.empty()) {
+    auto latest = store.latest_lot();
+    if (!latest) return latest.error();
+    lot = latest->value_or("");
+  }
+  if (lot.empty()) return lot_summary_json("", {}, std::nullopt, limits);
+  auto runs = store.lot_runs(lot, false);
+  if (!runs) return runs.error();
+  auto yields = store.yield_by(store::YieldGroup::lot, lot);
+  if (!yields) return yields.error();
+  std::optional<store::YieldSummary> y;
+  if (!yields->empty()) y = yields->front();
+  return lot_summary_json(lot, *runs, y, limits);
+}
+
 }  // namespace echoline::service

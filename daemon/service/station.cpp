@@ -174,6 +174,11 @@ Station::Station(drivers::StationConfig config) : config_(std::move(config)) {
                  store::kStoppedUnexpectedlyReason);
   }
 
+  // This station's yield for /metrics: counted once here, then kept as runs commit.
+  if (auto yield = store_->live_yield(store::YieldGroup::station, config_.station); !yield) {
+    throw std::runtime_error(yield.error().message);
+  }
+
   if (!config_.central_settings.empty()) {
     auto settings = central::load_settings(config_.central_settings);
     if (!settings) throw std::runtime_error(settings.error().message);

@@ -81,7 +81,7 @@ Result<OutboxStatus> RunStore::outbox_status() {
   std::lock_guard lock(impl_->mutex);
   OutboxStatus s;
   auto st = impl_->db.prepare(
-      "SELECT (SELECT count(*) FROM outbox WHERE refused IS NULL), (SELECT count(*) FROM outbox WHERE refused IS NOT NULL), "
+      "SELECT (SELECT waiting FROM outbox_counts WHERE id = 1), (SELECT refused FROM outbox_counts WHERE id = 1), "
       "coalesce((SELECT run_id FROM outbox WHERE refused IS NULL ORDER BY seq LIMIT 1), ''), "
       "coalesce((SELECT committed_utc FROM outbox WHERE refused IS NULL ORDER BY seq LIMIT 1), ''), "
       "coalesce(last_forward_utc, ''), coalesce(last_run_id, ''), forwarded_runs FROM forwarding WHERE id = 1");

@@ -33,6 +33,10 @@ constexpr std::string_view kRunColumns =
     "trim_text, total_s, sweep_s, analysis_s, points_count, resonance_low_hz, resonance_high_hz, software, "
     "resonance_interval";
 
+const char* yield_column(YieldGroup group) {
+  return group == YieldGroup::lot ? "lot" : group == YieldGroup::recipe ? "recipe_name" : "station";
+}
+
 core::Verdict verdict_from(std::string_view s) {
   if (s == "pass") return core::Verdict::pass;
   if (s == "fail") return core::Verdict::fail;
@@ -192,7 +196,7 @@ Status RunStore::Impl::store_run(const core::RunResult& run, bool in_progress) {
   if (run.run_id.empty()) return make_error(ErrorKind::invalid_argument, "saving run: run_id is empty");
   const std::string doing = fmt::format("{} run '{}' of serial '{}'", in_progress ? "recording the start of" : "saving",
                                         run.run_id, run.serial);
-  return transaction(doing, [&]() -> Status {
+  auto write = [&]() -> Status {
     // A finished run replaces its own write-ahead record, keeping its place in insertion order.
     std::optional<long long> replaced_seq;
     {
@@ -292,7 +296,49 @@ Status RunStore::Impl::store_run(const core::RunResult& run, bool in_progress) {
     // A finished run is committed: it waits in the outbox until the central database has it.
     if (!in_progress) return enqueue(run.run_id);
     return Status::success();
+  };
+  std::vector<std::optional<YieldSummary>> before(1), after(1);
+  Status s = transaction(doing, [&]() -> Status {
+    auto b = live_part(run.serial);
+    if (!b.ok()) return b.error();
+    before[0] = std::move(b.value());
+    if (Status w = write(); !w.ok()) return w;
+    auto a = live_part(run.serial);
+    if (!a.ok()) return a.error();
+    after[0] = std::move(a.value());
+    return Status::success();
   });
+  if (s.ok()) apply_live(before, after);
+  return s;
+}
+
+Result<std::optional<YieldSummary>> RunStore::Impl::live_part(std::string_view serial) {
+  if (!live) return std::optional<YieldSummary>{};
+  auto st = db.prepare(fmt::format("SELECT serial, verdict, failure_class FROM runs WHERE serial = ?1 AND {} = ?2 "
+                                   "ORDER BY started_utc, seq",
+                                   yield_column(live->group)));
+  if (!st.ok()) return st.error();
+  st->bind(1, serial).bind(2, live->value);
+  std::vector<RunOutcome> rows;
+  for (;;) {
+    auto r = st->step();
+    if (!r.ok()) return fail(r.error(), "counting a serial's runs for the yield");
+    if (!*r) break;
+    rows.push_back(RunOutcome{live->value, st->text(0), st->text(1), st->text(2)});
+  }
+  auto parts = summarize_yield(rows);
+  return std::optional<YieldSummary>(parts.empty() ? YieldSummary{} : std::move(parts.front()));
+}
+
+void RunStore::Impl::apply_live(const std::vector<std::optional<YieldSummary>>& before,
+                                const std::vector<std::optional<YieldSummary>>& after) {
+  if (!live) return;
+  for (const auto& b : before) {
+    if (b) add_yield(live->yield, *b, -1);
+  }
+  for (const auto& a : after) {
+    if (a) add_yield(live->yield, *a, +1);
+  }
 }
 
 Result<std::vector<std::string>> RunStore::Impl::in_progress_ids() {
@@ -316,11 +362,28 @@ Result<std::vector<std::string>> RunStore::runs_in_progress() {
 Result<std::vector<std::string>> RunStore::finalize_interrupted(std::string_view reason, std::string_view ended_utc) {
   std::lock_guard lock(impl_->mutex);
   std::vector<std::string> ids;
+  std::vector<std::optional<YieldSummary>> before, after;
   Status s = impl_->transaction("finalizing runs left in progress", [&]() -> Status {
     auto found = impl_->in_progress_ids();
     if (!found.ok()) return found.error();
     ids = std::move(found.value());
     if (ids.empty()) return Status::success();
+    std::vector<std::string> serials;
+    {
+      auto q = impl_->db.prepare("SELECT DISTINCT serial FROM runs WHERE in_progress = 1");
+      if (!q.ok()) return q.error();
+      for (;;) {
+        auto row = q->step();
+        if (!row.ok()) return impl_->fail(row.error(), "finalizing runs left in progress");
+        if (!*row) break;
+        serials.push_back(q->text(0));
+      }
+    }
+    for (const auto& serial : serials) {
+      auto b = impl_->live_part(serial);
+      if (!b.ok()) return b.error();
+      before.push_back(std::move(b.value()));
+    }
     auto st = impl_->db.prepare(
         "UPDATE runs SET in_progress = 0, verdict = 'aborted', failure_class = '', reason = ?1, ended_utc = ?2, "
         "points_count = (SELECT count(*) FROM readings WHERE readings.run_id = runs.run_id) WHERE in_progress = 1");
@@ -330,9 +393,15 @@ Result<std::vector<std::string>> RunStore::finalize_interrupted(std::string_view
     for (const auto& id : ids) {
       if (auto q = impl_->enqueue(id); !q.ok()) return q;
     }
+    for (const auto& serial : serials) {
+      auto a = impl_->live_part(serial);
+      if (!a.ok()) return a.error();
+      after.push_back(std::move(a.value()));
+    }
     return Status::success();
   });
   if (!s.ok()) return s.error();
+  impl_->apply_live(before, after);
   return ids;
 }
 
@@ -628,17 +697,35 @@ Result<std::optional<core::CalibrationRecord>> RunStore::load_calibration(std::s
 
 Result<std::vector<YieldSummary>> RunStore::yield_by(YieldGroup group, std::string_view only) {
   std::lock_guard lock(impl_->mutex);
-  const char* column = group == YieldGroup::lot ? "lot" : group == YieldGroup::recipe ? "recipe_name" : "station";
+  return impl_->count_yield(group, only);
+}
+
+Result<YieldSummary> RunStore::live_yield(YieldGroup group, std::string_view value) {
+  std::lock_guard lock(impl_->mutex);
+  if (value.empty()) return make_error(ErrorKind::invalid_argument, "live yield: no group value given");
+  if (!impl_->live || impl_->live->group != group || impl_->live->value != value) {
+    impl_->live.reset();
+    auto counted = impl_->count_yield(group, value);
+    if (!counted.ok()) return counted.error();
+    impl_->live = Impl::LiveYield{group, std::string(value), counted->empty() ? YieldSummary{} : counted->front()};
+  }
+  if (impl_->live->yield.runs == 0) return YieldSummary{};
+  YieldSummary y = impl_->live->yield;
+  y.group = impl_->live->value;
+  return y;
+}
+
+Result<std::vector<YieldSummary>> RunStore::Impl::count_yield(YieldGroup group, std::string_view only) {
+  const char* column = yield_column(group);
   const std::string where = only.empty() ? std::string() : fmt::format("WHERE {} = ?1", column);
-  auto st = impl_->db.prepare(fmt::format("SELECT {0}, serial, verdict, failure_class FROM runs {1} "
-                                          "ORDER BY {0}, started_utc, seq",
-                                          column, where));
+  auto st = db.prepare(
+      fmt::format("SELECT {0}, serial, verdict, failure_class FROM runs {1} ORDER BY {0}, started_utc, seq", column, where));
   if (!st.ok()) return st.error();
   if (!only.empty()) st->bind(1, only);
   std::vector<RunOutcome> rows;
   for (;;) {
     auto r = st->step();
-    if (!r.ok()) return impl_->fail(r.error(), "computing yield");
+    if (!r.ok()) return fail(r.error(), "computing yield");
     if (!*r) break;
     rows.push_back(RunOutcome{st->text(0), st->text(1), st->text(2), st->text(3)});
   }

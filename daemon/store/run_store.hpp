@@ -22,7 +22,7 @@ namespace echoline::store {
 
 // Schema version this code writes (PRAGMA user_version). Older files are migrated on open;
 // newer files are refused (ErrorKind::storage, message names both versions).
-inline constexpr int kSchemaVersion = 8;
+inline constexpr int kSchemaVersion = 9;
 
 // The reason a run carries while it is in progress, and the reason it gets when a starting daemon
 // finds it still in progress (the daemon that ran it was killed or crashed).
@@ -153,8 +153,17 @@ class RunStore : public RunReader {
   Result<std::optional<core::CalibrationRecord>> latest_calibration();
   Result<std::optional<core::CalibrationRecord>> load_calibration(std::string_view id) override;
 
-  // Yield per group; `only` restricts to one group value when non-empty.
+  // Yield per group; `only` restricts to one group value when non-empty. Reads every run of the
+  // groups asked for.
   Result<std::vector<YieldSummary>> yield_by(YieldGroup group, std::string_view only = {});
+  // One group's yield kept in memory (echolined: its own station's, for /metrics). The first call
+  // for a group counts it from the store, once; later calls cost O(1), because every write through
+  // this RunStore (save_run, begin_run, finalize_interrupted) adjusts it by the runs of the serials
+  // it touched, inside its transaction. Same value as yield_by(group, value) (an empty summary when
+  // the group has no run), provided no other connection writes runs to the file (in echolined none
+  // does: the forwarder's connection writes only the outbox). One group at a time: asking for
+  // another counts that one instead.
+  Result<YieldSummary> live_yield(YieldGroup group, std::string_view value);
 
   // --- forwarding (outbox.cpp) ---
   // The station's instance id: 16 hex digits drawn when the store was made (schema 8). Part of

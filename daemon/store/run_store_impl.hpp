@@ -15,6 +15,7 @@
 
 #include "daemon/store/run_store.hpp"
 #include "daemon/store/sqlite_db.hpp"
+#include "daemon/store/yield.hpp"
 
 namespace echoline::store {
 
@@ -27,6 +28,13 @@ struct RunStore::Impl {
   // run_store.cpp), in ms: in echolined the only other writer is the forwarder's connection.
   double lock_wait_ms = 0;
   std::chrono::steady_clock::time_point lock_wait_started;
+  // The group RunStore::live_yield keeps, and its yield as of the last commit.
+  struct LiveYield {
+    YieldGroup group;
+    std::string value;
+    YieldSummary yield;
+  };
+  std::optional<LiveYield> live;
 
   // SQLite's busy handler: waits in 1 ms steps up to the busy timeout and adds the time it waited
   // to lock_wait_ms (what another connection's write lock cost this one).
@@ -60,7 +68,16 @@ struct RunStore::Impl {
 
   // Queues a committed run for forwarding (outbox.cpp); inside the caller's transaction.
   Status enqueue(std::string_view run_id);
+  // The live group's yield over one serial's runs (nullopt when no group is live). Called inside
+  // a write's transaction before and after it changes that serial's runs: the difference is what
+  // the write adds to `live`.
+  Result<std::optional<YieldSummary>> live_part(std::string_view serial);
+  // Adds (after - before) of every touched serial to `live`, once the write has committed.
+  void apply_live(const std::vector<std::optional<YieldSummary>>& before,
+                  const std::vector<std::optional<YieldSummary>>& after);
   Status store_run(const core::RunResult& run, bool in_progress);
+  // RunStore::yield_by without the lock.
+  Result<std::vector<YieldSummary>> count_yield(YieldGroup group, std::string_view only);
   Result<std::vector<std::string>> in_progress_ids();
   Result<std::vector<core::RunResult>> select_runs(std::string_view where, const std::vector<std::string>& params,
                                                    bool with_points, std::string_view doing);

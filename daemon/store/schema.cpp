@@ -168,6 +168,31 @@ CREATE TABLE forwarding (
 INSERT INTO forwarding(id) VALUES (1);
 )sql";
 
+// Outbox counts kept by triggers, so a status or /metrics call reads two numbers instead of
+// counting an outbox that, on a station without a central database, holds every run ever stored.
+// Triggers run on every connection (the forwarder's too), so the counts follow every change.
+constexpr std::string_view kVersion9 = R"sql(
+CREATE TABLE outbox_counts (
+  id INTEGER PRIMARY KEY CHECK (id = 1),
+  waiting INTEGER NOT NULL,
+  refused INTEGER NOT NULL
+);
+INSERT INTO outbox_counts(id, waiting, refused) VALUES (1,
+  (SELECT count(*) FROM outbox WHERE refused IS NULL), (SELECT count(*) FROM outbox WHERE refused IS NOT NULL));
+CREATE TRIGGER outbox_counts_insert AFTER INSERT ON outbox BEGIN
+  UPDATE outbox_counts SET waiting = waiting + (NEW.refused IS NULL), refused = refused + (NEW.refused IS NOT NULL)
+    WHERE id = 1;
+END;
+CREATE TRIGGER outbox_counts_delete AFTER DELETE ON outbox BEGIN
+  UPDATE outbox_counts SET waiting = waiting - (OLD.refused IS NULL), refused = refused - (OLD.refused IS NOT NULL)
+    WHERE id = 1;
+END;
+CREATE TRIGGER outbox_counts_update AFTER UPDATE OF refused ON outbox BEGIN
+  UPDATE outbox_counts SET waiting = waiting - (OLD.refused IS NULL) + (NEW.refused IS NULL),
+    refused = refused - (OLD.refused IS NOT NULL) + (NEW.refused IS NOT NULL) WHERE id = 1;
+END;
+)sql";
+
 }  // namespace
 
 const std::vector<Migration>& migrations() {
@@ -182,6 +207,7 @@ const std::vector<Migration>& migrations() {
       {7, "write-ahead runs: a run in progress is on record before RF goes on", kVersion7},
       {8, "station instance id, outbox of runs not yet forwarded to the central database, last forward",
        kVersion8},
+      {9, "outbox counts kept by triggers (status and /metrics read them instead of counting)", kVersion9},
   };
   return steps;
 }

@@ -42,4 +42,19 @@ std::vector<YieldSummary> summarize_yield(const std::vector<RunOutcome>& rows) {
   return out;
 }
 
+void add_yield(YieldSummary& total, const YieldSummary& part, int sign) {
+  total.runs += sign * part.runs;
+  for (const auto& [verdict, n] : part.runs_by_verdict) total.runs_by_verdict[verdict] += sign * n;
+  for (const auto& [cls, n] : part.runs_by_class) {
+    auto it = total.runs_by_class.try_emplace(cls, 0).first;
+    it->second += sign * n;
+    if (it->second == 0) total.runs_by_class.erase(it);
+  }
+  total.units_tested += sign * part.units_tested;
+  total.units_first_pass += sign * part.units_first_pass;
+  total.units_final_pass += sign * part.units_final_pass;
+  total.first_pass_yield = total.units_tested > 0 ? static_cast<double>(total.units_first_pass) / total.units_tested : 0;
+  total.final_yield = total.units_tested > 0 ? static_cast<double>(total.units_final_pass) / total.units_tested : 0;
+}
+
 }  // namespace echoline::store

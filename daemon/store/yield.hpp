@@ -20,4 +20,10 @@ struct RunOutcome {
 // One summary per group, in order of first appearance. Definitions in run_store.hpp.
 std::vector<YieldSummary> summarize_yield(const std::vector<RunOutcome>& rows);
 
+// Adds `sign` (+1 or -1) times `part` to `total`: runs, runs by verdict and class, units tested,
+// first and final pass; then the two yields again. A class whose count falls to 0 is removed, as
+// summarize_yield never lists one. Parts must be whole serials (every run of a serial in a group),
+// since units count once per serial.
+void add_yield(YieldSummary& total, const YieldSummary& part, int sign);
+
 }  // namespace echoline::store

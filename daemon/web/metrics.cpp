@@ -62,6 +62,10 @@ CycleSnapshot CycleHistogram::snapshot() const {
   return s_;
 }
 
+Result<store::YieldSummary> station_yield(store::RunStore& store, const std::string& station) {
+  return store.live_yield(store::YieldGroup::station, station);
+}
+
 std::string render_openmetrics(const MetricsInput& in) {
   std::string o;
   const std::string st = escape_label(in.station);

@@ -39,11 +39,15 @@ class CycleHistogram {
 
 struct MetricsInput {
   std::string station;
-  store::YieldSummary yield;     // this station's runs (store::RunStore::yield_by station)
+  store::YieldSummary yield;     // this station's runs (station_yield)
   nlohmann::json status;         // the API's status result (instruments, calibration, forwarding, busy)
   CycleSnapshot cycles;
   double now_unix_s = 0;
 };
+
+// This station's yield for /metrics (every run the store holds under `station`): counted once,
+// then kept by the store as runs commit (store::RunStore::live_yield), so a scrape costs O(1).
+Result<store::YieldSummary> station_yield(store::RunStore& store, const std::string& station);
 
 // The exposition, ending in "# EOF\n". Media type: kOpenMetricsType.
 std::string render_openmetrics(const MetricsInput& in);

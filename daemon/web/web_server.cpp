@@ -329,9 +329,9 @@ void WebServer::Impl::metrics(const httplib::Request& req, httplib::Response& re
   }
   MetricsInput in;
   in.station = station.config().station;
-  auto yields = station.store().yield_by(store::YieldGroup::station, in.station);
-  if (!yields) return refuse(res, 500, "storage", yields.error().message);
-  if (!yields->empty()) in.yield = yields->front();
+  auto yield = station_yield(station.store(), in.station);
+  if (!yield) return refuse(res, 500, "storage", yield.error().message);
+  in.yield = std::move(yield.value());
   auto s = std::make_shared<Session>(true);   // an internal operator connection for the status call
   json status = json::parse(call(s, R"({"v":1,"id":0,"call":"status"})"), nullptr, false);
   if (status.is_object() && status.value("ok", false)) in.status = status["result"];

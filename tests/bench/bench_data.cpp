@@ -1,7 +1,10 @@
 // Invented benchmark data from the one-port error model (daemon/core/MEASUREMENT.md §1).
 #include "tests/bench/bench_data.hpp"
 
+#include <unistd.h>
+
 #include <cmath>
+#include <cstdlib>
 #include <complex>
 #include <numbers>
 
@@ -44,6 +47,19 @@ std::vector<core::Reading> measure(const core::Recipe& recipe, auto gamma) {
 }
 
 }  // namespace
+
+std::filesystem::path temp_folder() {
+  static const std::filesystem::path dir = [] {
+    auto d = std::filesystem::temp_directory_path() / fmt::format("echoline-bench-{}", ::getpid());
+    std::filesystem::create_directories(d);
+    std::atexit([] {
+      std::error_code ec;
+      std::filesystem::remove_all(std::filesystem::temp_directory_path() / fmt::format("echoline-bench-{}", ::getpid()), ec);
+    });
+    return d;
+  }();
+  return dir;
+}
 
 core::Recipe whip_recipe(int points) {
   core::Recipe r = core::load_recipe(std::filesystem::path(ECHOLINE_SOURCE_DIR) / "config/recipes/whip915.jsonc");

@@ -14,6 +14,9 @@
 
 namespace echoline::bench {
 
+// A temporary folder for the benchmarks' store files, made once, removed when the program exits.
+std::filesystem::path temp_folder();
+
 // config/recipes/whip915.jsonc with its one segment resized to `points`.
 core::Recipe whip_recipe(int points);
 core::StationCapability station_capability();

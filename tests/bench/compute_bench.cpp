@@ -2,8 +2,6 @@
 // (201 and 1601 points; with and without the dip fit, and the fit alone), one synchronous store
 // commit per 201-point run, and the lot report over 10 000 runs. Prints numbers only (Google Benchmark); asserts nothing about time.
 // Single-threaded. Store files live in a temp folder removed at exit.
-#include <unistd.h>
-
 #include <cstdlib>
 #include <filesystem>
 #include <memory>
@@ -25,16 +23,6 @@
 namespace {
 
 using namespace echoline;
-
-std::filesystem::path temp_folder() {
-  static const std::filesystem::path dir = [] {
-    auto d = std::filesystem::temp_directory_path() / fmt::format("echoline-bench-{}", ::getpid());
-    std::filesystem::create_directories(d);
-    std::atexit([] { std::error_code ec; std::filesystem::remove_all(std::filesystem::temp_directory_path() / fmt::format("echoline-bench-{}", ::getpid()), ec); });
-    return d;
-  }();
-  return dir;
-}
 
 core::CalibrationRecord calibrate(const core::Recipe& recipe) {
   return core::build_calibration(recipe, bench::standard_traces(recipe), bench::station_capability(), "cal-bench",
@@ -106,7 +94,7 @@ void BM_StoreCommitRun(benchmark::State& state) {
   const core::Recipe recipe = bench::whip_recipe(201);
   const auto cal = calibrate(recipe);
   static int file_counter = 0;
-  auto store = store::RunStore::open(temp_folder() / fmt::format("commit-{}.sqlite", ++file_counter));
+  auto store = store::RunStore::open(bench::temp_folder() / fmt::format("commit-{}.sqlite", ++file_counter));
   if (!store) {
     state.SkipWithError(store.error().message.c_str());
     return;
@@ -154,7 +142,7 @@ BENCHMARK(BM_LotReportBuild)->Unit(benchmark::kMillisecond)->Iterations(3);
 // Loading those 10 000 runs with their points back from the store (what report.lot does first).
 void BM_LotRunsLoad(benchmark::State& state) {
   const auto& runs = lot_runs_10k();
-  auto store = store::RunStore::open(temp_folder() / "lot10k.sqlite");
+  auto store = store::RunStore::open(bench::temp_folder() / "lot10k.sqlite");
   if (!store) {
     state.SkipWithError(store.error().message.c_str());
     return;

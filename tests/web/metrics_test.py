@@ -6,9 +6,54 @@ import unittest
 
 from prometheus_client.openmetrics.parser import text_string_to_metric_families
 
-from station_fixture import Station, calibrate_over_api
+from station_fixture import Station, calibrate_over_api, test_over_api
 
 UNITS = 6
+VERDICTS = ("pass", "fail", "inconclusive", "aborted")
+CLASSES = ("no-response", "tuned-low", "tuned-high", "shallow", "out-of-mask")
+
+
+def scrape_families(testcase, station):
+    status, headers, text = station.http("/metrics")
+    testcase.assertEqual(status, 200)
+    # OpenMetrics 1.0 media type (the specification's "Overall Structure").
+    testcase.assertTrue(headers["Content-Type"].startswith("application/openmetrics-text; version=1.0.0"))
+    testcase.assertTrue(text.endswith("# EOF\n"))
+    return {f.name: f for f in text_string_to_metric_families(text)}
+
+
+def yield_counts(families):
+    """The store-derived families of one scrape, as plain numbers."""
+    counts = {}
+    for s in families["echoline_runs"].samples:
+        if s.name == "echoline_runs_total":
+            counts["runs/" + s.labels["verdict"]] = s.value
+    for s in families["echoline_failed_runs"].samples:
+        if s.name == "echoline_failed_runs_total":
+            counts["class/" + s.labels["failure_class"]] = s.value
+    for name in ("echoline_units_tested", "echoline_units_final_pass", "echoline_units_first_pass"):
+        counts[name] = families[name].samples[0].value
+    return counts
+
+
+def store_counts(db):
+    """The same numbers computed here from the store file, by the README's definitions: runs by
+    verdict and class (retests and aborted runs included); a unit is tested once it has a
+    finished (not aborted) run; first and final pass by its first and latest finished run."""
+    counts = {"runs/" + v: 0 for v in VERDICTS}
+    counts.update({"class/" + c: 0 for c in CLASSES})
+    first, last = {}, {}
+    for serial, verdict, cls in db.execute("SELECT serial, verdict, failure_class FROM runs ORDER BY started_utc, seq"):
+        counts["runs/" + verdict] += 1
+        if cls:
+            counts["class/" + cls] += 1
+        if verdict != "aborted":
+            first.setdefault(serial, verdict)
+            last[serial] = verdict
+    counts["echoline_units_tested"] = len(first)
+    counts["echoline_units_final_pass"] = sum(v == "pass" for v in last.values())
+    counts["echoline_units_first_pass"] = sum(v == "pass" for v in first.values())
+    return counts
 
 
 class MetricsTest(unittest.TestCase):
@@ -31,12 +76,7 @@ class MetricsTest(unittest.TestCase):
         cls.station.close()
 
     def scrape(self):
-        status, headers, text = self.station.http("/metrics")
-        self.assertEqual(status, 200)
-        # OpenMetrics 1.0 media type (the specification's "Overall Structure").
-        self.assertTrue(headers["Content-Type"].startswith("application/openmetrics-text; version=1.0.0"))
-        self.assertTrue(text.endswith("# EOF\n"))
-        return {f.name: f for f in text_string_to_metric_families(text)}
+        return scrape_families(self, self.station)
 
     def test_runs_by_verdict_match_the_store(self):
         families = self.scrape()
@@ -137,6 +177,42 @@ class MetricsTest(unittest.TestCase):
         self.assertEqual(summary["lot"], "LOT-METRICS")
         self.assertEqual(summary["yield"]["units_tested"], UNITS)
         self.assertEqual(summary["yield"]["runs"], UNITS + 1)
+
+
+class MetricsAcrossRestartTest(unittest.TestCase):
+    """The daemon counts its station's yield once when it starts and then as runs commit: the
+    counts must equal the store's before and after a restart, and after runs tested since."""
+
+    @staticmethod
+    def run_units(station, api, serials):
+        for serial in serials:
+            station.connect_unit(serial)
+            test_over_api(station, api, serial, "LOT-RESTART")
+        api.close()
+
+    def test_counts_match_the_store_before_and_after_a_restart(self):
+        station = Station().start()
+        try:
+            api = station.api_session()
+            calibrate_over_api(station, api)
+            serials = [u["serial"] if isinstance(u, dict) else u for u in station.units()[:5]]
+            self.run_units(station, api, serials[:3] + serials[:1])
+            before = yield_counts(scrape_families(self, station))
+            self.assertEqual(before, store_counts(station.store()))
+            self.assertEqual(sum(before["runs/" + v] for v in VERDICTS), 4)
+
+            station.stop_daemon()
+            station.start_daemon()
+            after = yield_counts(scrape_families(self, station))
+            self.assertEqual(after, before)
+
+            self.run_units(station, station.api_session(), serials[3:5] + serials[1:2])
+            later = yield_counts(scrape_families(self, station))
+            self.assertEqual(later, store_counts(station.store()))
+            self.assertEqual(sum(later["runs/" + v] for v in VERDICTS), 7)
+            self.assertEqual(later["echoline_units_tested"], 5)
+        finally:
+            station.close()
 
 
 if __name__ == "__main__":
