@@ -23,22 +23,40 @@ constexpr const char* kCentralHelp =
     "(insert only) and echoline_reader (read only), or brings an older schema up to date. Run it\n"
     "as an administrator of the database (the owner, with CREATEROLE). Then make one login role\n"
     "per station in echoline_station and give readers echoline_reader (README, \"Many stations,\n"
-    "one record\"). CONNINFO is a libpq connection string (postgresql://... or key=value);\n"
-    "prefer a settings file (mode 0600) or ~/.pgpass to a password on the command line.\n\n"
+    "one record\"). CONNINFO is a libpq connection string (postgresql://... or key=value)\n"
+    "without a password: one with a password is refused, since others can read a command line.\n"
+    "Put the password in ~/.pgpass or the file PGPASSFILE names (mode 0600, lines\n"
+    "host:port:dbname:user:password; libpq reads it), or use a settings file (mode 0600).\n\n"
     "exit: 0 up to date, 2 usage, 5 the database could not be reached or migrated\n\n";
 }  // namespace
+
+// Every user of the computer can read a command line (ps, /proc/PID/cmdline): a password never
+// goes on one.
+constexpr const char* kPasswordRefusal =
+    "--db: the connection string holds a password, and any user of this computer can read a command "
+    "line in the process list; nothing was sent. Give --db the connection string without it and put the "
+    "password in libpq's password file (~/.pgpass, or the file the PGPASSFILE environment variable names; "
+    "mode 0600, one line host:port:dbname:user:password), or in a central settings file (mode 0600) given "
+    "as --db FILE or --central (README, \"Many stations, one record\")";
 
 const char* const kCentralOptionHelp =
     "central database (reads runs of every station instead of this station's store):\n"
     "  --db CONNINFO|FILE  a PostgreSQL connection string (postgresql://... or key=value), or a\n"
     "                      settings file (mode 0600; README, \"Many stations, one record\")\n"
-    "  --central           the settings file the station config names (\"central\")\n\n";
+    "  --central           the settings file the station config names (\"central\")\n"
+    "  A connection string with a password is refused (others can read a command line): put the\n"
+    "  password in ~/.pgpass or the file PGPASSFILE names (mode 0600, one line\n"
+    "  host:port:dbname:user:password, read by libpq), or in a settings file.\n\n";
 
 std::optional<central::CentralSettings> central_settings_from_args(const Args& args, const std::string& what) {
   std::optional<Result<central::CentralSettings>> got;
   if (auto db = args.get("--db")) {
-    got = central::looks_like_connection_string(*db) ? central::settings_from_connection_string(*db)
-                                                     : central::load_settings(*db);
+    if (central::looks_like_connection_string(*db)) {
+      got = central::settings_from_connection_string(*db);
+      if (*got && !(*got)->password.empty()) throw CliExit(kExitUsage, fmt::format("{}: {}", what, kPasswordRefusal));
+    } else {
+      got = central::load_settings(*db);
+    }
   } else if (args.flag("--central")) {
     auto config = find_station_config(args, true);
     if (config->central_settings.empty()) {

@@ -15,20 +15,11 @@
 namespace echoline::e2e {
 namespace {
 
-struct Outcome {
-  int code = -1000;
-  std::string output;   // stdout and stderr together
-};
+using testing::Outcome;
 
 Outcome run(const std::filesystem::path& binary, std::vector<std::string> args) {
   args.insert(args.begin(), binary.string());
-  testing::ChildProcess::Options o;
-  o.merge_stderr = true;
-  auto p = testing::ChildProcess::start(args, o);
-  Outcome out;
-  while (auto line = p.read_line(20s)) out.output += *line + "\n";
-  out.code = p.wait(20s).value_or(-999);
-  return out;
+  return testing::run_to_end(std::move(args));
 }
 
 bool says(const Outcome& o, const std::string& text) { return o.output.find(text) != std::string::npos; }

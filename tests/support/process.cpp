@@ -244,4 +244,16 @@ std::filesystem::path sim_binary() { return ECHOLINE_SIM_BIN; }
 std::filesystem::path daemon_binary() { return ECHOLINE_DAEMON_BIN; }
 std::filesystem::path client_binary() { return ECHOLINE_CLIENT_BIN; }
 
+Outcome run_to_end(std::vector<std::string> argv, std::map<std::string, std::string> env,
+                   std::chrono::milliseconds timeout) {
+  ChildProcess::Options o;
+  o.merge_stderr = true;
+  o.env = std::move(env);
+  auto p = ChildProcess::start(std::move(argv), o);
+  Outcome out;
+  while (auto line = p.read_line(timeout)) out.output += *line + "\n";
+  out.code = p.wait(timeout).value_or(-999);
+  return out;
+}
+
 }  // namespace echoline::testing

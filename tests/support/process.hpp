@@ -66,6 +66,15 @@ class ChildProcess {
   std::optional<int> status_;
 };
 
+// A program run to its end: its exit code (-999 when it did not end in time) and what it wrote
+// to stdout and stderr, together.
+struct Outcome {
+  int code = -1000;
+  std::string output;
+};
+Outcome run_to_end(std::vector<std::string> argv, std::map<std::string, std::string> env = {},
+                   std::chrono::milliseconds timeout = std::chrono::seconds(20));
+
 // Parses "key=value" fields of a line such as "endpoint role=source transport=tcp address=tcp://..".
 std::map<std::string, std::string> parse_fields(std::string_view line);
 
