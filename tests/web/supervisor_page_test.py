@@ -1,13 +1,16 @@
 """The line supervisor's page in real headless Chromium: its counts match the run store (yield
 by the store's one definition), the Pareto and the last runs, and it updates live while the
-console tests another unit."""
+console tests another unit; the resonance histogram's caption names only the lines it draws and
+its axis has evenly spaced round ticks."""
+import math
+import os
 import unittest
 
 from selenium.webdriver.common.by import By
 
 from browser import by_id, chromium, screenshot, set_viewport, wait_for
 from operator_page_test import pick_units
-from station_fixture import Station, calibrate_over_api
+from station_fixture import SRC, Station, calibrate_over_api
 
 LOT = "LOT-LINE-7"
 UNITS = 14
@@ -86,6 +89,53 @@ class SupervisorPageTest(unittest.TestCase):
         # The console tests one more unit: the page follows without a reload.
         self.run_unit(self.serials[UNITS])
         self.assertEqual(self.expect_store_counts(), UNITS + 3)
+
+    def histogram_parts(self):
+        d = self.driver
+        wait_for("the histogram", lambda: d.find_elements(By.CSS_SELECTOR, "#histogram text.caption"))
+        caption = d.find_element(By.CSS_SELECTOR, "#histogram text.caption").text
+        ticks = [t.text for t in d.find_elements(By.CSS_SELECTOR, "#histogram text.tick")]
+        windows = d.find_elements(By.CSS_SELECTOR, "#histogram line.win")
+        return caption, ticks, windows
+
+    def expect_round_even_ticks(self, ticks):
+        # Round ticks: a step of 1, 2 or 5 x 10^n and every tick a whole multiple of it (common
+        # practice, no source); evenly spaced, in order, labelled with the same digits.
+        self.assertGreaterEqual(len(ticks), 3, ticks)
+        self.assertLessEqual(len(ticks), 6, ticks)
+        self.assertEqual(len({len(t.partition(".")[2]) for t in ticks}), 1, ticks)
+        values = [float(t) for t in ticks]
+        steps = [b - a for a, b in zip(values, values[1:])]
+        step = steps[0]
+        self.assertGreater(step, 0, ticks)
+        for s in steps:
+            self.assertAlmostEqual(s, step, delta=1e-6 * step, msg=ticks)
+        mantissa = step / 10 ** math.floor(math.log10(step) + 1e-9)
+        self.assertTrue(any(abs(mantissa - m) < 1e-6 for m in (1, 2, 5)), f"step {step} in {ticks}")
+        for v in values:
+            self.assertAlmostEqual(v / step, round(v / step), delta=1e-6, msg=f"{v} is not a multiple of {step}")
+
+    def test_histogram_caption_and_round_ticks(self):
+        d = self.driver
+        d.get(self.station.url + "supervisor")
+        wait_for("the page to go live", lambda: by_id(d, "conn").get_attribute("data-state") == "live")
+        # whip915 has no resonance window: the caption does not speak of one, no dashed line.
+        caption, ticks, windows = self.histogram_parts()
+        self.assertEqual(caption, "resonance (MHz); solid: mean")
+        self.assertEqual(windows, [])
+        self.expect_round_even_ticks(ticks)
+        engineer = self.station.api_session("engineer")
+        try:
+            engineer.call("recipe.select", {"path": os.path.join(SRC, "config/recipes/whip915-window.jsonc")})
+            d.get(self.station.url + "supervisor")
+            wait_for("the page to go live", lambda: by_id(d, "conn").get_attribute("data-state") == "live")
+            wait_for("the window's dashed lines", lambda: len(self.histogram_parts()[2]) == 2)
+            caption, ticks, _ = self.histogram_parts()
+            self.assertEqual(caption, "resonance (MHz); dashed: window, solid: mean")
+            self.expect_round_even_ticks(ticks)
+        finally:
+            engineer.call("recipe.select", {"path": os.path.join(SRC, "config/recipes/whip915.jsonc")})
+            engineer.close()
 
 
 if __name__ == "__main__":

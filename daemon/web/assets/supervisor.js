@@ -49,16 +49,43 @@ function histogramSvg(h) {
            svgEl("line", { x1: L, y1: T, x2: L, y2: H - B, class: "axis" }),
            svgEl("text", { x: L - 4, y: T + 10, "text-anchor": "end", class: "lbl" }, String(max)),
            svgEl("text", { x: L - 4, y: H - B, "text-anchor": "end", class: "lbl" }, "0"));
-  for (let i = 0; i <= 4; ++i) {
-    const f = lo + ((hi - lo) * i) / 4;
-    s.append(svgEl("text", { x: x(f), y: H - B + 14, "text-anchor": i === 0 ? "start" : i === 4 ? "end" : "middle", class: "lbl" }, mhz(f, 1)));
+  const ticks = roundTicks(lo, hi, 6);
+  for (const f of ticks.values) {
+    const tx = x(f);
+    const anchor = tx < L + 12 ? "start" : tx > W - 20 ? "end" : "middle";
+    s.append(svgEl("line", { x1: tx, y1: H - B, x2: tx, y2: H - B + 4, class: "axis" }),
+             svgEl("text", { x: tx, y: H - B + 14, "text-anchor": anchor, class: "lbl tick" }, mhz(f, ticks.decimals)));
   }
-  s.append(svgEl("text", { x: (W + L) / 2, y: H - 2, "text-anchor": "middle", class: "lbl" }, "resonance (MHz); dashed: window, solid: mean"));
+  const hasWindow = h.window_low_hz !== null || h.window_high_hz !== null;
+  const legend = [hasWindow ? "dashed: window" : null, h.mean_hz !== null ? "solid: mean" : null].filter((t) => t);
+  s.append(svgEl("text", { x: (W + L) / 2, y: H - 2, "text-anchor": "middle", class: "lbl caption" },
+                 "resonance (MHz)" + (legend.length ? "; " + legend.join(", ") : "")));
   for (const f of [h.window_low_hz, h.window_high_hz]) {
     if (f !== null) s.append(svgEl("line", { x1: x(f), y1: T, x2: x(f), y2: H - B, class: "win" }));
   }
   if (h.mean_hz !== null) s.append(svgEl("line", { x1: x(h.mean_hz), y1: T, x2: x(h.mean_hz), y2: H - B, class: "mean" }));
   return s;
+}
+
+// Axis ticks at round values between lo and hi (Hz): a step of 1, 2 or 5 x 10^n MHz, the
+// smallest that gives at most `most` ticks (common practice, no source). `decimals`: the digits
+// after the point that the step needs.
+function roundTicks(lo, hi, most) {
+  const span = (hi - lo) / 1e6;
+  let exp = Math.floor(Math.log10(span / most));
+  for (;;) {
+    for (const m of [1, 2, 5]) {
+      const step = m * Math.pow(10, exp);
+      const first = Math.ceil(lo / 1e6 / step - 1e-9);
+      const last = Math.floor(hi / 1e6 / step + 1e-9);
+      if (last - first + 1 <= most) {
+        const values = [];
+        for (let k = first; k <= last; ++k) values.push(k * step * 1e6);
+        return { values, decimals: Math.max(0, -exp) };
+      }
+    }
+    ++exp;
+  }
 }
 
 function fact(dl, k, v) { dl.append(el("dt", {}, k), el("dd", {}, v)); }
