@@ -21,12 +21,15 @@ CalibratedTrace calibrate_points(const CalibrationRecord& cal, const std::vector
   out.points.reserve(dut.size());
   out.shift.coverage_factor = cal.budget.coverage_factor;
   out.shift.error_delay_s = cal.budget.error_delay_s;
+  out.shift.frequency_offset_hz = cal.budget.frequency_offset_hz;
+  // Fast capture: the unit's reading may be up to half a bin off its frequency (0 otherwise).
+  const std::vector<double> offset_db = frequency_offset_db(dut, cal.budget.frequency_offset_hz);
   for (std::size_t i = 0; i < dut.size(); ++i) {
     PointResult p;
     p.frequency_hz = dut[i].frequency_hz;
     p.raw_dbm = dut[i].raw_dbm;
     double rl = cal.reference_dbm[i] - dut[i].raw_dbm;
-    const ReturnLossBounds b = budget_bounds(cal.budget, i, cal.reference_dbm[i], dut[i].raw_dbm);
+    const ReturnLossBounds b = budget_bounds(cal.budget, i, cal.reference_dbm[i], dut[i].raw_dbm, offset_db[i]);
     if (b.clamped) {
       // Above the |Γ| = 1 reference: noise or drift; a passive DUT cannot reflect more than all.
       ++out.clamped_points;
@@ -36,7 +39,7 @@ CalibratedTrace calibrate_points(const CalibrationRecord& cal, const std::vector
     p.return_loss_worst_db = std::min(b.worst_db, rl);
     p.return_loss_best_db = std::max(b.best_db, rl);
     out.points.push_back(p);
-    out.shift.gamma_error.push_back(gamma_error_radius(cal.budget, i, cal.reference_dbm[i], dut[i].raw_dbm));
+    out.shift.gamma_error.push_back(gamma_error_radius(cal.budget, i, cal.reference_dbm[i], dut[i].raw_dbm, offset_db[i]));
     const double s_d = reading_sigma_db(cal.budget, i, dut[i].raw_dbm);
     const double s_r = cal.budget.reference_noise_db[i];
     out.shift.sigma_db.push_back(std::sqrt(s_d * s_d + s_r * s_r));
@@ -413,6 +416,13 @@ Analysis analyze(const Recipe& recipe, const CalibratedTrace& trace) {
   a.resonance = find_resonance(pts, have_context ? &trace.shift : nullptr);
   if (a.resonance && have_context && trace.shift.fit && trace.shift.error_vector.size() == pts.size()) {
     apply_fit(*a.resonance, pts, trace.shift, recipe.limits.bandwidth_threshold_db, a.erratic_jumps, a.fit);
+  }
+  if (a.resonance && have_context && trace.shift.frequency_offset_hz > 0) {
+    // A fast capture reads the unit at f + δ, |δ| up to the offset, the same δ at every point:
+    // the resonance found on the trace is the true one shifted by δ (MEASUREMENT.md §11).
+    Resonance& r = *a.resonance;
+    if (!r.low_open) r.low_hz -= trace.shift.frequency_offset_hz;
+    if (!r.high_open) r.high_hz += trace.shift.frequency_offset_hz;
   }
   if (a.resonance) {
     const double thr = recipe.limits.bandwidth_threshold_db;

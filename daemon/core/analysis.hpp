@@ -28,6 +28,9 @@ struct ShiftContext {
   std::vector<double> error_vector;
   double source_match = 0;
   bool fit = true;                   // try the dip fit (false: the intervals of the points alone)
+  // Fast capture: the whole trace may be shifted by up to this much in frequency (half a bin,
+  // MEASUREMENT.md §11); the resonance interval is widened by it on each side. 0 for a step sweep.
+  double frequency_offset_hz = 0;
 };
 
 // RL = reference − P_dut per point; bounds from the calibration's uncertainty budget

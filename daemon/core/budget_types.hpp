@@ -28,6 +28,10 @@ struct UncertaintyBudget {
   double connection = 0;          // standard uncertainty of one connection, linear |Γ|
   double noise_floor_dbm = -200;  // receiver noise floor at the recipe's RBW (additive noise)
   double error_delay_s = 5e-9;    // how fast the error terms' phase may turn against the DUT's
+  // Fast capture: each reading may be the unit's reflection up to this far from its plan
+  // frequency (half a receiver bin; the same offset for every point of one capture). 0 for a
+  // step sweep. The bounded term it gives depends on the trace's slope (MEASUREMENT.md §11).
+  double frequency_offset_hz = 0;
   std::string kit_identity;
   std::string kit_serial;
   std::vector<SegmentNoise> noise;

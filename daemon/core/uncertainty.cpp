@@ -16,6 +16,7 @@
 
 #include <fmt/format.h>
 
+#include "daemon/core/fast_capture_plan.hpp"
 #include "daemon/core/frequency_text.hpp"
 
 namespace echoline::core {
@@ -89,6 +90,31 @@ RefError reference_error(const CalKit& kit, double f, bool with_short, double ep
 
 }  // namespace
 
+double frequency_offset_db(const std::vector<double>& f, const std::vector<double>& level_db, std::size_t i,
+                           double offset_hz) {
+  if (!(offset_hz > 0) || f.size() < 2) return 0;
+  // g(x) = the trace a fraction x of a step from point i. For g convex (or concave) on
+  // [f_{i-1}, f_{i+1}] the chord slope from f_i to f_i + x is monotone in x, so for |x| up to
+  // the neighbour's distance |g(x) − g(0)| ≤ |x|·max(chord slope to either neighbour).
+  double slope = 0;   // dB/Hz, the steeper chord
+  if (i > 0) slope = std::max(slope, std::abs(level_db[i] - level_db[i - 1]) / (f[i] - f[i - 1]));
+  if (i + 1 < f.size()) slope = std::max(slope, std::abs(level_db[i + 1] - level_db[i]) / (f[i + 1] - f[i]));
+  return std::isfinite(slope) ? slope * offset_hz : kInf;
+}
+
+std::vector<double> frequency_offset_db(const std::vector<Reading>& trace, double offset_hz) {
+  std::vector<double> f, p, out;
+  f.reserve(trace.size());
+  p.reserve(trace.size());
+  for (const Reading& r : trace) {
+    f.push_back(r.frequency_hz);
+    p.push_back(r.raw_dbm);
+  }
+  out.reserve(trace.size());
+  for (std::size_t i = 0; i < trace.size(); ++i) out.push_back(frequency_offset_db(f, p, i, offset_hz));
+  return out;
+}
+
 UncertaintyBudget build_budget(const Recipe& recipe, const std::map<std::string, std::vector<Reading>>& traces,
                                const std::vector<double>& reference_dbm, const CalKit& kit, const BudgetInputs& in,
                                std::vector<std::string>& warnings) {
@@ -108,6 +134,18 @@ UncertaintyBudget build_budget(const Recipe& recipe, const std::map<std::string,
   const bool with_short = traces.count("SHORT") > 0;
   const std::size_t n = open.size();
   const double k = b.coverage_factor;
+  // Fast capture: every reading, the standards' too, may be up to half a bin off its plan
+  // frequency (MEASUREMENT.md §11); the reference and the LOAD carry that term here, the unit's
+  // reading when it is judged (budget_bounds).
+  if (recipe.mode == SweepMode::fast_capture && n >= 2) {
+    std::vector<double> plan;
+    for (const Reading& r : open) plan.push_back(r.frequency_hz);
+    b.frequency_offset_hz = fast_capture_axis(plan).bin_hz() / 2;
+  }
+  const std::vector<double> open_offset = frequency_offset_db(open, b.frequency_offset_hz);
+  const std::vector<double> load_offset = frequency_offset_db(load, b.frequency_offset_hz);
+  const std::vector<double> short_offset =
+      with_short ? frequency_offset_db(traces.at("SHORT"), b.frequency_offset_hz) : open_offset;
 
   // Noise per recipe segment.
   const auto open_rep = traces.find("OPEN/repeat");
@@ -172,14 +210,23 @@ UncertaintyBudget build_budget(const Recipe& recipe, const std::map<std::string,
     b.directivity_measured[i] = amp(load_rel_db);
     // |E_D| <= 10^((P_L − T)/20) + |Γ_L'| + k·u_conn, with P_L − T = (P_L − R) + (R − T): the
     // fixed point of this and the reference error (which grows with |E_D|), from below.
+    // Fast capture: R = (P_o + P_s)/2 moves by at most the mean of the two standards' offset
+    // terms, the LOAD reading by its own (both 0 for a step sweep).
+    const double ref_offset = with_short ? (open_offset[i] + short_offset[i]) / 2 : open_offset[i];
+    const auto ref_error = [&](double e) {
+      RefError r = reference_error(kit, f, with_short, e, src);
+      r.low_db -= ref_offset;
+      r.high_db += ref_offset;
+      return r;
+    };
     double eps = amp(load_rel_db) + load_res + k * b.connection;
     RefError re{};
     for (int it = 0; it < 4; ++it) {
-      re = reference_error(kit, f, with_short, eps, src);
-      eps = amp(load_rel_db + re.high_db + k * u_load) + load_res + k * b.connection;
+      re = ref_error(eps);
+      eps = amp(load_rel_db + load_offset[i] + re.high_db + k * u_load) + load_res + k * b.connection;
     }
     eps *= 1.001;  // the iteration approaches the fixed point from below
-    re = reference_error(kit, f, with_short, eps, src);
+    re = ref_error(eps);
     b.directivity_bound[i] = eps;
     b.reference_error_low_db[i] = re.low_db;
     b.reference_error_high_db[i] = re.high_db;
@@ -218,7 +265,8 @@ struct GammaInterval {
   bool clamped = false;
 };
 
-GammaInterval gamma_interval(const UncertaintyBudget& b, std::size_t i, double reference_dbm, double raw_dbm) {
+GammaInterval gamma_interval(const UncertaintyBudget& b, std::size_t i, double reference_dbm, double raw_dbm,
+                             double offset_db) {
   GammaInterval g;
   const double rl = reference_dbm - raw_dbm;
   g.clamped = rl < 0;
@@ -228,8 +276,9 @@ GammaInterval gamma_interval(const UncertaintyBudget& b, std::size_t i, double r
   const double u_r = b.reference_noise_db[i];
   const double big_u = k * std::sqrt(u_d * u_d + u_r * u_r);
   // |E_D + Γ'| = 10^((P − T)/20), P − T = −RL + (R − T) ± U.
-  const double m_low = amp(-rl + b.reference_error_low_db[i] - big_u);
-  const double m_high = amp(-rl + b.reference_error_high_db[i] + big_u);
+  // The fast-capture frequency offset is bounded: added to the reference's bounded error.
+  const double m_low = amp(-rl + b.reference_error_low_db[i] - offset_db - big_u);
+  const double m_high = amp(-rl + b.reference_error_high_db[i] + offset_db + big_u);
   const double e = b.directivity_bound[i] + k * b.connection;
   const double gp_low = std::max(0.0, m_low - e);
   const double gp_high = m_high + e;
@@ -243,8 +292,9 @@ GammaInterval gamma_interval(const UncertaintyBudget& b, std::size_t i, double r
 }
 }  // namespace
 
-ReturnLossBounds budget_bounds(const UncertaintyBudget& b, std::size_t index, double reference_dbm, double raw_dbm) {
-  const GammaInterval g = gamma_interval(b, index, reference_dbm, raw_dbm);
+ReturnLossBounds budget_bounds(const UncertaintyBudget& b, std::size_t index, double reference_dbm, double raw_dbm,
+                               double offset_db) {
+  const GammaInterval g = gamma_interval(b, index, reference_dbm, raw_dbm, offset_db);
   ReturnLossBounds r;
   r.clamped = g.clamped;
   r.worst_db = g.high >= 1 ? 0.0 : -db_of_amp(g.high);
@@ -252,12 +302,14 @@ ReturnLossBounds budget_bounds(const UncertaintyBudget& b, std::size_t index, do
   return r;
 }
 
-double gamma_error_radius(const UncertaintyBudget& b, std::size_t index, double reference_dbm, double raw_dbm) {
-  const GammaInterval g = gamma_interval(b, index, reference_dbm, raw_dbm);
+double gamma_error_radius(const UncertaintyBudget& b, std::size_t index, double reference_dbm, double raw_dbm,
+                          double offset_db) {
+  const GammaInterval g = gamma_interval(b, index, reference_dbm, raw_dbm, offset_db);
   return std::max(g.high - g.measured, g.measured - g.low);
 }
 
-std::vector<BudgetTerm> budget_terms(const UncertaintyBudget& b, std::size_t i, double reference_dbm, double raw_dbm) {
+std::vector<BudgetTerm> budget_terms(const UncertaintyBudget& b, std::size_t i, double reference_dbm, double raw_dbm,
+                                     double offset_db) {
   std::vector<BudgetTerm> t;
   if (i >= b.frequency_hz.size()) return t;
   const double s = b.load_residual[i] / (1 - b.source_match * b.load_residual[i]);
@@ -267,6 +319,9 @@ std::vector<BudgetTerm> budget_terms(const UncertaintyBudget& b, std::size_t i, 
   t.push_back({"source match", "bounded", b.source_match, "|Γ|"});
   t.push_back({"reference low (standards' loss and ripple)", "bounded", b.reference_error_low_db[i], "dB"});
   t.push_back({"reference high (ripple)", "bounded", b.reference_error_high_db[i], "dB"});
+  if (b.frequency_offset_hz > 0) {
+    t.push_back({"frequency offset (fast capture, half a bin x the trace's slope)", "bounded", offset_db, "dB"});
+  }
   t.push_back({"reading noise at this level", "statistical", reading_sigma_db(b, i, raw_dbm), "dB"});
   t.push_back({"reference noise", "statistical", b.reference_noise_db[i], "dB"});
   t.push_back({"connection repeatability (kit)", "statistical", b.connection, "|Γ|"});

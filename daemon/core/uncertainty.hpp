@@ -35,18 +35,31 @@ UncertaintyBudget build_budget(const Recipe& recipe, const std::map<std::string,
                                const std::vector<double>& reference_dbm, const CalKit& kit, const BudgetInputs& in,
                                std::vector<std::string>& warnings);
 
+// Bounded term (dB) of a reading that may belong to a frequency up to `offset_hz` from f[i]
+// (fast capture, MEASUREMENT.md §11): offset_hz times the steeper of the trace's slopes to its
+// two neighbours (one at the ends). A bound wherever the trace is convex or concave over the
+// neighbours (the chord-slope inequality); 0 when offset_hz is 0. REQUIRES: f increasing,
+// f.size() == level_db.size(), i < f.size().
+double frequency_offset_db(const std::vector<double>& f, const std::vector<double>& level_db, std::size_t i,
+                           double offset_hz);
+// The same for every point of a trace.
+std::vector<double> frequency_offset_db(const std::vector<Reading>& trace, double offset_hz);
+
 // σ of one reading (dB) at level `raw_dbm` and plan point `index`: the measured high-level noise
 // plus additive noise scaled from the LOAD level (or the receiver floor, whichever is larger).
 double reading_sigma_db(const UncertaintyBudget& b, std::size_t index, double raw_dbm);
 
 // The interval of the true return loss at plan point `index` for a DUT reading `raw_dbm`
 // against the calibration reference `reference_dbm`. Bounded terms as a worst case, statistical
-// terms at the coverage factor, added to them (daemon/core/MEASUREMENT.md).
-ReturnLossBounds budget_bounds(const UncertaintyBudget& b, std::size_t index, double reference_dbm, double raw_dbm);
+// terms at the coverage factor, added to them (daemon/core/MEASUREMENT.md). offset_db: the
+// reading's frequency-offset term (frequency_offset_db; 0 for a step sweep), bounded, in dB.
+ReturnLossBounds budget_bounds(const UncertaintyBudget& b, std::size_t index, double reference_dbm, double raw_dbm,
+                               double offset_db = 0);
 
 // The error radius in |Γ| that the bounds allow around a reading: max distance from the
 // measured |Γ| to either bound. Used by the resonance-shift bound.
-double gamma_error_radius(const UncertaintyBudget& b, std::size_t index, double reference_dbm, double raw_dbm);
+double gamma_error_radius(const UncertaintyBudget& b, std::size_t index, double reference_dbm, double raw_dbm,
+                          double offset_db = 0);
 
 // Named terms at one point for a report: each in the unit it is combined in.
 struct BudgetTerm {
@@ -56,6 +69,6 @@ struct BudgetTerm {
   std::string unit;       // "|Γ|" or "dB"
 };
 std::vector<BudgetTerm> budget_terms(const UncertaintyBudget& b, std::size_t index, double reference_dbm,
-                                     double raw_dbm);
+                                     double raw_dbm, double offset_db = 0);
 
 }  // namespace echoline::core

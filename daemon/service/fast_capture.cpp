@@ -126,7 +126,11 @@ class Capture {
     if (checks_at_end(rx_.profile())) {
       if (Status s = rs.drain_errors(); !s) return s;
     }
-    return src_.set_output(true);
+    if (Status s = src_.set_output(true); !s) return s;
+    // The source's *OPC? before the receiver starts, as the step engine does before every sweep:
+    // the recipe's settling counts from this reply. Without it the receiver's sweep could start
+    // while the ramp has not yet begun, and its first bins would read no tone at all.
+    return src_.sync();
   }
 
   // RF off first, then the source back to CW and the receiver back to its own sweep time.

@@ -26,6 +26,7 @@ std::string budget_to_json(const core::UncertaintyBudget& b) {
             {"connection", b.connection},
             {"noise_floor_dbm", b.noise_floor_dbm},
             {"error_delay_s", b.error_delay_s},
+            {"frequency_offset_hz", b.frequency_offset_hz},
             {"kit_identity", b.kit_identity},
             {"kit_serial", b.kit_serial},
             {"noise", noise},
@@ -59,6 +60,7 @@ std::optional<core::UncertaintyBudget> budget_from_json(const std::string& text)
     b.connection = j.at("connection").get<double>();
     b.noise_floor_dbm = j.at("noise_floor_dbm").get<double>();
     b.error_delay_s = j.value("error_delay_s", 5e-9);
+    b.frequency_offset_hz = j.value("frequency_offset_hz", 0.0);   // absent: a budget of a step sweep
     b.kit_identity = j.value("kit_identity", "");
     b.kit_serial = j.value("kit_serial", "");
     for (const auto& n : j.at("noise")) {

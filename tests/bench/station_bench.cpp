@@ -6,7 +6,9 @@
 //   - the cycle time on the `bench` latency profile against the time the instruments impose
 //     (replies x command time + sweeps x sweep time + points x settle), from the sim's counters;
 //   - fast capture against the step sweep on the same units of the lot on the `bench` profile:
-//     cycle time, return loss where RL < 25 dB, the step run's bounds, verdicts (--fast-units);
+//     cycle time, return loss where RL < 25 dB, each run's bounds against the other run and
+//     against the simulator's true return loss, verdicts, and a second step pass as the control
+//     for verdict changes (--fast-units);
 //   - the daemon's resident memory after 100, 1000 and 10 000 units (--memory-units).
 // Prints progress on stderr and one JSON document (raw samples) on stdout or --json FILE.
 // Asserts nothing about time. Single-threaded.
@@ -16,6 +18,7 @@
 #include <array>
 #include <limits>
 #include <map>
+#include <optional>
 #include <cstdlib>
 #include <fstream>
 #include <iostream>
@@ -209,8 +212,11 @@ RunPoints run_points(DaemonProcess& daemon, const std::string& run_id) {
 // Fast capture on the bench profile against the step sweep, unit by unit on the same simulated
 // units of the lot: cycle time (and what the instruments impose: the capture the plan expects
 // plus the command time of each reply), return loss where the step sweep reads RL < 25 dB, the
-// step run's uncertainty interval, and the verdict. Step sweeps first, then fast captures, each
-// with its own calibration.
+// step run's uncertainty interval, the fast run's interval (against the step reading and against
+// the unit's true return loss from the simulator's control port: an interval that misses the
+// truth is a budget that does not hold), and the verdict. Step sweeps first, then fast captures,
+// then the step sweep again (the control: how many verdicts two step sweeps of the same units
+// change), each with its own calibration.
 json fast_capture_profile(const std::filesystem::path& dir, int unit_count) {
   SimProcess sim(dir, "bench.jsonc", "bench");
   const auto fast_file = write_recipe(testing::source_dir() / "config/recipes/whip915-fast.jsonc", dir / "whip915-fast-bench.json", -1);
@@ -236,8 +242,21 @@ json fast_capture_profile(const std::filesystem::path& dir, int unit_count) {
                         {"source_sweep_s", plan->source_sweep_s}, {"receiver_sweep_s", plan->receiver_sweep_s},
                         {"receiver_sweeps", plan->receiver_sweeps}, {"bins", plan->axis.points}, {"reason", plan->reason}}}};
   std::cerr << "  plan: " << plan->reason << "\n";
+  const std::vector<double> plan_f = core::plan_frequencies(fast);
+  // The units' true return loss at the plan frequencies (no bench errors; +inf where infinite;
+  // an intermittent unit's good state).
+  std::vector<std::vector<double>> truth;
+  for (const auto& u : units) {
+    const json t = sim.control({{"cmd", "truth"}, {"unit", u}, {"frequencies_hz", plan_f}});
+    std::vector<double> rl;
+    for (const auto& v : t.at("return_loss_db")) rl.push_back(v.is_null() ? std::numeric_limits<double>::infinity() : v.get<double>());
+    if (rl.size() != plan_f.size()) throw std::runtime_error("truth: " + t.dump());
+    truth.push_back(std::move(rl));
+  }
+  const auto outside = [](const std::array<double, 4>& row, double rl) { return rl < row[2] || rl > row[3]; };
   std::vector<std::string> step_verdicts;
   std::vector<RunPoints> step_points;
+  int step_truth_outside = 0;
   {
     DaemonProcess daemon(dir, sim, step_file);
     out["step_calibration_s"] = daemon.calibrate();
@@ -246,13 +265,18 @@ json fast_capture_profile(const std::filesystem::path& dir, int unit_count) {
       out["step_cycle_s"].push_back(t.seconds);
       step_verdicts.push_back(t.verdict);
       step_points.push_back(run_points(daemon, t.run_id));
+      for (std::size_t i = 0; i < step_points.back().rows.size() && i < truth[r].size(); ++i) {
+        step_truth_outside += outside(step_points.back().rows[i], truth[r][i]);
+      }
       if ((r + 1) % 20 == 0 || r + 1 == units.size()) std::cerr << fmt::format("  step sweep: {} of {} units\n", r + 1, units.size());
     }
   }
-  DaemonProcess daemon(dir, sim, fast_file);
+  std::optional<DaemonProcess> fast_daemon;
+  fast_daemon.emplace(dir, sim, fast_file);
+  DaemonProcess& daemon = *fast_daemon;
   out["calibration_s"] = daemon.calibrate();
   std::vector<double> diffs;
-  int outside_bounds = 0, same_verdict = 0;
+  int outside_bounds = 0, same_verdict = 0, step_outside_fast = 0, fast_truth_outside = 0, truth_points = 0;
   std::map<std::string, int> pairs;
   for (std::size_t r = 0; r < units.size(); ++r) {
     const auto before = replies(sim);
@@ -276,8 +300,12 @@ json fast_capture_profile(const std::filesystem::path& dir, int unit_count) {
     const RunPoints& st = step_points[r];
     if (f.rows.size() != st.rows.size()) throw std::runtime_error("fast and step runs have different point counts");
     double unit_max = 0;
+    int unit_truth_outside = 0;
     for (std::size_t i = 0; i < f.rows.size(); ++i) {
+      ++truth_points;
+      unit_truth_outside += outside(f.rows[i], truth[r][i]);
       if (!(st.rows[i][1] < 25)) continue;
+      step_outside_fast += outside(f.rows[i], st.rows[i][1]);
       diffs.push_back(std::abs(f.rows[i][1] - st.rows[i][1]));
       unit_max = std::max(unit_max, diffs.back());
       outside_bounds += f.rows[i][1] < st.rows[i][2] || f.rows[i][1] > st.rows[i][3];
@@ -287,11 +315,37 @@ json fast_capture_profile(const std::filesystem::path& dir, int unit_count) {
     if (unit_max > 0.5) {
       out["rl_units_over_half_db"].push_back({{"unit", units[r]}, {"max_db", unit_max}, {"step_reason", st.reason}});
     }
+    fast_truth_outside += unit_truth_outside;
+    if (unit_truth_outside > 0) {
+      out["fast_truth_outside_units"].push_back({{"unit", units[r]}, {"points", unit_truth_outside}, {"fast_reason", f.reason}});
+      std::cerr << fmt::format("  {}: true RL outside the fast run's bounds at {} points ({})\n", units[r], unit_truth_outside, f.reason);
+    }
     if ((r + 1) % 20 == 0 || r + 1 == units.size()) {
       std::cerr << fmt::format("  fast capture: {} of {} units, last cycle {:.3f} s (step {:.3f} s), verdicts the same {}\n", r + 1,
                                units.size(), t.seconds, out["step_cycle_s"][r].get<double>(), same_verdict);
     }
   }
+  // The control: the step sweep again, new calibration, same units.
+  int repeat_same = 0;
+  fast_daemon.reset();   // one daemon on the instruments at a time
+  {
+    DaemonProcess again(dir, sim, step_file);
+    (void)again.calibrate();
+    for (std::size_t r = 0; r < units.size(); ++r) {
+      const auto t = again.test_unit(units[r], fmt::format("STEP2-{:04d}", r + 1));
+      repeat_same += t.verdict == step_verdicts[r];
+      if (t.verdict != step_verdicts[r]) {
+        out["step_repeat_changes"].push_back({{"unit", units[r]}, {"step", step_verdicts[r]}, {"step_again", t.verdict}});
+        std::cerr << fmt::format("  {}: step {}, step again {}\n", units[r], step_verdicts[r], t.verdict);
+      }
+      if ((r + 1) % 20 == 0 || r + 1 == units.size()) std::cerr << fmt::format("  step sweep again: {} of {} units\n", r + 1, units.size());
+    }
+  }
+  out["step_repeat_verdicts_same"] = repeat_same;
+  out["truth_points"] = truth_points;
+  out["fast_truth_outside_bounds"] = fast_truth_outside;
+  out["step_truth_outside_bounds"] = step_truth_outside;
+  out["step_outside_fast_bounds"] = step_outside_fast;
   std::sort(diffs.begin(), diffs.end());
   const auto quantile = [&](double q) { return diffs.empty() ? 0.0 : diffs[static_cast<std::size_t>(q * (diffs.size() - 1))]; };
   out["rl_points_compared"] = diffs.size();
@@ -303,9 +357,11 @@ json fast_capture_profile(const std::filesystem::path& dir, int unit_count) {
   out["verdicts_same"] = same_verdict;
   out["verdict_pairs"] = pairs;
   std::cerr << fmt::format("  {} units: verdicts the same {}; RL<25 dB points {}: max |fast - step| {:.3f} dB, 99th percentile {:.3f} dB; "
-                           "{} fast readings outside the step run's bounds\n",
+                           "{} fast readings outside the step run's bounds, {} step readings outside the fast run's; true RL "
+                           "outside the bounds at {} (fast) and {} (step) of {} points; a second step sweep: verdicts the same {}\n",
                            units.size(), same_verdict, diffs.size(), out["rl_diff_max_db"].get<double>(),
-                           out["rl_diff_p99_db"].get<double>(), outside_bounds);
+                           out["rl_diff_p99_db"].get<double>(), outside_bounds, step_outside_fast, fast_truth_outside,
+                           step_truth_outside, truth_points, repeat_same);
   return out;
 }
 

@@ -13,6 +13,7 @@
 
 #include <gtest/gtest.h>
 
+#include "daemon/core/analysis.hpp"
 #include "daemon/core/calibration.hpp"
 #include "daemon/core/rf_math.hpp"
 #include "tests/core/synthetic_bench.hpp"
@@ -200,6 +201,114 @@ TEST(UncertaintyBudget, NoiseGrowsBelowTheLoadLevel) {
   b.noise = {SegmentNoise{900e6, 900e6, 100, 0, 0, -70, true}};
   b.noise_floor_dbm = -110;
   EXPECT_NEAR(reading_sigma_db(b, 0, -70), 20 / std::log(10.0) * std::sqrt(1e-4 / 2), 1e-6);
+}
+
+
+// The fast-capture frequency-offset term (MEASUREMENT.md §11): offset x the steeper chord slope
+// to the neighbours. On a straight line it is the line's change over the offset exactly; at a
+// dip (a "V") the steeper side sets it; at the ends only the one neighbour counts. The bound
+// behind it is the chord-slope inequality of a convex function, (g(x) - g(0))/x nondecreasing
+// in x (Hardy, Littlewood and Polya, Inequalities, ch. 3; from memory).
+TEST(FrequencyOffset, TermIsTheOffsetTimesTheSteeperChordSlope) {
+  const std::vector<double> f = {900e6, 900.5e6, 901e6, 901.5e6, 902e6};
+  const std::vector<double> line = {-20, -21, -22, -23, -24};   // 2 dB per MHz
+  for (std::size_t i = 0; i < f.size(); ++i) EXPECT_NEAR(frequency_offset_db(f, line, i, 0.25e6), 0.5, 1e-12) << i;
+  const std::vector<double> vee = {-20, -22, -30, -23, -21};
+  EXPECT_NEAR(frequency_offset_db(f, vee, 2, 0.25e6), 8.0 / 0.5e6 * 0.25e6, 1e-12);   // the steeper side: 8 dB
+  EXPECT_NEAR(frequency_offset_db(f, vee, 0, 0.25e6), 1.0, 1e-12);                   // one neighbour at the end
+  EXPECT_EQ(frequency_offset_db(f, vee, 2, 0), 0.0);                                 // a step sweep: no term
+}
+
+// The term is bounded and enters as a worst case (MEASUREMENT.md §3.6): with no other error,
+// a reading at RL 20 dB with 0.3 dB of offset term lies in [19.7, 20.3] dB, from RL = R - P
+// (return loss from the reference, common practice, no source).
+TEST(FrequencyOffset, BudgetAddsTheTermToTheBoundedInterval) {
+  UncertaintyBudget b;
+  b.coverage_factor = 3;
+  b.noise_floor_dbm = -400;
+  b.noise = {SegmentNoise{860e6, 970e6, 100, 0, 0, -60, true}};
+  b.frequency_hz = {915e6};
+  b.reference_error_low_db = {0};
+  b.reference_error_high_db = {0};
+  b.reference_noise_db = {0};
+  b.directivity_bound = {0};
+  b.directivity_measured = {0};
+  b.load_residual = {0};
+  const ReturnLossBounds plain = budget_bounds(b, 0, 0, -20);
+  EXPECT_NEAR(plain.worst_db, 20, 1e-9);
+  EXPECT_NEAR(plain.best_db, 20, 1e-9);
+  const ReturnLossBounds with = budget_bounds(b, 0, 0, -20, 0.3);
+  EXPECT_NEAR(with.worst_db, 19.7, 1e-9);
+  EXPECT_NEAR(with.best_db, 20.3, 1e-9);
+}
+
+// A fast capture reads the bench and the unit at f + d, |d| up to half a bin, one d per capture
+// (the source ramp and the receiver's dwell are locked; the crossing's place in the bin is set
+// by the free-running ramp's phase: MEASUREMENT.md §11). Standards and units of the imperfect
+// bench above, each captured with its own d: the fast recipe's budget (half a bin = 0.25 MHz for
+// 221 points over 110 MHz) holds the true return loss at the plan frequency at every point, for
+// a whip-like Q of 9 and a narrow part of Q 60, whose steep sides the same readings judged
+// without the term miss (which is why the term is there).
+TEST(FrequencyOffset, FastCaptureBoundsHoldTheTrueReturnLossAtThePlanFrequency) {
+  Recipe r = plan_recipe();
+  r.mode = SweepMode::fast_capture;
+  const CalKit kit = bench_kit();
+  const auto plan = plan_frequencies(r);
+  std::mt19937_64 rng(11);
+  std::uniform_real_distribution<double> half_bin(-0.25e6, 0.25e6);
+  long points = 0, outside = 0, outside_without = 0;
+  for (int trial = 0; trial < 12; ++trial) {
+    ImperfectBench b;
+    b.phase0 = 2 * kPi * trial / 12;
+    b.load_phase = 2 * kPi * ((trial * 5) % 12) / 12;
+    b.rng.seed(300 + trial);
+    std::map<std::string, std::vector<Reading>> t;
+    for (const char* name : {"OPEN", "SHORT", "LOAD", "OPEN/repeat", "LOAD/repeat"}) {
+      const double d = half_bin(rng);
+      const std::string s = name;
+      for (double f : plan) {
+        const double x = f + d;
+        const cd g = s.rfind("OPEN", 0) == 0 ? b.open(x) : s == "SHORT" ? b.shrt(x) : b.load(x);
+        t[s].push_back({f, b.read(x, g)});
+      }
+    }
+    const CalibrationRecord cal = build_calibration(r, t, station_with(kit), "c", "2026-12-01T00:00:00Z");
+    ASSERT_TRUE(cal.valid) << (cal.errors.empty() ? "" : cal.errors.front());
+    ASSERT_DOUBLE_EQ(cal.budget.frequency_offset_hz, 0.25e6);
+    CalibrationRecord without = cal;
+    without.budget.frequency_offset_hz = 0;
+    for (double f0 : {905e6, 915e6, 930e6}) {
+      for (double q : {9.0, 60.0}) {
+        const double d = half_bin(rng);
+        std::vector<Reading> dut;
+        for (double f : plan) dut.push_back({f, b.read(f + d, testing_bench::antenna(f + d, f0, q, 45))});
+        const CalibratedTrace with_term = calibrate_points(cal, dut);
+        const CalibratedTrace no_term = calibrate_points(without, dut);
+        for (std::size_t i = 0; i < plan.size(); ++i) {
+          const double truth = return_loss_from_gamma(std::abs(testing_bench::antenna(plan[i], f0, q, 45)));
+          const PointResult& p = with_term.points[i];
+          const PointResult& n = no_term.points[i];
+          ++points;
+          outside += truth < p.return_loss_worst_db - 1e-9 || truth > p.return_loss_best_db + 1e-9;
+          outside_without += truth < n.return_loss_worst_db - 1e-9 || truth > n.return_loss_best_db + 1e-9;
+        }
+      }
+    }
+  }
+  EXPECT_EQ(outside, 0) << "of " << points << " points";
+  EXPECT_GT(outside_without, 0) << "without the term some points should fall outside";
+  std::printf("[ offset  ] %ld points: %ld outside the fast budget's interval, %ld without the offset term\n", points,
+              outside, outside_without);
+}
+
+// A step recipe's budget has no offset term.
+TEST(FrequencyOffset, StepSweepBudgetHasNoOffset) {
+  const Recipe r = plan_recipe();
+  ASSERT_EQ(r.mode, SweepMode::step);
+  ImperfectBench b;
+  const CalibrationRecord cal = build_calibration(r, measure_standards(r, b), station_with(bench_kit()), "c",
+                                                  "2026-12-01T00:00:00Z");
+  EXPECT_EQ(cal.budget.frequency_offset_hz, 0.0);
 }
 
 }  // namespace

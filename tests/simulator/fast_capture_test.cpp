@@ -6,6 +6,7 @@
 
 #include <algorithm>
 #include <cmath>
+#include <cstdio>
 #include <string>
 #include <vector>
 
@@ -207,6 +208,50 @@ TEST_F(FastCapture, DwellOfOneRampMissesABinAndTheRelativeRuleDoesNot) {
   EXPECT_NEAR(exact[100] - step[100], -10.0, 1.0);
   EXPECT_EQ(low_relative, 0);
   EXPECT_LT(worst_relative, 0.2);   // as on the OPEN with a 10 ms dwell (test above)
+}
+
+// Where a bin's reading lands (MEASUREMENT.md §11, "Where the reading lands"): with one crossing
+// per dwell (R2 met with equality) the tone meets the receiver once in each bin, at the frequency
+// where the two meet, and that place moves one bin per dwell: every bin reads the unit at the
+// same offset d from its frequency, set by the free-running ramp's phase. This is the physics of
+// a swept tone under a swept receiver, not a model choice: the analyzer responds only where the
+// tone is inside its RBW, and with an RBW above the bin width that is where the two meet. Two
+// captures a quarter ramp apart (the receiver then meets the tone a quarter bin, 137.5 kHz,
+// further round): on the antenna's steep sides their difference over the slope is the change of
+// d. A shift in frequency moves the two sides of the dip the same way in d (a change of level
+// would move them oppositely). The slope is the first capture's central difference (common
+// practice, no source); the noise (S/N about 50 dB) scatters each bin's estimate by some 30 kHz,
+// so the means of the two sides are compared.
+TEST_F(FastCapture, EveryBinReadsTheUnitAtOneCommonOffset) {
+  world.connected = make_antenna(AntennaParams{78.0, 78.0, 915e6, 40.0, 40.0});   // a narrow part: steep sides
+  const double sweep = 200 * 0.005 * 202.0 / 201.0;
+  start_ramp(0.005);
+  const std::vector<double> a = capture(1e6, sweep, 2.002);
+  start_ramp(0.005);
+  const std::vector<double> b = capture(1e6, sweep, 2.002 + 0.00125);
+  double falling = 0, rising = 0;   // sums of the change of d, Hz
+  int n_falling = 0, n_rising = 0;
+  for (std::size_t i = 2; i + 2 < a.size(); ++i) {
+    const double slope = (a[i + 1] - a[i - 1]) / 2;   // dB per bin
+    const double curvature = std::abs(a[i + 1] - 2 * a[i] + a[i - 1]);
+    if (std::abs(slope) < 0.3 || curvature > 0.2 * std::abs(slope)) continue;
+    const double moved = (b[i] - a[i]) / slope * kBinHz;
+    if (slope < 0) {
+      falling += moved;
+      ++n_falling;
+    } else {
+      rising += moved;
+      ++n_rising;
+    }
+  }
+  ASSERT_GE(n_falling, 5);
+  ASSERT_GE(n_rising, 5);
+  falling /= n_falling;
+  rising /= n_rising;
+  EXPECT_NEAR(falling, rising, 0.1 * kBinHz) << "both sides of the dip move by the same d";
+  EXPECT_NEAR(std::abs(falling + rising) / 2, kBinHz / 4, 0.1 * kBinHz) << "a quarter ramp later, a quarter bin";
+  std::printf("[ offset  ] d moved by %.0f kHz on the falling side (%d bins), %.0f kHz on the rising side (%d bins)\n",
+              falling / 1e3, n_falling, rising / 1e3, n_rising);
 }
 
 // Breaking the crossing rule: a 1 ms ramp over 110 MHz crosses a 30 kHz RBW at 1.1e11 Hz/s,
