@@ -18,6 +18,9 @@
 //      plan's points are all interior bins.
 // Dynamic range: the LOAD must read at least the recipe's margin above the noise floor at the
 // chosen RBW (kTB + NF + attenuation).
+// Where readings land: each bin reads the unit where tone and receiver meet, up to half a bin
+// from the bin frequency, the same offset in every bin of a capture (no shared trigger sets the
+// ramp's phase). The budget carries that as a bounded term (frequency_offset_db, uncertainty.hpp).
 #pragma once
 
 #include <string>

@@ -1,5 +1,6 @@
 // The stored budget (calibrations.budget_json) keeps the directivity vector from known
-// mismatches when a calibration has one, and budgets stored before it existed still load.
+// mismatches, the mismatch standards' definitions and a fast capture's frequency offset when a
+// calibration has them, and budgets stored before they existed still load.
 #include <gtest/gtest.h>
 
 #include "daemon/store/budget_json.hpp"
@@ -81,6 +82,23 @@ TEST(BudgetJson, KeepsTheMismatchDefinitions) {
   EXPECT_EQ(back->mismatch[0].phase_tolerance_rad, 0.0175);
   EXPECT_EQ(budget_to_json(two_points()).find("mismatch"), std::string::npos);
   EXPECT_TRUE(budget_from_json(budget_to_json(two_points()))->mismatch.empty());
+}
+
+// A fast capture's budget keeps its frequency offset (half a bin, MEASUREMENT.md §11), so a stored
+// run is judged again with the same term; a budget stored without the key is a step sweep's (0).
+TEST(BudgetJson, KeepsTheFastCaptureFrequencyOffset) {
+  core::UncertaintyBudget b = two_points();
+  b.frequency_offset_hz = 0.25e6;
+  const auto back = budget_from_json(budget_to_json(b));
+  ASSERT_TRUE(back);
+  EXPECT_EQ(back->frequency_offset_hz, 0.25e6);
+  std::string text = budget_to_json(two_points());
+  const std::string key = "\"frequency_offset_hz\":0.0,";
+  ASSERT_NE(text.find(key), std::string::npos) << text;
+  text.erase(text.find(key), key.size());
+  const auto old = budget_from_json(text);
+  ASSERT_TRUE(old);
+  EXPECT_EQ(old->frequency_offset_hz, 0.0);
 }
 
 }  // namespace
