@@ -24,12 +24,21 @@ CalibratedTrace calibrate_points(const CalibrationRecord& cal, const std::vector
   out.shift.frequency_offset_hz = cal.budget.frequency_offset_hz;
   // Fast capture: the unit's reading may be up to half a bin off its frequency (0 otherwise).
   const std::vector<double> offset_db = frequency_offset_db(dut, cal.budget.frequency_offset_hz);
+  std::vector<double> offset_u;
+  {
+    std::vector<double> f(dut.size()), sig(dut.size());
+    for (std::size_t i = 0; i < dut.size(); ++i) {
+      f[i] = dut[i].frequency_hz;
+      sig[i] = reading_sigma_db(cal.budget, i, dut[i].raw_dbm);
+    }
+    offset_u = frequency_offset_sigma_db(f, sig, cal.budget.frequency_offset_hz);
+  }
   for (std::size_t i = 0; i < dut.size(); ++i) {
     PointResult p;
     p.frequency_hz = dut[i].frequency_hz;
     p.raw_dbm = dut[i].raw_dbm;
     double rl = cal.reference_dbm[i] - dut[i].raw_dbm;
-    const ReturnLossBounds b = budget_bounds(cal.budget, i, cal.reference_dbm[i], dut[i].raw_dbm, offset_db[i]);
+    const ReturnLossBounds b = budget_bounds(cal.budget, i, cal.reference_dbm[i], dut[i].raw_dbm, offset_db[i], offset_u[i]);
     if (b.clamped) {
       // Above the |Γ| = 1 reference: noise or drift; a passive DUT cannot reflect more than all.
       ++out.clamped_points;
@@ -39,7 +48,7 @@ CalibratedTrace calibrate_points(const CalibrationRecord& cal, const std::vector
     p.return_loss_worst_db = std::min(b.worst_db, rl);
     p.return_loss_best_db = std::max(b.best_db, rl);
     out.points.push_back(p);
-    out.shift.gamma_error.push_back(gamma_error_radius(cal.budget, i, cal.reference_dbm[i], dut[i].raw_dbm, offset_db[i]));
+    out.shift.gamma_error.push_back(gamma_error_radius(cal.budget, i, cal.reference_dbm[i], dut[i].raw_dbm, offset_db[i], offset_u[i]));
     const double s_d = reading_sigma_db(cal.budget, i, dut[i].raw_dbm);
     const double s_r = cal.budget.reference_noise_db[i];
     out.shift.sigma_db.push_back(std::sqrt(s_d * s_d + s_r * s_r));

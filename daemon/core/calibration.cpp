@@ -221,6 +221,11 @@ CalibrationState calibration_due(const CalibrationRecord* cal, const Recipe& rec
   if (cal->budget.frequency_hz.size() != cal->reference_dbm.size()) {
     return {true, fmt::format("calibration {} has no uncertainty budget (made by an older version)", cal->id)};
   }
+  if (recipe.mode == SweepMode::fast_capture && !(cal->budget.frequency_offset_hz > 0)) {
+    // Its readings carry the capture's frequency offset, but its budget has no term for it.
+    return {true, fmt::format("calibration {} has no frequency-offset term for fast capture (made by an older "
+                              "version)", cal->id)};
+  }
   if (!cal->recipe.content_hash.empty() && !recipe.content_hash.empty() &&
       cal->recipe.content_hash != recipe.content_hash) {
     return {true, fmt::format("calibration {} was made for recipe {} {}, not this one", cal->id, cal->recipe.name,

@@ -8,6 +8,7 @@
 
 #include <fmt/format.h>
 
+#include "daemon/core/fast_capture_plan.hpp"
 #include "daemon/core/frequency_text.hpp"
 #include "daemon/core/instrument_needs.hpp"
 
@@ -87,6 +88,33 @@ std::vector<CheckFinding> check_recipe(const Recipe& r, const StationCapability&
         fmt::format("the recipe asks for the mismatch standards, but {} defines none; add a \"mismatch\" list to the "
                     "kit file (config/README.md, calibration kits) or set use_mismatch to false",
                     kit));
+  }
+
+  // The directivity vector is solved from two mismatch standards (MEASUREMENT.md §6.5): one alone
+  // gives a circle, not a point; beyond two, only the first two are used.
+  if (r.calibration.use_mismatch && st.kit.mismatch.size() == 1) {
+    add(out, "error", "/calibration/use_mismatch",
+        fmt::format("kit {} defines one mismatch standard ({}); the directivity vector needs two a quarter turn "
+                    "apart; add the second to the kit's \"mismatch\" list or set use_mismatch to false",
+                    st.kit.source.empty() ? st.kit.identity : st.kit.source, st.kit.mismatch.front().name));
+  } else if (r.calibration.use_mismatch && st.kit.mismatch.size() > 2) {
+    add(out, "warning", "/calibration/use_mismatch",
+        fmt::format("kit {} defines {} mismatch standards: all are measured, the directivity vector is solved from "
+                    "the first two ({} and {})",
+                    st.kit.source.empty() ? st.kit.identity : st.kit.source, st.kit.mismatch.size(),
+                    st.kit.mismatch[0].name, st.kit.mismatch[1].name));
+  }
+
+  // Fast capture over an unevenly spaced plan reads between bins and interpolates; the budget's
+  // offset term bounds half a bin of a straight trace, not the interpolation error on a curve.
+  if (r.mode == SweepMode::fast_capture) {
+    const std::vector<double> plan = plan_frequencies(r);
+    if (plan.size() >= 2 && !fast_capture_axis(plan).bins_on_plan) {
+      add(out, "warning", "/segments",
+          "fast capture over unevenly spaced points: the readings are interpolated between the receiver's bins, and "
+          "the uncertainty budget does not bound the interpolation error on a curved trace; space the points evenly "
+          "(one segment, or segments of equal step that meet)");
+    }
   }
 
   // A calibration switch must have a position for every standard the recipe calibrates with.

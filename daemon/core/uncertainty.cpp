@@ -115,6 +115,21 @@ std::vector<double> frequency_offset_db(const std::vector<Reading>& trace, doubl
   return out;
 }
 
+std::vector<double> frequency_offset_sigma_db(const std::vector<double>& f, const std::vector<double>& sigma_db,
+                                              double offset_hz) {
+  std::vector<double> out(f.size(), 0.0);
+  if (!(offset_hz > 0) || f.size() < 2 || sigma_db.size() != f.size()) return out;
+  for (std::size_t i = 0; i < f.size(); ++i) {
+    double worst = 0;
+    for (std::size_t j : {i - 1, i + 1}) {
+      if (j >= f.size() || f[j] == f[i]) continue;   // i − 1 wraps to a huge index at i = 0
+      worst = std::max(worst, std::hypot(sigma_db[i], sigma_db[j]) / std::abs(f[j] - f[i]));
+    }
+    out[i] = offset_hz * worst;
+  }
+  return out;
+}
+
 UncertaintyBudget build_budget(const Recipe& recipe, const std::map<std::string, std::vector<Reading>>& traces,
                                const std::vector<double>& reference_dbm, const CalKit& kit, const BudgetInputs& in,
                                std::vector<std::string>& warnings) {
@@ -183,6 +198,19 @@ UncertaintyBudget build_budget(const Recipe& recipe, const std::map<std::string,
   }
 
   b.frequency_hz.resize(n);
+  for (std::size_t i = 0; i < n; ++i) b.frequency_hz[i] = open[i].frequency_hz;
+  // Fast capture: the noise part of each standard's offset term (statistical, 0 for a step sweep).
+  const auto offset_sigma = [&](const std::vector<Reading>& t) {
+    std::vector<double> sig(t.size()), fr(t.size());
+    for (std::size_t i = 0; i < t.size(); ++i) {
+      fr[i] = t[i].frequency_hz;
+      sig[i] = reading_sigma_db(b, i, t[i].raw_dbm);
+    }
+    return frequency_offset_sigma_db(fr, sig, b.frequency_offset_hz);
+  };
+  const std::vector<double> open_offset_u = offset_sigma(open);
+  const std::vector<double> load_offset_u = offset_sigma(load);
+  const std::vector<double> short_offset_u = with_short ? offset_sigma(traces.at("SHORT")) : open_offset_u;
   b.reference_error_low_db.resize(n);
   b.reference_error_high_db.resize(n);
   b.reference_noise_db.resize(n);
@@ -202,10 +230,16 @@ UncertaintyBudget build_budget(const Recipe& recipe, const std::map<std::string,
     const double load_res = rl_load / (1 - src * rl_load);  // |Γ_L/(1 − E_SΓ_L)|
     b.load_residual[i] = rl_load;
     // Noise of the reference: R = (P_o + P_s)/2 -> u_R² = (σ_o² + σ_s²)/4, both at the high level.
+    // Fast capture adds the noise part of the standards' offset terms: of the mean, half the
+    // root sum of squares of the two.
     const double s_hi = reading_sigma_db(b, i, open[i].raw_dbm);
-    b.reference_noise_db[i] = with_short ? s_hi / std::sqrt(2.0) : s_hi;
+    const double u_ref_offset =
+        with_short ? std::hypot(open_offset_u[i], short_offset_u[i]) / 2 : open_offset_u[i];
+    b.reference_noise_db[i] = std::hypot(with_short ? s_hi / std::sqrt(2.0) : s_hi, u_ref_offset);
     const double s_load = reading_sigma_db(b, i, load[i].raw_dbm);
-    const double u_load = std::sqrt(s_load * s_load + b.reference_noise_db[i] * b.reference_noise_db[i]);
+    const double u_load =
+        std::sqrt(s_load * s_load + load_offset_u[i] * load_offset_u[i] +
+                  b.reference_noise_db[i] * b.reference_noise_db[i]);
     const double load_rel_db = load[i].raw_dbm - reference_dbm[i];
     b.directivity_measured[i] = amp(load_rel_db);
     // |E_D| <= 10^((P_L − T)/20) + |Γ_L'| + k·u_conn, with P_L − T = (P_L − R) + (R − T): the
@@ -266,7 +300,7 @@ struct GammaInterval {
 };
 
 GammaInterval gamma_interval(const UncertaintyBudget& b, std::size_t i, double reference_dbm, double raw_dbm,
-                             double offset_db) {
+                             double offset_db, double offset_sigma_db) {
   GammaInterval g;
   const double rl = reference_dbm - raw_dbm;
   g.clamped = rl < 0;
@@ -274,7 +308,7 @@ GammaInterval gamma_interval(const UncertaintyBudget& b, std::size_t i, double r
   const double k = b.coverage_factor;
   const double u_d = reading_sigma_db(b, i, raw_dbm);
   const double u_r = b.reference_noise_db[i];
-  const double big_u = k * std::sqrt(u_d * u_d + u_r * u_r);
+  const double big_u = k * std::sqrt(u_d * u_d + u_r * u_r + offset_sigma_db * offset_sigma_db);
   // |E_D + Γ'| = 10^((P − T)/20), P − T = −RL + (R − T) ± U.
   // The fast-capture frequency offset is bounded: added to the reference's bounded error.
   const double m_low = amp(-rl + b.reference_error_low_db[i] - offset_db - big_u);
@@ -293,8 +327,8 @@ GammaInterval gamma_interval(const UncertaintyBudget& b, std::size_t i, double r
 }  // namespace
 
 ReturnLossBounds budget_bounds(const UncertaintyBudget& b, std::size_t index, double reference_dbm, double raw_dbm,
-                               double offset_db) {
-  const GammaInterval g = gamma_interval(b, index, reference_dbm, raw_dbm, offset_db);
+                               double offset_db, double offset_sigma_db) {
+  const GammaInterval g = gamma_interval(b, index, reference_dbm, raw_dbm, offset_db, offset_sigma_db);
   ReturnLossBounds r;
   r.clamped = g.clamped;
   r.worst_db = g.high >= 1 ? 0.0 : -db_of_amp(g.high);
@@ -303,8 +337,8 @@ ReturnLossBounds budget_bounds(const UncertaintyBudget& b, std::size_t index, do
 }
 
 double gamma_error_radius(const UncertaintyBudget& b, std::size_t index, double reference_dbm, double raw_dbm,
-                          double offset_db) {
-  const GammaInterval g = gamma_interval(b, index, reference_dbm, raw_dbm, offset_db);
+                          double offset_db, double offset_sigma_db) {
+  const GammaInterval g = gamma_interval(b, index, reference_dbm, raw_dbm, offset_db, offset_sigma_db);
   return std::max(g.high - g.measured, g.measured - g.low);
 }
 

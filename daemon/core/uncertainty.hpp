@@ -45,6 +45,14 @@ double frequency_offset_db(const std::vector<double>& f, const std::vector<doubl
 // The same for every point of a trace.
 std::vector<double> frequency_offset_db(const std::vector<Reading>& trace, double offset_hz);
 
+// The reading noise hides part of a slope: the chord slope of the true trace differs from the
+// readings' by (n_j − n_i)/Δf. This is the standard uncertainty (dB) that noise adds to the
+// offset term at each point: offset_hz·max over the neighbours of sqrt(σ_i² + σ_j²)/|f_j − f_i|,
+// combined with the other statistical terms (root sum of squares, then the coverage factor).
+// sigma_db: σ of each reading. 0 everywhere when offset_hz is 0.
+std::vector<double> frequency_offset_sigma_db(const std::vector<double>& f, const std::vector<double>& sigma_db,
+                                              double offset_hz);
+
 // σ of one reading (dB) at level `raw_dbm` and plan point `index`: the measured high-level noise
 // plus additive noise scaled from the LOAD level (or the receiver floor, whichever is larger).
 double reading_sigma_db(const UncertaintyBudget& b, std::size_t index, double raw_dbm);
@@ -53,13 +61,14 @@ double reading_sigma_db(const UncertaintyBudget& b, std::size_t index, double ra
 // against the calibration reference `reference_dbm`. Bounded terms as a worst case, statistical
 // terms at the coverage factor, added to them (daemon/core/MEASUREMENT.md). offset_db: the
 // reading's frequency-offset term (frequency_offset_db; 0 for a step sweep), bounded, in dB.
+// offset_sigma_db: the noise part of that term (frequency_offset_sigma_db), statistical.
 ReturnLossBounds budget_bounds(const UncertaintyBudget& b, std::size_t index, double reference_dbm, double raw_dbm,
-                               double offset_db = 0);
+                               double offset_db = 0, double offset_sigma_db = 0);
 
 // The error radius in |Γ| that the bounds allow around a reading: max distance from the
 // measured |Γ| to either bound. Used by the resonance-shift bound.
 double gamma_error_radius(const UncertaintyBudget& b, std::size_t index, double reference_dbm, double raw_dbm,
-                          double offset_db = 0);
+                          double offset_db = 0, double offset_sigma_db = 0);
 
 // Named terms at one point for a report: each in the unit it is combined in.
 struct BudgetTerm {

@@ -60,7 +60,9 @@ std::optional<core::UncertaintyBudget> budget_from_json(const std::string& text)
     b.connection = j.at("connection").get<double>();
     b.noise_floor_dbm = j.at("noise_floor_dbm").get<double>();
     b.error_delay_s = j.value("error_delay_s", 5e-9);
-    b.frequency_offset_hz = j.value("frequency_offset_hz", 0.0);   // absent: a budget of a step sweep
+    // Absent: a step sweep's budget, or a fast capture's stored before the term existed
+    // (calibration_due makes that calibration due).
+    b.frequency_offset_hz = j.value("frequency_offset_hz", 0.0);
     b.kit_identity = j.value("kit_identity", "");
     b.kit_serial = j.value("kit_serial", "");
     for (const auto& n : j.at("noise")) {

@@ -160,6 +160,23 @@ TEST(Calibration, MissingOrMisalignedTracesAreNotValid) {
   EXPECT_TRUE(any_contains(cal.errors, "LOAD trace has 200 readings but the plan has 201")) << joined(cal.errors);
 }
 
+// A fast-capture calibration stored before its budget carried the frequency-offset term (the
+// key absent reads as 0) must not judge units: its readings may be half a bin off and nothing
+// in its bounds says so. Derived in MEASUREMENT.md §11; no outside source.
+TEST(CalibrationDue, FastCaptureCalibrationWithoutOffsetTermIsDue) {
+  Recipe r = whip_recipe();
+  CalibrationRecord cal = calibrate(r);
+  r.mode = SweepMode::fast_capture;
+  cal.budget.frequency_offset_hz = 0;
+  const double t0 = 1.8e9;
+  CalibrationState s = calibration_due(&cal, r, t0 + 60, t0, std::nullopt);
+  EXPECT_TRUE(s.due);
+  EXPECT_NE(s.reason.find("frequency-offset"), std::string::npos) << s.reason;
+  cal.budget.frequency_offset_hz = 0.25e6;
+  s = calibration_due(&cal, r, t0 + 60, t0, std::nullopt);
+  EXPECT_EQ(s.reason.find("frequency-offset"), std::string::npos) << s.reason;
+}
+
 TEST(CalibrationDue, ReasonsInOrder) {
   Recipe r = whip_recipe();
   EXPECT_TRUE(calibration_due(nullptr, r, 1000, 0, std::nullopt).due);

@@ -112,6 +112,8 @@ double median(std::vector<double> v) {
   return v[v.size() / 2];
 }
 
+// The one-port error model (1) of MEASUREMENT.md: common practice, no source. The solution
+// (two circles) is derived in MEASUREMENT.md §6.5; no outside source.
 TEST(DirectivityVector, ExactReadingsGiveTheTrueVector) {
   // No noise, ideal standards, no source match, no reference error: d̂ = d.
   for (double ph : {0.0, 1.0, 2.5, -2.0}) {
@@ -154,6 +156,8 @@ TEST(DirectivityVector, UnclippedNoiseLeavesTheTruthOutsideRarely) {
   EXPECT_LT(c.outside, c.points * 0.003) << c.outside << " of " << c.points;
 }
 
+// Elementary geometry (the mirror image across the line of centres), derived in
+// MEASUREMENT.md §6.5; no outside source.
 TEST(DirectivityVector, TheMirrorIsRejectedByTheLoad) {
   // d near the origin; the mirror across the centres' line lies about 0.14 − |d| away from it,
   // far outside what the LOAD allows.
@@ -178,6 +182,7 @@ TEST(DirectivityVector, TheMirrorIsRejectedByTheLoad) {
   EXPECT_LT(std::abs(both.d - d), both.bound);
 }
 
+// Two circles that do not meet have no common point (elementary geometry; no outside source).
 TEST(DirectivityVector, InconsistentReadingsAreRefused) {
   // MISMATCH-B read as if it were a SHORT: no d satisfies both circles.
   DirectivityInputs in;

@@ -191,7 +191,8 @@ TEST(RecipeCheck, MismatchStandardsNeedAKitThatHasThem) {
   EXPECT_EQ(e->key, "/calibration/use_mismatch");
   EXPECT_NE(e->message.find("kit file /etc/echoline/kits/bench-kit.jsonc"), std::string::npos) << e->message;
   st.kit.source.clear();
-  e = find(check_recipe(r, st), "error", "mismatch");
+  f = check_recipe(r, st);
+  e = find(f, "error", "mismatch");
   ASSERT_NE(e, nullptr);
   EXPECT_NE(e->message.find("built-in conservative kit"), std::string::npos) << e->message;
 
@@ -199,8 +200,24 @@ TEST(RecipeCheck, MismatchStandardsNeedAKitThatHasThem) {
   a.name = "MISMATCH-A";
   a.magnitude = 0.1;
   st.kit.mismatch = {a};
+  // One standard gives d on a circle, not a point (MEASUREMENT.md §6.5, derived there).
+  f = check_recipe(r, st);
+  e = find(f, "error", "needs two");
+  ASSERT_NE(e, nullptr) << dump(f);
+  EXPECT_EQ(e->key, "/calibration/use_mismatch");
+  MismatchStandard b = a;
+  b.name = "MISMATCH-B";
+  b.offset_delay_s = 137e-12;
+  st.kit.mismatch = {a, b};
   f = check_recipe(r, st);
   EXPECT_FALSE(has_errors(f)) << dump(f);
+  MismatchStandard c = a;
+  c.name = "MISMATCH-C";
+  st.kit.mismatch = {a, b, c};
+  f = check_recipe(r, st);
+  EXPECT_FALSE(has_errors(f)) << dump(f);
+  EXPECT_NE(find(f, "warning", "first two (MISMATCH-A and MISMATCH-B)"), nullptr) << dump(f);
+  st.kit.mismatch = {a, b};
   r.calibration.use_mismatch = false;   // a kit with them does not oblige a recipe to use them
   EXPECT_FALSE(has_errors(check_recipe(r, station())));
 
@@ -215,10 +232,27 @@ TEST(RecipeCheck, MismatchStandardsNeedAKitThatHasThem) {
   EXPECT_EQ(e->key, "/calibration/use_mismatch");
   EXPECT_NE(e->message.find("profile bench-switch"), std::string::npos) << e->message;
   st.switch_positions.insert("MISMATCH-A");
+  st.switch_positions.insert("MISMATCH-B");
   f = check_recipe(r, st);
   EXPECT_FALSE(has_errors(f)) << dump(f);
   st.switch_positions.erase("SHORT");
   EXPECT_NE(find(check_recipe(r, st), "error", "no position for the SHORT standard"), nullptr);
+}
+
+// Fast capture over unevenly spaced points interpolates between bins, which the budget does not
+// bound: the check says so (MEASUREMENT.md §11, derived there; no outside source).
+TEST(RecipeCheck, FastCaptureOverUnevenPointsIsFlagged) {
+  Recipe r = whip_recipe();
+  r.limits.resonance_min_hz.reset();
+  r.limits.resonance_max_hz.reset();
+  r.mode = SweepMode::fast_capture;
+  r.segments = {Segment{860e6, 970e6, 221}};
+  EXPECT_EQ(find(check_recipe(r, station()), "warning", "unevenly spaced"), nullptr);
+  r.segments = {Segment{860e6, 900e6, 41}, Segment{902e6, 928e6, 53}, Segment{930e6, 970e6, 41}};
+  const auto f = check_recipe(r, station());
+  const CheckFinding* w = find(f, "warning", "unevenly spaced");
+  ASSERT_NE(w, nullptr) << dump(f);
+  EXPECT_EQ(w->key, "/segments");
 }
 
 }  // namespace echoline::core

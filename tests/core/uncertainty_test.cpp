@@ -301,6 +301,39 @@ TEST(FrequencyOffset, FastCaptureBoundsHoldTheTrueReturnLossAtThePlanFrequency) 
               outside, outside_without);
 }
 
+// Noise can hide a slope: two readings 0.5 MHz apart with σ = 0.1 dB each differ by up to
+// k·sqrt(2)·0.1 dB more or less than the true trace. The statistical part is
+// offset·sqrt(σ_i² + σ_j²)/Δf (propagation of uncertainty for a difference, JCGM 100:2008 §5.1.2),
+// the larger neighbour at each point, and nothing when there is no offset.
+TEST(FrequencyOffset, NoisePartOfTheSlopeIsStatistical) {
+  const std::vector<double> f = {900e6, 900.5e6, 901.5e6};
+  const std::vector<double> sigma = {0.1, 0.1, 0.2};
+  const std::vector<double> u = frequency_offset_sigma_db(f, sigma, 0.25e6);
+  ASSERT_EQ(u.size(), 3u);
+  EXPECT_NEAR(u[0], 0.25e6 * std::hypot(0.1, 0.1) / 0.5e6, 1e-12);
+  // Middle point: neighbours 0.5 MHz (σ 0.1) and 1 MHz (σ 0.2) away; the first is larger.
+  EXPECT_NEAR(u[1], std::max(std::hypot(0.1, 0.1) / 0.5e6, std::hypot(0.1, 0.2) / 1e6) * 0.25e6, 1e-12);
+  EXPECT_NEAR(u[2], 0.25e6 * std::hypot(0.2, 0.1) / 1e6, 1e-12);
+  for (double x : frequency_offset_sigma_db(f, sigma, 0)) EXPECT_EQ(x, 0.0);
+
+  // In the interval it joins the reading noise before the coverage factor: with no other
+  // noise, U = k·u.
+  UncertaintyBudget b;
+  b.coverage_factor = 3;
+  b.noise_floor_dbm = -400;
+  b.noise = {SegmentNoise{860e6, 970e6, 100, 0, 0, -60, true}};
+  b.frequency_hz = {915e6};
+  b.reference_error_low_db = {0};
+  b.reference_error_high_db = {0};
+  b.reference_noise_db = {0};
+  b.directivity_bound = {0};
+  b.directivity_measured = {0};
+  b.load_residual = {0};
+  const ReturnLossBounds with = budget_bounds(b, 0, 0, -20, 0, 0.1);
+  EXPECT_NEAR(with.worst_db, 19.7, 1e-9);
+  EXPECT_NEAR(with.best_db, 20.3, 1e-9);
+}
+
 // A step recipe's budget has no offset term.
 TEST(FrequencyOffset, StepSweepBudgetHasNoOffset) {
   const Recipe r = plan_recipe();
