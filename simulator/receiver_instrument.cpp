@@ -14,8 +14,10 @@
 // the largest response while f_rx is within half a bin of the bin frequency (its dwell,
 // sweep_time / (points - 1) long; the sample detector looks only at the bin's instant). The
 // tone is seen at the closest approach |f_src(t) - f_rx(t)| during the dwell, through the RBW
-// shape, so a bin gets the tone's full peak when the source passes the bin frequency while the
-// analyzer dwells there. Timing condition (what a fast-capture setup must meet): relative to the
+// shape, so a bin gets the tone's full peak when the source passes the analyzer's frequency
+// during the dwell. The unit is then seen at the frequency where the two meet, up to half a bin
+// from the bin frequency, set by the free-running ramp's phase (the same for every bin of one
+// capture). Timing condition (what a fast-capture setup must meet): relative to the
 // analyzer, which moves one bin b during a dwell, the ramp must cover its whole band B in one
 // dwell: dwell >= source sweep x (B + b) / B (derived in daemon/core/MEASUREMENT.md §11; a dwell
 // of exactly one source sweep leaves one bin whose tone passes just outside it). Then one

@@ -131,6 +131,17 @@ std::vector<CheckFinding> check_recipe(const Recipe& r, const StationCapability&
                       "profile's switch.positions",
                       st.switch_profile, name, name));
     }
+    // A position that names nothing the station knows is most likely misspelt.
+    for (const std::string& pos : st.switch_positions) {
+      const bool known = pos == "OPEN" || pos == "SHORT" || pos == "LOAD" || pos == "DUT" ||
+                         std::any_of(st.kit.mismatch.begin(), st.kit.mismatch.end(),
+                                     [&](const MismatchStandard& m) { return m.name == pos; });
+      if (known) continue;
+      add(out, "warning", "/calibration",
+          fmt::format("the calibration switch (profile {}) has a position \"{}\" that names no standard of kit {} "
+                      "and is not DUT: check its spelling",
+                      st.switch_profile, pos, st.kit.source.empty() ? st.kit.identity : st.kit.source));
+    }
   }
 
   // Frequency ranges: the source sets each point; the receiver looks span/2 either side.

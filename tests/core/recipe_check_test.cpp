@@ -237,6 +237,16 @@ TEST(RecipeCheck, MismatchStandardsNeedAKitThatHasThem) {
   EXPECT_FALSE(has_errors(f)) << dump(f);
   st.switch_positions.erase("SHORT");
   EXPECT_NE(find(check_recipe(r, st), "error", "no position for the SHORT standard"), nullptr);
+
+  // A misspelt position is named (common practice, no source: a name that matches nothing).
+  st.switch_positions.insert("SHORT");
+  f = check_recipe(r, st);
+  EXPECT_EQ(find(f, "warning", "check its spelling"), nullptr) << dump(f);
+  st.switch_positions.insert("MISMATCHA");
+  f = check_recipe(r, st);
+  const CheckFinding* w = find(f, "warning", "position \"MISMATCHA\"");
+  ASSERT_NE(w, nullptr) << dump(f);
+  EXPECT_NE(w->message.find("check its spelling"), std::string::npos) << w->message;
 }
 
 // Fast capture over unevenly spaced points interpolates between bins, which the budget does not
