@@ -219,10 +219,9 @@ TEST(FrequencyOffset, TermIsTheOffsetTimesTheSteeperChordSlope) {
   EXPECT_EQ(frequency_offset_db(f, vee, 2, 0), 0.0);                                 // a step sweep: no term
 }
 
-// The term is bounded and enters as a worst case (MEASUREMENT.md §3.6): with no other error,
-// a reading at RL 20 dB with 0.3 dB of offset term lies in [19.7, 20.3] dB, from RL = R - P
-// (return loss from the reference, common practice, no source).
-TEST(FrequencyOffset, BudgetAddsTheTermToTheBoundedInterval) {
+// A one-point budget with no error at all and no reading noise (k = 3), so a test sees only
+// the term it adds.
+UncertaintyBudget errorless_budget() {
   UncertaintyBudget b;
   b.coverage_factor = 3;
   b.noise_floor_dbm = -400;
@@ -234,6 +233,14 @@ TEST(FrequencyOffset, BudgetAddsTheTermToTheBoundedInterval) {
   b.directivity_bound = {0};
   b.directivity_measured = {0};
   b.load_residual = {0};
+  return b;
+}
+
+// The term is bounded and enters as a worst case (MEASUREMENT.md §3.6): with no other error,
+// a reading at RL 20 dB with 0.3 dB of offset term lies in [19.7, 20.3] dB, from RL = R - P
+// (return loss from the reference, common practice, no source).
+TEST(FrequencyOffset, BudgetAddsTheTermToTheBoundedInterval) {
+  const UncertaintyBudget b = errorless_budget();
   const ReturnLossBounds plain = budget_bounds(b, 0, 0, -20);
   EXPECT_NEAR(plain.worst_db, 20, 1e-9);
   EXPECT_NEAR(plain.best_db, 20, 1e-9);
@@ -318,17 +325,7 @@ TEST(FrequencyOffset, NoisePartOfTheSlopeIsStatistical) {
 
   // In the interval it joins the reading noise before the coverage factor: with no other
   // noise, U = k·u.
-  UncertaintyBudget b;
-  b.coverage_factor = 3;
-  b.noise_floor_dbm = -400;
-  b.noise = {SegmentNoise{860e6, 970e6, 100, 0, 0, -60, true}};
-  b.frequency_hz = {915e6};
-  b.reference_error_low_db = {0};
-  b.reference_error_high_db = {0};
-  b.reference_noise_db = {0};
-  b.directivity_bound = {0};
-  b.directivity_measured = {0};
-  b.load_residual = {0};
+  const UncertaintyBudget b = errorless_budget();
   const ReturnLossBounds with = budget_bounds(b, 0, 0, -20, 0, 0.1);
   EXPECT_NEAR(with.worst_db, 19.7, 1e-9);
   EXPECT_NEAR(with.best_db, 20.3, 1e-9);
