@@ -340,6 +340,18 @@ TEST(DaemonFastCapture, CalibratesAndJudgesAUnitFromOneTrace) {
 namespace echoline::e2e {
 namespace {
 
+// The newest calibration in the station's store once the daemon has stopped (fails the test if
+// there is none).
+core::CalibrationRecord latest_stored_calibration(const std::filesystem::path& dir) {
+  auto store = store::RunStore::open_read_only(dir / "data" / "e2e-bench.sqlite");
+  EXPECT_TRUE(store.ok()) << store.error().message;
+  if (!store.ok()) return {};
+  auto cal = (*store)->latest_calibration();
+  EXPECT_TRUE(cal.ok() && cal->has_value());
+  if (!cal.ok() || !cal->has_value()) return {};
+  return **cal;
+}
+
 // The kit's mismatch standards in the calibration (recipe whip915-mm, calibration.use_mismatch):
 // the operator is prompted for each by name and in plain words, the simulator connects them with
 // its bench physics, and the store keeps their traces and the kit's definitions.
@@ -384,11 +396,8 @@ TEST(DaemonMismatch, CalibrationMeasuresTheMismatchStandardsAndStoresTheirTraces
   ASSERT_EQ(daemon->process().terminate(30s), 0);
   daemon.reset();
 
-  auto store = store::RunStore::open_read_only(dir / "data" / "e2e-bench.sqlite");
-  ASSERT_TRUE(store.ok()) << store.error().message;
-  auto cal = (*store)->latest_calibration();
-  ASSERT_TRUE(cal.ok() && cal->has_value());
-  const core::CalibrationRecord& c = **cal;
+  const core::CalibrationRecord c = latest_stored_calibration(dir.path());
+  ASSERT_FALSE(c.traces.empty());
   for (const char* name : {"OPEN", "SHORT", "LOAD", "MISMATCH-A", "MISMATCH-B"}) {
     ASSERT_EQ(c.traces.count(name), 1u) << name;
     EXPECT_EQ(c.traces.at(name).size(), 221u) << name;
@@ -447,11 +456,9 @@ TEST(DaemonMismatch, CalibrationSwitchSelectsTheMismatchStandards) {
   EXPECT_TRUE(last["calibration"]["valid"].get<bool>()) << last.dump();
   ASSERT_EQ(daemon->process().terminate(30s), 0);
   daemon.reset();
-  auto store = store::RunStore::open_read_only(dir / "data" / "e2e-bench.sqlite");
-  ASSERT_TRUE(store.ok()) << store.error().message;
-  auto cal = (*store)->latest_calibration();
-  ASSERT_TRUE(cal.ok() && cal->has_value());
-  const auto& traces = (**cal).traces;
+  const core::CalibrationRecord c = latest_stored_calibration(dir.path());
+  ASSERT_FALSE(c.traces.empty());
+  const auto& traces = c.traces;
   const auto& open = traces.at("OPEN");
   for (const char* name : {"MISMATCH-A", "MISMATCH-B"}) {
     // 20 dB below the OPEN on average (|Gamma| 0.1): the switch connected the mismatch, not
