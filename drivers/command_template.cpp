@@ -54,6 +54,9 @@ const std::vector<OperationSpec>& operation_table() {
       {"set_points", "receiver", false, false, {"count"}},
       {"set_sweep_time", "receiver", false, false, {"seconds"}},
       {"set_sweep_time_auto", "receiver", false, false, {}},
+      {"trigger_external", "receiver", false, false, {}},
+      {"trigger_immediate", "receiver", false, false, {}},
+      {"set_trigger_delay", "receiver", false, false, {"seconds"}},
       // switch
       {"select", "switch", false, true, {"position"}},
   };

@@ -26,6 +26,11 @@ struct SweepLimits {
   double retrace_s = 0;                    // source: ramp end back to its start, s
   double rearm_s = 0;                      // receiver: end of a triggered sweep to the next start, s
   int max_points = 0;                      // receiver: trace points
+  // Ramp-start pulse (source) and external trigger input (receiver), for a receiver sweep
+  // started at a known phase of the ramp; negative = the instrument has none.
+  double start_pulse_uncertainty_s = -1;   // source: pulse output against the ramp's start, ± s
+  double trigger_latency_s = 0;            // receiver: trigger input to sweep start at zero delay, s
+  double trigger_uncertainty_s = -1;       // receiver: ± s around that latency
   std::vector<double> rbw_steps_hz;        // receiver: the RBWs it offers, increasing
 };
 

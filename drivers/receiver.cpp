@@ -101,6 +101,13 @@ Status Receiver::set_sweep_time(double seconds) {
 
 Status Receiver::set_sweep_time_auto() { return send("set_sweep_time_auto", {}, true); }
 
+Status Receiver::set_trigger_external(bool on) { return send(on ? "trigger_external" : "trigger_immediate", {}, true); }
+
+Status Receiver::set_trigger_delay(double seconds) {
+  if (Status s = check_range("set_trigger_delay", seconds, 0, 10, "s"); !s.ok()) return s;
+  return send("set_trigger_delay", {{"seconds", seconds}}, true);
+}
+
 Status Receiver::trigger() { return send("trigger", {}, false); }
 
 Status Receiver::sweep_and_wait(std::optional<double> center_hz) {

@@ -42,6 +42,10 @@ class Receiver {
   Status set_points(int count);       // set_points
   Status set_sweep_time(double s);    // set_sweep_time; s > 0
   Status set_sweep_time_auto();       // set_sweep_time_auto
+  // Sweeps start on the external trigger input (trigger_external), TRIGger:DELay after it
+  // (set_trigger_delay, 0..10 s); trigger_immediate returns to starting at INIT.
+  Status set_trigger_external(bool on);
+  Status set_trigger_delay(double s);
   Status trigger();                   // start one single sweep (e.g. INIT:IMM), no wait
   Status wait_sweep();                // *OPC?
   // One message: [set_center;]trigger;*OPC? -- moves (when center_hz is given, range-checked),

@@ -23,13 +23,14 @@ std::filesystem::path resolve(const std::filesystem::path& base, const std::stri
 void load_fixture(const JsoncDocument& doc, FixtureConfig& f) {
   const JsonPointer at = kRoot / "fixture";
   doc.check_keys(at, {"coupling_db", "mainline_loss_db", "cable_loss_db", "source_match_db", "nominal_directivity_db",
-                      "test_port_delay_ns"});
+                      "test_port_delay_ns", "start_pulse_cable"});
   f.coupling_db = doc.number_in(at / "coupling_db", f.coupling_db, 1, 60, "dB");
   f.mainline_loss_db = doc.number_in(at / "mainline_loss_db", f.mainline_loss_db, 0, 10, "dB");
   f.cable_loss_db = doc.number_in(at / "cable_loss_db", f.cable_loss_db, 0, 20, "dB");
   f.source_match_db = doc.number_in(at / "source_match_db", f.source_match_db, 0, 80, "dB");
   f.nominal_directivity_db = doc.number_in(at / "nominal_directivity_db", f.nominal_directivity_db, 0, 80, "dB");
   f.test_port_delay_ns = doc.number_in(at / "test_port_delay_ns", f.test_port_delay_ns, 0, 1000, "ns");
+  f.start_pulse_cable = doc.bool_or(at / "start_pulse_cable", f.start_pulse_cable);
 }
 
 void load_api(const JsoncDocument& doc, const std::filesystem::path& base, const std::filesystem::path& data_dir, ApiConfig& a) {

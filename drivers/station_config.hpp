@@ -24,6 +24,8 @@ struct FixtureConfig {
   double source_match_db = 25;         // test-port source match as return loss (dB)
   double nominal_directivity_db = 30;  // coupler directivity from its datasheet (dB); calibration measures the effective one
   double test_port_delay_ns = 2.5;     // one-way electrical delay coupler -> test port (cable and adapters), ns
+  bool start_pulse_cable = false;      // the source's ramp-start pulse output is cabled to the receiver's
+                                       // external trigger input (fast capture starts on a known ramp phase)
 };
 
 struct ApiConfig {

@@ -24,6 +24,13 @@
 // receiver sweep with max hold fills the trace. A shorter receiver sweep leaves bins that
 // missed the tone low or at the noise floor; max hold over more receiver sweeps fills them only
 // as the two sweeps' phases happen to line up.
+// External trigger (TRIGger:SOURce EXTernal): INIT arms the sweep, which starts TRIGger:DELay
+// after the next pulse at the trigger input. The only pulse source is the swept source's
+// ramp-start output, through the bench's trigger cable (World::trigger_cable): a pulse reaches
+// the input the cable's latency (± its jitter) after each ramp starts. With no cable, or no
+// ramp, the armed sweep waits for ever, as a real analyzer does (*OPC? does not answer). A
+// triggered sweep starts at a known phase of the ramp, so the tone meets every bin at a
+// frequency the planner chose instead of one set by chance.
 // A tone crossing the RBW at rate R (Hz/s) loses peak power: a linear FM through a Gaussian
 // filter of 3 dB bandwidth B peaks (1 + x^2)^(-1/2) in power with x = 2 ln2 R / (pi B^2)
 // (derived here from the Gaussian's impulse response; the same form as the sweep-rate loss
@@ -39,6 +46,7 @@
 #include <cmath>
 #include <cstring>
 #include <numbers>
+#include <optional>
 #include <random>
 #include <stdexcept>
 
@@ -71,6 +79,7 @@ namespace {
 constexpr double kMinRbwHz = 1, kMaxRbwHz = 10e6;
 constexpr double kMinPoints = 2, kMaxPoints = 10001;
 constexpr std::size_t kMarkers = 4;
+constexpr double kNeverS = 1e9;   // an armed sweep with no trigger: "never" on the sim clock
 
 double mw_of(double dbm) { return std::pow(10.0, dbm / 10.0); }
 double dbm_of(double mw) { return 10.0 * std::log10(std::max(mw, 1e-30)); }
@@ -168,6 +177,8 @@ class ReceiverInstrument final : public SimInstrument {
     attenuation_db_ = 0;
     points_ = 401;
     continuous_ = false;
+    trigger_external_ = false;
+    trigger_delay_s_ = 0;
     average_on_ = false;
     average_count_ = 10;
     detector_ = positive;
@@ -248,8 +259,25 @@ class ReceiverInstrument final : public SimInstrument {
     return out;
   }
 
-  // INIT: runs the (averaged) sweep now; the result is readable after the modelled time.
+  // When an INIT at `now` starts its sweep: now, or after the trigger (see the file comment);
+  // nullopt when no trigger will come.
+  std::optional<double> sweep_start_s(double now) {
+    if (!trigger_external_) return now;
+    if (!world_.trigger_cable || !world_.source_sweeping) return std::nullopt;
+    std::uniform_real_distribution<double> jitter(-world_.trigger_jitter_s, world_.trigger_jitter_s);
+    const double pulse = world_.next_ramp_start_at(now) + world_.trigger_latency_s + jitter(rng_);
+    return pulse + trigger_delay_s_;
+  }
+
+  // INIT: runs the (averaged) sweep from its start; the result is readable after the modelled time.
   void initiate(double now) {
+    const std::optional<double> begin = sweep_start_s(now);
+    if (!begin) {
+      sweep_end_s_ = now + kNeverS;   // armed, waiting for a trigger that does not come
+      status_.begin_operation(sweep_end_s_);
+      return;
+    }
+    now = *begin;
     ++world_.sweep_counter;
     if (world_.connected) world_.connected->on_sweep(world_.sweep_counter);
     const std::size_t count = average_on_ ? average_count_ : 1;
@@ -365,6 +393,19 @@ class ReceiverInstrument final : public SimInstrument {
       if (continuous_) return Outcome::fail(-213, "INITiate: continuous sweep is on");
       initiate(c.now_s);
       return Outcome::done();
+    });
+    // SCPI-99 Vol 2 TRIGger[:SEQuence]:SOURce IMMediate|EXTernal and :DELay (from memory).
+    tree_.add("TRIGger[:SEQuence]:SOURce[?]", [this](const Call& c) {
+      return choice_setting(c, {"IMMediate", "EXTernal"}, trigger_external_ ? 1 : 0, [this](std::size_t i) {
+        trigger_external_ = i == 1;
+        return std::optional<ScpiError>{};
+      });
+    });
+    tree_.add("TRIGger[:SEQuence]:DELay[?]", [this](const Call& c) {
+      return numeric_setting(c, Unit::seconds, {0, 10, 0}, trigger_delay_s_, [this](double v) {
+        trigger_delay_s_ = v;
+        return std::optional<ScpiError>{};
+      });
     });
     tree_.add("INITiate:CONTinuous[?]", [this](const Call& c) {
       return bool_setting(c, continuous_, [this, &c](bool on) {
@@ -516,6 +557,8 @@ class ReceiverInstrument final : public SimInstrument {
   double ref_level_dbm_ = 0, attenuation_db_ = 0;
   std::size_t points_ = 401;
   bool continuous_ = false, average_on_ = false;
+  bool trigger_external_ = false;    // TRIGger:SOURce EXTernal
+  double trigger_delay_s_ = 0;       // TRIGger:DELay
   std::size_t average_count_ = 10;
   Detector detector_ = positive;
   TraceMode trace_mode_ = write;

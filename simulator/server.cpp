@@ -74,6 +74,9 @@ struct Server::Impl {
 Server::Server(SimConfig config, std::optional<Lot> lot) : impl_(std::make_unique<Impl>(std::move(config), std::move(lot))) {
   Impl& s = *impl_;
   s.world.bench = s.config.bench;
+  s.world.trigger_cable = s.config.trigger_cable.present;
+  s.world.trigger_latency_s = s.config.trigger_cable.latency_s;
+  s.world.trigger_jitter_s = s.config.trigger_cable.jitter_s;
   s.world.standards = s.config.standards;  // a switch's "load_return_loss_db" may replace the LOAD's (it agrees)
   s.world.lot = s.lot ? &*s.lot : nullptr;
 

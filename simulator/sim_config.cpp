@@ -132,11 +132,19 @@ SimConfig from_document(const JsoncDocument& doc) {
   SimConfig cfg;
   cfg.file = doc.file();
   doc.require_object(root);
-  doc.check_keys(root, {"name", "bench", "standards", "latency", "lot", "control", "instruments"});
+  doc.check_keys(root, {"name", "bench", "standards", "trigger_cable", "latency", "lot", "control", "instruments"});
   cfg.name = doc.string_or(root / "name", "");
   cfg.bench = read_bench(doc, root / "bench");
   cfg.standards = read_standards(doc, root / "standards");
   cfg.latency = read_latency(doc, root / "latency");
+  if (doc.has(root / "trigger_cable")) {
+    const JsonPointer at = root / "trigger_cable";
+    doc.require_object(at);
+    doc.check_keys(at, {"latency_ns", "jitter_ns"});
+    cfg.trigger_cable.present = true;
+    cfg.trigger_cable.latency_s = doc.number_in(at / "latency_ns", cfg.trigger_cable.latency_s * 1e9, 0, 1e6, "ns") * 1e-9;
+    cfg.trigger_cable.jitter_s = doc.number_in(at / "jitter_ns", cfg.trigger_cable.jitter_s * 1e9, 0, 1e6, "ns") * 1e-9;
+  }
   if (auto lot = doc.optional_string(root / "lot")) {
     std::filesystem::path p(*lot);
     if (p.is_relative()) p = std::filesystem::path(doc.file()).parent_path() / p;

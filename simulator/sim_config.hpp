@@ -38,11 +38,19 @@ struct InstrumentConfig {
   int settings_line = 0;            // line of "settings" (or of the section), for messages
 };
 
+// A cable from the source's ramp-start pulse output to the receiver's external trigger input.
+struct TriggerCable {
+  bool present = false;
+  double latency_s = 100e-9;   // ramp start to the receiver's sweep start at zero trigger delay
+  double jitter_s = 20e-9;     // +- (uniform) around it
+};
+
 struct SimConfig {
   std::string file;                       // as given
   std::string name;                       // "name": free text for logs
   BenchParams bench;                      // "bench": fixture physics (BenchParams fields)
   StandardsParams standards;              // "standards": OPEN/SHORT/LOAD (StandardsParams fields)
+  TriggerCable trigger_cable;             // "trigger_cable": {"latency_ns", "jitter_ns"}; absent = no cable
   LatencyProfile latency;                 // "latency": {"profile", "command_ms", "delay_scale", "instant_step_s"}
   std::optional<std::filesystem::path> lot;   // "lot": default lot file, relative to this file
   EndpointConfig control;                 // "control": the control port (TCP only)

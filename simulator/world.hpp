@@ -36,6 +36,21 @@ struct World {
   double source_sweep_time_s = 1;       // > 0
   double source_sweep_epoch_s = 0;
 
+  // A cable from the source's ramp-start pulse output to the receiver's external trigger input
+  // (the sim config's "trigger_cable"). Without it a receiver set to trigger externally waits
+  // for ever. The pulse reaches the receiver trigger_latency_s after a ramp starts, give or take
+  // trigger_jitter_s (uniform), the pulse output's and the trigger input's delays together.
+  bool trigger_cable = false;
+  double trigger_latency_s = 0;
+  double trigger_jitter_s = 0;
+
+  // The start of the first ramp at or after time t (the first ramp when t is before it).
+  double next_ramp_start_at(double t) const {
+    if (t <= source_sweep_epoch_s) return source_sweep_epoch_s;
+    const double k = std::ceil((t - source_sweep_epoch_s) / source_sweep_time_s);
+    return source_sweep_epoch_s + k * source_sweep_time_s;
+  }
+
   // The source tone frequency at sim time t (the CW frequency when not sweeping, the start
   // before the first sweep begins).
   double source_frequency_at(double t) const {

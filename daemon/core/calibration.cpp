@@ -179,6 +179,9 @@ CalibrationRecord build_calibration(const Recipe& recipe, const std::map<std::st
   // The DUT's reflection travels the test-port cable twice; the leakage path inside the coupler
   // adds up to 1 ns more (common practice, no source): the relative rotation of the error terms.
   in.error_delay_s = 2 * station.test_port_delay_s + 1e-9;
+  if (recipe.mode == SweepMode::fast_capture && station.frequency_offset_hz > 0) {
+    in.frequency_offset_hz = station.frequency_offset_hz;
+  }
   rec.kit_identity = station.kit.identity;
   rec.kit_serial = station.kit.serial;
   rec.budget = build_budget(recipe, traces, rec.reference_dbm, station.kit, in, rec.warnings);
@@ -215,7 +218,7 @@ CalibrationRecord build_calibration(const Recipe& recipe, const std::map<std::st
 }
 
 CalibrationState calibration_due(const CalibrationRecord* cal, const Recipe& recipe, double now_unix_s,
-                                 double created_unix_s, std::optional<double> temperature_c) {
+                                 double created_unix_s, std::optional<double> temperature_c, double frequency_offset_hz) {
   if (!cal) return {true, "no calibration yet"};
   if (!cal->valid) return {true, fmt::format("calibration {} did not pass its checks", cal->id)};
   if (cal->budget.frequency_hz.size() != cal->reference_dbm.size()) {
@@ -225,6 +228,12 @@ CalibrationState calibration_due(const CalibrationRecord* cal, const Recipe& rec
     // Its readings carry the capture's frequency offset, but its budget has no term for it.
     return {true, fmt::format("calibration {} has no frequency-offset term for fast capture (made by an older "
                               "version)", cal->id)};
+  }
+  if (recipe.mode == SweepMode::fast_capture && frequency_offset_hz >= 0 &&
+      cal->budget.frequency_offset_hz < frequency_offset_hz * (1 - 1e-9)) {
+    return {true, fmt::format("calibration {} bounds readings up to {:.4g} Hz off their frequency; the station's fast "
+                              "capture now allows {:.4g} Hz (was the start-pulse cable removed?)",
+                              cal->id, cal->budget.frequency_offset_hz, frequency_offset_hz)};
   }
   if (!cal->recipe.content_hash.empty() && !recipe.content_hash.empty() &&
       cal->recipe.content_hash != recipe.content_hash) {

@@ -51,12 +51,30 @@ FastCaptureOption ramps_under_sweep(const Geometry& g, double rbw, const FastCap
   }
   o.feasible = true;
   o.capture_s = settle_s + sweep;
+  const double bin = g.axis.bin_hz();
+  // The start pulse sets the phase only where each dwell is exactly R2's: then every meeting
+  // lands one bin further (a longer dwell would let the meetings drift across the trace).
+  out.triggered = in.start_pulse_trigger && sweep <= r2 * (1 + kRel);
+  out.trigger_delay_s = 0;
+  out.frequency_offset_hz = bin / 2;
+  if (out.triggered) {
+    out.trigger_delay_s = start_pulse_delay_s(ramp, in.source_retrace_s, g.ramp_band_hz, bin, in.trigger_latency_s);
+    // At least 1 Hz: a fast capture's budget always carries the term (a calibration without it
+    // is one made before the term existed, calibration_due).
+    out.frequency_offset_hz =
+        std::max(meeting_drift_hz_per_s(ramp, g.ramp_band_hz, bin, period) * in.trigger_uncertainty_s, 1.0);
+    o.capture_s += 2 * (ramp + in.source_retrace_s);   // the wait for the pulse, then the delay
+  }
   const std::string ramp_why = r1 >= in.source_min_sweep_s
                                    ? fmt::format("R1: {} x {} / RBW^2", kFastCaptureK, format_frequency(g.ramp_band_hz))
                                    : "the source's shortest ramp";
   o.bound = fmt::format("ramp {} ({}), receiver sweep {} dwells of {}{} = {:.4g} s (R2)", ms(ramp), ramp_why,
                         g.axis.points - 1, ms(period), in.source_retrace_s > 0 ? " with retrace" : "", sweep);
   if (sweep > r2 * (1 + kRel)) o.bound += own >= in.receiver_min_sweep_s ? ", raised to the receiver's R1" : ", raised to the receiver's shortest sweep";
+  if (out.triggered) {
+    o.bound += fmt::format(", started {} after the ramp-start pulse (readings within {:.3g} Hz of their bins)",
+                           ms(out.trigger_delay_s), out.frequency_offset_hz);
+  }
   out.source_sweep_s = ramp;
   out.receiver_sweep_s = sweep;
   out.receiver_sweeps = 1;
@@ -96,6 +114,9 @@ FastCaptureOption ramp_under_sweeps(const Geometry& g, double rbw, const FastCap
   out.source_sweep_s = ramp;
   out.receiver_sweep_s = sweep;
   out.receiver_sweeps = sweeps;
+  out.triggered = false;   // the slow ramp's phase is not set: each crossing lands within half a bin
+  out.trigger_delay_s = 0;
+  out.frequency_offset_hz = g.axis.bin_hz() / 2;
   return o;
 }
 
@@ -144,6 +165,19 @@ FastCaptureAxis fast_capture_axis(const std::vector<double>& plan) {
 }
 
 double min_ramp_s(double band_hz, double rbw_hz) { return kFastCaptureK * band_hz / (rbw_hz * rbw_hz); }
+
+double start_pulse_delay_s(double ramp_s, double retrace_s, double band_hz, double bin_hz, double latency_s) {
+  const double cycle = ramp_s + retrace_s;
+  const double rate = band_hz / ramp_s;   // R_s
+  double d = std::fmod(cycle - bin_hz / (2 * rate) - latency_s, cycle);
+  if (d < 0) d += cycle;
+  return d;
+}
+
+double meeting_drift_hz_per_s(double ramp_s, double band_hz, double bin_hz, double dwell_s) {
+  const double rs = band_hz / ramp_s, rr = bin_hz / dwell_s;
+  return rr * rs / (rs - rr);
+}
 
 Result<FastCapturePlan> plan_fast_capture(const Recipe& recipe, const FastCaptureInstruments& in, double load_dbm) {
   const std::vector<double> plan = plan_frequencies(recipe);

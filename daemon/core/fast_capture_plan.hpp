@@ -19,8 +19,11 @@
 // Dynamic range: the LOAD must read at least the recipe's margin above the noise floor at the
 // chosen RBW (kTB + NF + attenuation).
 // Where readings land: each bin reads the unit where tone and receiver meet, up to half a bin
-// from the bin frequency, the same offset in every bin of a capture (no shared trigger sets the
-// ramp's phase). The budget carries that as a bounded term (frequency_offset_db, uncertainty.hpp).
+// from the bin frequency, the same offset in every bin of a capture when nothing sets the ramp's
+// phase. With the source's ramp-start pulse cabled to the receiver's external trigger, the
+// receiver starts at the phase that puts every meeting on its bin, and the offset shrinks to
+// what the trigger's timing spread allows. The budget carries the offset as a bounded term
+// (frequency_offset_hz here, frequency_offset_db in uncertainty.hpp).
 #pragma once
 
 #include <string>
@@ -44,6 +47,11 @@ struct FastCaptureInstruments {
   int receiver_max_sweeps = 1000;     // max-hold sweeps the capture may trigger
   std::vector<double> rbw_steps_hz;   // the RBWs the receiver offers, increasing
   double noise_figure_db = 25;
+  // The source's ramp-start pulse reaches the receiver's external trigger (cable, pulse output,
+  // trigger input and the operations all present), with this latency and ± timing spread.
+  bool start_pulse_trigger = false;
+  double trigger_latency_s = 0;
+  double trigger_uncertainty_s = 0;   // pulse output and trigger input together
 };
 
 // The 1-3-10 series from `lo` to `hi` (the RBW steps of a receiver whose profile names none).
@@ -87,9 +95,23 @@ struct FastCapturePlan {
   double noise_floor_dbm = 0;    // at rbw_hz, with the recipe's attenuation
   double load_dbm = 0;           // the LOAD level the margin was taken from
   double capture_s = 0;          // expected: settle + sweeps + re-arms (command time not included)
+  // Ramps under one sweep with the start pulse: the receiver sweep waits for the pulse and
+  // starts trigger_delay_s after it, which puts every meeting on its bin's frequency.
+  bool triggered = false;
+  double trigger_delay_s = 0;
+  // The largest distance from a plan frequency to the frequency its reading belongs to: half a
+  // bin untriggered, the trigger's timing spread times the meeting's drift rate triggered.
+  double frequency_offset_hz = 0;
   std::string reason;            // why this plan: the margin, the binding rule, the runner-up
   std::vector<FastCaptureOption> considered;
 };
+
+// Triggered start (ramps under one sweep, dwell exactly R2's): the receiver must start
+// bin/(2 R_s) before a ramp starts (R_s = band/ramp), so the delay after the pulse is that
+// point of the ramp cycle (ramp + retrace) less the trigger latency, within one cycle.
+double start_pulse_delay_s(double ramp_s, double retrace_s, double band_hz, double bin_hz, double latency_s);
+// How far a meeting moves per second of timing error: R_r·R_s/(R_s − R_r), R_r = bin/dwell.
+double meeting_drift_hz_per_s(double ramp_s, double band_hz, double bin_hz, double dwell_s);
 
 // R1: the shortest ramp across `band_hz` at `rbw_hz`.
 double min_ramp_s(double band_hz, double rbw_hz);

@@ -78,6 +78,9 @@ std::vector<CheckFinding> check_recipe(const Recipe& r, const StationCapability&
   if (r.mode == SweepMode::fast_capture && !st.fast_capture_problem.empty()) {
     add(out, "error", "/fast_capture", st.fast_capture_problem);
   }
+  if (r.mode == SweepMode::fast_capture && !st.start_pulse_problem.empty()) {
+    add(out, "warning", "/fast_capture", st.start_pulse_problem);
+  }
 
   // Mismatch standards come from the kit: a recipe cannot ask for what the kit lacks.
   if (r.calibration.use_mismatch && st.kit.mismatch.empty()) {

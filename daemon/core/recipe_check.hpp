@@ -33,6 +33,8 @@ struct StationCapability {
   double source_max_power_dbm = 0;
   CalKit kit = builtin_conservative_kit();  // the standards the station calibrates with
   std::string fast_capture_problem;  // fast-capture mode: why no plan meets the recipe's limits ("" = planned)
+  std::string start_pulse_problem;   // fast-capture mode: why the start-pulse cable is not used ("" = used or absent)
+  double frequency_offset_hz = 0;    // fast-capture mode: the planned capture's offset bound (0 = step sweep)
   double test_port_delay_s = 5e-9;   // one-way electrical delay coupler -> test port (error-term rotation)
   // Profile operations the instruments lack (declared absent, or optional and left out), and the
   // profiles' names for messages. Empty: every operation is there.

@@ -2,6 +2,10 @@
 #include "daemon/core/station_capability.hpp"
 
 #include <algorithm>
+#include <string>
+#include <vector>
+
+#include <fmt/format.h>
 
 #include "daemon/core/rf_math.hpp"
 
@@ -27,6 +31,21 @@ FastCaptureInstruments fast_capture_instruments(const drivers::Profile& source, 
   return in;
 }
 
+std::string start_pulse_problem(const drivers::FixtureConfig& fixture, const drivers::Profile& source,
+                                const drivers::Profile& receiver) {
+  if (!fixture.start_pulse_cable) return "";
+  std::vector<std::string> missing;
+  if (source.sweep.start_pulse_uncertainty_s < 0) missing.push_back(fmt::format("source profile {} gives no sweep.start_pulse_uncertainty_s", source.name));
+  if (receiver.sweep.trigger_uncertainty_s < 0) missing.push_back(fmt::format("receiver profile {} gives no sweep.trigger_latency_s/trigger_uncertainty_s", receiver.name));
+  for (std::string_view op : {"trigger_external", "trigger_immediate", "set_trigger_delay"}) {
+    if (!receiver.has(op)) missing.push_back(fmt::format("receiver profile {} has no operation {}", receiver.name, op));
+  }
+  if (missing.empty()) return "";
+  std::string out = "fixture.start_pulse_cable is set but the cable cannot be used: ";
+  for (std::size_t i = 0; i < missing.size(); ++i) out += (i ? "; " : "") + missing[i];
+  return out + "; fast capture runs untriggered, each reading up to half a bin off its frequency";
+}
+
 namespace {
 
 StationCapability nominal(const drivers::FixtureConfig& fixture) {
@@ -45,7 +64,13 @@ Result<FastCapturePlan> plan_fast_capture(const Recipe& recipe, const drivers::F
                                           const drivers::Profile& source, const drivers::Profile& receiver) {
   const StationCapability c = nominal(fixture);
   const double load_dbm = expected_reflection_dbm(recipe.source.power_dbm, c) - c.directivity_db;
-  return plan_fast_capture(recipe, fast_capture_instruments(source, receiver), load_dbm);
+  FastCaptureInstruments in = fast_capture_instruments(source, receiver);
+  if (fixture.start_pulse_cable && start_pulse_problem(fixture, source, receiver).empty()) {
+    in.start_pulse_trigger = true;
+    in.trigger_latency_s = receiver.sweep.trigger_latency_s;
+    in.trigger_uncertainty_s = receiver.sweep.trigger_uncertainty_s + source.sweep.start_pulse_uncertainty_s;
+  }
+  return plan_fast_capture(recipe, in, load_dbm);
 }
 
 StationCapability station_capability(const drivers::FixtureConfig& fixture, const drivers::Profile& source,
@@ -58,8 +83,13 @@ StationCapability station_capability(const drivers::FixtureConfig& fixture, cons
   double rbw_hz = recipe.receiver.rbw_hz;
   if (recipe.mode == SweepMode::fast_capture) {
     auto plan = plan_fast_capture(recipe, fixture, source, receiver);
-    if (plan) rbw_hz = plan->rbw_hz;
-    else c.fast_capture_problem = plan.error().message;
+    if (plan) {
+      rbw_hz = plan->rbw_hz;
+      c.frequency_offset_hz = plan->frequency_offset_hz;
+    } else {
+      c.fast_capture_problem = plan.error().message;
+    }
+    c.start_pulse_problem = start_pulse_problem(fixture, source, receiver);
   }
   c.noise_floor_dbm = thermal_noise_floor_dbm(rbw_hz, receiver.noise_figure_db) + std::max(0.0, recipe.receiver.attenuation_db);
   c.receiver_max_safe_input_dbm = receiver.max_safe_input_dbm;

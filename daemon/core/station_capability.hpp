@@ -16,6 +16,12 @@ namespace echoline::core {
 // from 10 Hz to 3 MHz).
 FastCaptureInstruments fast_capture_instruments(const drivers::Profile& source, const drivers::Profile& receiver);
 
+// Why the fixture's start-pulse cable cannot be used with these profiles ("" = it can, or
+// there is no cable): the source gives no pulse uncertainty, the receiver no trigger figures
+// or lacks the trigger operations.
+std::string start_pulse_problem(const drivers::FixtureConfig& fixture, const drivers::Profile& source,
+                                const drivers::Profile& receiver);
+
 // The quickest fast-capture plan for this station: the LOAD level from the fixture's nominal
 // figures (expected reflection minus the datasheet directivity, recipe_check.hpp).
 Result<FastCapturePlan> plan_fast_capture(const Recipe& recipe, const drivers::FixtureConfig& fixture,

@@ -149,13 +149,13 @@ UncertaintyBudget build_budget(const Recipe& recipe, const std::map<std::string,
   const bool with_short = traces.count("SHORT") > 0;
   const std::size_t n = open.size();
   const double k = b.coverage_factor;
-  // Fast capture: every reading, the standards' too, may be up to half a bin off its plan
-  // frequency (MEASUREMENT.md §11); the reference and the LOAD carry that term here, the unit's
+  // Fast capture: every reading, the standards' too, may be off its plan frequency, by up to
+  // half a bin, or much less when a start pulse triggers the receiver (MEASUREMENT.md §11); the reference and the LOAD carry that term here, the unit's
   // reading when it is judged (budget_bounds).
   if (recipe.mode == SweepMode::fast_capture && n >= 2) {
     std::vector<double> plan;
     for (const Reading& r : open) plan.push_back(r.frequency_hz);
-    b.frequency_offset_hz = fast_capture_axis(plan).bin_hz() / 2;
+    b.frequency_offset_hz = in.frequency_offset_hz >= 0 ? in.frequency_offset_hz : fast_capture_axis(plan).bin_hz() / 2;
   }
   const std::vector<double> open_offset = frequency_offset_db(open, b.frequency_offset_hz);
   const std::vector<double> load_offset = frequency_offset_db(load, b.frequency_offset_hz);
@@ -354,7 +354,7 @@ std::vector<BudgetTerm> budget_terms(const UncertaintyBudget& b, std::size_t i, 
   t.push_back({"reference low (standards' loss and ripple)", "bounded", b.reference_error_low_db[i], "dB"});
   t.push_back({"reference high (ripple)", "bounded", b.reference_error_high_db[i], "dB"});
   if (b.frequency_offset_hz > 0) {
-    t.push_back({"frequency offset (fast capture, half a bin x the trace's slope)", "bounded", offset_db, "dB"});
+    t.push_back({"frequency offset (fast capture, the offset bound x the trace's slope)", "bounded", offset_db, "dB"});
   }
   t.push_back({"reading noise at this level", "statistical", reading_sigma_db(b, i, raw_dbm), "dB"});
   t.push_back({"reference noise", "statistical", b.reference_noise_db[i], "dB"});

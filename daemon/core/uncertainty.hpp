@@ -25,6 +25,9 @@ struct BudgetInputs {
   double noise_floor_dbm = -200;
   double error_delay_s = 5e-9;     // relative delay of the error terms (fixture), for the shift bound
   double assumed_noise_db = 0.1;   // used only where no repeated readings exist (stated in warnings)
+  // Fast capture: how far a reading may be from its plan frequency (the plan's bound,
+  // FastCapturePlan::frequency_offset_hz); negative = half a bin of the recipe's plan.
+  double frequency_offset_hz = -1;
 };
 
 // traces: "OPEN", "LOAD", optionally "SHORT", and the repeats "OPEN/repeat", "LOAD/repeat" (same

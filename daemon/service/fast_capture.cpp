@@ -114,6 +114,12 @@ class Capture {
     if (Status s = rx_.set_points(plan.axis.points); !s) return s;
     if (Status s = rx_.set_sweep_time(plan.receiver_sweep_s); !s) return s;
     if (Status s = rx_.set_max_hold(true); !s) return s;   // also clears the held trace
+    if (plan.triggered) {
+      // The sweep waits for the source's ramp-start pulse and starts at the planned phase.
+      triggered_ = true;
+      if (Status s = rx_.set_trigger_external(true); !s) return s;
+      if (Status s = rx_.set_trigger_delay(plan.trigger_delay_s); !s) return s;
+    }
 
     drivers::ScpiSession& ss = src_.session();
     const drivers::Profile& sp = src_.profile();
@@ -139,6 +145,9 @@ class Capture {
     if (Status s = src_.post_sweep_mode(false); !s) return s;
     if (Status s = rx_.set_max_hold(false); !s) return s;
     if (Status s = rx_.set_sweep_time_auto(); !s) return s;
+    if (triggered_) {
+      if (Status s = rx_.set_trigger_external(false); !s) return s;
+    }
     if (checks_at_end(src_.profile())) {
       if (Status s = src_.session().drain_errors(); !s) return s;
     }
@@ -165,6 +174,7 @@ class Capture {
     if (rx_.session().is_open()) {
       (void)rx_.set_max_hold(false);
       (void)rx_.set_sweep_time_auto();
+      if (triggered_) (void)rx_.set_trigger_external(false);
     }
   }
 
@@ -173,6 +183,7 @@ class Capture {
   drivers::Receiver& rx_;
   const core::Recipe& recipe_;
   SweepOptions options_;
+  bool triggered_ = false;   // the receiver was set to its external trigger
 };
 
 }  // namespace

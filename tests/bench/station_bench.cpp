@@ -19,6 +19,7 @@
 #include <limits>
 #include <map>
 #include <optional>
+#include <set>
 #include <cstdlib>
 #include <fstream>
 #include <iostream>
@@ -230,9 +231,16 @@ json fast_capture_profile(const std::filesystem::path& dir, int unit_count) {
   // The plan the daemon makes: the station the rig writes (station_rig.cpp) and the sim profiles.
   const drivers::FixtureConfig fixture = testing::demo_fixture();
   const auto profiles = testing::source_dir() / "config/instruments";
-  auto plan = core::plan_fast_capture(fast, fixture, drivers::load_profile(profiles / "sim-source.jsonc"),
-                                      drivers::load_profile(profiles / "sim-receiver.jsonc"));
+  // With the start-pulse cable (the bench sim config has one) and without.
+  drivers::FixtureConfig cabled = fixture;
+  cabled.start_pulse_cable = true;
+  const drivers::Profile source_profile = drivers::load_profile(profiles / "sim-source.jsonc");
+  const drivers::Profile receiver_profile = drivers::load_profile(profiles / "sim-receiver.jsonc");
+  auto plan = core::plan_fast_capture(fast, cabled, source_profile, receiver_profile);
   if (!plan) throw std::runtime_error(plan.error().message);
+  if (!plan->triggered) throw std::runtime_error("the bench's fast plan is not triggered: " + plan->reason);
+  auto untriggered = core::plan_fast_capture(fast, fixture, source_profile, receiver_profile);
+  if (!untriggered) throw std::runtime_error(untriggered.error().message);
   const double capture_s = plan->capture_s;
   auto units = sim.units();
   if (unit_count > 0 && static_cast<std::size_t>(unit_count) < units.size()) units.resize(static_cast<std::size_t>(unit_count));
@@ -240,7 +248,9 @@ json fast_capture_profile(const std::filesystem::path& dir, int unit_count) {
               {"command_s", command_s}, {"units", units.size()},
               {"plan", {{"arrangement", core::to_string(plan->arrangement)}, {"rbw_hz", plan->rbw_hz},
                         {"source_sweep_s", plan->source_sweep_s}, {"receiver_sweep_s", plan->receiver_sweep_s},
-                        {"receiver_sweeps", plan->receiver_sweeps}, {"bins", plan->axis.points}, {"reason", plan->reason}}}};
+                        {"receiver_sweeps", plan->receiver_sweeps}, {"bins", plan->axis.points}, {"reason", plan->reason},
+                        {"triggered", plan->triggered}, {"trigger_delay_s", plan->trigger_delay_s},
+                        {"frequency_offset_hz", plan->frequency_offset_hz}, {"untriggered_reason", untriggered->reason}}}};
   std::cerr << "  plan: " << plan->reason << "\n";
   const std::vector<double> plan_f = core::plan_frequencies(fast);
   // The units' true return loss at the plan frequencies (no bench errors; +inf where infinite;
@@ -271,69 +281,109 @@ json fast_capture_profile(const std::filesystem::path& dir, int unit_count) {
       if ((r + 1) % 20 == 0 || r + 1 == units.size()) std::cerr << fmt::format("  step sweep: {} of {} units\n", r + 1, units.size());
     }
   }
-  std::optional<DaemonProcess> fast_daemon;
-  fast_daemon.emplace(dir, sim, fast_file);
-  DaemonProcess& daemon = *fast_daemon;
-  out["calibration_s"] = daemon.calibrate();
-  std::vector<double> diffs;
-  int outside_bounds = 0, same_verdict = 0, step_outside_fast = 0, fast_truth_outside = 0, truth_points = 0;
-  std::map<std::string, int> pairs;
-  for (std::size_t r = 0; r < units.size(); ++r) {
-    const auto before = replies(sim);
-    const auto t = daemon.test_unit(units[r], fmt::format("FAST-{:04d}", r + 1));
-    const auto after = replies(sim);
-    const double reply_count = (after.first - before.first) + (after.second - before.second);
-    const double imposed = capture_s + reply_count * command_s;
-    out["cycle_s"].push_back(t.seconds);
-    out["replies_per_run"].push_back(reply_count);
-    out["imposed_s"].push_back(imposed);
-    out["overhead_pct"].push_back(100.0 * (t.seconds / imposed - 1.0));
-    out["overhead_vs_capture_pct"].push_back(100.0 * (t.seconds / capture_s - 1.0));
-    out["step_over_fast"].push_back(out["step_cycle_s"][r].get<double>() / t.seconds);
-    same_verdict += t.verdict == step_verdicts[r];
-    ++pairs[step_verdicts[r] + " -> " + t.verdict];
-    if (t.verdict != step_verdicts[r]) {
-      out["verdict_changes"].push_back({{"unit", units[r]}, {"step", step_verdicts[r]}, {"fast", t.verdict}});
-      std::cerr << fmt::format("  {}: step {}, fast capture {}\n", units[r], step_verdicts[r], t.verdict);
+  // One fast pass (its own daemon and calibration): with the start-pulse cable the receiver
+  // sweep is triggered at the planned ramp phase, without it the phase is left to chance.
+  const auto fast_pass = [&](bool cable, const std::string& serial_prefix, const core::FastCapturePlan& pass_plan, json& o) {
+    DaemonProcess daemon(dir, sim, fast_file, cable);
+    o["calibration_s"] = daemon.calibrate();
+    o["capture_s"] = pass_plan.capture_s;
+    o["frequency_offset_hz"] = pass_plan.frequency_offset_hz;
+    std::vector<double> diffs;
+    int outside_bounds = 0, same_verdict = 0, step_outside_fast = 0, fast_truth_outside = 0, truth_points = 0;
+    std::map<std::string, int> pairs;
+    for (std::size_t r = 0; r < units.size(); ++r) {
+      const auto before = replies(sim);
+      const auto t = daemon.test_unit(units[r], fmt::format("{}-{:04d}", serial_prefix, r + 1));
+      const auto after = replies(sim);
+      const double reply_count = (after.first - before.first) + (after.second - before.second);
+      const double imposed = pass_plan.capture_s + reply_count * command_s;
+      o["cycle_s"].push_back(t.seconds);
+      o["replies_per_run"].push_back(reply_count);
+      o["imposed_s"].push_back(imposed);
+      o["overhead_pct"].push_back(100.0 * (t.seconds / imposed - 1.0));
+      o["overhead_vs_capture_pct"].push_back(100.0 * (t.seconds / pass_plan.capture_s - 1.0));
+      o["step_over_fast"].push_back(out["step_cycle_s"][r].get<double>() / t.seconds);
+      same_verdict += t.verdict == step_verdicts[r];
+      ++pairs[step_verdicts[r] + " -> " + t.verdict];
+      if (t.verdict != step_verdicts[r]) {
+        o["verdict_changes"].push_back({{"unit", units[r]}, {"step", step_verdicts[r]}, {"fast", t.verdict}});
+        std::cerr << fmt::format("  {}: step {}, fast capture {}\n", units[r], step_verdicts[r], t.verdict);
+      }
+      const RunPoints f = run_points(daemon, t.run_id);
+      const RunPoints& st = step_points[r];
+      if (f.rows.size() != st.rows.size()) throw std::runtime_error("fast and step runs have different point counts");
+      double unit_max = 0;
+      int unit_truth_outside = 0;
+      for (std::size_t i = 0; i < f.rows.size(); ++i) {
+        ++truth_points;
+        unit_truth_outside += outside(f.rows[i], truth[r][i]);
+        if (!(st.rows[i][1] < 25)) continue;
+        step_outside_fast += outside(f.rows[i], st.rows[i][1]);
+        diffs.push_back(std::abs(f.rows[i][1] - st.rows[i][1]));
+        unit_max = std::max(unit_max, diffs.back());
+        outside_bounds += f.rows[i][1] < st.rows[i][2] || f.rows[i][1] > st.rows[i][3];
+      }
+      // Units whose return loss differs by more than 0.5 dB somewhere, with the step run's reason
+      // (an intermittent feed changes between any two sweeps).
+      if (unit_max > 0.5) {
+        o["rl_units_over_half_db"].push_back({{"unit", units[r]}, {"max_db", unit_max}, {"step_reason", st.reason}});
+      }
+      fast_truth_outside += unit_truth_outside;
+      if (unit_truth_outside > 0) {
+        o["fast_truth_outside_units"].push_back({{"unit", units[r]}, {"points", unit_truth_outside}, {"fast_reason", f.reason}});
+        std::cerr << fmt::format("  {}: true RL outside the fast run's bounds at {} points ({})\n", units[r], unit_truth_outside, f.reason);
+      }
+      if ((r + 1) % 20 == 0 || r + 1 == units.size()) {
+        std::cerr << fmt::format("  fast capture ({}): {} of {} units, last cycle {:.3f} s (step {:.3f} s), verdicts the same {}\n",
+                                 cable ? "triggered" : "untriggered", r + 1, units.size(), t.seconds,
+                                 out["step_cycle_s"][r].get<double>(), same_verdict);
+      }
     }
-    const RunPoints f = run_points(daemon, t.run_id);
-    const RunPoints& st = step_points[r];
-    if (f.rows.size() != st.rows.size()) throw std::runtime_error("fast and step runs have different point counts");
-    double unit_max = 0;
-    int unit_truth_outside = 0;
-    for (std::size_t i = 0; i < f.rows.size(); ++i) {
-      ++truth_points;
-      unit_truth_outside += outside(f.rows[i], truth[r][i]);
-      if (!(st.rows[i][1] < 25)) continue;
-      step_outside_fast += outside(f.rows[i], st.rows[i][1]);
-      diffs.push_back(std::abs(f.rows[i][1] - st.rows[i][1]));
-      unit_max = std::max(unit_max, diffs.back());
-      outside_bounds += f.rows[i][1] < st.rows[i][2] || f.rows[i][1] > st.rows[i][3];
-    }
-    // Units whose return loss differs by more than 0.5 dB somewhere, with the step run's reason
-    // (an intermittent feed changes between any two sweeps).
-    if (unit_max > 0.5) {
-      out["rl_units_over_half_db"].push_back({{"unit", units[r]}, {"max_db", unit_max}, {"step_reason", st.reason}});
-    }
-    fast_truth_outside += unit_truth_outside;
-    if (unit_truth_outside > 0) {
-      out["fast_truth_outside_units"].push_back({{"unit", units[r]}, {"points", unit_truth_outside}, {"fast_reason", f.reason}});
-      std::cerr << fmt::format("  {}: true RL outside the fast run's bounds at {} points ({})\n", units[r], unit_truth_outside, f.reason);
-    }
-    if ((r + 1) % 20 == 0 || r + 1 == units.size()) {
-      std::cerr << fmt::format("  fast capture: {} of {} units, last cycle {:.3f} s (step {:.3f} s), verdicts the same {}\n", r + 1,
-                               units.size(), t.seconds, out["step_cycle_s"][r].get<double>(), same_verdict);
-    }
+    o["truth_points"] = truth_points;
+    o["fast_truth_outside_bounds"] = fast_truth_outside;
+    o["step_outside_fast_bounds"] = step_outside_fast;
+    std::sort(diffs.begin(), diffs.end());
+    const auto quantile = [&](double q) { return diffs.empty() ? 0.0 : diffs[static_cast<std::size_t>(q * (diffs.size() - 1))]; };
+    o["rl_points_compared"] = diffs.size();
+    o["rl_diff_max_db"] = diffs.empty() ? 0.0 : diffs.back();
+    o["rl_diff_p99_db"] = quantile(0.99);
+    o["rl_diff_median_db"] = quantile(0.5);
+    o["rl_points_over_half_db"] = std::count_if(diffs.begin(), diffs.end(), [](double d) { return d > 0.5; });
+    o["rl_outside_step_bounds"] = outside_bounds;
+    o["verdicts_same"] = same_verdict;
+    o["verdict_pairs"] = pairs;
+    std::cerr << fmt::format("  fast capture ({}), {} units: verdicts the same {}; RL<25 dB points {}: max |fast - step| {:.3f} dB, "
+                             "99th percentile {:.3f} dB, {} over 0.5 dB; {} fast readings outside the step run's bounds, {} step "
+                             "readings outside the fast run's; true RL outside the fast bounds at {} of {} points\n",
+                             cable ? "triggered" : "untriggered", units.size(), same_verdict, diffs.size(),
+                             o["rl_diff_max_db"].get<double>(), o["rl_diff_p99_db"].get<double>(),
+                             o["rl_points_over_half_db"].get<long>(), outside_bounds, step_outside_fast, fast_truth_outside,
+                             truth_points);
+  };
+  fast_pass(true, "FAST", *plan, out);
+  {
+    json u;
+    fast_pass(false, "FASTU", *untriggered, u);
+    out["untriggered"] = u;
   }
   // The control: the step sweep again, new calibration, same units.
-  int repeat_same = 0;
-  fast_daemon.reset();   // one daemon on the instruments at a time
+  int repeat_same = 0, repeat_rl_points = 0, repeat_rl_over = 0;
+  std::set<std::string> repeat_rl_units;
   {
     DaemonProcess again(dir, sim, step_file);
     (void)again.calibrate();
     for (std::size_t r = 0; r < units.size(); ++r) {
       const auto t = again.test_unit(units[r], fmt::format("STEP2-{:04d}", r + 1));
       repeat_same += t.verdict == step_verdicts[r];
+      const RunPoints p2 = run_points(again, t.run_id);
+      for (std::size_t i = 0; i < p2.rows.size() && i < step_points[r].rows.size(); ++i) {
+        if (!(step_points[r].rows[i][1] < 25)) continue;
+        ++repeat_rl_points;
+        if (std::abs(p2.rows[i][1] - step_points[r].rows[i][1]) > 0.5) {
+          ++repeat_rl_over;
+          repeat_rl_units.insert(units[r]);
+        }
+      }
       if (t.verdict != step_verdicts[r]) {
         out["step_repeat_changes"].push_back({{"unit", units[r]}, {"step", step_verdicts[r]}, {"step_again", t.verdict}});
         std::cerr << fmt::format("  {}: step {}, step again {}\n", units[r], step_verdicts[r], t.verdict);
@@ -342,26 +392,14 @@ json fast_capture_profile(const std::filesystem::path& dir, int unit_count) {
     }
   }
   out["step_repeat_verdicts_same"] = repeat_same;
-  out["truth_points"] = truth_points;
-  out["fast_truth_outside_bounds"] = fast_truth_outside;
+  // The control's return loss: how many RL < 25 dB points two step sweeps put over 0.5 dB apart.
+  out["step_repeat_rl_points"] = repeat_rl_points;
+  out["step_repeat_rl_over_half_db"] = repeat_rl_over;
+  out["step_repeat_rl_units_over_half_db"] = repeat_rl_units;
   out["step_truth_outside_bounds"] = step_truth_outside;
-  out["step_outside_fast_bounds"] = step_outside_fast;
-  std::sort(diffs.begin(), diffs.end());
-  const auto quantile = [&](double q) { return diffs.empty() ? 0.0 : diffs[static_cast<std::size_t>(q * (diffs.size() - 1))]; };
-  out["rl_points_compared"] = diffs.size();
-  out["rl_diff_max_db"] = diffs.empty() ? 0.0 : diffs.back();
-  out["rl_diff_p99_db"] = quantile(0.99);
-  out["rl_diff_median_db"] = quantile(0.5);
-  out["rl_points_over_half_db"] = std::count_if(diffs.begin(), diffs.end(), [](double d) { return d > 0.5; });
-  out["rl_outside_step_bounds"] = outside_bounds;
-  out["verdicts_same"] = same_verdict;
-  out["verdict_pairs"] = pairs;
-  std::cerr << fmt::format("  {} units: verdicts the same {}; RL<25 dB points {}: max |fast - step| {:.3f} dB, 99th percentile {:.3f} dB; "
-                           "{} fast readings outside the step run's bounds, {} step readings outside the fast run's; true RL "
-                           "outside the bounds at {} (fast) and {} (step) of {} points; a second step sweep: verdicts the same {}\n",
-                           units.size(), same_verdict, diffs.size(), out["rl_diff_max_db"].get<double>(),
-                           out["rl_diff_p99_db"].get<double>(), outside_bounds, step_outside_fast, fast_truth_outside,
-                           step_truth_outside, truth_points, repeat_same);
+  std::cerr << fmt::format("  a second step sweep: verdicts the same {}, RL<25 dB points over 0.5 dB apart {} of {} ({} units); "
+                           "true RL outside the step bounds at {} points\n",
+                           repeat_same, repeat_rl_over, repeat_rl_points, repeat_rl_units.size(), step_truth_outside);
   return out;
 }
 

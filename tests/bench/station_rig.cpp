@@ -98,7 +98,8 @@ std::filesystem::path write_recipe(const std::filesystem::path& base, const std:
   return out;
 }
 
-DaemonProcess::DaemonProcess(const std::filesystem::path& work_dir, SimProcess& sim, const std::filesystem::path& recipe)
+DaemonProcess::DaemonProcess(const std::filesystem::path& work_dir, SimProcess& sim, const std::filesystem::path& recipe,
+                             bool start_pulse_cable)
     : sim_(sim), child_([&] {
         static int counter = 0;
         const auto dir = work_dir / fmt::format("daemon-{}", ++counter);
@@ -112,7 +113,8 @@ DaemonProcess::DaemonProcess(const std::filesystem::path& work_dir, SimProcess& 
             {"instruments",
              {{{"role", "source"}, {"name", "siggen"}, {"address", sim.source_address()}, {"profile", (profiles / "sim-source.jsonc").string()}},
               {{"role", "receiver"}, {"name", "analyzer"}, {"address", sim.receiver_address()}, {"profile", (profiles / "sim-receiver.jsonc").string()}}}},
-            {"fixture", {{"coupling_db", 20}, {"mainline_loss_db", 0.5}, {"cable_loss_db", 0.3}, {"source_match_db", 25}, {"nominal_directivity_db", 30}}},
+            {"fixture", {{"coupling_db", 20}, {"mainline_loss_db", 0.5}, {"cable_loss_db", 0.3}, {"source_match_db", 25},
+                         {"nominal_directivity_db", 30}, {"start_pulse_cable", start_pulse_cable}}},
             {"api", {{"unix_socket", (dir / "api.sock").string()}, {"tcp_port", 0}}}};
         write_text(dir / "station.json", station.dump(2));
         testing::ChildProcess::Options o;

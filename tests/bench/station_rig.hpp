@@ -54,7 +54,10 @@ struct UnitTiming {
 
 class DaemonProcess {
  public:
-  DaemonProcess(const std::filesystem::path& work_dir, SimProcess& sim, const std::filesystem::path& recipe);
+  // start_pulse_cable: the station config declares the source's ramp-start pulse cabled to the
+  // receiver's external trigger (fixture.start_pulse_cable; the bench sim config has the cable).
+  DaemonProcess(const std::filesystem::path& work_dir, SimProcess& sim, const std::filesystem::path& recipe,
+                bool start_pulse_cable = false);
   DaemonProcess(const DaemonProcess&) = delete;
   DaemonProcess& operator=(const DaemonProcess&) = delete;
   ~DaemonProcess();

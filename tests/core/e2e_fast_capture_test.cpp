@@ -48,7 +48,12 @@ struct Mode {
 class FastVsStep : public ::testing::TestWithParam<std::string> {
  protected:
   void SetUp() override {
-    json cfg = read_config("config/sim/" + GetParam() + ".jsonc");
+    // "<config>" or "<config>+cable": the start-pulse cable in the sim and in the station's fixture.
+    const std::string param = GetParam();
+    cable_ = param.find("+cable") != std::string::npos;
+    json cfg = read_config("config/sim/" + param.substr(0, param.find('+')) + ".jsonc");
+    if (cable_) cfg["trigger_cable"] = json{{"latency_ns", 100}, {"jitter_ns", 20}};
+    else cfg.erase("trigger_cable");
     // Free ports (the bench config has fixed ones), TCP only.
     cfg["control"] = json{{"tcp", {{"host", "127.0.0.1"}, {"port", 0}}}};
     for (auto& [role, inst] : cfg["instruments"].items()) inst["endpoints"] = json{{"tcp", {{"host", "127.0.0.1"}, {"port", 0}}}};
@@ -90,8 +95,13 @@ class FastVsStep : public ::testing::TestWithParam<std::string> {
     return engine.run(recipe, cancel);
   }
 
-  // The fixture of config/station.jsonc (its nominal directivity; the sim's bench is better).
-  static drivers::FixtureConfig fixture() { return echoline::testing::demo_fixture(); }
+  // The fixture of config/station.jsonc (its nominal directivity; the sim's bench is better),
+  // with the start-pulse cable when the parameter asks for it.
+  drivers::FixtureConfig fixture() const {
+    drivers::FixtureConfig f = echoline::testing::demo_fixture();
+    f.start_pulse_cable = cable_;
+    return f;
+  }
 
   // kTB + NF + attenuation at the RBW the mode measures with (fast capture: the planned one).
   core::StationCapability capability(const core::Recipe& recipe) const {
@@ -121,6 +131,7 @@ class FastVsStep : public ::testing::TestWithParam<std::string> {
   }
 
   TempDir dir_;
+  bool cable_ = false;
   std::optional<RunningSim> sim_;
   drivers::Profile src_profile_, rx_profile_;
   std::unique_ptr<drivers::ScpiSession> src_session_, rx_session_;
@@ -147,6 +158,11 @@ TEST_P(FastVsStep, ReturnLossAgreesBetweenModes) {
   ASSERT_EQ(step.recipe.mode, core::SweepMode::step);
   ASSERT_EQ(fast.recipe.mode, core::SweepMode::fast_capture);
   ASSERT_EQ(core::plan_frequencies(step.recipe), core::plan_frequencies(fast.recipe));
+  {
+    auto plan = core::plan_fast_capture(fast.recipe, fixture(), src_profile_, rx_profile_);
+    ASSERT_TRUE(plan.ok()) << plan.error().message;
+    EXPECT_EQ(plan->triggered, cable_) << plan->reason;
+  }
   calibrate(step);
   calibrate(fast);
   if (HasFatalFailure()) return;
@@ -154,7 +170,7 @@ TEST_P(FastVsStep, ReturnLossAgreesBetweenModes) {
   json units = sim_->control({{"cmd", "units"}});
   ASSERT_TRUE(units.value("ok", false)) << units.dump();
   std::vector<std::string> serials;
-  const std::size_t count = GetParam() == "instant" ? 6 : 1;   // bench runs at real speed
+  const std::size_t count = GetParam().rfind("instant", 0) == 0 ? 6 : 1;   // bench runs at real speed
   for (std::size_t i = 0; i < units["units"].size() && serials.size() < count; ++i) {
     serials.push_back(units["units"][i].get<std::string>());
   }
@@ -208,7 +224,13 @@ TEST_P(FastVsStep, ReturnLossAgreesBetweenModes) {
 }
 
 // "instant": virtual clock, replies at once. "bench": real waits (sweep times, 3 ms per command).
-INSTANTIATE_TEST_SUITE_P(Sim, FastVsStep, ::testing::Values("instant", "bench"));
+// "+cable": the receiver sweep starts on the source's ramp-start pulse (MEASUREMENT.md §11).
+INSTANTIATE_TEST_SUITE_P(Sim, FastVsStep, ::testing::Values("instant", "bench", "instant+cable", "bench+cable"),
+                         [](const ::testing::TestParamInfo<std::string>& p) {
+                           std::string n = p.param;
+                           std::replace(n.begin(), n.end(), '+', '_');
+                           return n;
+                         });
 
 }  // namespace
 }  // namespace echoline::service

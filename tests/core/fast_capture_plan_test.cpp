@@ -97,6 +97,58 @@ TEST(FastCapturePlan, WhipOnTheBenchIsRampsUnderOneSweep) {
   EXPECT_GE(dwell / p->source_sweep_s * band - p->axis.bin_hz(), band * (1 - 1e-12));
 }
 
+// Untriggered, a reading may belong anywhere within half a bin of its frequency; the budget
+// carries 0.25 MHz on the whip plan.
+TEST(FastCapturePlan, UntriggeredOffsetIsHalfABin) {
+  auto p = plan_fast_capture(whip(15), bench(), kLoadDbm);
+  ASSERT_TRUE(p.ok()) << p.error().message;
+  EXPECT_FALSE(p->triggered);
+  EXPECT_NEAR(p->frequency_offset_hz, 0.25e6, 1e-3);
+}
+
+// The start-pulse trigger worked by hand (MEASUREMENT.md §11, derived there). Whip plan: ramp
+// T = 1 ms over B = 110.5 MHz (R_s = 1.105e11 Hz/s), bin b = 0.5 MHz, no retrace. The receiver
+// must start b/(2 R_s) = 2.2624 µs before a ramp starts, i.e. 997.7375 µs after the pulse; less
+// the 100 ns trigger latency: 997.6375 µs. The meeting moves R_r·R_s/(R_s − R_r) per second of
+// timing error, R_r = b/dwell = 0.5e6/(1e-3·222/221) = 4.97748e8 Hz/s: b/T = 5e8 Hz/s exactly
+// (dwell = T(B + b)/B makes R_r·R_s/(R_s − R_r) = b/T: one bin per ramp of timing error), so a
+// ±20 ns spread leaves ±10.0 Hz (against 0.25 MHz untriggered). The wait for the pulse and the
+// delay add at most two ramp cycles to the expected capture.
+TEST(FastCapturePlan, StartPulseTriggerByHand) {
+  FastCaptureInstruments in = bench();
+  in.start_pulse_trigger = true;
+  in.trigger_latency_s = 100e-9;
+  in.trigger_uncertainty_s = 20e-9;
+  auto p = plan_fast_capture(whip(15), in, kLoadDbm);
+  ASSERT_TRUE(p.ok()) << p.error().message;
+  EXPECT_TRUE(p->triggered);
+  EXPECT_NEAR(p->trigger_delay_s, 1e-3 - 0.25e6 / 1.105e11 - 100e-9, 1e-12);
+  EXPECT_NEAR(p->trigger_delay_s, 997.6375e-6, 1e-10);
+  const double rr = 0.5e6 / (1e-3 * 222 / 221), rs = 1.105e11;
+  EXPECT_NEAR(meeting_drift_hz_per_s(1e-3, 110.5e6, 0.5e6, 1e-3 * 222 / 221), rr * rs / (rs - rr), 1e-3);
+  EXPECT_NEAR(p->frequency_offset_hz, 10.0, 0.01);
+  EXPECT_NEAR(p->capture_s, 0.001 + 222 * 1e-3 * 222 / 221 + 2e-3, 1e-12);
+  EXPECT_NE(p->reason.find("ramp-start pulse"), std::string::npos) << p->reason;
+  // A latency longer than the point wanted wraps into the previous cycle.
+  EXPECT_NEAR(start_pulse_delay_s(1e-3, 0, 110.5e6, 0.5e6, 999e-6), 1e-3 - 0.25e6 / 1.105e11 - 999e-6 + 1e-3, 1e-12);
+  // A retrace lengthens the cycle the phase is counted in.
+  EXPECT_NEAR(start_pulse_delay_s(1e-3, 0.2e-3, 110.5e6, 0.5e6, 0), 1.2e-3 - 0.25e6 / 1.105e11, 1e-12);
+}
+
+// The trigger fixes the phase only with the dwell exactly R2's. With one slow ramp under many
+// sweeps (a source whose shortest ramp is 2 s), each crossing lands where it will: half a bin.
+TEST(FastCapturePlan, SlowRampArrangementIsNotTriggered) {
+  FastCaptureInstruments in = bench();
+  in.source_min_sweep_s = 2;
+  in.start_pulse_trigger = true;
+  in.trigger_uncertainty_s = 20e-9;
+  auto p = plan_fast_capture(whip(15), in, kLoadDbm);
+  ASSERT_TRUE(p.ok()) << p.error().message;
+  EXPECT_EQ(p->arrangement, FastArrangement::ramp_under_sweeps);
+  EXPECT_FALSE(p->triggered);
+  EXPECT_NEAR(p->frequency_offset_hz, 0.25e6, 1e-3);
+}
+
 TEST(FastCapturePlan, TighterMarginNarrowsTheRbwAndLengthensTheRamp) {
   // 20 dB: 1 MHz (18.9 dB) refused, 300 kHz floor -174 + 54.77 + 34 = -85.2 dBm, 24.1 dB under.
   auto p = plan_fast_capture(whip(20), bench(), kLoadDbm);

@@ -254,6 +254,78 @@ TEST_F(FastCapture, EveryBinReadsTheUnitAtOneCommonOffset) {
               falling / 1e3, n_falling, rising / 1e3, n_rising);
 }
 
+// The start-pulse trigger (MEASUREMENT.md §11, "A shared start"): with the source's ramp-start
+// pulse cabled to the receiver's external trigger, a sweep that starts (F0 − s0)/R_s into the
+// ramp cycle meets the tone at every bin's own frequency (derived there: the meeting moves one
+// bin per dwell of ramp·(B + b)/B, so the phase at the first bin sets all of them). Two
+// triggered captures armed a quarter ramp apart then read the same offset (the quarter-ramp pair
+// of the test above moved it a quarter bin), and that offset is 0: on the steep sides of the
+// dip the capture agrees with the stepped CW reference, both sides alike. The reference's own
+// scatter (its 2 ms settling, the peak marker) is some 0.05 dB: common practice, no source.
+TEST_F(FastCapture, StartPulseTriggerPutsEveryReadingOnItsBin) {
+  world.connected = make_antenna(AntennaParams{78.0, 78.0, 915e6, 40.0, 40.0});   // steep sides, as above
+  world.trigger_cable = true;
+  world.trigger_latency_s = 100e-9;
+  world.trigger_jitter_s = 20e-9;
+  const double ramp = 0.005, band = kStopHz - kStartHz + kBinHz;
+  const double sweep = 200 * ramp * (band + kBinHz) / band;   // R2 with equality
+  const double phase = (kBinHz / 2) / (band / ramp);          // (F0 − s0)/R_s: the axis starts half a bin into the ramp
+  start_ramp(ramp);
+  const std::vector<double> step = stepped(1e6);
+  rx->handle("TRIG:SOUR EXT;:TRIG:DEL " + std::to_string(phase - world.trigger_latency_s));
+  EXPECT_EQ(ask(*rx, "TRIG:SOUR?"), "EXT");
+  start_ramp(ramp);
+  const std::vector<double> a = capture(1e6, sweep, 2.002);
+  start_ramp(ramp);
+  const std::vector<double> b = capture(1e6, sweep, 2.002 + ramp / 4);
+  ASSERT_EQ(a.size(), step.size());
+  // A frequency offset moves the two sides' level differences the same way in Hz; a level
+  // difference between capture and reference moves them oppositely: the half sum of the two
+  // sides' mean offsets is the frequency offset (single bins scatter by some 30 kHz of noise).
+  const auto offset_of = [&](const std::vector<double>& x) {
+    double falling = 0, rising = 0;
+    int n_falling = 0, n_rising = 0;
+    for (std::size_t i = 2; i + 2 < x.size(); ++i) {
+      const double slope = (step[i + 1] - step[i - 1]) / 2;   // dB per bin
+      const double curvature = std::abs(step[i + 1] - 2 * step[i] + step[i - 1]);
+      if (std::abs(slope) < 0.3 || curvature > 0.2 * std::abs(slope)) continue;
+      const double off = (x[i] - step[i]) / slope * kBinHz;
+      if (slope < 0) {
+        falling += off;
+        ++n_falling;
+      } else {
+        rising += off;
+        ++n_rising;
+      }
+    }
+    EXPECT_GE(n_falling, 5);
+    EXPECT_GE(n_rising, 5);
+    return (falling / std::max(n_falling, 1) + rising / std::max(n_rising, 1)) / 2;
+  };
+  const double off_a = offset_of(a), off_b = offset_of(b);
+  EXPECT_LT(std::abs(off_a), 0.05 * kBinHz) << "the triggered capture reads at its bins";
+  EXPECT_LT(std::abs(off_b - off_a), 0.05 * kBinHz) << "two triggered captures a quarter ramp apart read the same offset";
+  std::printf("[ trigger ] offset %.1f kHz and %.1f kHz for two captures armed a quarter ramp apart (bin %.0f kHz)\n",
+              off_a / 1e3, off_b / 1e3, kBinHz / 1e3);
+}
+
+// An armed sweep waits for its trigger: with no cable the pulse never comes and *OPC? does not
+// answer within any time a station waits (as on a real analyzer; the station's *OPC? timeout
+// reports it). Back to IMMediate, INIT starts at once.
+TEST_F(FastCapture, ExternalTriggerWithoutTheCableNeverStarts) {
+  world.connected = make_open();
+  start_ramp(0.001);
+  rx->handle("TRIG:SOUR EXT");
+  rx->handle("INIT:CONT OFF;:SWE:TIME 0.2;:INIT");
+  auto r = rx->handle("*OPC?");
+  ASSERT_EQ(r.size(), 1u);
+  EXPECT_GT(r[0].delay_s, 1e6);
+  rx->handle("ABOR;:TRIG:SOUR IMM;:INIT");
+  r = rx->handle("*OPC?");
+  ASSERT_EQ(r.size(), 1u);
+  EXPECT_LE(r[0].delay_s, 0.2 + 1e-9);
+}
+
 // Breaking the crossing rule: a 1 ms ramp over 110 MHz crosses a 30 kHz RBW at 1.1e11 Hz/s,
 // x = 54 (more than 17 dB of filter loss, more with VBW = RBW): every bin reads well low.
 TEST_F(FastCapture, TooFastARampThroughANarrowRbwLosesAmplitude) {
