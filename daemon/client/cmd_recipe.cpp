@@ -146,6 +146,16 @@ void print_fast_capture_plan(const drivers::StationConfig& config, const core::R
                            p.receiver_sweep_s, p.receiver_sweeps > 1 ? fmt::format(" x {} max-hold sweeps", p.receiver_sweeps) : "");
   std::cout << fmt::format("    source ramp {:.6f} to {:.6f} MHz in {:.4g} ms, repeating\n", p.source_start_hz / 1e6,
                            p.source_stop_hz / 1e6, p.source_sweep_s * 1e3);
+  if (p.triggered) {
+    std::cout << fmt::format("    receiver sweep starts {:.4f} ms after the source's ramp-start pulse (fixture.start_pulse_cable): "
+                             "each reading within {:.3g} Hz of its frequency\n",
+                             p.trigger_delay_s * 1e3, p.frequency_offset_hz);
+  } else {
+    std::cout << fmt::format("    receiver sweep starts at a ramp phase left to chance: each reading up to {:.4g} MHz (half a bin) "
+                             "off its frequency, which the budget bounds{}\n",
+                             p.frequency_offset_hz / 1e6,
+                             config.fixture.start_pulse_cable ? "" : "; a start-pulse cable would remove this (fixture.start_pulse_cable)");
+  }
   std::cout << fmt::format("    why: {}\n", p.reason);
   std::cout << fmt::format("  expected capture {:.3f} s per unit (recipe limit {} s; command overhead not included)\n",
                            p.capture_s, r.fast_capture.max_capture_s);

@@ -1,7 +1,9 @@
 // core::station_capability: fixture figures and profile limits carried over, noise floor from kTB.
 #include <gtest/gtest.h>
 
+#include "daemon/core/recipe_loader.hpp"
 #include "daemon/core/station_capability.hpp"
+#include "tests/support/process.hpp"
 
 namespace echoline::core {
 namespace {
@@ -85,6 +87,46 @@ TEST(StationCapability, FastCaptureInstrumentsComeFromTheProfiles) {
   EXPECT_EQ(in.receiver_rearm_s, 0.004);
   EXPECT_EQ(in.receiver_max_points, 601);
   EXPECT_EQ(in.rbw_steps_hz, (std::vector<double>{1e3, 1e6}));
+}
+
+// The start-pulse cable is used only when every piece is there: the fixture says the cable is
+// in, the source profile gives its pulse's timing, the receiver's its trigger figures and the
+// three trigger operations. Then the plan is triggered and its offset bound is b/T x the summed
+// spread (MEASUREMENT.md §11); otherwise the station says why and plans free-running.
+TEST(StationCapability, StartPulseCableNeedsEveryPiece) {
+  const auto dir = echoline::testing::source_dir() / "config/instruments";
+  const drivers::Profile src = drivers::load_profile(dir / "sim-source.jsonc");
+  const drivers::Profile rcv = drivers::load_profile(dir / "sim-receiver.jsonc");
+  const Recipe recipe = load_recipe(echoline::testing::source_dir() / "config/recipes/whip915-fast.jsonc");
+  drivers::FixtureConfig fx;
+  EXPECT_EQ(start_pulse_problem(fx, src, rcv), "");   // no cable, nothing to say
+  auto free_running = plan_fast_capture(recipe, fx, src, rcv);
+  ASSERT_TRUE(free_running.ok()) << free_running.error().message;
+  EXPECT_FALSE(free_running->triggered);
+  fx.start_pulse_cable = true;
+  EXPECT_EQ(start_pulse_problem(fx, src, rcv), "");
+  auto cabled = plan_fast_capture(recipe, fx, src, rcv);
+  ASSERT_TRUE(cabled.ok()) << cabled.error().message;
+  EXPECT_TRUE(cabled->triggered);
+  // Bin 0.5 MHz, ramp 1 ms, spread 20 ns (receiver) + 0 (source): 0.5e9 Hz/s x 20e-9 s = 10 Hz.
+  EXPECT_NEAR(cabled->frequency_offset_hz, 10.0, 0.01);
+  const StationCapability c = station_capability(fx, src, rcv, recipe);
+  EXPECT_NEAR(c.frequency_offset_hz, 10.0, 0.01);
+  EXPECT_EQ(c.start_pulse_problem, "");
+
+  drivers::Profile no_ops = rcv;
+  no_ops.commands.erase("set_trigger_delay");
+  const std::string why = start_pulse_problem(fx, src, no_ops);
+  EXPECT_NE(why.find("set_trigger_delay"), std::string::npos) << why;
+  drivers::Profile no_pulse = src;
+  no_pulse.sweep.start_pulse_uncertainty_s = -1;
+  EXPECT_NE(start_pulse_problem(fx, no_pulse, rcv).find("start_pulse_uncertainty_s"), std::string::npos);
+  auto fallback = plan_fast_capture(recipe, fx, no_pulse, rcv);
+  ASSERT_TRUE(fallback.ok());
+  EXPECT_FALSE(fallback->triggered);
+  EXPECT_NEAR(fallback->frequency_offset_hz, 0.25e6, 1e-3);
+  const StationCapability w = station_capability(fx, no_pulse, rcv, recipe);
+  EXPECT_NE(w.start_pulse_problem.find("runs untriggered"), std::string::npos) << w.start_pulse_problem;
 }
 
 }  // namespace
