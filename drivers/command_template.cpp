@@ -57,6 +57,7 @@ const std::vector<OperationSpec>& operation_table() {
       {"trigger_external", "receiver", false, false, {}},
       {"trigger_immediate", "receiver", false, false, {}},
       {"set_trigger_delay", "receiver", false, false, {"seconds"}},
+      {"abort", "receiver", false, false, {}},
       // switch
       {"select", "switch", false, true, {"position"}},
   };

@@ -69,16 +69,19 @@ void load_receiver(const JsoncDocument& doc, Profile& p) {
   p.byte_order = doc.enum_or(r / "byte_order", p.byte_order, {"normal", "swapped"});
 }
 
-// "sweep": {"time_range_s": [min, max], "retrace_s", "start_pulse_uncertainty_s"} for a source;
-// {"time_range_s", "rearm_s", "max_points", "rbw_steps_hz": [...], "trigger_latency_s",
-// "trigger_uncertainty_s"} for a receiver. Optional.
+// "sweep": {"time_range_s": [min, max], "retrace_s", "start_pulse_uncertainty_s",
+// "time_accuracy_ppm"} for a source; {"time_range_s", "rearm_s", "max_points", "rbw_steps_hz":
+// [...], "trigger_latency_s", "trigger_uncertainty_s", "time_accuracy_ppm"} for a receiver.
+// Optional.
 void load_sweep(const JsoncDocument& doc, Profile& p) {
   const JsonPointer s = kRoot / "sweep";
   if (!doc.has(s)) return;
   if (p.role == "switch") doc.fail(s, "a switch profile has no sweep section");
   doc.require_object(s);
-  if (p.role == "source") doc.check_keys(s, {"time_range_s", "retrace_s", "start_pulse_uncertainty_s"});
-  else doc.check_keys(s, {"time_range_s", "rearm_s", "max_points", "rbw_steps_hz", "trigger_latency_s", "trigger_uncertainty_s"});
+  if (p.role == "source") doc.check_keys(s, {"time_range_s", "retrace_s", "start_pulse_uncertainty_s", "time_accuracy_ppm"});
+  else
+    doc.check_keys(s, {"time_range_s", "rearm_s", "max_points", "rbw_steps_hz", "trigger_latency_s", "trigger_uncertainty_s",
+                       "time_accuracy_ppm"});
   SweepLimits& w = p.sweep;
   if (doc.has(s / "time_range_s")) {
     const json& range = doc.require_array(s / "time_range_s");
@@ -93,6 +96,7 @@ void load_sweep(const JsoncDocument& doc, Profile& p) {
   w.start_pulse_uncertainty_s = doc.number_in(s / "start_pulse_uncertainty_s", -1, 0, 1, "s");
   w.trigger_latency_s = doc.number_in(s / "trigger_latency_s", 0, 0, 1, "s");
   w.trigger_uncertainty_s = doc.number_in(s / "trigger_uncertainty_s", -1, 0, 1, "s");
+  w.time_accuracy_ppm = doc.number_in(s / "time_accuracy_ppm", -1, 0, 1e5, "ppm");
   if (doc.has(s / "trigger_latency_s") && !doc.has(s / "trigger_uncertainty_s"))
     doc.fail(s / "trigger_latency_s", "give trigger_uncertainty_s with it (the ± around the latency)");
   if (doc.has(s / "max_points")) {

@@ -31,6 +31,7 @@ struct SweepLimits {
   double start_pulse_uncertainty_s = -1;   // source: pulse output against the ramp's start, ± s
   double trigger_latency_s = 0;            // receiver: trigger input to sweep start at zero delay, s
   double trigger_uncertainty_s = -1;       // receiver: ± s around that latency
+  double time_accuracy_ppm = -1;           // ramp (source) or sweep (receiver) time, ± ppm; negative = not given
   std::vector<double> rbw_steps_hz;        // receiver: the RBWs it offers, increasing
 };
 

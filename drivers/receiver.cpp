@@ -27,6 +27,15 @@ Status Receiver::initialize() {
   for (const auto& line : profile_.init)
     if (Status s = session_.write(line); !s.ok()) return s;
   if (Status s = send("set_single", {}, false); !s.ok()) return s;
+  // A receiver left armed for an external trigger (a fast capture cut off mid-way) would make
+  // every later INIT wait for a pulse that never comes: back to starting at INIT.
+  if (profile_.has("trigger_immediate")) {
+    if (profile_.has("abort"))
+      if (Status s = send("abort", {}, false); !s.ok()) return s;
+    if (Status s = send("trigger_immediate", {}, false); !s.ok()) return s;
+    if (profile_.has("set_trigger_delay"))
+      if (Status s = send("set_trigger_delay", {{"seconds", 0.0}}, false); !s.ok()) return s;
+  }
   const bool real = profile_.trace_format == "real32";
   if (profile_.has("set_trace_format"))
     if (Status s = send("set_trace_format", {{"format", std::string(real ? "REAL,32" : "ASC")}}, false); !s.ok()) return s;
@@ -100,6 +109,8 @@ Status Receiver::set_sweep_time(double seconds) {
 }
 
 Status Receiver::set_sweep_time_auto() { return send("set_sweep_time_auto", {}, true); }
+
+Status Receiver::abort() { return profile_.has("abort") ? send("abort", {}, false) : Status::success(); }
 
 Status Receiver::set_trigger_external(bool on) { return send(on ? "trigger_external" : "trigger_immediate", {}, true); }
 

@@ -46,6 +46,9 @@ class Receiver {
   // (set_trigger_delay, 0..10 s); trigger_immediate returns to starting at INIT.
   Status set_trigger_external(bool on);
   Status set_trigger_delay(double s);
+  // Cancels a sweep in progress or armed for a trigger (abort; nothing sent when the profile
+  // has no such operation).
+  Status abort();
   Status trigger();                   // start one single sweep (e.g. INIT:IMM), no wait
   Status wait_sweep();                // *OPC?
   // One message: [set_center;]trigger;*OPC? -- moves (when center_hz is given, range-checked),

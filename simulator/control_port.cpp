@@ -72,11 +72,18 @@ json ControlService::handle(std::string_view line) {
     if (cmd == "fault") return fault(req);
     if (cmd == "clear-faults") return clear_faults(req);
     if (cmd == "status") return status();
+    if (cmd == "last-sweep") {
+      // Ground truth for tests: per bin of the receiver's last sweep under a swept source, the
+      // source frequency at which the bin saw the tone (null: not seen); empty after a CW sweep.
+      json tone = json::array();
+      for (double f : world_.last_sweep_tone_hz) tone.push_back(std::isfinite(f) ? json(f) : json(nullptr));
+      return json{{"ok", true}, {"tone_hz", tone}};
+    }
   } catch (const json::exception& e) {
     return fail(cmd + ": " + e.what());
   }
   if (cmd.empty()) return fail("missing \"cmd\" (a string)");
-  return fail("unknown cmd \"" + cmd + "\" (connect, disconnect, units, truth, fault, clear-faults, status)");
+  return fail("unknown cmd \"" + cmd + "\" (connect, disconnect, units, truth, fault, clear-faults, status, last-sweep)");
 }
 
 const SimUnit* ControlService::unit_of(const json& req, std::string& error) const {

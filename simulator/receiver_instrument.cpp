@@ -45,6 +45,7 @@
 #include <array>
 #include <cmath>
 #include <cstring>
+#include <limits>
 #include <numbers>
 #include <optional>
 #include <random>
@@ -225,6 +226,8 @@ class ReceiverInstrument final : public SimInstrument {
     if (detector_ == positive) k_samples = static_cast<std::size_t>(std::clamp(std::round(bin_width / rbw_), 1.0, 64.0));
     std::normal_distribution<double> gauss(0.0, 1.0);
     std::vector<double> out(points_);
+    std::vector<double> tone_hz;   // where each bin saw the swept tone (World::last_sweep_tone_hz)
+    if (on && world_.source_sweeping) tone_hz.assign(points_, std::numeric_limits<double>::quiet_NaN());
     for (std::size_t i = 0; i < points_; ++i) {
       const double t = t0 + (points_ > 1 ? st * static_cast<double>(i) / static_cast<double>(points_ - 1) : 0.0);
       const double f = bin_hz(i);
@@ -236,6 +239,7 @@ class ReceiverInstrument final : public SimInstrument {
         const double tb = detector_ == positive ? std::min(t0 + st, t + dwell / 2) : t;
         const Approach a = swept_approach(ta, tb, t0, rx_rate);
         if (a.seen) {
+          tone_hz[i] = a.source_hz;
           const double src_rate = (world_.source_sweep_stop_hz - world_.source_sweep_start_hz) / world_.source_sweep_time_s;
           const double level = coupled_power_dbm(world_.bench, dut, a.source_hz, world_.source_power_dbm);
           tone_amp = std::sqrt(mw_of(level + rbw_response_db(a.offset_hz, rbw_) - crossing_loss_db(std::abs(src_rate - rx_rate))));
@@ -256,6 +260,7 @@ class ReceiverInstrument final : public SimInstrument {
       double dbm = dbm_of(best) + config_.reading_noise_db * gauss(rng_);
       out[i] = std::min(dbm, config_.compression_dbm);  // the input stage limits the reading
     }
+    world_.last_sweep_tone_hz = std::move(tone_hz);
     return out;
   }
 

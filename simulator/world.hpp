@@ -7,6 +7,7 @@
 #include <cstdint>
 #include <memory>
 #include <string>
+#include <vector>
 
 #include "simulator/physics/bench.hpp"
 #include "simulator/physics/standards.hpp"
@@ -66,6 +67,10 @@ struct World {
   const Lot* lot = nullptr;             // the loaded lot, if any (owned by the server)
 
   std::uint64_t sweep_counter = 0;      // incremented by the receiver at each INIT
+  // Per bin of the receiver's last sweep under a swept source: the source frequency at which the
+  // bin saw the tone (NaN: not seen). Empty after a sweep under a CW source. For the control
+  // port's "last-sweep" (test ground truth); no instrument reads it.
+  std::vector<double> last_sweep_tone_hz;
   double now_s = 0;                     // sim clock (s); set by the server before each message
 };
 

@@ -54,16 +54,23 @@ FastCaptureOption ramps_under_sweep(const Geometry& g, double rbw, const FastCap
   const double bin = g.axis.bin_hz();
   // The start pulse sets the phase only where each dwell is exactly R2's: then every meeting
   // lands one bin further (a longer dwell would let the meetings drift across the trace).
-  out.triggered = in.start_pulse_trigger && sweep <= r2 * (1 + kRel);
+  // The trigger delay must also be one the receiver takes (up to 10 s, Receiver), and the bound
+  // it leaves smaller than the half bin of a free-running start.
+  out.triggered = false;
   out.trigger_delay_s = 0;
   out.frequency_offset_hz = bin / 2;
-  if (out.triggered) {
-    out.trigger_delay_s = start_pulse_delay_s(ramp, in.source_retrace_s, g.ramp_band_hz, bin, in.trigger_latency_s);
+  if (in.start_pulse_trigger && sweep <= r2 * (1 + kRel) && ramp + in.source_retrace_s <= 10) {
+    const double delay = start_pulse_delay_s(ramp, in.source_retrace_s, g.ramp_band_hz, bin, in.trigger_latency_s);
     // At least 1 Hz: a fast capture's budget always carries the term (a calibration without it
     // is one made before the term existed, calibration_due).
-    out.frequency_offset_hz =
-        std::max(meeting_drift_hz_per_s(ramp, g.ramp_band_hz, bin, period) * in.trigger_uncertainty_s, 1.0);
-    o.capture_s += 2 * (ramp + in.source_retrace_s);   // the wait for the pulse, then the delay
+    const double eps = std::max(
+        triggered_offset_hz(ramp, in.source_retrace_s, g.ramp_band_hz, bin, period, g.axis.points - 2, delay, in), 1.0);
+    if (eps < bin / 2) {
+      out.triggered = true;
+      out.trigger_delay_s = delay;
+      out.frequency_offset_hz = eps;
+      o.capture_s += 2 * (ramp + in.source_retrace_s);   // the wait for the pulse, then the delay
+    }
   }
   const std::string ramp_why = r1 >= in.source_min_sweep_s
                                    ? fmt::format("R1: {} x {} / RBW^2", kFastCaptureK, format_frequency(g.ramp_band_hz))
@@ -177,6 +184,15 @@ double start_pulse_delay_s(double ramp_s, double retrace_s, double band_hz, doub
 double meeting_drift_hz_per_s(double ramp_s, double band_hz, double bin_hz, double dwell_s) {
   const double rs = band_hz / ramp_s, rr = bin_hz / dwell_s;
   return rr * rs / (rs - rr);
+}
+
+double triggered_offset_hz(double ramp_s, double retrace_s, double band_hz, double bin_hz, double dwell_s, int last_bin,
+                           double delay_s, const FastCaptureInstruments& in) {
+  const double cycle = ramp_s + retrace_s;
+  const double start = meeting_drift_hz_per_s(ramp_s, band_hz, bin_hz, dwell_s) *
+                       (in.trigger_uncertainty_s + delay_s * in.receiver_time_accuracy);
+  const double slide = bin_hz * last_bin * (dwell_s / cycle) * (in.source_time_accuracy + in.receiver_time_accuracy);
+  return start + slide;
 }
 
 Result<FastCapturePlan> plan_fast_capture(const Recipe& recipe, const FastCaptureInstruments& in, double load_dbm) {

@@ -52,6 +52,8 @@ struct FastCaptureInstruments {
   bool start_pulse_trigger = false;
   double trigger_latency_s = 0;
   double trigger_uncertainty_s = 0;   // pulse output and trigger input together
+  double source_time_accuracy = 0;    // ramp time, ± relative (1e-6 = 1 ppm)
+  double receiver_time_accuracy = 0;  // sweep time and trigger delay, ± relative
 };
 
 // The 1-3-10 series from `lo` to `hi` (the RBW steps of a receiver whose profile names none).
@@ -110,8 +112,13 @@ struct FastCapturePlan {
 // bin/(2 R_s) before a ramp starts (R_s = band/ramp), so the delay after the pulse is that
 // point of the ramp cycle (ramp + retrace) less the trigger latency, within one cycle.
 double start_pulse_delay_s(double ramp_s, double retrace_s, double band_hz, double bin_hz, double latency_s);
-// How far a meeting moves per second of timing error: R_r·R_s/(R_s − R_r), R_r = bin/dwell.
+// How far a meeting moves per second of timing error: R_r·R_s/(R_s − R_r), R_r = bin/dwell
+// (b/C with the dwell exactly R2's, C = ramp + retrace).
 double meeting_drift_hz_per_s(double ramp_s, double band_hz, double bin_hz, double dwell_s);
+// The triggered capture's offset bound: (b/C)·(spread + delay·a_r) for the start, plus the slide
+// of the last plan bin when the two instruments' times disagree, b·i_max·(D/C)·(a_r + a_s).
+double triggered_offset_hz(double ramp_s, double retrace_s, double band_hz, double bin_hz, double dwell_s, int last_bin,
+                           double delay_s, const FastCaptureInstruments& in);
 
 // R1: the shortest ramp across `band_hz` at `rbw_hz`.
 double min_ramp_s(double band_hz, double rbw_hz);

@@ -37,7 +37,9 @@ std::string start_pulse_problem(const drivers::FixtureConfig& fixture, const dri
   std::vector<std::string> missing;
   if (source.sweep.start_pulse_uncertainty_s < 0) missing.push_back(fmt::format("source profile {} gives no sweep.start_pulse_uncertainty_s", source.name));
   if (receiver.sweep.trigger_uncertainty_s < 0) missing.push_back(fmt::format("receiver profile {} gives no sweep.trigger_latency_s/trigger_uncertainty_s", receiver.name));
-  for (std::string_view op : {"trigger_external", "trigger_immediate", "set_trigger_delay"}) {
+  if (source.sweep.time_accuracy_ppm < 0) missing.push_back(fmt::format("source profile {} gives no sweep.time_accuracy_ppm", source.name));
+  if (receiver.sweep.time_accuracy_ppm < 0) missing.push_back(fmt::format("receiver profile {} gives no sweep.time_accuracy_ppm", receiver.name));
+  for (std::string_view op : {"trigger_external", "trigger_immediate", "set_trigger_delay", "abort"}) {
     if (!receiver.has(op)) missing.push_back(fmt::format("receiver profile {} has no operation {}", receiver.name, op));
   }
   if (missing.empty()) return "";
@@ -69,6 +71,8 @@ Result<FastCapturePlan> plan_fast_capture(const Recipe& recipe, const drivers::F
     in.start_pulse_trigger = true;
     in.trigger_latency_s = receiver.sweep.trigger_latency_s;
     in.trigger_uncertainty_s = receiver.sweep.trigger_uncertainty_s + source.sweep.start_pulse_uncertainty_s;
+    in.source_time_accuracy = source.sweep.time_accuracy_ppm * 1e-6;
+    in.receiver_time_accuracy = receiver.sweep.time_accuracy_ppm * 1e-6;
   }
   return plan_fast_capture(recipe, in, load_dbm);
 }

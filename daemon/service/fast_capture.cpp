@@ -88,11 +88,15 @@ class Capture {
                                     sp.min_frequency_hz / 1e6, sp.max_frequency_hz / 1e6));
     }
     const double opc_s = std::chrono::duration<double>(rx_.session().options().opc_timeout).count();
-    if (plan.receiver_sweep_s > opc_s) {
+    // A triggered sweep may first wait one ramp cycle for the pulse and up to one more of delay.
+    const double wait_s = plan.receiver_sweep_s + (plan.triggered ? 2 * (plan.source_sweep_s + sp_retrace()) : 0.0);
+    if (wait_s > opc_s) {
       return make_error(ErrorKind::invalid_argument,
-                        fmt::format("{}: fast capture receiver sweep of {} s is longer than the *OPC? timeout of {} s "
+                        fmt::format("{}: fast capture receiver sweep of {} s{} is longer than the *OPC? timeout of {} s "
                                     "(profile {}); raise io.opc_timeout_ms",
-                                    rx_.session().name(), plan.receiver_sweep_s, opc_s, rx_.profile().name));
+                                    rx_.session().name(), plan.receiver_sweep_s,
+                                    plan.triggered ? fmt::format(" (with the wait for its trigger {:.4g} s)", wait_s) : "",
+                                    opc_s, rx_.profile().name));
     }
     return {};
   }
@@ -146,7 +150,7 @@ class Capture {
     if (Status s = rx_.set_max_hold(false); !s) return s;
     if (Status s = rx_.set_sweep_time_auto(); !s) return s;
     if (triggered_) {
-      if (Status s = rx_.set_trigger_external(false); !s) return s;
+      if (Status s = untrigger(); !s) return s;
     }
     if (checks_at_end(src_.profile())) {
       if (Status s = src_.session().drain_errors(); !s) return s;
@@ -174,11 +178,33 @@ class Capture {
     if (rx_.session().is_open()) {
       (void)rx_.set_max_hold(false);
       (void)rx_.set_sweep_time_auto();
-      if (triggered_) (void)rx_.set_trigger_external(false);
+    }
+    if (triggered_) {
+      // A receiver left armed would make every later sweep wait for a pulse that never comes:
+      // reconnect if the link dropped (an *OPC? timeout closes it), then abort and disarm.
+      if (!rx_.session().is_open()) {
+        if (Status r = rx_.session().reconnect(); !r) {
+          spdlog::error("{}: could not reconnect to return the receiver to immediate triggering: {}", rx_.session().name(),
+                        r.error().message);
+          return;
+        }
+      }
+      if (Status s = untrigger(); !s) spdlog::warn("{}: back to immediate triggering failed: {}", rx_.session().name(), s.error().message);
     }
   }
 
  private:
+  double sp_retrace() const { return src_.profile().sweep.retrace_s; }
+
+  // Abort anything armed, trigger at INIT again, no delay.
+  Status untrigger() {
+    if (Status s = rx_.abort(); !s) return s;
+    if (Status s = rx_.set_trigger_external(false); !s) return s;
+    if (Status s = rx_.set_trigger_delay(0); !s) return s;
+    triggered_ = false;
+    return {};
+  }
+
   drivers::Source& src_;
   drivers::Receiver& rx_;
   const core::Recipe& recipe_;

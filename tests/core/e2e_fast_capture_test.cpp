@@ -158,11 +158,9 @@ TEST_P(FastVsStep, ReturnLossAgreesBetweenModes) {
   ASSERT_EQ(step.recipe.mode, core::SweepMode::step);
   ASSERT_EQ(fast.recipe.mode, core::SweepMode::fast_capture);
   ASSERT_EQ(core::plan_frequencies(step.recipe), core::plan_frequencies(fast.recipe));
-  {
-    auto plan = core::plan_fast_capture(fast.recipe, fixture(), src_profile_, rx_profile_);
-    ASSERT_TRUE(plan.ok()) << plan.error().message;
-    EXPECT_EQ(plan->triggered, cable_) << plan->reason;
-  }
+  auto fast_plan = core::plan_fast_capture(fast.recipe, fixture(), src_profile_, rx_profile_);
+  ASSERT_TRUE(fast_plan.ok()) << fast_plan.error().message;
+  EXPECT_EQ(fast_plan->triggered, cable_) << fast_plan->reason;
   calibrate(step);
   calibrate(fast);
   if (HasFatalFailure()) return;
@@ -176,13 +174,26 @@ TEST_P(FastVsStep, ReturnLossAgreesBetweenModes) {
   }
   ASSERT_FALSE(serials.empty());
 
-  double worst_below_25 = 0, worst_all = 0;
+  double worst_below_25 = 0, worst_all = 0, worst_offset_hz = 0;
   int compared = 0, truth_outside_fast = 0, truth_outside_step = 0;
   const std::vector<double> plan = core::plan_frequencies(fast.recipe);
   for (const auto& serial : serials) {
     const auto a = measure(step, serial);
     const auto b = measure(fast, serial);
     ASSERT_EQ(a.size(), b.size()) << serial;
+    // Where each plan bin of that capture saw the tone (the simulator's ground truth): within the
+    // plan's offset bound of its frequency, 0.23 kHz triggered, half a bin (0.25 MHz) free-running
+    // (MEASUREMENT.md §11, derived there).
+    const json seen = sim_->control({{"cmd", "last-sweep"}});
+    ASSERT_EQ(seen["tone_hz"].size(), core::plan_frequencies(fast.recipe).size() + 2) << seen.dump();
+    for (std::size_t i = 0; i < a.size(); ++i) {
+      const json& t = seen["tone_hz"][i + 1];
+      ASSERT_FALSE(t.is_null()) << serial << ": plan bin " << i << " saw no tone";
+      const double off = std::abs(t.get<double>() - a[i].frequency_hz);
+      worst_offset_hz = std::max(worst_offset_hz, off);
+      EXPECT_LE(off, fast_plan->frequency_offset_hz * (1 + 1e-9) + 1e-3)
+          << serial << " at " << a[i].frequency_hz / 1e6 << " MHz: tone seen at " << t.get<double>() / 1e6 << " MHz";
+    }
     ASSERT_FALSE(a.empty()) << serial;
     // The unit's true return loss at the plan frequencies (the simulator's ground truth, no bench
     // errors): each run's interval [worst, best] must hold it. For the fast run that needs the
@@ -219,8 +230,55 @@ TEST_P(FastVsStep, ReturnLossAgreesBetweenModes) {
               GetParam().c_str(), serials.size(), compared, worst_below_25, worst_all);
   std::printf("[fast-vs-step %s] true RL outside the interval: fast %d, step %d points\n", GetParam().c_str(),
               truth_outside_fast, truth_outside_step);
+  std::printf("[fast-vs-step %s] readings at most %.1f Hz from their plan frequency (bound %.1f Hz, %s)\n", GetParam().c_str(),
+              worst_offset_hz, fast_plan->frequency_offset_hz, fast_plan->triggered ? "triggered" : "free-running");
   std::printf("[fast-vs-step %s] cycle time per unit: step %.3f s, fast %.3f s (%zu points)\n", GetParam().c_str(),
               mean(step.cycle_s), mean(fast.cycle_s), plan.size());
+}
+
+// A station config that declares the start-pulse cable on a bench that has none: the armed
+// receiver sweep never starts, the capture stops at the receiver's *OPC? timeout with an error
+// naming it, and the receiver is left starting at INIT again (reconnected, aborted, disarmed:
+// MEASUREMENT.md §11), so the next step sweep runs. Real sim process on the bench profile, the
+// receiver's *OPC? timeout shortened to 1.5 s for the test.
+TEST(FastCaptureTrigger, MissingCableFailsTheCaptureAndLeavesTheReceiverUsable) {
+  TempDir dir;
+  json cfg = read_config("config/sim/bench.jsonc");
+  cfg.erase("trigger_cable");
+  cfg["control"] = json{{"tcp", {{"host", "127.0.0.1"}, {"port", 0}}}};
+  for (auto& [role, inst] : cfg["instruments"].items()) inst["endpoints"] = json{{"tcp", {{"host", "127.0.0.1"}, {"port", 0}}}};
+  RunningSim sim(std::vector<std::string>{"--config", write_config(dir, cfg).string(), "--log-file", (dir / "sim.log").string()});
+  ASSERT_TRUE(sim.ok());
+  drivers::Profile sp = drivers::load_profile(repo_file("config/instruments/sim-source.jsonc"));
+  drivers::Profile rp = drivers::load_profile(repo_file("config/instruments/sim-receiver.jsonc"));
+  rp.io.opc_timeout = drivers::Millis{1500};
+  auto ss = sim.session("source/tcp", sp.io);
+  auto rs = sim.session("receiver/tcp", rp.io);
+  drivers::Source source(*ss, sp);
+  drivers::Receiver receiver(*rs, rp);
+  ASSERT_TRUE(source.initialize().ok());
+  ASSERT_TRUE(receiver.initialize().ok());
+  ASSERT_TRUE(sim.control({{"cmd", "connect"}, {"standard", "OPEN"}}).value("ok", false));
+
+  core::Recipe fast = core::load_recipe(repo_file("config/recipes/whip915-fast.jsonc"));
+  drivers::FixtureConfig fx = echoline::testing::demo_fixture();
+  fx.start_pulse_cable = true;
+  auto plan = core::plan_fast_capture(fast, fx, sp, rp);
+  ASSERT_TRUE(plan.ok()) << plan.error().message;
+  ASSERT_TRUE(plan->triggered);
+  std::atomic<bool> cancel{false};
+  SweepOptions options;
+  options.coupling_db = 20;
+  SweepOutcome failed = run_fast_capture(source, receiver, fast, *plan, cancel, {}, options);
+  ASSERT_FALSE(failed.completed());
+  EXPECT_NE(failed.error->message.find("receiver sweep"), std::string::npos) << failed.error->message;
+
+  core::Recipe step = core::load_recipe(repo_file("config/recipes/whip915.jsonc"));
+  step.segments[0].points = 11;   // a short sweep is enough to show the receiver starts at INIT
+  SweepEngine engine(source, receiver, options);
+  SweepOutcome after = engine.run(step, cancel);
+  EXPECT_TRUE(after.completed()) << (after.error ? after.error->message : "");
+  EXPECT_EQ(after.readings.size(), 11u);
 }
 
 // "instant": virtual clock, replies at once. "bench": real waits (sweep times, 3 ms per command).

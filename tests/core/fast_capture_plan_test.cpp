@@ -108,11 +108,11 @@ TEST(FastCapturePlan, UntriggeredOffsetIsHalfABin) {
 
 // The start-pulse trigger worked by hand (MEASUREMENT.md §11, derived there). Whip plan: ramp
 // T = 1 ms over B = 110.5 MHz (R_s = 1.105e11 Hz/s), bin b = 0.5 MHz, no retrace. The receiver
-// must start b/(2 R_s) = 2.2624 µs before a ramp starts, i.e. 997.7375 µs after the pulse; less
-// the 100 ns trigger latency: 997.6375 µs. The meeting moves R_r·R_s/(R_s − R_r) per second of
-// timing error, R_r = b/dwell = 0.5e6/(1e-3·222/221) = 4.97748e8 Hz/s: b/T = 5e8 Hz/s exactly
-// (dwell = T(B + b)/B makes R_r·R_s/(R_s − R_r) = b/T: one bin per ramp of timing error), so a
-// ±20 ns spread leaves ±10.0 Hz (against 0.25 MHz untriggered). The wait for the pulse and the
+// must start b/(2 R_s) = 2.26244 µs before a ramp starts, i.e. 997.73756 µs after the pulse;
+// less the 100 ns trigger latency: 997.63756 µs. The meeting moves R_r·R_s/(R_s − R_r) per
+// second of timing error, R_r = b/dwell = 0.5e6/(1e-3·222/221) = 4.97748e8 Hz/s: b/C = 5e8 Hz/s
+// exactly (the dwell C + b/R_s makes R_r·R_s/(R_s − R_r) = b/C, C the ramp cycle: one bin per
+// cycle of timing error), so a ±20 ns spread leaves ±10.0 Hz (against 0.25 MHz untriggered). The wait for the pulse and the
 // delay add at most two ramp cycles to the expected capture.
 TEST(FastCapturePlan, StartPulseTriggerByHand) {
   FastCaptureInstruments in = bench();
@@ -123,9 +123,10 @@ TEST(FastCapturePlan, StartPulseTriggerByHand) {
   ASSERT_TRUE(p.ok()) << p.error().message;
   EXPECT_TRUE(p->triggered);
   EXPECT_NEAR(p->trigger_delay_s, 1e-3 - 0.25e6 / 1.105e11 - 100e-9, 1e-12);
-  EXPECT_NEAR(p->trigger_delay_s, 997.6375e-6, 1e-10);
-  const double rr = 0.5e6 / (1e-3 * 222 / 221), rs = 1.105e11;
-  EXPECT_NEAR(meeting_drift_hz_per_s(1e-3, 110.5e6, 0.5e6, 1e-3 * 222 / 221), rr * rs / (rs - rr), 1e-3);
+  EXPECT_NEAR(p->trigger_delay_s, 997.63756e-6, 1e-11);
+  EXPECT_NEAR(meeting_drift_hz_per_s(1e-3, 110.5e6, 0.5e6, 1e-3 * 222 / 221), 5e8, 1e-3);
+  // With a 0.2 ms retrace the cycle is 1.2 ms: b/C = 0.5e6 / 1.2e-3 = 4.1667e8 Hz/s, 8.33 Hz for 20 ns.
+  EXPECT_NEAR(meeting_drift_hz_per_s(1e-3, 110.5e6, 0.5e6, 1.2e-3 + 0.5e6 / 1.105e11), 0.5e6 / 1.2e-3, 1e-3);
   EXPECT_NEAR(p->frequency_offset_hz, 10.0, 0.01);
   EXPECT_NEAR(p->capture_s, 0.001 + 222 * 1e-3 * 222 / 221 + 2e-3, 1e-12);
   EXPECT_NE(p->reason.find("ramp-start pulse"), std::string::npos) << p->reason;
@@ -133,6 +134,23 @@ TEST(FastCapturePlan, StartPulseTriggerByHand) {
   EXPECT_NEAR(start_pulse_delay_s(1e-3, 0, 110.5e6, 0.5e6, 999e-6), 1e-3 - 0.25e6 / 1.105e11 - 999e-6 + 1e-3, 1e-12);
   // A retrace lengthens the cycle the phase is counted in.
   EXPECT_NEAR(start_pulse_delay_s(1e-3, 0.2e-3, 110.5e6, 0.5e6, 0), 1.2e-3 - 0.25e6 / 1.105e11, 1e-12);
+
+  // Times that disagree slide the meetings along the trace: with 1 ppm on each instrument the
+  // last plan bin (221) moves 0.5e6 · 221 · (222/221) · 2e-6 = 222 Hz, and the delay's own error
+  // (997.64 µs · 1 ppm ≈ 1 ns) 0.50 Hz: 10 + 0.50 + 222 = 232.50 Hz, still far under 0.25 MHz.
+  in.source_time_accuracy = 1e-6;
+  in.receiver_time_accuracy = 1e-6;
+  auto q = plan_fast_capture(whip(15), in, kLoadDbm);
+  ASSERT_TRUE(q.ok()) << q.error().message;
+  EXPECT_TRUE(q->triggered);
+  EXPECT_NEAR(q->frequency_offset_hz, 232.50, 0.01);
+  // A sweep time good to 0.3 % (an analog sweep) slides the last bin by 0.5e6 · 222 · 3.001e-3
+  // = 0.333 MHz, over half a bin: the trigger is of no use and the plan runs free (0.25 MHz).
+  in.receiver_time_accuracy = 3e-3;
+  auto r = plan_fast_capture(whip(15), in, kLoadDbm);
+  ASSERT_TRUE(r.ok()) << r.error().message;
+  EXPECT_FALSE(r->triggered);
+  EXPECT_NEAR(r->frequency_offset_hz, 0.25e6, 1e-3);
 }
 
 // The trigger fixes the phase only with the dwell exactly R2's. With one slow ramp under many

@@ -108,16 +108,21 @@ TEST(StationCapability, StartPulseCableNeedsEveryPiece) {
   auto cabled = plan_fast_capture(recipe, fx, src, rcv);
   ASSERT_TRUE(cabled.ok()) << cabled.error().message;
   EXPECT_TRUE(cabled->triggered);
-  // Bin 0.5 MHz, ramp 1 ms, spread 20 ns (receiver) + 0 (source): 0.5e9 Hz/s x 20e-9 s = 10 Hz.
-  EXPECT_NEAR(cabled->frequency_offset_hz, 10.0, 0.01);
+  // Bin 0.5 MHz, ramp 1 ms, spread 20 ns (receiver) + 0 (source): 0.5e9 Hz/s x 20e-9 s = 10 Hz;
+  // 1 ppm on each timebase: 222 Hz of slide at the last bin and 0.50 Hz from the delay
+  // (fast_capture_plan_test.cpp works these by hand): 232.50 Hz.
+  EXPECT_NEAR(cabled->frequency_offset_hz, 232.50, 0.01);
   const StationCapability c = station_capability(fx, src, rcv, recipe);
-  EXPECT_NEAR(c.frequency_offset_hz, 10.0, 0.01);
+  EXPECT_NEAR(c.frequency_offset_hz, 232.50, 0.01);
   EXPECT_EQ(c.start_pulse_problem, "");
 
   drivers::Profile no_ops = rcv;
   no_ops.commands.erase("set_trigger_delay");
   const std::string why = start_pulse_problem(fx, src, no_ops);
   EXPECT_NE(why.find("set_trigger_delay"), std::string::npos) << why;
+  drivers::Profile no_accuracy = rcv;
+  no_accuracy.sweep.time_accuracy_ppm = -1;
+  EXPECT_NE(start_pulse_problem(fx, src, no_accuracy).find("time_accuracy_ppm"), std::string::npos);
   drivers::Profile no_pulse = src;
   no_pulse.sweep.start_pulse_uncertainty_s = -1;
   EXPECT_NE(start_pulse_problem(fx, no_pulse, rcv).find("start_pulse_uncertainty_s"), std::string::npos);
