@@ -67,6 +67,30 @@ class FastCapture : public ::testing::Test {
     return trace();
   }
 
+  // How far in frequency `after` sits from `before`, bin by bin on the steep, straight sides of a
+  // dip (slope and curvature from `before`: central differences, common practice, no source),
+  // averaged over each side: the falling side's mean, the rising side's, and their counts.
+  struct Sides { double falling = 0, rising = 0; int n_falling = 0, n_rising = 0; };
+  static Sides moved_by_side(const std::vector<double>& before, const std::vector<double>& after) {
+    Sides s;
+    for (std::size_t i = 2; i + 2 < before.size() && i < after.size(); ++i) {
+      const double slope = (before[i + 1] - before[i - 1]) / 2;   // dB per bin
+      const double curvature = std::abs(before[i + 1] - 2 * before[i] + before[i - 1]);
+      if (std::abs(slope) < 0.3 || curvature > 0.2 * std::abs(slope)) continue;
+      const double moved = (after[i] - before[i]) / slope * kBinHz;
+      if (slope < 0) {
+        s.falling += moved;
+        ++s.n_falling;
+      } else {
+        s.rising += moved;
+        ++s.n_rising;
+      }
+    }
+    if (s.n_falling > 0) s.falling /= s.n_falling;
+    if (s.n_rising > 0) s.rising /= s.n_rising;
+    return s;
+  }
+
   // The stepped reference: source CW at each bin frequency, receiver 1 MHz span around it.
   std::vector<double> stepped(double rbw_hz) {
     src->handle("FREQ:MODE CW;:POW -10;:OUTP ON");
@@ -229,25 +253,11 @@ TEST_F(FastCapture, EveryBinReadsTheUnitAtOneCommonOffset) {
   const std::vector<double> a = capture(1e6, sweep, 2.002);
   start_ramp(0.005);
   const std::vector<double> b = capture(1e6, sweep, 2.002 + 0.00125);
-  double falling = 0, rising = 0;   // sums of the change of d, Hz
-  int n_falling = 0, n_rising = 0;
-  for (std::size_t i = 2; i + 2 < a.size(); ++i) {
-    const double slope = (a[i + 1] - a[i - 1]) / 2;   // dB per bin
-    const double curvature = std::abs(a[i + 1] - 2 * a[i] + a[i - 1]);
-    if (std::abs(slope) < 0.3 || curvature > 0.2 * std::abs(slope)) continue;
-    const double moved = (b[i] - a[i]) / slope * kBinHz;
-    if (slope < 0) {
-      falling += moved;
-      ++n_falling;
-    } else {
-      rising += moved;
-      ++n_rising;
-    }
-  }
-  ASSERT_GE(n_falling, 5);
-  ASSERT_GE(n_rising, 5);
-  falling /= n_falling;
-  rising /= n_rising;
+  const Sides m = moved_by_side(a, b);   // the change of d, Hz
+  ASSERT_GE(m.n_falling, 5);
+  ASSERT_GE(m.n_rising, 5);
+  const double falling = m.falling, rising = m.rising;
+  const int n_falling = m.n_falling, n_rising = m.n_rising;
   EXPECT_NEAR(falling, rising, 0.1 * kBinHz) << "both sides of the dip move by the same d";
   EXPECT_NEAR(std::abs(falling + rising) / 2, kBinHz / 4, 0.1 * kBinHz) << "a quarter ramp later, a quarter bin";
   std::printf("[ offset  ] d moved by %.0f kHz on the falling side (%d bins), %.0f kHz on the rising side (%d bins)\n",
@@ -283,24 +293,10 @@ TEST_F(FastCapture, StartPulseTriggerPutsEveryReadingOnItsBin) {
   // difference between capture and reference moves them oppositely: the half sum of the two
   // sides' mean offsets is the frequency offset (single bins scatter by some 30 kHz of noise).
   const auto offset_of = [&](const std::vector<double>& x) {
-    double falling = 0, rising = 0;
-    int n_falling = 0, n_rising = 0;
-    for (std::size_t i = 2; i + 2 < x.size(); ++i) {
-      const double slope = (step[i + 1] - step[i - 1]) / 2;   // dB per bin
-      const double curvature = std::abs(step[i + 1] - 2 * step[i] + step[i - 1]);
-      if (std::abs(slope) < 0.3 || curvature > 0.2 * std::abs(slope)) continue;
-      const double off = (x[i] - step[i]) / slope * kBinHz;
-      if (slope < 0) {
-        falling += off;
-        ++n_falling;
-      } else {
-        rising += off;
-        ++n_rising;
-      }
-    }
-    EXPECT_GE(n_falling, 5);
-    EXPECT_GE(n_rising, 5);
-    return (falling / std::max(n_falling, 1) + rising / std::max(n_rising, 1)) / 2;
+    const Sides m = moved_by_side(step, x);
+    EXPECT_GE(m.n_falling, 5);
+    EXPECT_GE(m.n_rising, 5);
+    return (m.falling + m.rising) / 2;
   };
   const double off_a = offset_of(a), off_b = offset_of(b);
   EXPECT_LT(std::abs(off_a), 0.05 * kBinHz) << "the triggered capture reads at its bins";
