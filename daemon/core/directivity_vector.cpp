@@ -26,6 +26,7 @@
 #include "daemon/core/directivity_phase.hpp"
 #include "daemon/core/frequency_text.hpp"
 #include "daemon/core/uncertainty.hpp"
+#include "daemon/core/uncertainty.hpp"
 
 namespace echoline::core {
 namespace {
@@ -287,18 +288,32 @@ void add_directivity_vector(UncertaintyBudget& b, const CalibrationRecord& cal, 
   std::size_t unsolved = 0, ambiguous = 0;
   std::string first_problem;
   double first_at = 0;
+  // A fast capture reads each standard up to frequency_offset_hz off its plan frequency, the
+  // mismatch standards too (MEASUREMENT.md §11): the bounded part widens the reference error the
+  // reading is taken against, the noise part joins the reading's σ. 0 for a step sweep.
+  const auto sigmas = [&](const std::vector<Reading>& t) {
+    std::vector<double> s(n);
+    for (std::size_t i = 0; i < n; ++i) s[i] = reading_sigma_db(b, i, t[i].raw_dbm);
+    return s;
+  };
+  const std::vector<double> sigma_a = sigmas(mismatch_a), sigma_b = sigmas(mismatch_b);
+  const std::vector<double> offset_a = frequency_offset_db(mismatch_a, b.frequency_offset_hz);
+  const std::vector<double> offset_b = frequency_offset_db(mismatch_b, b.frequency_offset_hz);
+  const std::vector<double> offset_u_a = frequency_offset_sigma_db(b.frequency_hz, sigma_a, b.frequency_offset_hz);
+  const std::vector<double> offset_u_b = frequency_offset_sigma_db(b.frequency_hz, sigma_b, b.frequency_offset_hz);
   for (std::size_t i = 0; i < n; ++i) {
     const double f = b.frequency_hz[i];
     DirectivityInputs in;
     const double u_r = b.reference_noise_db[i];
-    auto reading = [&](const Reading& r, std::complex<double> g, double tol) {
-      const double s_r = reading_sigma_db(b, i, r.raw_dbm);
-      return MismatchReading{g, tol, r.raw_dbm - cal.reference_dbm[i], std::sqrt(s_r * s_r + u_r * u_r)};
+    auto reading = [&](const Reading& r, std::complex<double> g, double tol, double s_r, double u_off) {
+      return MismatchReading{g, tol, r.raw_dbm - cal.reference_dbm[i], std::sqrt(s_r * s_r + u_r * u_r + u_off * u_off)};
     };
-    in.a = reading(mismatch_a[i], models.gamma_a[i], models.tolerance_a);
-    in.b = reading(mismatch_b[i], models.gamma_b[i], models.tolerance_b);
-    in.reference_error_low_db = b.reference_error_low_db[i];
-    in.reference_error_high_db = b.reference_error_high_db[i];
+    in.a = reading(mismatch_a[i], models.gamma_a[i], models.tolerance_a, sigma_a[i], offset_u_a[i]);
+    in.b = reading(mismatch_b[i], models.gamma_b[i], models.tolerance_b, sigma_b[i], offset_u_b[i]);
+    // P_x − T = level − e + (R − T) for a reading error e ∈ [−Δ, Δ]: the interval widens by Δ.
+    const double off = std::max(offset_a[i], offset_b[i]);
+    in.reference_error_low_db = b.reference_error_low_db[i] - off;
+    in.reference_error_high_db = b.reference_error_high_db[i] + off;
     in.coverage_factor = b.coverage_factor;
     in.source_match = sm;
     in.magnitude_high = b.directivity_bound[i];
