@@ -313,7 +313,7 @@ json fast_capture_profile(const std::filesystem::path& dir, int unit_count) {
       const RunPoints& st = step_points[r];
       if (f.rows.size() != st.rows.size()) throw std::runtime_error("fast and step runs have different point counts");
       double unit_max = 0;
-      int unit_truth_outside = 0;
+      int unit_truth_outside = 0, unit_outside_step = 0;
       for (std::size_t i = 0; i < f.rows.size(); ++i) {
         ++truth_points;
         unit_truth_outside += outside(f.rows[i], truth[r][i]);
@@ -321,8 +321,12 @@ json fast_capture_profile(const std::filesystem::path& dir, int unit_count) {
         step_outside_fast += outside(f.rows[i], st.rows[i][1]);
         diffs.push_back(std::abs(f.rows[i][1] - st.rows[i][1]));
         unit_max = std::max(unit_max, diffs.back());
-        outside_bounds += f.rows[i][1] < st.rows[i][2] || f.rows[i][1] > st.rows[i][3];
+        unit_outside_step += f.rows[i][1] < st.rows[i][2] || f.rows[i][1] > st.rows[i][3];
       }
+      outside_bounds += unit_outside_step;
+      // Per unit, for the figures over the units that hold still (decided after the control).
+      o["rl_unit_max_db"].push_back(unit_max);
+      o["rl_unit_outside_step_bounds"].push_back(unit_outside_step);
       // Units whose return loss differs by more than 0.5 dB somewhere, with the step run's reason
       // (an intermittent feed changes between any two sweeps).
       if (unit_max > 0.5) {
@@ -397,6 +401,27 @@ json fast_capture_profile(const std::filesystem::path& dir, int unit_count) {
   out["step_repeat_rl_over_half_db"] = repeat_rl_over;
   out["step_repeat_rl_units_over_half_db"] = repeat_rl_units;
   out["step_truth_outside_bounds"] = step_truth_outside;
+  // The return-loss figures over the units whose two step sweeps agree within 0.5 dB at every
+  // RL < 25 dB point (a unit that changes between sweeps, an intermittent feed, cannot agree
+  // with any second measurement, the step sweep's own included).
+  for (json* o : {&out, &out["untriggered"]}) {
+    double steady_max = 0;
+    int steady_outside = 0, steady_units = 0;
+    for (std::size_t r = 0; r < units.size(); ++r) {
+      if (repeat_rl_units.count(units[r]) > 0) continue;
+      ++steady_units;
+      steady_max = std::max(steady_max, (*o)["rl_unit_max_db"][r].get<double>());
+      steady_outside += (*o)["rl_unit_outside_step_bounds"][r].get<int>();
+    }
+    (*o)["rl_steady_units"] = steady_units;
+    (*o)["rl_steady_diff_max_db"] = steady_max;
+    (*o)["rl_steady_outside_step_bounds"] = steady_outside;
+  }
+  std::cerr << fmt::format("  units whose two step sweeps agree ({}): fast max |difference| {:.3f} dB, {} readings outside the step "
+                           "interval (free-running: {:.3f} dB, {})\n",
+                           out["rl_steady_units"].get<int>(), out["rl_steady_diff_max_db"].get<double>(),
+                           out["rl_steady_outside_step_bounds"].get<int>(), out["untriggered"]["rl_steady_diff_max_db"].get<double>(),
+                           out["untriggered"]["rl_steady_outside_step_bounds"].get<int>());
   std::cerr << fmt::format("  a second step sweep: verdicts the same {}, RL<25 dB points over 0.5 dB apart {} of {} ({} units); "
                            "true RL outside the step bounds at {} points\n",
                            repeat_same, repeat_rl_over, repeat_rl_points, repeat_rl_units.size(), step_truth_outside);
