@@ -12,6 +12,7 @@
 #include "daemon/client/exit_codes.hpp"
 #include "daemon/core/centring_prediction.hpp"
 #include "daemon/core/frequency_text.hpp"
+#include "daemon/core/mask_prediction.hpp"
 #include "daemon/core/recipe_check.hpp"
 #include "daemon/core/recipe_loader.hpp"
 #include "drivers/config_error.hpp"
@@ -105,6 +106,33 @@ void print_centring(const core::Recipe& r, const core::StationCapability& cap, c
   std::cout << "\n";
 }
 
+// The mask's guard band in words: per segment, the readings that pass and that fail under
+// guarded acceptance on this station, and the predicted shares when the recipe gives a nominal unit.
+void print_mask(const core::Recipe& r, const core::StationCapability& cap, const char* indent = "") {
+  if (r.rule != core::DecisionRule::guarded) return;
+  auto p = core::predict_mask(r, cap);
+  if (!p) return;
+  for (const core::MaskGuard& g : p->guards) {
+    std::cout << indent << fmt::format("mask {} ≥ {:.1f} dB: passes when the reading is at least {}, fails below {:.1f} dB\n",
+                                       core::format_frequency_range(g.start_hz, g.stop_hz), g.limit_db,
+                                       std::isfinite(g.pass_reading_db) ? fmt::format("{:.2f} dB", g.pass_reading_db)
+                                                                        : std::string("(none can pass)"),
+                                       g.fail_reading_db);
+  }
+  if (!p->have_unit) return;
+  std::cout << indent << fmt::format("mask: predicted {:.1f} % pass, {:.1f} % inconclusive ({:.1f}-{:.1f} % as the coupler's "
+                                     "leakage phase falls), {:.1f} % fail of {} ({}); "
+                                     "the nominal unit's true return loss lies {:.1f} dB {} the pass reading",
+                                     100 * p->pass_fraction, 100 * p->inconclusive_fraction, 100 * p->inconclusive_low,
+                                     100 * p->inconclusive_high, 100 * p->fail_fraction,
+                                     p->of_all_units ? "all units" : "the nominal unit", p->basis,
+                                     std::fabs(p->nominal_margin_db), p->nominal_margin_db >= 0 ? "above" : "below");
+  if (p->directivity_for_5_percent_db) {
+    std::cout << fmt::format("; 5 % inconclusive needs a coupler of {:.1f} dB directivity", *p->directivity_for_5_percent_db);
+  }
+  std::cout << "\n";
+}
+
 int count(const std::vector<core::CheckFinding>& fs, const char* severity) {
   int n = 0;
   for (const auto& f : fs) n += f.severity == severity;
@@ -176,6 +204,7 @@ int cmd_recipe(const Argv& argv) {
   const drivers::StationConfig config = *find_station_config(args, true);
   Checked c = load_and_check(file, config);
   print_centring(c.recipe, c.capability);
+  print_mask(c.recipe, c.capability);
   std::cout << fmt::format("recipe check: {} {} on station {}: {} error{}, {} warning{}\n", c.recipe.name, c.recipe.version,
                            config.station, count(c.findings, "error"), count(c.findings, "error") == 1 ? "" : "s",
                            count(c.findings, "warning"), count(c.findings, "warning") == 1 ? "" : "s");
@@ -225,6 +254,7 @@ int cmd_dry_run(const Argv& argv) {
             << " (OPEN and LOAD swept twice: the repeat measures the reading noise)\n";
   std::cout << fmt::format("  calibration kit: {} serial {}\n", c.capability.kit.identity, c.capability.kit.serial);
   print_centring(r, c.capability, "  ");
+  print_mask(r, c.capability, "  ");
   if (r.mode == core::SweepMode::fast_capture) {
     print_fast_capture_plan(config, r, c.recipe.calibration.use_short ? 5 : 4);
   } else {

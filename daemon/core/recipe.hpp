@@ -85,6 +85,9 @@ struct NominalUnit {
   std::optional<double> depth_db;          // return loss at resonance (default: a deep dip)
   std::optional<double> resonance_sd_hz;   // production spread of the resonance (standard deviation)
   std::optional<double> center_hz;         // mean resonance; default the trim target or window centre
+  // The dip's shape for the mask prediction: a series resonance (default) or a transmission-line
+  // monopole (a wire element; its radiation resistance rises with frequency, its dip is flatter).
+  bool line_monopole = false;
 };
 
 struct Recipe {

@@ -2,6 +2,7 @@
 #include "daemon/core/recipe_check.hpp"
 
 #include "daemon/core/centring_prediction.hpp"
+#include "daemon/core/mask_prediction.hpp"
 
 #include <algorithm>
 #include <cmath>
@@ -232,6 +233,32 @@ std::vector<CheckFinding> check_recipe(const Recipe& r, const StationCapability&
                         "measured; choose points or a step that put a point on it",
                         format_frequency(edge)));
       }
+    }
+  }
+
+  // The mask under guarded acceptance: how many units will this station leave undecided
+  // (mask_prediction.hpp)? Only with a production spread: without one the share is of the nominal
+  // unit alone, and the guard band itself is printed by `recipe check` and `dry-run`.
+  if (r.rule == DecisionRule::guarded) {
+    if (auto p = predict_mask(r, st); p && p->have_unit && p->of_all_units && p->inconclusive_fraction > 0.10) {
+      const MaskGuard* widest = nullptr;
+      for (const MaskGuard& g : p->guards) {
+        if (!widest || g.pass_reading_db - g.limit_db > widest->pass_reading_db - widest->limit_db) widest = &g;
+      }
+      std::string help = p->directivity_for_5_percent_db
+                             ? fmt::format("a coupler of at least {:.1f} dB directivity would bring it to 5 %",
+                                           *p->directivity_for_5_percent_db)
+                             : std::string("no coupler would bring it to 5 % with this kit's LOAD and connection");
+      const std::string need = std::isfinite(widest->pass_reading_db)
+                                   ? fmt::format("reads at least {:.1f} dB", widest->pass_reading_db)
+                                   : std::string("reads anything at all (no reading can pass)");
+      add(out, "warning", fmt::format("/limits/mask/{}", widest->segment),
+          fmt::format("on this station a unit passes the {:.1f} dB limit over {} only when it {}, and fails only "
+                      "below {:.1f} dB: about {:.0f} % of units will come out inconclusive ({:.0f}-{:.0f} % as the "
+                      "coupler's leakage phase falls); {}",
+                      widest->limit_db, format_frequency_range(widest->start_hz, widest->stop_hz), need,
+                      widest->fail_reading_db, 100 * p->inconclusive_fraction, 100 * p->inconclusive_low,
+                      100 * p->inconclusive_high, help));
     }
   }
 

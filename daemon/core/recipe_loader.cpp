@@ -354,7 +354,10 @@ class Loader {
     const JsonPointer at("/nominal_unit");
     if (!doc_.has(at)) return;
     doc_.require_object(at);
-    doc_.check_keys(at, {"q", "bandwidth_hz", "depth_db", "resonance_sd_hz", "center_hz"});
+    doc_.check_keys(at, {"q", "bandwidth_hz", "depth_db", "resonance_sd_hz", "center_hz", "model"});
+    const std::string model = doc_.string_or(at / "model", "series-rlc");
+    if (model == "line-monopole") r.nominal.line_monopole = true;
+    else if (model != "series-rlc") doc_.fail(at / "model", fmt::format("\"{}\" is not a unit model; \"series-rlc\" or \"line-monopole\"", model));
     if (doc_.has(at / "q") && doc_.has(at / "bandwidth_hz")) doc_.fail(at, "give either q or bandwidth_hz, not both");
     if (doc_.has(at / "q")) r.nominal.q = doc_.number_in(at / "q", 1, 0.5, 10000, "");
     r.nominal.bandwidth_hz = optional_frequency(at / "bandwidth_hz");

@@ -90,6 +90,12 @@ RefError reference_error(const CalKit& kit, double f, bool with_short, double ep
 
 }  // namespace
 
+ReferenceErrorBounds reference_error_bounds(const CalKit& kit, double frequency_hz, bool with_short,
+                                            double directivity_bound, double source_match) {
+  const RefError e = reference_error(kit, frequency_hz, with_short, directivity_bound, source_match);
+  return {e.low_db, e.high_db};
+}
+
 double frequency_offset_db(const std::vector<double>& f, const std::vector<double>& level_db, std::size_t i,
                            double offset_hz) {
   if (!(offset_hz > 0) || f.size() < 2) return 0;

@@ -56,6 +56,15 @@ std::vector<double> frequency_offset_db(const std::vector<Reading>& trace, doubl
 std::vector<double> frequency_offset_sigma_db(const std::vector<double>& f, const std::vector<double>& sigma_db,
                                               double offset_hz);
 
+// The bounded error of the calibration's reference, R − T ∈ [low, high] in dB (MEASUREMENT.md
+// §3.2), for a kit, a frequency, a directivity bound and a source-match bound (both linear |Γ|).
+// with_short: the reference is the mean of OPEN and SHORT (else the OPEN alone).
+struct ReferenceErrorBounds {
+  double low_db = 0, high_db = 0;
+};
+ReferenceErrorBounds reference_error_bounds(const CalKit& kit, double frequency_hz, bool with_short,
+                                            double directivity_bound, double source_match);
+
 // σ of one reading (dB) at level `raw_dbm` and plan point `index`: the measured high-level noise
 // plus additive noise scaled from the LOAD level (or the receiver floor, whichever is larger).
 double reading_sigma_db(const UncertaintyBudget& b, std::size_t index, double raw_dbm);

@@ -122,6 +122,16 @@ TEST(RecipeLoader, UnknownKeyListsAllowedKeys) {
                {"/receiver/rbw_hzz", "\"rbw_hzz\": 3", "did you mean \"rbw_hz\""});
 }
 
+// The nominal unit's dip shape for the mask prediction: one of the two models, named in the error.
+TEST(RecipeLoader, NominalUnitModelIsOneOfTwo) {
+  const std::string with = replace(kBase, R"("rule": "guarded",)",
+                                   R"("rule": "guarded", "nominal_unit": { "q": 9, "model": "line-monopole" },)");
+  EXPECT_TRUE(parse_recipe(with, "ok.jsonc").nominal.line_monopole);
+  EXPECT_FALSE(parse_recipe(kBase, "ok.jsonc").nominal.line_monopole);
+  expect_error(replace(kBase, R"("rule": "guarded",)", R"("rule": "guarded", "nominal_unit": { "q": 9, "model": "dipole" },)"),
+               {"/nominal_unit/model", "\"dipole\"", "\"series-rlc\" or \"line-monopole\""});
+}
+
 TEST(RecipeLoader, WrongTypeIsNamed) {
   expect_error(replace(kBase, R"("power_dbm": -10)", R"("power_dbm": "-10")"),
                {"/source/power_dbm", "power_dbm", "expected a number in dBm"});

@@ -116,6 +116,11 @@ ScoreResult run(const ScoreOptions& o, const Inputs& in, const fs::path& dir) {
   const core::StationCapability capability =
       client::station_capability(drivers::load_station_config(station.station_config_file()), in.window);
   r.window = score_window(**store, units, in.window, capability);
+  const core::StationCapability mask_capability =
+      client::station_capability(drivers::load_station_config(station.station_config_file()), in.recipe);
+  core::Recipe mask_recipe = in.recipe;
+  mask_recipe.nominal.line_monopole = o.unit_model == "line-monopole";
+  r.mask = score_mask(**store, units, mask_recipe, mask_capability, r.window.calibration_id, r.verdicts);
   r.checks = acceptance(r.verdicts, r.classes, r.window);
   r.station.score_s = std::chrono::duration<double>(Clock::now() - t0).count();
   return r;

@@ -19,6 +19,8 @@ every unit's final run against the simulator's ground truth and prints the accep
   --recipe FILE          recipe the daemon runs (default config/recipes/whip915.jsonc)
   --window-recipe FILE   recipe with a resonance window, re-judged offline for the centring
                          prediction; same plan as --recipe (default config/recipes/whip915-window.jsonc)
+  --unit-model MODEL     the dip shape the mask prediction assumes: series-rlc (default) or
+                         line-monopole (what the product is, as the engineer knows it)
   --label TEXT           name of this configuration in the summary (default "<lot> @ <sim>")
   --work-dir DIR         work in DIR and keep it (configs, store, logs); default a temporary folder
   --json OUT             write every figure to OUT
@@ -60,6 +62,10 @@ ScoreOptions parse_score_options(int argc, char** argv) {
     else if (a == "--recipe") o.recipe = existing_file(a, v);
     else if (a == "--window-recipe") o.window_recipe = existing_file(a, v);
     else if (a == "--label") o.label = v;
+    else if (a == "--unit-model") {
+      if (v != "series-rlc" && v != "line-monopole") usage("--unit-model must be series-rlc or line-monopole");
+      o.unit_model = v;
+    }
     else if (a == "--work-dir") o.work_dir = std::filesystem::absolute(v);
     else if (a == "--json") o.json_out = std::filesystem::absolute(v);
     else if (a == "--require") {

@@ -14,6 +14,7 @@ struct ScoreOptions {
   int units = 0;                         // --units: the first N units of the lot; 0 = all
   std::filesystem::path recipe;          // --recipe (default config/recipes/whip915.jsonc)
   std::filesystem::path window_recipe;   // --window-recipe (default config/recipes/whip915-window.jsonc)
+  std::string unit_model = "series-rlc";  // --unit-model: the mask prediction's dip shape
   std::string label;                     // --label (default "<lot> @ <sim>", file stems)
   std::filesystem::path work_dir;        // --work-dir: kept; default a temporary folder, removed
   std::filesystem::path json_out;        // --json: all figures; default none

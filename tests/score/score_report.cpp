@@ -175,6 +175,20 @@ void print_report(std::FILE* out, const ScoreResult& r) {
   print_reasons(out, "window inconclusive reasons", w.inconclusive_reasons);
   print_list(out, "window problems", w.problems);
 
+  const MaskFigures& mk = r.mask;
+  if (mk.predicted) {
+    std::fprintf(out, "  mask prediction (recipe check's, from the calibration's error radius %.4f, LOAD %.4f and %d undecided or passing runs): "
+                 "inconclusive %.1f %% predicted (%.1f-%.1f %% over the leakage phase), %.1f %% observed (%+.1f pp, %s the range); %s\n",
+                 mk.error_radius, mk.leakage, mk.reference_count, 100 * mk.predicted_fraction, 100 * mk.predicted_low,
+                 100 * mk.predicted_high, 100 * mk.observed_fraction, mk.difference_pp(), mk.within_range() ? "inside" : "outside",
+                 mk.basis.c_str());
+    for (const core::MaskGuard& g : mk.guards) {
+      std::fprintf(out, "    %.1f-%.1f MHz >= %.1f dB: pass from a reading of %.2f dB, fail below %.2f dB\n", g.start_hz / 1e6,
+                   g.stop_hz / 1e6, g.limit_db, g.pass_reading_db, g.fail_reading_db);
+    }
+  }
+  print_list(out, "mask prediction problems", mk.problems);
+
   std::fprintf(out, "  %-36s %-34s %-24s %s\n", "acceptance figure", "measured", "target", "met");
   for (const auto& c : r.checks) {
     std::fprintf(out, "  %-36s %-34s %-24s %s\n", c.name.c_str(), c.value.c_str(), c.target.c_str(), c.met ? "yes" : "NO");
@@ -254,6 +268,12 @@ json report_json(const ScoreResult& r) {
           {"resonance_mean_hz", opt(w.reference.resonance_mean_hz)},
           {"resonance_sd_hz", opt(w.reference.resonance_sd_hz)}}},
         {"problems", w.problems}}},
+      {"mask_prediction",
+       {{"predicted", r.mask.predicted}, {"reference_count", r.mask.reference_count}, {"error_radius", r.mask.error_radius}, {"leakage", r.mask.leakage},
+        {"predicted_pct", 100 * r.mask.predicted_fraction}, {"predicted_low_pct", 100 * r.mask.predicted_low},
+        {"predicted_high_pct", 100 * r.mask.predicted_high}, {"within_range", r.mask.within_range()}, {"observed_pct", 100 * r.mask.observed_fraction},
+        {"difference_pp", r.mask.predicted ? json(r.mask.difference_pp()) : json(nullptr)}, {"basis", r.mask.basis},
+        {"problems", r.mask.problems}}},
       {"acceptance", checks_json(r.checks)},
       {"all_met", r.all_met()},
   };

@@ -10,6 +10,7 @@
 #include <nlohmann/json.hpp>
 
 #include "tests/score/class_score.hpp"
+#include "tests/score/mask_score.hpp"
 #include "tests/score/verdict_score.hpp"
 #include "tests/score/window_score.hpp"
 
@@ -43,6 +44,7 @@ struct ScoreResult {
   VerdictFigures verdicts;
   ClassFigures classes;
   WindowFigures window;
+  MaskFigures mask;           // the mask prediction against the lot (printed; not an acceptance figure)
   std::vector<AcceptanceCheck> checks;
   bool all_met() const;
   // The safety figures only: points outside bounds, escapes, false rejects, trim advice on

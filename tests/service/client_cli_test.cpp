@@ -129,6 +129,10 @@ TEST(ClientCli, DryRunPrintsThePlanWithoutADaemon) {
   // whip915: 860-970 MHz in 221 points (config/recipes/whip915.jsonc).
   EXPECT_NE(o.output.find("221 frequencies"), std::string::npos) << o.output;
   EXPECT_NE(o.output.find("worst-case power at the receiver"), std::string::npos) << o.output;
+  // The mask's guard band on this station and the predicted shares (mask_prediction.hpp).
+  EXPECT_NE(o.output.find("mask 902\u2013928 MHz \u2265 10.0 dB: passes when the reading is at least"), std::string::npos)
+      << o.output;
+  EXPECT_NE(o.output.find("inconclusive ("), std::string::npos) << o.output;
 }
 
 // A fast-capture recipe: the plan the station chooses on the simulator's profiles, why, and the
