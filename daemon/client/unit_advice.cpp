@@ -4,6 +4,8 @@
 
 #include <fmt/format.h>
 
+#include "daemon/core/decision.hpp"
+
 namespace echoline::client {
 
 using nlohmann::json;
@@ -25,6 +27,10 @@ UnitAdvice advise(const json& run, bool inconclusive_before) {
   const json trim = run.contains("trim") ? run["trim"] : json();
   if (verdict == "pass") return {"Put it in the PASS tray.", ""};
   if (verdict == "inconclusive") {
+    if (run.value("reason", "").find(core::kRetestCannotSettle) != std::string::npos) {
+      return {"Set it aside for engineering: a retest on this bench cannot decide it.",
+              "Label it with the serial; the coupler's directivity, not the connection, leaves it undecided."};
+    }
     if (inconclusive_before) {
       return {"Inconclusive twice: set it aside for engineering.", "Label it with the serial and leave it out of both trays."};
     }

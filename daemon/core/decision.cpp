@@ -333,7 +333,8 @@ Verdict combine(Verdict a, Verdict b) {
   return rank(a) >= rank(b) ? a : b;
 }
 
-Decision decide(const Recipe& recipe, const std::vector<PointResult>& points, const Analysis& analysis) {
+Decision decide(const Recipe& recipe, const std::vector<PointResult>& points, const Analysis& analysis,
+                const std::vector<PointResult>* noise_free) {
   Decision d;
   if (points.empty()) {
     d.verdict = Verdict::aborted;
@@ -358,7 +359,22 @@ Decision decide(const Recipe& recipe, const std::vector<PointResult>& points, co
       if (!parts.empty()) parts += "; ";
       parts += c.detail;
     }
-    d.reason = parts + ". Retest; if it stays inconclusive, hold the unit for review";
+    // Systematic: every undecided limit is a mask segment that the bench's bounded terms alone
+    // (directivity, standards, source match) leave undecided at the same readings. A retest reads
+    // the same within the noise, which would have to move the reading by more than the
+    // statistical part of the interval: the unit stays undecided.
+    bool systematic = noise_free && noise_free->size() == points.size();
+    std::size_t k = 0;
+    for (const LimitSegment& seg : recipe.limits.mask) {
+      if (!systematic) break;
+      if (d.checks[k++].verdict != Verdict::inconclusive) continue;
+      systematic = check_mask(recipe.rule, *noise_free, seg).verdict == Verdict::inconclusive;
+    }
+    for (std::size_t i = k; i < d.checks.size() && systematic; ++i) systematic = d.checks[i].verdict != Verdict::inconclusive;
+    d.reason = parts + (systematic ? fmt::format(". {}: the coupler's directivity and the standards, not reading noise, "
+                                                 "leave it undecided; hold the unit for review",
+                                                 kRetestCannotSettle)
+                                   : std::string(". Retest; if it stays inconclusive, hold the unit for review"));
   } else {
     const Resonance* r = analysis.resonance ? &*analysis.resonance : nullptr;
     d.reason = r ? fmt::format("resonance at {}, {} deep; every limit met", format_mhz(r->frequency_hz), db_text(r->depth_db))

@@ -64,6 +64,14 @@ inline constexpr double kErraticJumpDb = 6.0;
 //   shallow      the mask failed and the dip is too shallow to meet the limit or too broad to
 //                place (its interval, open sides reaching beyond the sweep, spans the band);
 //   out-of-mask  anything else that failed.
-Decision decide(const Recipe& recipe, const std::vector<PointResult>& points, const Analysis& analysis);
+// noise_free: the same points with their bounds computed without the statistical terms (the
+// bench's systematic interval alone), when the caller has them. An inconclusive unit whose
+// undecided limits are all masks that stay undecided without noise cannot be settled by a
+// retest on this bench, and its reason says so (kRetestCannotSettle).
+Decision decide(const Recipe& recipe, const std::vector<PointResult>& points, const Analysis& analysis,
+                const std::vector<PointResult>* noise_free = nullptr);
+
+// The words an inconclusive reason carries when no retest on this bench can settle the unit.
+inline constexpr const char* kRetestCannotSettle = "a retest on this bench cannot settle it";
 
 }  // namespace echoline::core

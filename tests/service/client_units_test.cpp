@@ -7,6 +7,7 @@
 #include <sstream>
 
 #include "daemon/client/api_client.hpp"
+#include "daemon/core/decision.hpp"
 #include "daemon/client/console.hpp"
 #include "daemon/client/cli.hpp"
 #include "daemon/client/exit_codes.hpp"
@@ -151,6 +152,16 @@ TEST(ClientAdvice, InconclusiveOnceRetestTwiceEngineering) {
   json run = {{"verdict", "inconclusive"}};
   EXPECT_NE(advise(run, false).action.find("Retest once"), std::string::npos);
   EXPECT_NE(advise(run, true).action.find("engineering"), std::string::npos);
+}
+
+// A unit the bench's systematic interval leaves undecided: no retest, straight to engineering.
+TEST(ClientAdvice, InconclusiveThatNoRetestCanSettleGoesToEngineering) {
+  json run = {{"verdict", "inconclusive"},
+              {"reason", std::string("return loss 10.2 dB at 927.5 MHz is within the measurement uncertainty. ") +
+                             core::kRetestCannotSettle + ": ..."}};
+  const auto a = advise(run, false);
+  EXPECT_NE(a.action.find("engineering"), std::string::npos) << a.action;
+  EXPECT_EQ(a.action.find("Retest"), std::string::npos) << a.action;
 }
 
 TEST(ClientAdvice, AbortedIsNeverJudged) {
