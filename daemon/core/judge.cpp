@@ -60,17 +60,20 @@ Judgement judge(const Recipe& recipe, const CalibrationRecord& cal, const std::v
   CalibratedTrace trace = calibrate_points(cal, dut);
   trace.shift.fit = options.fit;
   const Analysis analysis = analyze(recipe, trace);
-  // The bench's systematic interval alone: the same readings with the statistical terms left out
-  // (zero reading and reference noise), to tell whether a retest could settle an undecided unit.
-  CalibrationRecord quiet = cal;
-  for (SegmentNoise& s : quiet.budget.noise) {
-    s.high_level_db = s.load_level_db = 0;
-    s.measured = true;
+  Decision decision = decide(recipe, trace.points, analysis);
+  if (decision.verdict == Verdict::inconclusive) {
+    // The bench's systematic interval alone: the same readings with the statistical terms left
+    // out (zero reading and reference noise), to tell whether a retest could settle the unit.
+    CalibrationRecord quiet = cal;
+    for (SegmentNoise& s : quiet.budget.noise) {
+      s.high_level_db = s.load_level_db = 0;
+      s.measured = true;
+    }
+    std::fill(quiet.budget.reference_noise_db.begin(), quiet.budget.reference_noise_db.end(), 0.0);
+    quiet.budget.noise_floor_dbm = -400;
+    const std::vector<PointResult> noise_free = calibrate_points(quiet, dut).points;
+    decision = decide(recipe, trace.points, analysis, &noise_free);
   }
-  std::fill(quiet.budget.reference_noise_db.begin(), quiet.budget.reference_noise_db.end(), 0.0);
-  quiet.budget.noise_floor_dbm = -400;
-  const std::vector<PointResult> noise_free = calibrate_points(quiet, dut).points;
-  const Decision decision = decide(recipe, trace.points, analysis, &noise_free);
 
   Judgement j;
   j.points = std::move(trace.points);
