@@ -136,6 +136,8 @@ void print_report(std::FILE* out, const ScoreResult& r) {
   print_list(out, "escapes", v.escapes);
   print_list(out, "false rejects", v.false_rejects);
   print_list(out, "failed intermittent units (not false rejects)", v.intermittent_failed);
+  std::fprintf(out, "  inconclusive units a retest on this bench cannot settle (systematic interval): %d of %d\n",
+               v.inconclusive_systematic, v.inconclusive);
   print_reasons(out, "inconclusive reasons", v.inconclusive_reasons);
   print_list(out, "inconclusive units", v.inconclusive_units, 10);
   print_confusion(out, r.classes);
@@ -226,6 +228,7 @@ json report_json(const ScoreResult& r) {
       {"intermittent_failed", v.intermittent_failed},
       {"inconclusive", v.inconclusive},
       {"inconclusive_pct", pct(v.inconclusive, v.units)},
+      {"inconclusive_systematic", v.inconclusive_systematic},
       {"inconclusive_reasons", v.inconclusive_reasons},
       {"inconclusive_units", v.inconclusive_units},
       {"class_accuracy",

@@ -7,6 +7,8 @@
 
 #include <fmt/format.h>
 
+#include "daemon/core/decision.hpp"
+
 namespace echoline::score {
 namespace {
 
@@ -122,6 +124,7 @@ VerdictFigures score_verdicts(const std::vector<UnitRecord>& units, const core::
     if (v == core::Verdict::inconclusive) {
       ++f.inconclusive;
       ++f.inconclusive_reasons[first_characters(u.run.reason, 60)];
+      if (u.run.reason.find(core::kRetestCannotSettle) != std::string::npos) ++f.inconclusive_systematic;
       f.inconclusive_units.push_back(who(u) + ": " + u.run.reason);
     }
     if (u.run.trim) {

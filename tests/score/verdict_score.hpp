@@ -42,6 +42,7 @@ struct VerdictFigures {
   std::vector<std::string> false_rejects;  // intermittent units excluded (their failure is real)
   std::vector<std::string> intermittent_failed;   // failed intermittent units, for the record
   int inconclusive = 0;
+  int inconclusive_systematic = 0;   // ... whose reason says no retest on this bench can settle them
   std::map<std::string, int> inconclusive_reasons;   // first 60 characters of the reason -> units
   std::vector<std::string> inconclusive_units;       // "SERIAL (defect, true f0): reason"
   int trim_advised = 0;                              // final runs with trim advice
