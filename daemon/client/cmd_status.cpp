@@ -103,7 +103,15 @@ int cmd_status(const Argv& argv) {
   if (st.contains("forwarding") && st["forwarding"].is_object()) {
     const json& f = st["forwarding"];
     if (!f.value("configured", false)) {
-      std::cout << fmt::format("central database: none configured (outbox {} runs)\n", f.value("outbox_depth", 0LL));
+      // Runs are not queued without a central database; one configured later gets them queued once.
+      std::cout << fmt::format("central database: none configured; runs stay in this station's store{}{}\n",
+                               s(f, "unqueued_since_utc").empty()
+                                   ? ""
+                                   : " (not queued for forwarding since " + s(f, "unqueued_since_utc") +
+                                         "; configuring a central database forwards them)",
+                               f.value("outbox_depth", 0LL) ? fmt::format(", {} runs still waiting in the outbox",
+                                                                          f.value("outbox_depth", 0LL))
+                                                            : "");
     } else {
       std::cout << fmt::format("central database: {} [{}]{}\n", s(f, "target"), s(f, "state"),
                                s(f, "last_error").empty() ? "" : " " + s(f, "last_error"));

@@ -166,6 +166,21 @@ Station::Station(drivers::StationConfig config) : config_(std::move(config)) {
   if (!last_seq) throw std::runtime_error(last_seq.error().message);
   run_counter_ = static_cast<std::uint64_t>(*last_seq);
 
+  // Runs are queued for forwarding only when a central database is configured (before the runs
+  // left in progress are finalized, so they follow the same rule). A station that gets one later
+  // queues, once, every run it committed while it had none.
+  const bool central = !config_.central_settings.empty();
+  auto queue = store_->set_central_configured(central, utc_iso8601(unix_now_s()));
+  if (!queue) throw std::runtime_error(queue.error().message);
+  if (queue->queued > 0) {
+    spdlog::info("{} runs committed while no central database was configured (since {}) are queued for it",
+                 queue->queued, queue->unqueued_since_utc);
+  }
+  if (queue->unqueued > 0) {
+    spdlog::warn("no central database configured: {} runs waiting to be forwarded left the outbox; they stay in {} and "
+                 "are queued again when a central database is configured", queue->unqueued, db.string());
+  }
+
   // Runs a killed or crashed daemon left in progress: on record as aborted, never as a pass.
   auto interrupted = store_->finalize_interrupted(store::kStoppedUnexpectedlyReason, utc_iso8601(unix_now_s()));
   if (!interrupted) throw std::runtime_error(interrupted.error().message);
@@ -322,6 +337,8 @@ json Station::forwarding_json() const {
       j["last_forward_utc"] = st->last_forward_utc;
       j["last_forwarded_run"] = st->last_run_id;
       j["forwarded_runs"] = st->forwarded_runs;
+      j["queueing"] = st->queueing;
+      j["unqueued_since_utc"] = st->unqueued_since_utc;
     } else {
       j["outbox_error"] = st.error().message;
     }

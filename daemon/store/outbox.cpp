@@ -1,6 +1,7 @@
 // The forwarding outbox of the run store: the station's instance id, committed runs not yet in
-// the central database (in commit order), and the forwarder's last success. Same connection and
-// mutex as the rest of RunStore (run_store_impl.hpp).
+// the central database (in commit order), whether runs are queued at all (not on a station without
+// a central database), and the forwarder's last success. Same connection and mutex as the rest of
+// RunStore (run_store_impl.hpp).
 #include <fmt/format.h>
 
 #include "daemon/store/run_store.hpp"
@@ -8,14 +9,80 @@
 
 namespace echoline::store {
 
+// Queues only while queueing is on (forwarding.unqueued_from_seq IS NULL). The condition is read
+// in the same statement, so every connection follows the mode set_central_configured stored.
 Status RunStore::Impl::enqueue(std::string_view run_id) {
   auto st = db.prepare(
-      "INSERT INTO outbox(run_id, committed_utc) VALUES(?1, strftime('%Y-%m-%dT%H:%M:%fZ', 'now')) "
+      "INSERT INTO outbox(run_id, committed_utc) SELECT ?1, strftime('%Y-%m-%dT%H:%M:%fZ', 'now') "
+      "WHERE (SELECT unqueued_from_seq FROM forwarding WHERE id = 1) IS NULL "
       "ON CONFLICT(run_id) DO NOTHING");
   if (!st.ok()) return st.error();
   st->bind(1, run_id);
   if (auto r = st->run(); !r.ok()) return fail(r.error(), fmt::format("queueing run '{}' for forwarding", run_id));
   return Status::success();
+}
+
+Result<ForwardingChange> RunStore::set_central_configured(bool configured, std::string_view utc) {
+  std::lock_guard lock(impl_->mutex);
+  ForwardingChange change;
+  const std::string_view doing =
+      configured ? "queueing runs for the central database" : "stopping the forwarding queue (no central database)";
+  auto body = [&]() -> Status {
+    auto from = impl_->db.prepare("SELECT unqueued_from_seq, coalesce(unqueued_since_utc, '') FROM forwarding WHERE id = 1");
+    if (!from.ok()) return from.error();
+    auto row = from->step();
+    if (!row.ok()) return row.error();
+    if (!*row) return make_error(ErrorKind::storage, "the forwarding row is missing");
+    const bool was_off = !from->is_null(0);
+    const long long unqueued_from = was_off ? from->integer(0) : 0;
+    change.unqueued_since_utc = from->text(1);
+    from->reset();
+    if (configured) {
+      if (!was_off) return Status::success();
+      // Every finished run from the first one that may have gone unqueued, in store order. Some may
+      // be in the central database already (queued, forwarded, then queueing stopped and restarted
+      // with a lower mark): sending them again changes nothing there (same content hash).
+      auto q = impl_->db.prepare(
+          "INSERT INTO outbox(run_id, committed_utc) SELECT run_id, ended_utc FROM runs "
+          "WHERE seq >= ?1 AND in_progress = 0 AND run_id NOT IN (SELECT run_id FROM outbox) ORDER BY seq");
+      if (!q.ok()) return q.error();
+      q->bind(1, unqueued_from);
+      if (Status r = q->run(); !r.ok()) return r;
+      change.queued = sqlite3_changes(impl_->db.handle());
+      return impl_->db.exec("UPDATE forwarding SET unqueued_from_seq = NULL, unqueued_since_utc = NULL WHERE id = 1");
+    }
+    // Off: the mark goes down to the first run that is waiting, in progress (finished later,
+    // unqueued) or not yet stored, and the waiting runs leave the outbox; refused ones stay with
+    // their reason. Nothing is forgotten: configuring a central database queues them all again.
+    auto mark = impl_->db.prepare(
+        "SELECT min(coalesce(?1, 9223372036854775807), "
+        "coalesce((SELECT min(r.seq) FROM runs r JOIN outbox o ON o.run_id = r.run_id WHERE o.refused IS NULL), "
+        "9223372036854775807), "
+        "coalesce((SELECT min(seq) FROM runs WHERE in_progress = 1), 9223372036854775807), "
+        "(SELECT coalesce(max(seq), 0) + 1 FROM runs))");
+    if (!mark.ok()) return mark.error();
+    if (was_off) mark->bind(1, unqueued_from);
+    else mark->bind_null(1);
+    auto m = mark->step();
+    if (!m.ok()) return m.error();
+    const long long new_mark = mark->integer(0);
+    mark->reset();
+    auto del = impl_->db.prepare("DELETE FROM outbox WHERE refused IS NULL");
+    if (!del.ok()) return del.error();
+    if (Status r = del->run(); !r.ok()) return r;
+    change.unqueued = sqlite3_changes(impl_->db.handle());
+    if (!was_off) change.unqueued_since_utc = std::string(utc);
+    auto upd = impl_->db.prepare("UPDATE forwarding SET unqueued_from_seq = ?1, unqueued_since_utc = ?2 WHERE id = 1");
+    if (!upd.ok()) return upd.error();
+    upd->bind(1, new_mark).bind(2, change.unqueued_since_utc);
+    return upd->run();
+  };
+  Status s = impl_->transaction(doing, [&]() -> Status {
+    if (Status b = body(); !b.ok()) return impl_->fail(b.error(), doing);
+    return Status::success();
+  });
+  if (!s.ok()) return s.error();
+  return change;
 }
 
 Result<std::string> RunStore::instance_id() {
@@ -84,7 +151,8 @@ Result<OutboxStatus> RunStore::outbox_status() {
       "SELECT (SELECT waiting FROM outbox_counts WHERE id = 1), (SELECT refused FROM outbox_counts WHERE id = 1), "
       "coalesce((SELECT run_id FROM outbox WHERE refused IS NULL ORDER BY seq LIMIT 1), ''), "
       "coalesce((SELECT committed_utc FROM outbox WHERE refused IS NULL ORDER BY seq LIMIT 1), ''), "
-      "coalesce(last_forward_utc, ''), coalesce(last_run_id, ''), forwarded_runs FROM forwarding WHERE id = 1");
+      "coalesce(last_forward_utc, ''), coalesce(last_run_id, ''), forwarded_runs, unqueued_from_seq IS NULL, "
+      "coalesce(unqueued_since_utc, '') FROM forwarding WHERE id = 1");
   if (!st.ok()) return st.error();
   auto row = st->step();
   if (!row.ok()) return impl_->fail(row.error(), "reading the outbox status");
@@ -96,6 +164,8 @@ Result<OutboxStatus> RunStore::outbox_status() {
   s.last_forward_utc = st->text(4);
   s.last_run_id = st->text(5);
   s.forwarded_runs = st->integer(6);
+  s.queueing = st->integer(7) != 0;
+  s.unqueued_since_utc = st->text(8);
   return s;
 }
 

@@ -22,7 +22,7 @@ namespace echoline::store {
 
 // Schema version this code writes (PRAGMA user_version). Older files are migrated on open;
 // newer files are refused (ErrorKind::storage, message names both versions).
-inline constexpr int kSchemaVersion = 9;
+inline constexpr int kSchemaVersion = 10;
 
 // The reason a run carries while it is in progress, and the reason it gets when a starting daemon
 // finds it still in progress (the daemon that ran it was killed or crashed).
@@ -59,6 +59,14 @@ struct OutboxStatus {
   std::string last_forward_utc;     // the last successful forward, "" when never
   std::string last_run_id;          // the last run forwarded
   long long forwarded_runs = 0;     // runs forwarded since the store was made
+  bool queueing = true;             // false: no central database configured, finished runs are not queued
+  std::string unqueued_since_utc;   // when queueing stopped ("" while queueing)
+};
+// What RunStore::set_central_configured changed.
+struct ForwardingChange {
+  long long queued = 0;             // runs queued because they were committed while queueing was off
+  long long unqueued = 0;           // waiting runs taken out of the outbox (queued again later)
+  std::string unqueued_since_utc;   // when queueing stopped ("" when it is on or was never off)
 };
 
 enum class YieldGroup { lot, recipe, station };
@@ -171,8 +179,17 @@ class RunStore : public RunReader {
   Result<std::string> instance_id();
   // The highest insertion number a run has had (0 for an empty store): run ids count on from it.
   Result<long long> last_run_seq();
-  // Every finished run (save_run, finalize_interrupted) is queued in the same transaction that
-  // stores it. Up to `limit` waiting runs, oldest commit first (refused ones skipped).
+  // Whether the station forwards to a central database; echolined says so once at start, before
+  // any run is written. The mode is kept in the store (every connection follows it):
+  //   true:  every finished run (save_run, finalize_interrupted) is queued in the same transaction
+  //          that stores it; the first call after the store was off queues, once and in store
+  //          order, every finished run that may have been committed unqueued (README, "Outbox").
+  //   false: nothing is queued; waiting runs leave the outbox, refused ones stay. The store
+  //          remembers from which run on it stopped queueing, so nothing is lost.
+  // A new store queues (as before this call existed). Repeating a call changes nothing.
+  // `utc`: the time recorded as when queueing stopped. Errors: storage.
+  Result<ForwardingChange> set_central_configured(bool configured, std::string_view utc);
+  // Up to `limit` waiting runs, oldest commit first (refused ones skipped).
   Result<std::vector<OutboxEntry>> outbox_peek(int limit);
   // Removes forwarded runs from the outbox and records the forward time, in one transaction.
   Status outbox_done(const std::vector<std::string>& run_ids, std::string_view utc);

@@ -193,6 +193,15 @@ CREATE TRIGGER outbox_counts_update AFTER UPDATE OF refused ON outbox BEGIN
 END;
 )sql";
 
+// Queueing follows the station's config (RunStore::set_central_configured): on a station without
+// a central database nothing is queued. unqueued_from_seq (NULL: every finished run is queued) is
+// the lowest runs.seq that may have been committed without being queued, and unqueued_since_utc
+// when queueing stopped, so a central database configured later gets those runs queued once.
+constexpr std::string_view kVersion10 = R"sql(
+ALTER TABLE forwarding ADD COLUMN unqueued_from_seq INTEGER;
+ALTER TABLE forwarding ADD COLUMN unqueued_since_utc TEXT;
+)sql";
+
 }  // namespace
 
 const std::vector<Migration>& migrations() {
@@ -208,6 +217,7 @@ const std::vector<Migration>& migrations() {
       {8, "station instance id, outbox of runs not yet forwarded to the central database, last forward",
        kVersion8},
       {9, "outbox counts kept by triggers (status and /metrics read them instead of counting)", kVersion9},
+      {10, "runs not queued while no central database is configured, and since when", kVersion10},
   };
   return steps;
 }

@@ -139,7 +139,7 @@ std::string render_openmetrics(const MetricsInput& in) {
   }
   const json fwd = status.value("forwarding", json::object());
   if (fwd.contains("outbox_depth")) {
-    family(o, "echoline_outbox_depth", "gauge", "Stored runs not yet forwarded to the central database.");
+    family(o, "echoline_outbox_depth", "gauge", "Stored runs waiting to be forwarded to the central database (0 without one: runs are not queued).");
     o += fmt::format("echoline_outbox_depth{{station=\"{}\"}} {}\n", st, fwd.value("outbox_depth", 0));
     family(o, "echoline_outbox_refused", "gauge", "Runs the central database refused (kept, not retried).");
     o += fmt::format("echoline_outbox_refused{{station=\"{}\"}} {}\n", st, fwd.value("outbox_refused", 0));

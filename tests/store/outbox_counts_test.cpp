@@ -70,7 +70,9 @@ TEST(OutboxCounts, FollowQueueingForwardingFromAnotherConnectionAndRefusals) {
     ASSERT_EQ(sqlite3_open(file.c_str(), &db), SQLITE_OK);
     ASSERT_EQ(sqlite3_exec(db,
                            "DROP TRIGGER outbox_counts_insert; DROP TRIGGER outbox_counts_delete; "
-                           "DROP TRIGGER outbox_counts_update; DROP TABLE outbox_counts; PRAGMA user_version = 8;",
+                           "DROP TRIGGER outbox_counts_update; DROP TABLE outbox_counts; "
+                           "ALTER TABLE forwarding DROP COLUMN unqueued_from_seq; "
+                           "ALTER TABLE forwarding DROP COLUMN unqueued_since_utc; PRAGMA user_version = 8;",
                            nullptr, nullptr, nullptr),
               SQLITE_OK);
     sqlite3_close(db);
