@@ -93,6 +93,18 @@ Result<std::optional<core::CalibrationRecord>> CentralReader::load_calibration(s
   }
 }
 
+Result<std::optional<std::string>> CentralReader::recipe_text(std::string_view content_hash) {
+  try {
+    pqxx::read_transaction tx(*conn_);
+    const pqxx::result rows =
+        tx.exec_params("SELECT text FROM echoline.recipes WHERE content_hash = $1", std::string(content_hash));
+    if (rows.empty()) return std::optional<std::string>{};
+    return std::optional<std::string>(rows[0][0].c_str());
+  } catch (const std::exception& e) {
+    return failure(fmt::format("reading the text of recipe {}", content_hash), e.what());
+  }
+}
+
 Result<std::map<std::string, std::string>> CentralReader::hashes(std::string_view station_instance, bool recompute) {
   try {
     pqxx::read_transaction tx(*conn_);

@@ -1,5 +1,5 @@
 // Reading the central database (as the reader role): runs by id, serial or lot across every
-// station, the calibrations they used, and each run's content hash. Serves the client's
+// station, the calibrations and recipe texts they used, and each run's content hash. Serves the client's
 // `runs`, `report` and `export` when --db names the central database. Not thread-safe: one
 // connection, one caller.
 #pragma once
@@ -25,6 +25,8 @@ class CentralReader : public store::RunReader {
   Result<std::vector<core::RunResult>> history(std::string_view serial, bool with_points) override;
   Result<std::vector<core::RunResult>> lot_runs(std::string_view lot, bool with_points) override;
   Result<std::optional<core::CalibrationRecord>> load_calibration(std::string_view id) override;
+  // echoline.recipes.text of that content hash (the station sends it with the first run it judged).
+  Result<std::optional<std::string>> recipe_text(std::string_view content_hash) override;
 
   // run id -> content hash as stored, for every run of one station instance (or all when "").
   Result<std::map<std::string, std::string>> content_hashes(std::string_view station_instance = {});

@@ -3,6 +3,7 @@
 // file with --store FILE, opened read-only.
 #include <filesystem>
 #include <iostream>
+#include <optional>
 #include <set>
 
 #include <fmt/format.h>
@@ -37,15 +38,20 @@ constexpr const char* kRunsHelp =
     "exit: 0 runs listed, 1 nothing stored under that key, 3 daemon unreachable, 5 storage error\n\n";
 
 constexpr const char* kReportHelp =
-    "usage: echoline report --lot LOT --out FILE.html|- [--store FILE --recipe FILE] [connection options]\n\n"
+    "usage: echoline report --lot LOT --out FILE.html|- [--store FILE | --db CONNINFO|FILE | --central]\n"
+    "                       [--recipe FILE] [connection options]\n\n"
     "Writes the lot's self-contained HTML report (yield, failure Pareto, every unit's return loss,\n"
     "resonance spread, calibrations used, failed units) and prints its path and the lot's yield.\n"
     "Through the daemon (engineer role): the daemon sends the report back and this command writes\n"
     "FILE on this computer; --out - writes it to standard output (the yield line then goes to\n"
-    "standard error). Offline from a run store file with --store FILE, opened read-only (the limit\n"
-    "lines come from --recipe FILE, default the station config's recipe). From the central database\n"
-    "(--db, --central) the report spans every station that tested the lot, with yield by station,\n"
-    "operator and calibration and each station's mean resonance and return loss against the others.\n\n"
+    "standard error). Offline from a run store file with --store FILE, opened read-only. From the\n"
+    "central database (--db, --central) the report spans every station that tested the lot, with\n"
+    "yield by station, operator and calibration and each station's mean resonance and return loss\n"
+    "against the others.\n"
+    "Limit lines are those of the recipe stored with the runs (by content hash); the report lists\n"
+    "every recipe version the lot's runs used and says so when there is more than one. --recipe FILE\n"
+    "(default the station config's recipe) stands in only for runs whose recipe text is not stored,\n"
+    "and the report then names it.\n\n"
     "exit: 0 written, 1 no runs for that lot, 2 usage, 3 daemon unreachable, 5 storage error\n\n";
 
 constexpr const char* kExportHelp =
@@ -94,6 +100,30 @@ std::unique_ptr<store::RunReader> offline_source(const Args& args, const std::st
   if (auto settings = central_settings_from_args(args, what)) return open_central(*settings, what);
   if (auto file = args.get("--store")) return open_store(*file, what);
   return nullptr;
+}
+
+// The recipe at hand for runs whose recipe text is not stored: --recipe FILE (a bad file is an
+// error), else the station config's recipe when this computer has a station config that reads.
+std::optional<store::LocalRecipe> local_recipe(const Args& args) {
+  std::filesystem::path file;
+  if (auto given = args.get("--recipe")) {
+    file = *given;
+  } else {
+    try {
+      auto config = find_station_config(args, false);
+      if (!config) return std::nullopt;
+      file = config->recipe;
+      std::error_code ec;
+      if (!std::filesystem::exists(file, ec)) return std::nullopt;
+      const core::Recipe r = core::load_recipe(file);
+      return store::LocalRecipe{r.name, r.version, r.content_hash, "the station config's recipe file " + file.string(),
+                                r.limits};
+    } catch (const std::exception&) {
+      return std::nullopt;   // only a stand-in: the report says when no recipe of the runs is known
+    }
+  }
+  const core::Recipe r = core::load_recipe(file);
+  return store::LocalRecipe{r.name, r.version, r.content_hash, "the recipe file " + file.string(), r.limits};
 }
 
 void print_yield(const std::string& lot, const json& runs, std::ostream& os = std::cout) {
@@ -176,10 +206,7 @@ int cmd_report(const Argv& argv) {
   std::unique_ptr<store::RunReader> source = offline_source(args, "report");
   if (source) {
     auto* st = source.get();
-    std::string recipe_file = args.get_or("--recipe", "");
-    if (recipe_file.empty()) recipe_file = find_station_config(args, true)->recipe.string();
-    const core::Recipe recipe = core::load_recipe(recipe_file);
-    auto doc = store::lot_report_document(*st, *lot, recipe.limits, "");
+    auto doc = store::lot_report_document(*st, *lot, local_recipe(args), "");
     if (!doc) throw CliExit(kExitStorage, "report: " + doc.error().message);
     if (doc->runs == 0) throw CliExit(kExitNegative, fmt::format("report: no runs stored for lot \"{}\"", *lot));
     const std::string where = write_output(*out, doc->content, "report");

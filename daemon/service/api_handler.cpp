@@ -402,7 +402,12 @@ json document_json(store::Document doc) {
 void ApiHandler::call_report_lot(const std::shared_ptr<ClientLink>& link, const Request& req) {
   if (auto refused = refuse_path(req)) return fail(link, req.id, "bad_request", *refused);
   const std::string lot = req.args["lot"].get<std::string>();
-  auto doc = store::lot_report_document(station_.store(), lot, station_.recipe()->limits, utc_iso8601(unix_now_s()));
+  // Limits come from the recipe stored with the lot's runs; the loaded recipe stands in only for runs
+  // whose recipe text is not stored (and the report says so).
+  const auto recipe = station_.recipe();
+  const store::LocalRecipe loaded{recipe->name, recipe->version, recipe->content_hash,
+                                  "the station's loaded recipe " + recipe->source_path, recipe->limits};
+  auto doc = store::lot_report_document(station_.store(), lot, loaded, utc_iso8601(unix_now_s()));
   if (!doc) return fail(link, req.id, "storage", doc.error().message);
   if (doc->runs == 0) return fail(link, req.id, "not_found", fmt::format("report.lot: no runs stored for lot \"{}\"", lot));
   json result = document_json(std::move(doc.value()));

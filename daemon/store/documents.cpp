@@ -2,6 +2,8 @@
 #include "daemon/store/documents.hpp"
 
 #include <cmath>
+#include <map>
+#include <optional>
 #include <set>
 #include <vector>
 
@@ -78,7 +80,7 @@ Result<Document> export_document(RunReader& store, std::string_view scope, std::
   return doc;
 }
 
-Result<Document> lot_report_document(RunReader& store, std::string_view lot, const core::Limits& limits,
+Result<Document> lot_report_document(RunReader& store, std::string_view lot, const std::optional<LocalRecipe>& local,
                                      std::string_view generated_utc) {
   auto runs = store.lot_runs(lot, true);
   if (!runs) return runs.error();
@@ -93,8 +95,17 @@ Result<Document> lot_report_document(RunReader& store, std::string_view lot, con
     if (!c) return c.error();
     if (c->has_value()) cals.push_back(c->value());
   }
+  std::map<std::string, std::optional<std::string>> texts;
+  for (const auto& r : *runs) {
+    if (r.recipe.content_hash.empty() || texts.count(r.recipe.content_hash)) continue;
+    auto t = store.recipe_text(r.recipe.content_hash);
+    if (!t) return t.error();
+    texts.emplace(r.recipe.content_hash, std::move(t.value()));
+  }
   LotReportOptions opts;
   opts.generated_utc = std::string(generated_utc);
+  opts.recipes = resolve_lot_recipes(*runs, texts, local);
+  const core::Limits limits = opts.recipes->drawn.value_or(core::Limits{});
   doc.content = build_lot_report(lot, *runs, cals, limits, opts);
   doc.media_type = "text/html";
   return doc;

@@ -9,6 +9,7 @@
 #include <string_view>
 
 #include "daemon/core/recipe.hpp"
+#include "daemon/store/lot_recipes.hpp"
 #include "daemon/store/run_reader.hpp"
 #include "daemon/store/run_store.hpp"
 #include "drivers/result.hpp"
@@ -27,9 +28,11 @@ struct Document {
 // a Touchstone file (a point without a calibrated return loss); storage.
 Result<Document> export_document(RunReader& store, std::string_view scope, std::string_view key, std::string_view format);
 
-// The lot report (build_lot_report) with the calibrations its runs used, limit lines from `limits`.
-// runs == 0 when the lot has no runs. Errors: storage.
-Result<Document> lot_report_document(RunReader& store, std::string_view lot, const core::Limits& limits,
+// The lot report (build_lot_report) with the calibrations its runs used. Limit lines come from the
+// recipe texts stored (by content hash) with the runs, read from the same store
+// (resolve_lot_recipes); `local` only stands in for runs whose text is not stored, and the report
+// says so. runs == 0 when the lot has no runs. Errors: storage.
+Result<Document> lot_report_document(RunReader& store, std::string_view lot, const std::optional<LocalRecipe>& local,
                                      std::string_view generated_utc);
 
 // The formats export_document takes, for messages and help: "csv, runs-csv, json or s1p".

@@ -59,6 +59,7 @@ svg text{font-family:"DejaVu Sans",Helvetica,Arial,sans-serif}
 .cum{fill:none;stroke:#1d2430;stroke-width:1.5} .mean{stroke:#1d2430;stroke-width:1.5;stroke-dasharray:2 2}
 .spec{stroke:#4d5f86;stroke-width:2}
 .legend rect{stroke:none} .small{font-size:12px;color:#4a5363}
+.notice{border:2px solid #a8412c;background:#f6e3d8;padding:6px 12px;margin:10px 0;font-size:13.5px}
 )css";
 
 const char* verdict_css(core::Verdict v) { return core::to_string(v); }
@@ -355,6 +356,25 @@ std::string stations_section(const std::vector<core::RunResult>& runs) {
   return h;
 }
 
+// The recipe versions the runs used, each with its runs, units and whether its limits are known.
+std::string recipes_section(const LotRecipes& r) {
+  std::string h = "<h2>Recipes</h2>\n<table>\n<tr><th>recipe</th><th>version</th><th>content hash</th><th>runs</th>"
+                  "<th>units (latest run)</th><th>first run</th><th>last run</th><th>limits</th></tr>\n";
+  for (const auto& v : r.versions) {
+    const std::string limits = !v.problem.empty() ? "<b>unknown</b>: " + html_escape(v.problem)
+                               : v.from_local     ? std::string("from the local recipe file (same content)")
+                                                  : std::string("stored with the runs");
+    h += fmt::format("<tr><td>{}</td><td>{}</td><td>{}</td><td class=\"n\">{}</td><td class=\"n\">{}</td><td>{}</td>"
+                     "<td>{}</td><td>{}</td></tr>\n",
+                     html_escape(v.name), html_escape(v.version), html_escape(v.content_hash), v.runs, v.units,
+                     html_escape(v.first_started_utc), html_escape(v.last_started_utc), limits);
+  }
+  h += "</table>\n";
+  h += fmt::format("<p class=\"small\">Limit lines and the Cpk window: {}. Verdicts are as each run stored them.</p>\n",
+                   html_escape(r.drawn_from));
+  return h;
+}
+
 }  // namespace
 
 std::string build_lot_report(std::string_view lot, const std::vector<core::RunResult>& runs,
@@ -385,6 +405,10 @@ std::string build_lot_report(std::string_view lot, const std::vector<core::RunRe
                    html_escape(st.last_started_utc.empty() ? "–" : st.last_started_utc),
                    options.generated_utc.empty() ? "" : " · generated " + html_escape(options.generated_utc));
 
+  if (options.recipes) {
+    for (const auto& note : options.recipes->notes) h += "<p class=\"notice\">" + html_escape(note) + "</p>\n";
+  }
+
   h += "<h2>Yield</h2>\n<div class=\"cards\">\n";
   h += fmt::format("<div class=\"card\"><div class=\"v\">{}</div><div class=\"k\">units</div></div>\n", st.units);
   h += fmt::format("<div class=\"card\"><div class=\"v\">{}%</div><div class=\"k\">final yield (units whose latest judged run passed)</div></div>\n",
@@ -411,6 +435,7 @@ std::string build_lot_report(std::string_view lot, const std::vector<core::RunRe
        "(more return loss) to meet it. The shaded band is the resonance window.</p>\n";
 
   h += stations_section(runs);
+  if (options.recipes) h += recipes_section(*options.recipes);
 
   h += "<h2>Calibrations</h2>\n<table>\n<tr><th>id</th><th>created (UTC)</th><th>station</th><th>recipe</th>"
        "<th>min directivity (dB)</th><th>valid</th><th>runs in this lot</th><th>warnings</th></tr>\n";

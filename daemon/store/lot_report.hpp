@@ -11,6 +11,7 @@
 
 #include "daemon/core/recipe.hpp"
 #include "daemon/core/run_result.hpp"
+#include "daemon/store/lot_recipes.hpp"
 
 namespace echoline::store {
 
@@ -38,6 +39,9 @@ double lot_final_yield(const std::vector<core::RunResult>& runs);
 
 struct LotReportOptions {
   std::string generated_utc;   // shown in the footer when non-empty
+  // The recipe versions the runs used (resolve_lot_recipes): its notes open the page, and a table
+  // lists each version. Absent: the page only names the recipes in its header.
+  std::optional<LotRecipes> recipes;
 };
 
 // The whole page. Every string from input (serials, reasons, names) is HTML-escaped.

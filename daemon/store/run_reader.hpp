@@ -20,6 +20,9 @@ class RunReader {
   virtual Result<std::vector<core::RunResult>> history(std::string_view serial, bool with_points) = 0;
   virtual Result<std::vector<core::RunResult>> lot_runs(std::string_view lot, bool with_points) = 0;
   virtual Result<std::optional<core::CalibrationRecord>> load_calibration(std::string_view id) = 0;
+  // The text of the recipe with this content hash, as stored with the runs it judged; nullopt
+  // when it is not stored (runs older than recipe texts, or a text never sent).
+  virtual Result<std::optional<std::string>> recipe_text(std::string_view content_hash) = 0;
 };
 
 }  // namespace echoline::store

@@ -132,7 +132,7 @@ class RunStore : public RunReader {
   Status save_recipe_text(std::string_view content_hash, std::string_view name, std::string_view version,
                           std::string_view text);
   // The text stored for a content hash, or nullopt.
-  Result<std::optional<std::string>> recipe_text(std::string_view content_hash);
+  Result<std::optional<std::string>> recipe_text(std::string_view content_hash) override;
   Status save_calibration(const core::CalibrationRecord& cal);
   // Updates the units-since counter the service maintains.
   Status set_calibration_units(std::string_view calibration_id, int units_since);

@@ -136,7 +136,7 @@ TEST(LotReport, SvgIsWellFormedAndHasOneTracePerUnit) {
   runs[4].verdict = Verdict::fail;
   runs[4].reason = "<script>alert(1)</script> & more";
   std::vector<core::CalibrationRecord> cals = {testdata::make_calibration("cal-0001", "2026-03-02T07:40:00.000Z")};
-  const auto html = build_lot_report("WH915-L2407", runs, cals, testdata::demo_limits(), {"2026-03-02T18:00:00Z"});
+  const auto html = build_lot_report("WH915-L2407", runs, cals, testdata::demo_limits(), {"2026-03-02T18:00:00Z", std::nullopt});
   const auto svgs = svgs_of(html);
   ASSERT_EQ(svgs.size(), 3u);   // Pareto, histogram, overlay
   auto pieces = svgs;
@@ -217,7 +217,7 @@ TEST(LotReport, DISABLED_WriteDemoReport) {
   const std::filesystem::path out = env ? env : (std::filesystem::temp_directory_path() / "echoline-demo-lot.html");
   std::vector<core::CalibrationRecord> cals = {testdata::make_calibration("cal-0001", "2026-03-02T07:40:00.000Z")};
   ASSERT_TRUE(write_text_file(out, build_lot_report("WH915-L2407", demo_lot(240), cals, testdata::demo_limits(),
-                                                     {"2026-03-02T18:00:00Z"})).ok());
+                                                     {"2026-03-02T18:00:00Z", std::nullopt})).ok());
   std::printf("[ info ] wrote %s\n", out.c_str());
 }
 
