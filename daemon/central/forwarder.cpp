@@ -160,10 +160,14 @@ void Forwarder::loop() {
     std::vector<std::string> done;
     for (std::size_t i = 0; i < sent->size(); ++i) {
       const SentRun& s = (*sent)[i];
-      if (s.result == SendResult::different_content) {
-        const std::string why = fmt::format("the central database holds other content under this run id (hash {}, "
-                                            "this station's {})",
-                                            s.central_hash, out[i].document.content_hash);
+      if (s.result == SendResult::different_content || s.result == SendResult::different_calibration) {
+        const std::string why =
+            s.result == SendResult::different_content
+                ? fmt::format("the central database holds other content under this run id (hash {}, this station's {})",
+                              s.central_hash, out[i].document.content_hash)
+                : fmt::format("the central database holds another calibration under this run's calibration id {} "
+                              "(hash {}, this station's {}): two stations share a name, or the store was started over",
+                              out[i].run.calibration_id, s.central_hash, s.local_hash);
         spdlog::error("forwarder: run {} refused: {}; it stays in the outbox, not retried", s.run_id, why);
         (void)st.outbox_refuse(s.run_id, why);
         std::lock_guard lock(mu_);

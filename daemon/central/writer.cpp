@@ -73,6 +73,8 @@ Result<std::vector<SentRun>> CentralWriter::send(const std::vector<OutgoingRun>&
   if (Status s = connect(); !s.ok()) return s.error();
   std::vector<SentRun> out;
   std::set<std::string> new_recipes, new_calibrations;
+  // Calibration ids the central database holds with other content: id -> (central, local) hash.
+  std::map<std::string, std::pair<std::string, std::string>> other_calibrations;
   try {
     pqxx::work tx(*conn_);
     if (!kit_sent_) {
@@ -87,20 +89,35 @@ Result<std::vector<SentRun>> CentralWriter::send(const std::vector<OutgoingRun>&
                         o.recipe->content_hash, o.recipe->name, o.recipe->version, o.recipe->text);
         new_recipes.insert(o.recipe->content_hash);
       }
-      if (o.calibration && !sent_calibrations_.count(o.calibration->id) && !new_calibrations.count(o.calibration->id)) {
+      if (o.calibration && !sent_calibrations_.count(o.calibration->id) && !new_calibrations.count(o.calibration->id) &&
+          !other_calibrations.count(o.calibration->id)) {
         const SentDocument doc = calibration_document(*o.calibration);
         // The kit named by the calibration is the station's configured kit when identity and
         // serial match; otherwise the central database does not know which definition it was.
         const bool same_kit = o.calibration->kit_identity == kit_.identity && o.calibration->kit_serial == kit_.serial;
         const std::optional<std::string> kit_hash =
             same_kit ? std::optional<std::string>(kit_.definition.content_hash) : std::nullopt;
-        tx.exec_params0("INSERT INTO echoline.calibrations(id, station, station_instance, created_utc, kit_hash, "
-                        "content_hash, document) VALUES ($1,$2,$3,$4,$5,$6,$7) ON CONFLICT (id) DO NOTHING",
-                        o.calibration->id, o.calibration->station, instance_, o.calibration->created_utc,
-                        nullable(kit_hash), doc.content_hash, doc.text);
-        new_calibrations.insert(o.calibration->id);
+        pqxx::result ins = tx.exec_params(
+            "INSERT INTO echoline.calibrations(id, station, station_instance, created_utc, kit_hash, "
+            "content_hash, document) VALUES ($1,$2,$3,$4,$5,$6,$7) ON CONFLICT (id) DO NOTHING",
+            o.calibration->id, o.calibration->station, instance_, o.calibration->created_utc, nullable(kit_hash),
+            doc.content_hash, doc.text);
+        // Already there: the same calibration (same hash), or another one under the same id (a
+        // second station with this name, a store started over). A run must never point at a
+        // calibration that did not judge it, so such runs are not stored.
+        std::string have = doc.content_hash;
+        if (ins.affected_rows() == 0) {
+          have = tx.exec_params1("SELECT content_hash FROM echoline.calibrations WHERE id = $1", o.calibration->id)[0]
+                     .as<std::string>();
+        }
+        if (have == doc.content_hash) new_calibrations.insert(o.calibration->id);
+        else other_calibrations[o.calibration->id] = {have, doc.content_hash};
       }
       const auto& r = o.run;
+      if (auto other = other_calibrations.find(r.calibration_id); other != other_calibrations.end()) {
+        out.push_back(SentRun{r.run_id, SendResult::different_calibration, other->second.first, other->second.second});
+        continue;
+      }
       const auto& m = r.metrics;
       const std::optional<std::string> resonance = opt_num(m.resonance_hz);
       pqxx::result res = tx.exec_prepared(

@@ -30,12 +30,15 @@ struct OutgoingRun {
   std::optional<RecipeText> recipe;          // the recipe text by content hash, when stored
 };
 
-enum class SendResult { stored, already_there, different_content };
+// different_calibration: the run was not stored because the central database holds other
+// content under its calibration's id (central_hash is that calibration's hash).
+enum class SendResult { stored, already_there, different_content, different_calibration };
 
 struct SentRun {
   std::string run_id;
   SendResult result = SendResult::stored;
-  std::string central_hash;   // for different_content: what the central database holds
+  std::string central_hash;   // for different_content / different_calibration: what the central database holds
+  std::string local_hash;     // for different_calibration: this station's calibration document hash
 };
 
 class CentralWriter {

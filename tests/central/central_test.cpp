@@ -152,6 +152,52 @@ TEST_F(CentralDb, SendIsIdempotentAndOtherContentUnderTheSameIdIsRefused) {
   EXPECT_EQ(run_document(*back).content_hash, o.document.content_hash);
 }
 
+// A calibration id the central database already holds with other content (a second station of
+// the same name, a store started over): the run that used this station's calibration is not
+// stored, so no run ever points at a calibration that did not judge it. The same calibration sent
+// again is simply there.
+TEST_F(CentralDb, RunWhoseCalibrationIdHoldsOtherContentIsRefused) {
+  CentralWriter w(settings("bench", "Bench-Pw-41"), "00aa11bb22cc33ee", kit_document(core::builtin_conservative_kit()));
+  core::CalibrationRecord cal;
+  cal.id = "cal-shared-1";
+  cal.station = "bench-a";
+  cal.created_utc = "2026-12-01T08:00:00.000Z";
+  cal.reference_dbm = {-31.1, -31.2};
+  OutgoingRun o;
+  o.station_seq = 1;
+  o.run = sample_run("run-cal-1", "SN-11");
+  o.run.calibration_id = cal.id;
+  o.document = run_document(o.run);
+  o.calibration = cal;
+  auto first = w.send({o});
+  ASSERT_TRUE(first.ok()) << first.error().message;
+  EXPECT_EQ(first->at(0).result, SendResult::stored);
+
+  // Another writer (another daemon) with a different calibration under the same id.
+  CentralWriter other(settings("bench", "Bench-Pw-41"), "ffee11bb22cc33ee", kit_document(core::builtin_conservative_kit()));
+  OutgoingRun o2 = o;
+  o2.run = sample_run("run-cal-2", "SN-12");
+  o2.run.calibration_id = cal.id;
+  o2.document = run_document(o2.run);
+  o2.calibration->reference_dbm = {-30.0, -30.5};
+  auto second = other.send({o2});
+  ASSERT_TRUE(second.ok()) << second.error().message;
+  EXPECT_EQ(second->at(0).result, SendResult::different_calibration);
+  EXPECT_EQ(second->at(0).central_hash, central::calibration_document(cal).content_hash);
+  EXPECT_EQ(second->at(0).local_hash, central::calibration_document(*o2.calibration).content_hash);
+  EXPECT_EQ(server_->psql("SELECT count(*) FROM echoline.runs WHERE run_id = 'run-cal-2'"), "0\n");
+
+  // The original calibration again, from a fresh writer: already there, the run is stored.
+  CentralWriter again(settings("bench", "Bench-Pw-41"), "00aa11bb22cc33ee", kit_document(core::builtin_conservative_kit()));
+  OutgoingRun o3 = o;
+  o3.run = sample_run("run-cal-3", "SN-13");
+  o3.run.calibration_id = cal.id;
+  o3.document = run_document(o3.run);
+  auto third = again.send({o3});
+  ASSERT_TRUE(third.ok()) << third.error().message;
+  EXPECT_EQ(third->at(0).result, SendResult::stored);
+}
+
 TEST_F(CentralDb, StationRoleInsertsButCannotReadChangeOrDelete) {
   pqxx::connection station(server_->tcp_conninfo("bench", "Bench-Pw-41"));
   for (const char* sql : {"SELECT document FROM echoline.runs", "UPDATE echoline.runs SET lot = 'x'",
