@@ -1,6 +1,7 @@
 // The HTML lot report: page layout, CSS, and the SVG charts (overlay, Pareto, histogram, per unit).
 // Colours are the project's own: green-grey pass, brick fail, ochre inconclusive, slate aborted.
 #include "daemon/store/lot_report.hpp"
+#include "daemon/store/nominal_from_lot.hpp"
 
 #include <fmt/format.h>
 
@@ -428,6 +429,20 @@ std::string build_lot_report(std::string_view lot, const std::vector<core::RunRe
   h += "</div>\n<div>\n<h2>Resonance frequency</h2>\n";
   h += histogram_svg(st, limits);
   h += "</div>\n</div>\n";
+
+  {
+    // What this lot says about the nominal unit, for the recipe's predictions (recipe check).
+    const NominalFromLot nominal = nominal_from_lot(runs);
+    if (!nominal.snippet.empty()) {
+      h += "<h2>Nominal unit for the recipe</h2>\n";
+      h += fmt::format("<p class=\"small\">From the {} units this lot passed or left undecided. With it in the recipe, "
+                       "<code>echoline recipe check</code> predicts how many units the mask and the resonance window "
+                       "will leave undecided on a station. The resonance centre is left out: a scalar bench reads every "
+                       "resonance shifted by its own coupler leakage, so this lot's mean is the bench's, not the "
+                       "units'; the trim target stands for it.</p>\n<pre>{}</pre>\n",
+                       nominal.units, html_escape(nominal.snippet));
+    }
+  }
 
   h += "<h2>Return loss of every unit (latest run)</h2>\n";
   h += overlay_svg(runs, finals, limits);

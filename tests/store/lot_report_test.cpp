@@ -154,6 +154,9 @@ TEST(LotReport, SvgIsWellFormedAndHasOneTracePerUnit) {
   EXPECT_NE(html.find("Cpk = "), std::string::npos);
   EXPECT_NE(html.find("cal-0001"), std::string::npos);
   EXPECT_NE(html.find("29.5"), std::string::npos);   // the calibration's minimum directivity
+  // The recipe text for the nominal unit, from the units this lot did not fail (nominal_from_lot.hpp).
+  EXPECT_NE(html.find("<h2>Nominal unit for the recipe</h2>"), std::string::npos);
+  EXPECT_NE(html.find("&quot;nominal_unit&quot;: { "), std::string::npos);
   EXPECT_EQ(occurrences(unit_svg, "<path class=\"trace "), 1u);
   std::filesystem::remove_all(dir);
 }

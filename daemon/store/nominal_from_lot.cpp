@@ -1,0 +1,56 @@
+// Nominal unit from a lot (nominal_from_lot.hpp).
+#include "daemon/store/nominal_from_lot.hpp"
+
+#include <algorithm>
+#include <cmath>
+
+#include <fmt/format.h>
+
+#include "daemon/store/lot_report.hpp"
+
+namespace echoline::store {
+namespace {
+
+std::optional<double> median(std::vector<double> v) {
+  if (v.empty()) return std::nullopt;
+  std::sort(v.begin(), v.end());
+  const std::size_t n = v.size();
+  return n % 2 ? v[n / 2] : (v[n / 2 - 1] + v[n / 2]) / 2;
+}
+
+}  // namespace
+
+NominalFromLot nominal_from_lot(const std::vector<core::RunResult>& runs) {
+  NominalFromLot out;
+  std::vector<double> bw, depth, f0;
+  for (std::size_t i : final_runs(runs)) {
+    const core::RunResult& r = runs[i];
+    if (r.verdict != core::Verdict::pass && r.verdict != core::Verdict::inconclusive) continue;
+    ++out.units;
+    if (r.metrics.bandwidth_hz && std::isfinite(*r.metrics.bandwidth_hz)) bw.push_back(*r.metrics.bandwidth_hz);
+    if (std::isfinite(r.metrics.depth_db) && r.metrics.depth_db > 0) depth.push_back(r.metrics.depth_db);
+    if (r.metrics.resonance_hz && std::isfinite(*r.metrics.resonance_hz)) f0.push_back(*r.metrics.resonance_hz);
+  }
+  out.bandwidth_hz = median(bw);
+  out.depth_db = median(depth);
+  if (f0.size() >= 2) {
+    double mean = 0;
+    for (double f : f0) mean += f;
+    mean /= static_cast<double>(f0.size());
+    double ss = 0;
+    for (double f : f0) ss += (f - mean) * (f - mean);
+    out.resonance_sd_hz = std::sqrt(ss / static_cast<double>(f0.size() - 1));
+  }
+  std::vector<std::string> parts;
+  if (out.bandwidth_hz) parts.push_back(fmt::format("\"bandwidth_hz\": \"{:.2f} MHz\"", *out.bandwidth_hz / 1e6));
+  if (out.depth_db) parts.push_back(fmt::format("\"depth_db\": {:.1f}", *out.depth_db));
+  if (out.resonance_sd_hz) parts.push_back(fmt::format("\"resonance_sd_hz\": \"{:.2f} MHz\"", *out.resonance_sd_hz / 1e6));
+  if (!parts.empty()) {
+    std::string body;
+    for (const auto& p : parts) body += (body.empty() ? "" : ", ") + p;
+    out.snippet = "\"nominal_unit\": { " + body + " }";
+  }
+  return out;
+}
+
+}  // namespace echoline::store

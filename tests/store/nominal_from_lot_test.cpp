@@ -1,0 +1,60 @@
+// Nominal unit from a lot (daemon/store/nominal_from_lot.hpp): which runs count, the medians and
+// the spread, and the recipe text.
+#include "daemon/store/nominal_from_lot.hpp"
+
+#include <cmath>
+
+#include <gtest/gtest.h>
+
+namespace echoline::store {
+namespace {
+
+core::RunResult run(const std::string& serial, core::Verdict v, double f0, double depth, double bw,
+                    const std::string& started) {
+  core::RunResult r;
+  r.run_id = serial + "-" + started;
+  r.serial = serial;
+  r.verdict = v;
+  r.started_utc = started;
+  r.metrics.resonance_hz = f0;
+  r.metrics.depth_db = depth;
+  r.metrics.bandwidth_hz = bw;
+  return r;
+}
+
+// Units A (pass), B (inconclusive, then retested to pass), C (inconclusive), D (fail) and E
+// (aborted): A, B's retest and C count; D and E do not, nor B's first run.
+TEST(NominalFromLot, GoodAndUndecidedUnitsGiveMediansAndSpread) {
+  using core::Verdict;
+  const std::vector<core::RunResult> runs = {
+      run("A", Verdict::pass, 914e6, 20, 70e6, "2026-12-01T10:00:00Z"),
+      run("B", Verdict::inconclusive, 990e6, 5, 10e6, "2026-12-01T10:01:00Z"),
+      run("B", Verdict::pass, 916e6, 24, 80e6, "2026-12-01T10:02:00Z"),
+      run("C", Verdict::inconclusive, 915e6, 12, 90e6, "2026-12-01T10:03:00Z"),
+      run("D", Verdict::fail, 880e6, 6, 20e6, "2026-12-01T10:04:00Z"),
+      run("E", Verdict::aborted, 700e6, 1, 1e6, "2026-12-01T10:05:00Z"),
+  };
+  const NominalFromLot n = nominal_from_lot(runs);
+  EXPECT_EQ(n.units, 3);
+  ASSERT_TRUE(n.bandwidth_hz && n.depth_db && n.resonance_sd_hz);
+  EXPECT_DOUBLE_EQ(*n.bandwidth_hz, 80e6);   // median of 70, 80, 90 MHz
+  EXPECT_DOUBLE_EQ(*n.depth_db, 20);         // median of 20, 24, 12 dB
+  // Sample standard deviation (n − 1) of 914, 916, 915 MHz: sqrt((1 + 1 + 0)/2) = 1 MHz
+  // (elementary statistics).
+  EXPECT_NEAR(*n.resonance_sd_hz, 1e6, 1e-3);
+  EXPECT_EQ(n.snippet, R"("nominal_unit": { "bandwidth_hz": "80.00 MHz", "depth_db": 20.0, "resonance_sd_hz": "1.00 MHz" })");
+}
+
+// One unit gives no spread; a lot with nothing passed or undecided gives no text at all.
+TEST(NominalFromLot, TooFewUnitsSayLess) {
+  using core::Verdict;
+  const NominalFromLot one = nominal_from_lot({run("A", Verdict::pass, 914e6, 20, 70e6, "2026-12-01T10:00:00Z")});
+  EXPECT_FALSE(one.resonance_sd_hz);
+  EXPECT_EQ(one.snippet, R"("nominal_unit": { "bandwidth_hz": "70.00 MHz", "depth_db": 20.0 })");
+  const NominalFromLot none = nominal_from_lot({run("D", Verdict::fail, 880e6, 6, 20e6, "2026-12-01T10:04:00Z")});
+  EXPECT_EQ(none.units, 0);
+  EXPECT_TRUE(none.snippet.empty());
+}
+
+}  // namespace
+}  // namespace echoline::store
