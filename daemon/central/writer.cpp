@@ -69,6 +69,20 @@ Status CentralWriter::connect() {
   }
 }
 
+namespace {
+
+// The document hash of a calibration as it was made: a calibration the check standard invalidated
+// later carries valid = false and an "invalidated at ..." error, so the database may hold it as it
+// was sent before that. The same calibration either way.
+std::string as_made_hash(const core::CalibrationRecord& cal) {
+  core::CalibrationRecord made = cal;
+  std::erase_if(made.errors, [](const std::string& e) { return e.rfind("invalidated at ", 0) == 0; });
+  if (made.errors.size() != cal.errors.size()) made.valid = made.errors.empty();
+  return calibration_document(made).content_hash;
+}
+
+}  // namespace
+
 Result<std::vector<SentRun>> CentralWriter::send(const std::vector<OutgoingRun>& runs) {
   if (Status s = connect(); !s.ok()) return s.error();
   std::vector<SentRun> out;
@@ -110,7 +124,7 @@ Result<std::vector<SentRun>> CentralWriter::send(const std::vector<OutgoingRun>&
           have = tx.exec_params1("SELECT content_hash FROM echoline.calibrations WHERE id = $1", o.calibration->id)[0]
                      .as<std::string>();
         }
-        if (have == doc.content_hash) new_calibrations.insert(o.calibration->id);
+        if (have == doc.content_hash || have == as_made_hash(*o.calibration)) new_calibrations.insert(o.calibration->id);
         else other_calibrations[o.calibration->id] = {have, doc.content_hash};
       }
       const auto& r = o.run;

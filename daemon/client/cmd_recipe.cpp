@@ -119,14 +119,21 @@ void print_mask(const core::Recipe& r, const core::StationCapability& cap, const
                                                                         : std::string("(none can pass)"),
                                        g.fail_reading_db);
   }
-  if (!p->have_unit) return;
+  if (!p->have_unit) {
+    // Say why there is no share when the recipe did describe a unit (e.g. no monopole fits it).
+    if (r.nominal.q || r.nominal.bandwidth_hz) std::cout << indent << "mask: no predicted share: " << p->basis << "\n";
+    return;
+  }
+  const std::string margin = std::isfinite(p->nominal_margin_db)
+                                 ? fmt::format("the nominal unit's true return loss lies {:.1f} dB {} the pass reading",
+                                               std::fabs(p->nominal_margin_db), p->nominal_margin_db >= 0 ? "above" : "below")
+                                 : std::string("no reading of the nominal unit can pass");
   std::cout << indent << fmt::format("mask: predicted {:.1f} % pass, {:.1f} % inconclusive ({:.1f}-{:.1f} % as the coupler's "
-                                     "leakage phase falls), {:.1f} % fail of {} ({}); "
-                                     "the nominal unit's true return loss lies {:.1f} dB {} the pass reading",
+                                     "leakage phase falls), {:.1f} % fail of {} ({}); {}",
                                      100 * p->pass_fraction, 100 * p->inconclusive_fraction, 100 * p->inconclusive_low,
                                      100 * p->inconclusive_high, 100 * p->fail_fraction,
-                                     p->of_all_units ? "all units" : "the nominal unit", p->basis,
-                                     std::fabs(p->nominal_margin_db), p->nominal_margin_db >= 0 ? "above" : "below");
+                                     p->of_all_units ? "all units" : "the nominal unit over the leakage phases", p->basis,
+                                     margin);
   if (p->directivity_for_5_percent_db) {
     std::cout << fmt::format("; 5 % inconclusive needs a coupler of {:.1f} dB directivity", *p->directivity_for_5_percent_db);
   }

@@ -29,7 +29,7 @@ UnitAdvice advise(const json& run, bool inconclusive_before) {
   if (verdict == "inconclusive") {
     if (run.value("reason", "").find(core::kRetestCannotSettle) != std::string::npos) {
       return {"Set it aside for engineering: a retest on this bench cannot decide it.",
-              "Label it with the serial; the coupler's directivity, not the connection, leaves it undecided."};
+              "Label it with the serial; the bench's coupler and standards, not the connection, leave it undecided."};
     }
     if (inconclusive_before) {
       return {"Inconclusive twice: set it aside for engineering.", "Label it with the serial and leave it out of both trays."};

@@ -367,12 +367,19 @@ Decision decide(const Recipe& recipe, const std::vector<PointResult>& points, co
     std::size_t k = 0;
     for (const LimitSegment& seg : recipe.limits.mask) {
       if (!systematic) break;
-      if (d.checks[k++].verdict != Verdict::inconclusive) continue;
+      const LimitCheck& c = d.checks[k++];
+      if (c.verdict != Verdict::inconclusive) continue;
+      // A segment with no measured point is undecided for want of data, not by the bench.
+      if (c.detail.rfind("no measured point", 0) == 0) {
+        systematic = false;
+        break;
+      }
       systematic = check_mask(recipe.rule, *noise_free, seg).verdict == Verdict::inconclusive;
     }
     for (std::size_t i = k; i < d.checks.size() && systematic; ++i) systematic = d.checks[i].verdict != Verdict::inconclusive;
-    d.reason = parts + (systematic ? fmt::format(". {}: the coupler's directivity and the standards, not reading noise, "
-                                                 "leave it undecided; hold the unit for review",
+    d.reason = parts + (systematic ? fmt::format(". {}: the bench's bounded terms (coupler directivity, standards, source "
+                                                 "match), not reading noise or the connection, leave it undecided; hold the "
+                                                 "unit for review",
                                                  kRetestCannotSettle)
                                    : std::string(". Retest; if it stays inconclusive, hold the unit for review"));
   } else {

@@ -63,7 +63,8 @@ Judgement judge(const Recipe& recipe, const CalibrationRecord& cal, const std::v
   Decision decision = decide(recipe, trace.points, analysis);
   if (decision.verdict == Verdict::inconclusive) {
     // The bench's systematic interval alone: the same readings with the statistical terms left
-    // out (zero reading and reference noise), to tell whether a retest could settle the unit.
+    // out (reading and reference noise, the unit's connection), to tell whether a retest could
+    // settle the unit.
     CalibrationRecord quiet = cal;
     for (SegmentNoise& s : quiet.budget.noise) {
       s.high_level_db = s.load_level_db = 0;
@@ -71,6 +72,9 @@ Judgement judge(const Recipe& recipe, const CalibrationRecord& cal, const std::v
     }
     std::fill(quiet.budget.reference_noise_db.begin(), quiet.budget.reference_noise_db.end(), 0.0);
     quiet.budget.noise_floor_dbm = -400;
+    // The unit's own connection is statistical too (a retest reconnects it); the LOAD's stays in
+    // the calibration's directivity bound, fixed for this calibration.
+    quiet.budget.connection = 0;
     const std::vector<PointResult> noise_free = calibrate_points(quiet, dut).points;
     decision = decide(recipe, trace.points, analysis, &noise_free);
   }

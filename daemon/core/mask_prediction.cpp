@@ -243,8 +243,9 @@ double q_from_bandwidth(double bandwidth_hz, double f_r, double g, double g0) {
   const double r = (1 - g0) / (1 + g0);
   const double x2 = (g * g * (r + 1) * (r + 1) - (r - 1) * (r - 1)) / (1 - g * g);
   if (!(x2 > 0)) return 0;
-  const double f = f_r + bandwidth_hz / 2;
-  return std::sqrt(x2) / (f / f_r - f_r / f);
+  // The series dip is geometrically symmetric: f/f_r − f_r/f = ±x/Q at its two crossings, whose
+  // distance is exactly f_r·x/Q.
+  return std::sqrt(x2) * f_r / bandwidth_hz;
 }
 
 }  // namespace
@@ -327,14 +328,14 @@ std::optional<MaskPrediction> predict_mask(const Recipe& recipe, const StationCa
   if (p.of_all_units && p.inconclusive_fraction > 0.05) {
     // E = (E − ρ_D now) + ρ_D, the leakage ρ_D: bisect on the coupler's own ρ_D (the share
     // falls as ρ_D does).
-    const double fixed = std::max(0.0, error_radius - rho_from_db(station.directivity_db));
+    const double fixed = std::max(0.0, error_radius - leakage);
     auto share_at = [&](double rho_d) {
       UnitModel v = u;
       v.leakage = rho_d;
       return shares(mask_points(recipe, station, fixed + rho_d), p.spread_hz, v).inconclusive;
     };
     if (share_at(0) <= 0.05) {
-      double a = 0, b = rho_from_db(station.directivity_db);
+      double a = 0, b = std::max(leakage, rho_from_db(station.directivity_db));
       for (int i = 0; i < 24; ++i) {
         const double m = (a + b) / 2;
         (share_at(m) <= 0.05 ? a : b) = m;
@@ -354,8 +355,10 @@ std::optional<MaskPrediction> predict_mask(const Recipe& recipe, const StationCa
   double e = 0;
   for (const LimitSegment& m : recipe.limits.mask) {
     for (double f : {m.start_hz, m.stop_hz}) {
+      // The judge's e = |E_D|max + k·u_conn, |E_D|max itself holding the LOAD's connection:
+      // two connections at the coverage factor.
       e = std::max(e, rho_from_db(station.directivity_db) + load_gamma_bound(station.kit, f) +
-                          recipe.coverage_factor * station.kit.connection_repeatability);
+                          2 * recipe.coverage_factor * station.kit.connection_repeatability);
     }
   }
   return predict_mask(recipe, station, e, rho_from_db(station.directivity_db));

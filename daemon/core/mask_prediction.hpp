@@ -17,7 +17,7 @@ namespace echoline::core {
 
 // The guard band of one mask segment: readings (measured return loss, dB) at or above
 // pass_reading_db pass it, readings below fail_reading_db fail it, in between is inconclusive.
-// Taken at the segment's point where the band is widest.
+// The pass reading is the largest over the segment's points, the fail reading the smallest.
 struct MaskGuard {
   std::size_t segment = 0;
   double start_hz = 0, stop_hz = 0;
@@ -27,14 +27,15 @@ struct MaskGuard {
 };
 
 struct MaskPrediction {
-  double error_radius = 0;        // |Γ| units: directivity bound + LOAD residual + k·connection
+  double error_radius = 0;        // |Γ| units: the judge's e = |E_D|max + k·u_conn (MEASUREMENT.md §3.6)
   double leakage = 0;             // |Γ| units: the coupler's leakage that tilts every reading
   std::vector<MaskGuard> guards;  // one per mask segment, in recipe order
   // From the nominal unit (a series resonance of Q and depth; needs q or bandwidth_hz):
   bool have_unit = false;
   double q = 0, depth_db = 0, center_hz = 0;
   std::optional<double> spread_hz;  // production standard deviation of the resonance
-  // Shares of all units when the spread is known; else of the nominal unit alone (0 or 1).
+  // Shares of all units when the spread is known; else of the nominal unit alone over the
+  // leakage phases.
   // Means over the leakage's phase, which a scalar calibration does not measure; the
   // inconclusive share's smallest and largest value over that phase.
   double pass_fraction = 0, inconclusive_fraction = 0, fail_fraction = 0;
@@ -54,9 +55,9 @@ struct MaskPrediction {
 std::optional<MaskPrediction> predict_mask(const Recipe& recipe, const StationCapability& station, double error_radius,
                                            double leakage);
 
-// Before calibration: the coupler's datasheet directivity plus the kit's LOAD residual and a
-// connection at the coverage factor, the largest over the mask (the calibration measures it);
-// the datasheet directivity as the leakage.
+// Before calibration: the coupler's datasheet directivity plus the kit's LOAD residual plus two
+// connections (the LOAD's and the unit's) at the coverage factor, the largest over the mask (the
+// calibration measures it); the datasheet directivity as the leakage.
 std::optional<MaskPrediction> predict_mask(const Recipe& recipe, const StationCapability& station);
 
 }  // namespace echoline::core

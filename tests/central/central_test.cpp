@@ -163,6 +163,7 @@ TEST_F(CentralDb, RunWhoseCalibrationIdHoldsOtherContentIsRefused) {
   cal.station = "bench-a";
   cal.created_utc = "2026-12-01T08:00:00.000Z";
   cal.reference_dbm = {-31.1, -31.2};
+  cal.valid = true;
   OutgoingRun o;
   o.station_seq = 1;
   o.run = sample_run("run-cal-1", "SN-11");
@@ -186,6 +187,19 @@ TEST_F(CentralDb, RunWhoseCalibrationIdHoldsOtherContentIsRefused) {
   EXPECT_EQ(second->at(0).central_hash, central::calibration_document(cal).content_hash);
   EXPECT_EQ(second->at(0).local_hash, central::calibration_document(*o2.calibration).content_hash);
   EXPECT_EQ(server_->psql("SELECT count(*) FROM echoline.runs WHERE run_id = 'run-cal-2'"), "0\n");
+
+  // The original calibration, invalidated since by the check standard (as the store loads it),
+  // from a fresh writer: the same calibration, the run is stored.
+  CentralWriter later(settings("bench", "Bench-Pw-41"), "00aa11bb22cc33ee", kit_document(core::builtin_conservative_kit()));
+  OutgoingRun o4 = o;
+  o4.run = sample_run("run-cal-4", "SN-14");
+  o4.run.calibration_id = cal.id;
+  o4.document = run_document(o4.run);
+  o4.calibration->valid = false;
+  o4.calibration->errors.push_back("invalidated at 2026-12-01T09:00:00.000Z: check standard drifted 1.4 dB");
+  auto fourth = later.send({o4});
+  ASSERT_TRUE(fourth.ok()) << fourth.error().message;
+  EXPECT_EQ(fourth->at(0).result, SendResult::stored);
 
   // The original calibration again, from a fresh writer: already there, the run is stored.
   CentralWriter again(settings("bench", "Bench-Pw-41"), "00aa11bb22cc33ee", kit_document(core::builtin_conservative_kit()));

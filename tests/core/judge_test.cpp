@@ -151,6 +151,29 @@ TEST(Judge, NoiseOnlyInconclusiveAdvisesARetest) {
   EXPECT_FALSE(has(j.reason, kRetestCannotSettle)) << j.reason;
 }
 
+// The unit's own connection is statistical as well (a retest reconnects it): a 60 dB coupler,
+// a kit whose connection repeats to 50 dB (k·u = 0.0095 in |Γ|) and 0.02 dB of noise leave a
+// 10.3 dB band-edge reading (927.65 MHz) undecided, but the bench's bounded terms alone would pass it.
+TEST(Judge, ConnectionOnlyInconclusiveAdvisesARetest) {
+  Recipe r = whip_recipe(DecisionRule::guarded);
+  Bench quiet_coupler;
+  quiet_coupler.directivity_db = 60;
+  quiet_coupler.source_match_db = 60;
+  CalibrationRecord cal = calibrate(r, quiet_coupler);
+  cal.budget.connection = std::pow(10.0, -50.0 / 20);
+  for (SegmentNoise& n : cal.budget.noise) {
+    n.high_level_db = n.load_level_db = 0.02;
+    n.measured = true;
+  }
+  auto dut = readings_for(r, cal, [](double f) {
+    const double x = (f - 915e6) / 13e6;
+    return std::max(0.5, 19.8 - 10 * x * x);
+  });
+  Judgement j = judge(r, cal, dut);
+  EXPECT_EQ(j.verdict, Verdict::inconclusive) << j.reason;
+  EXPECT_TRUE(has(j.reason, "Retest;")) << j.reason;
+}
+
 // Guarded acceptance of the resonance window (JCGM 106:2012 §8.3.2 [clause from memory]; the
 // interval from the one-port bounds (common practice), analysis.cpp resonance_interval).
 // A dip whose true centre is 926 MHz, tilted as a directivity error turning with frequency
