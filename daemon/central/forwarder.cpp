@@ -139,8 +139,14 @@ void Forwarder::loop() {
       o.run = std::move(run.value());
       o.document = run_document(o.run);
       if (!o.run.calibration_id.empty()) {
+        // A calibration that cannot be read now fails the batch (retried later): sent without it,
+        // the run could not be checked against the calibration the database holds under its id.
         auto cal = st.load_calibration(o.run.calibration_id);
-        if (cal && cal->has_value()) o.calibration = std::move(cal->value());
+        if (!cal) {
+          loaded = cal.error();
+          break;
+        }
+        if (cal->has_value()) o.calibration = std::move(cal->value());
       }
       auto text = st.recipe_text(o.run.recipe.content_hash);
       if (text && text->has_value()) {

@@ -33,7 +33,7 @@ struct RecipeVersionUse {
 };
 
 struct LotRecipes {
-  std::vector<RecipeVersionUse> versions;   // in order of first use (started_utc, then input order)
+  std::vector<RecipeVersionUse> versions;   // in the order they first appear among the input runs
   std::optional<core::Limits> drawn;        // the limit lines and Cpk window; nullopt: none drawn
   std::string drawn_from;                   // which recipe they are, in words
   std::vector<std::string> notes;           // what the report must say above everything else

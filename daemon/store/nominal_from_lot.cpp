@@ -43,7 +43,8 @@ NominalFromLot nominal_from_lot(const std::vector<core::RunResult>& runs) {
   }
   std::vector<std::string> parts;
   if (out.bandwidth_hz) parts.push_back(fmt::format("\"bandwidth_hz\": \"{:.2f} MHz\"", *out.bandwidth_hz / 1e6));
-  if (out.depth_db) parts.push_back(fmt::format("\"depth_db\": {:.1f}", *out.depth_db));
+  // The recipe loader takes a depth of 1 to 80 dB: a deeper median is given as 80 (a deep dip).
+  if (out.depth_db) parts.push_back(fmt::format("\"depth_db\": {:.1f}", std::clamp(*out.depth_db, 1.0, 80.0)));
   if (out.resonance_sd_hz) parts.push_back(fmt::format("\"resonance_sd_hz\": \"{:.2f} MHz\"", *out.resonance_sd_hz / 1e6));
   if (!parts.empty()) {
     std::string body;

@@ -56,5 +56,14 @@ TEST(NominalFromLot, TooFewUnitsSayLess) {
   EXPECT_TRUE(none.snippet.empty());
 }
 
+// A median deeper than the recipe loader takes (1 to 80 dB) is written as 80 dB, so the pasted
+// text loads.
+TEST(NominalFromLot, DepthStaysInsideWhatARecipeTakes) {
+  const NominalFromLot n = nominal_from_lot({run("A", core::Verdict::pass, 914e6, 92, 70e6, "2026-12-01T10:00:00Z")});
+  ASSERT_TRUE(n.depth_db);
+  EXPECT_DOUBLE_EQ(*n.depth_db, 92);
+  EXPECT_NE(n.snippet.find("\"depth_db\": 80.0"), std::string::npos) << n.snippet;
+}
+
 }  // namespace
 }  // namespace echoline::store
