@@ -164,23 +164,26 @@ TEST_F(CentralDb, RunWhoseCalibrationIdHoldsOtherContentIsRefused) {
   cal.created_utc = "2026-12-01T08:00:00.000Z";
   cal.reference_dbm = {-31.1, -31.2};
   cal.valid = true;
-  OutgoingRun o;
-  o.station_seq = 1;
-  o.run = sample_run("run-cal-1", "SN-11");
-  o.run.calibration_id = cal.id;
-  o.document = run_document(o.run);
-  o.calibration = cal;
+  // A run judged with `c`, ready to send.
+  auto run_with = [](const core::CalibrationRecord& c, const std::string& id, const std::string& serial) {
+    OutgoingRun out;
+    out.station_seq = 1;
+    out.run = sample_run(id, serial);
+    out.run.calibration_id = c.id;
+    out.document = run_document(out.run);
+    out.calibration = c;
+    return out;
+  };
+  const OutgoingRun o = run_with(cal, "run-cal-1", "SN-11");
   auto first = w.send({o});
   ASSERT_TRUE(first.ok()) << first.error().message;
   EXPECT_EQ(first->at(0).result, SendResult::stored);
 
   // Another writer (another daemon) with a different calibration under the same id.
   CentralWriter other(settings("bench", "Bench-Pw-41"), "ffee11bb22cc33ee", kit_document(core::builtin_conservative_kit()));
-  OutgoingRun o2 = o;
-  o2.run = sample_run("run-cal-2", "SN-12");
-  o2.run.calibration_id = cal.id;
-  o2.document = run_document(o2.run);
-  o2.calibration->reference_dbm = {-30.0, -30.5};
+  core::CalibrationRecord other_cal = cal;
+  other_cal.reference_dbm = {-30.0, -30.5};
+  const OutgoingRun o2 = run_with(other_cal, "run-cal-2", "SN-12");
   auto second = other.send({o2});
   ASSERT_TRUE(second.ok()) << second.error().message;
   EXPECT_EQ(second->at(0).result, SendResult::different_calibration);
@@ -191,22 +194,17 @@ TEST_F(CentralDb, RunWhoseCalibrationIdHoldsOtherContentIsRefused) {
   // The original calibration, invalidated since by the check standard (as the store loads it),
   // from a fresh writer: the same calibration, the run is stored.
   CentralWriter later(settings("bench", "Bench-Pw-41"), "00aa11bb22cc33ee", kit_document(core::builtin_conservative_kit()));
-  OutgoingRun o4 = o;
-  o4.run = sample_run("run-cal-4", "SN-14");
-  o4.run.calibration_id = cal.id;
-  o4.document = run_document(o4.run);
-  o4.calibration->valid = false;
-  o4.calibration->errors.push_back("invalidated at 2026-12-01T09:00:00.000Z: check standard drifted 1.4 dB");
+  core::CalibrationRecord invalidated = cal;
+  invalidated.valid = false;
+  invalidated.errors.push_back("invalidated at 2026-12-01T09:00:00.000Z: check standard drifted 1.4 dB");
+  const OutgoingRun o4 = run_with(invalidated, "run-cal-4", "SN-14");
   auto fourth = later.send({o4});
   ASSERT_TRUE(fourth.ok()) << fourth.error().message;
   EXPECT_EQ(fourth->at(0).result, SendResult::stored);
 
   // The original calibration again, from a fresh writer: already there, the run is stored.
   CentralWriter again(settings("bench", "Bench-Pw-41"), "00aa11bb22cc33ee", kit_document(core::builtin_conservative_kit()));
-  OutgoingRun o3 = o;
-  o3.run = sample_run("run-cal-3", "SN-13");
-  o3.run.calibration_id = cal.id;
-  o3.document = run_document(o3.run);
+  const OutgoingRun o3 = run_with(cal, "run-cal-3", "SN-13");
   auto third = again.send({o3});
   ASSERT_TRUE(third.ok()) << third.error().message;
   EXPECT_EQ(third->at(0).result, SendResult::stored);

@@ -127,49 +127,42 @@ TEST(Judge, StraddlingTheLimitIsInconclusiveGuardedAndPassSimple) {
   }
 }
 
-// The other case: a nearly perfect coupler (60 dB, LOAD 60 dB) but 0.3 dB of reading noise.
-// A reading of 10.5 dB at the band edge is undecided only because of the noise (k = 3 puts the
-// interval at about ±1.1 dB); without it the bench's bounds alone give 10.3 to 10.7 dB, a pass.
-// A retest may settle it, and the reason says to retest.
-TEST(Judge, NoiseOnlyInconclusiveAdvisesARetest) {
+// A nearly perfect coupler (60 dB, LOAD 60 dB) whose calibration carries `noise_db` of reading
+// noise and a unit connection repeating to `connection` (|Γ|), judging a dip that reads
+// `peak_db` − 10·x² (x = 1 at ±13 MHz from 915 MHz).
+Judgement judge_on_quiet_coupler(double noise_db, double connection, double peak_db) {
   Recipe r = whip_recipe(DecisionRule::guarded);
   Bench quiet_coupler;
   quiet_coupler.directivity_db = 60;
   quiet_coupler.source_match_db = 60;
   CalibrationRecord cal = calibrate(r, quiet_coupler);
+  cal.budget.connection = connection;
   for (SegmentNoise& n : cal.budget.noise) {
-    n.high_level_db = n.load_level_db = 0.3;
+    n.high_level_db = n.load_level_db = noise_db;
     n.measured = true;
   }
-  auto dut = readings_for(r, cal, [](double f) {
+  auto dut = readings_for(r, cal, [peak_db](double f) {
     const double x = (f - 915e6) / 13e6;
-    return std::max(0.5, 20.5 - 10 * x * x);
+    return std::max(0.5, peak_db - 10 * x * x);
   });
-  Judgement j = judge(r, cal, dut);
+  return judge(r, cal, dut);
+}
+
+// The other case: 0.3 dB of reading noise. A reading of 10.5 dB at the band edge is undecided
+// only because of the noise (k = 3 puts the interval at about ±1.1 dB); without it the bench's
+// bounds alone give 10.3 to 10.7 dB, a pass. A retest may settle it, and the reason says to retest.
+TEST(Judge, NoiseOnlyInconclusiveAdvisesARetest) {
+  const Judgement j = judge_on_quiet_coupler(0.3, 0.0, 20.5);
   EXPECT_EQ(j.verdict, Verdict::inconclusive) << j.reason;
   EXPECT_TRUE(has(j.reason, "Retest;")) << j.reason;
   EXPECT_FALSE(has(j.reason, kRetestCannotSettle)) << j.reason;
 }
 
-// The unit's own connection is statistical as well (a retest reconnects it): a 60 dB coupler,
-// a kit whose connection repeats to 50 dB (k·u = 0.0095 in |Γ|) and 0.02 dB of noise leave a
-// 10.3 dB band-edge reading (927.65 MHz) undecided, but the bench's bounded terms alone would pass it.
+// The unit's own connection is statistical as well (a retest reconnects it): a kit whose
+// connection repeats to 50 dB (k·u = 0.0095 in |Γ|) and 0.02 dB of noise leave a 10.3 dB
+// band-edge reading (927.65 MHz) undecided, but the bench's bounded terms alone would pass it.
 TEST(Judge, ConnectionOnlyInconclusiveAdvisesARetest) {
-  Recipe r = whip_recipe(DecisionRule::guarded);
-  Bench quiet_coupler;
-  quiet_coupler.directivity_db = 60;
-  quiet_coupler.source_match_db = 60;
-  CalibrationRecord cal = calibrate(r, quiet_coupler);
-  cal.budget.connection = std::pow(10.0, -50.0 / 20);
-  for (SegmentNoise& n : cal.budget.noise) {
-    n.high_level_db = n.load_level_db = 0.02;
-    n.measured = true;
-  }
-  auto dut = readings_for(r, cal, [](double f) {
-    const double x = (f - 915e6) / 13e6;
-    return std::max(0.5, 19.8 - 10 * x * x);
-  });
-  Judgement j = judge(r, cal, dut);
+  const Judgement j = judge_on_quiet_coupler(0.02, std::pow(10.0, -50.0 / 20), 19.8);
   EXPECT_EQ(j.verdict, Verdict::inconclusive) << j.reason;
   EXPECT_TRUE(has(j.reason, "Retest;")) << j.reason;
 }
