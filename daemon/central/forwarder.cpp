@@ -146,7 +146,24 @@ void Forwarder::loop() {
           loaded = cal.error();
           break;
         }
-        if (cal->has_value()) o.calibration = std::move(cal->value());
+        if (!cal->has_value()) {
+          // The store no longer holds the calibration that judged the run (a store edited by
+          // hand, a restored file): sent without it, the central copy could not be recomputed or
+          // checked. Kept in the outbox and not retried, like other content under the same id.
+          const std::string why = fmt::format(
+              "its calibration {} is not in this station's store, so the run cannot be sent with the calibration "
+              "that judged it",
+              o.run.calibration_id);
+          spdlog::error("forwarder: run {} refused: {}; it stays in the outbox, not retried", e.run_id, why);
+          if (Status s = st.outbox_refuse(e.run_id, why); !s.ok()) {
+            loaded = s;
+            break;
+          }
+          std::lock_guard lock(mu_);
+          ++refused_;
+          continue;
+        }
+        o.calibration = std::move(cal->value());
       }
       auto text = st.recipe_text(o.run.recipe.content_hash);
       if (text && text->has_value()) {
@@ -158,6 +175,7 @@ void Forwarder::loop() {
       fail(loaded.error().message);
       continue;
     }
+    if (out.empty()) continue;   // every run of the batch was refused here
     auto sent = writer.send(out);
     if (!sent) {
       fail(sent.error().message);

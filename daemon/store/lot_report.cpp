@@ -441,6 +441,12 @@ std::string build_lot_report(std::string_view lot, const std::vector<core::RunRe
                        "resonance shifted by its own coupler leakage, so this lot's mean is the bench's, not the "
                        "units'; the trim target stands for it.</p>\n<pre>{}</pre>\n",
                        nominal.units, html_escape(nominal.snippet));
+      if (nominal.bandwidth_clipped > 0) {
+        h += fmt::format("<p class=\"small\">On {} of these units the band reached the end of the sweep, so their "
+                         "bandwidth is only a lower bound; they are left out of the bandwidth{}.</p>\n",
+                         nominal.bandwidth_clipped,
+                         nominal.bandwidth_hz ? "" : ", which is therefore not given: widen the sweep to measure it");
+      }
     }
   }
 

@@ -18,6 +18,14 @@ std::optional<double> median(std::vector<double> v) {
   return n % 2 ? v[n / 2] : (v[n / 2 - 1] + v[n / 2]) / 2;
 }
 
+// The band reaches the sweep's first or last point: the unit's bandwidth is wider than measured.
+bool band_clipped(const core::RunResult& r) {
+  if (r.points.empty()) return false;
+  const double first = r.points.front().frequency_hz, last = r.points.back().frequency_hz;
+  return (r.metrics.band_low_hz && *r.metrics.band_low_hz <= first) ||
+         (r.metrics.band_high_hz && *r.metrics.band_high_hz >= last);
+}
+
 }  // namespace
 
 NominalFromLot nominal_from_lot(const std::vector<core::RunResult>& runs) {
@@ -27,7 +35,10 @@ NominalFromLot nominal_from_lot(const std::vector<core::RunResult>& runs) {
     const core::RunResult& r = runs[i];
     if (r.verdict != core::Verdict::pass && r.verdict != core::Verdict::inconclusive) continue;
     ++out.units;
-    if (r.metrics.bandwidth_hz && std::isfinite(*r.metrics.bandwidth_hz)) bw.push_back(*r.metrics.bandwidth_hz);
+    if (r.metrics.bandwidth_hz && std::isfinite(*r.metrics.bandwidth_hz)) {
+      if (band_clipped(r)) ++out.bandwidth_clipped;
+      else bw.push_back(*r.metrics.bandwidth_hz);
+    }
     if (std::isfinite(r.metrics.depth_db) && r.metrics.depth_db > 0) depth.push_back(r.metrics.depth_db);
     if (r.metrics.resonance_hz && std::isfinite(*r.metrics.resonance_hz)) f0.push_back(*r.metrics.resonance_hz);
   }

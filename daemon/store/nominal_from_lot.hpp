@@ -14,7 +14,10 @@ namespace echoline::store {
 
 struct NominalFromLot {
   int units = 0;                           // final runs used (pass or inconclusive)
-  std::optional<double> bandwidth_hz;      // median over the runs that have a bandwidth
+  std::optional<double> bandwidth_hz;      // median over the runs whose band closes inside the sweep
+  // Runs whose band reached the first or last swept point: their bandwidth is only a lower
+  // bound (the dip is wider than the sweep shows), so they are left out of the median.
+  int bandwidth_clipped = 0;
   std::optional<double> depth_db;          // median return loss at resonance
   std::optional<double> resonance_sd_hz;   // sample standard deviation (n − 1) of the resonance, n >= 2
   // The recipe text: "nominal_unit": { ... } with what is known (empty when nothing is). The

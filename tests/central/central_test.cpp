@@ -13,6 +13,7 @@
 #include <pqxx/pqxx>
 
 #include "daemon/central/documents.hpp"
+#include "daemon/central/forwarder.hpp"
 #include "daemon/central/reader.hpp"
 #include "daemon/central/schema.hpp"
 #include "daemon/central/settings.hpp"
@@ -208,6 +209,45 @@ TEST_F(CentralDb, RunWhoseCalibrationIdHoldsOtherContentIsRefused) {
   auto third = again.send({o3});
   ASSERT_TRUE(third.ok()) << third.error().message;
   EXPECT_EQ(third->at(0).result, SendResult::stored);
+}
+
+// A run whose calibration the station's store no longer holds (a store edited by hand): the
+// forwarder keeps it in the outbox, refused with the calibration's id named, and never sends it
+// without the calibration that judged it; the next run of the batch is sent.
+TEST_F(CentralDb, RunWhoseCalibrationIsMissingFromTheStoreIsRefusedNotSentWithoutIt) {
+  TempDir dir;
+  const auto file = dir / "s.sqlite";
+  auto st = store::RunStore::open(file);
+  ASSERT_TRUE(st.ok()) << st.error().message;
+  core::RunResult orphan = sample_run("run-orphan-1", "SN-21");
+  orphan.calibration_id = "cal-gone-7";
+  ASSERT_TRUE((*st)->save_run(orphan).ok());
+  ASSERT_TRUE((*st)->save_run(sample_run("run-plain-2", "SN-22")).ok());
+  {
+    Forwarder fwd(file, {}, settings("bench", "Bench-Pw-41"), kit_document(core::builtin_conservative_kit()));
+    for (int i = 0; i < 300; ++i) {
+      auto s = (*st)->outbox_status();
+      ASSERT_TRUE(s.ok());
+      if (s->depth == 0) break;
+      std::this_thread::sleep_for(std::chrono::milliseconds(50));
+    }
+    fwd.stop();
+  }
+  auto status = (*st)->outbox_status();
+  ASSERT_TRUE(status.ok());
+  EXPECT_EQ(status->depth, 0);
+  EXPECT_EQ(status->refused, 1);
+  EXPECT_EQ(server_->psql("SELECT count(*) FROM echoline.runs WHERE run_id = 'run-orphan-1'"), "0\n");
+  EXPECT_EQ(server_->psql("SELECT count(*) FROM echoline.runs WHERE run_id = 'run-plain-2'"), "1\n");
+  sqlite3* db = nullptr;
+  ASSERT_EQ(sqlite3_open(file.c_str(), &db), SQLITE_OK);
+  sqlite3_stmt* q = nullptr;
+  ASSERT_EQ(sqlite3_prepare_v2(db, "SELECT refused FROM outbox WHERE run_id = 'run-orphan-1'", -1, &q, nullptr), SQLITE_OK);
+  ASSERT_EQ(sqlite3_step(q), SQLITE_ROW);
+  const std::string why = reinterpret_cast<const char*>(sqlite3_column_text(q, 0));
+  sqlite3_finalize(q);
+  sqlite3_close(db);
+  EXPECT_NE(why.find("cal-gone-7"), std::string::npos) << why;
 }
 
 TEST_F(CentralDb, StationRoleInsertsButCannotReadChangeOrDelete) {

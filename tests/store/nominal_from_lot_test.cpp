@@ -65,5 +65,31 @@ TEST(NominalFromLot, DepthStaysInsideWhatARecipeTakes) {
   EXPECT_NE(n.snippet.find("\"depth_db\": 80.0"), std::string::npos) << n.snippet;
 }
 
+// A band that reaches the end of the sweep measures only part of the dip: that bandwidth is a
+// lower bound and stays out of the median; when every band is clipped none is suggested.
+TEST(NominalFromLot, BandwidthClippedAtTheSweepEndIsLeftOut) {
+  auto swept = [](core::RunResult r, double band_low, double band_high) {
+    for (double f = 860e6; f <= 970e6 + 1; f += 0.55e6) r.points.push_back(core::PointResult{f, -20, 15, 14, 16});
+    r.metrics.band_low_hz = band_low;
+    r.metrics.band_high_hz = band_high;
+    return r;
+  };
+  using core::Verdict;
+  const std::vector<core::RunResult> runs = {
+      swept(run("A", Verdict::pass, 914e6, 20, 70e6, "2026-12-01T10:00:00Z"), 880e6, 950e6),
+      swept(run("B", Verdict::pass, 916e6, 20, 90e6, "2026-12-01T10:01:00Z"), 880e6, 970e6),   // reaches the top
+      swept(run("C", Verdict::pass, 912e6, 20, 100e6, "2026-12-01T10:02:00Z"), 860e6, 960e6),  // reaches the bottom
+  };
+  const NominalFromLot n = nominal_from_lot(runs);
+  EXPECT_EQ(n.units, 3);
+  EXPECT_EQ(n.bandwidth_clipped, 2);
+  ASSERT_TRUE(n.bandwidth_hz);
+  EXPECT_DOUBLE_EQ(*n.bandwidth_hz, 70e6);   // A alone, not the median of 70, 90, 100 MHz
+  const NominalFromLot all = nominal_from_lot({runs[1], runs[2]});
+  EXPECT_EQ(all.bandwidth_clipped, 2);
+  EXPECT_FALSE(all.bandwidth_hz);
+  EXPECT_EQ(all.snippet.find("bandwidth_hz"), std::string::npos) << all.snippet;
+}
+
 }  // namespace
 }  // namespace echoline::store
