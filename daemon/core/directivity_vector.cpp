@@ -285,7 +285,8 @@ void add_directivity_vector(UncertaintyBudget& b, const CalibrationRecord& cal, 
   b.directivity_vector_bound.assign(n, 1);
   b.directivity_vector_systematic.assign(n, 1);
   b.directivity_vector_sigma.assign(n, 1);
-  std::size_t unsolved = 0, ambiguous = 0;
+  std::size_t unsolved = 0, ambiguous = 0, tightened = 0;
+  b.directivity_bound_from_load = b.directivity_bound;
   std::string first_problem;
   double first_at = 0;
   // A fast capture reads each standard up to frequency_offset_hz off its plan frequency, the
@@ -343,6 +344,18 @@ void add_directivity_vector(UncertaintyBudget& b, const CalibrationRecord& cal, 
     b.directivity_vector_bound[i] = e.bound;
     b.directivity_vector_systematic[i] = e.bound_systematic;
     b.directivity_vector_sigma[i] = e.sigma;
+    // Two bounds on |d| hold at once: the LOAD's (2) and |d̂| + r_d from the mismatches. The
+    // smaller one is the directivity bound every interval uses; the LOAD's is kept beside it.
+    const double by_vector = std::abs(e.d) + e.bound;
+    if (by_vector < b.directivity_bound[i]) {
+      b.directivity_bound[i] = by_vector;
+      ++tightened;
+    }
+  }
+  if (tightened > 0) {
+    warnings.push_back(fmt::format("at {} of {} points the mismatch standards bound the directivity more tightly than "
+                                   "the LOAD (|d̂| + r_d); the intervals there use that bound",
+                                   tightened, n));
   }
   if (unsolved > 0) {
     warnings.push_back(fmt::format("the directivity vector could not be solved at {} of {} points (first at {}: {}); "

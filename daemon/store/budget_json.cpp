@@ -43,6 +43,7 @@ std::string budget_to_json(const core::UncertaintyBudget& b) {
     j["directivity_vector_bound"] = b.directivity_vector_bound;
     j["directivity_vector_systematic"] = b.directivity_vector_systematic;
     j["directivity_vector_sigma"] = b.directivity_vector_sigma;
+    if (!b.directivity_bound_from_load.empty()) j["directivity_bound_from_load"] = b.directivity_bound_from_load;
   }
   if (!mismatch.empty()) j["mismatch"] = mismatch;   // absent in budgets without mismatch standards
   return j.dump();
@@ -101,6 +102,10 @@ std::optional<core::UncertaintyBudget> budget_from_json(const std::string& text)
       b.directivity_vector_bound = j.at("directivity_vector_bound").get<std::vector<double>>();
       b.directivity_vector_systematic = j.at("directivity_vector_systematic").get<std::vector<double>>();
       b.directivity_vector_sigma = j.at("directivity_vector_sigma").get<std::vector<double>>();
+      // Calibrations made before the mismatches could bound |d| used the LOAD's bound alone.
+      b.directivity_bound_from_load = j.contains("directivity_bound_from_load")
+                                          ? j.at("directivity_bound_from_load").get<std::vector<double>>()
+                                          : b.directivity_bound;
     }
   } catch (const json::exception&) {
     return std::nullopt;
@@ -113,7 +118,8 @@ std::optional<core::UncertaintyBudget> budget_from_json(const std::string& text)
   }
   if (!b.directivity_re.empty() &&
       (b.directivity_re.size() != n || b.directivity_im.size() != n || b.directivity_vector_bound.size() != n ||
-       b.directivity_vector_systematic.size() != n || b.directivity_vector_sigma.size() != n)) {
+       b.directivity_vector_systematic.size() != n || b.directivity_vector_sigma.size() != n ||
+       b.directivity_bound_from_load.size() != n)) {
     return std::nullopt;
   }
   return b;

@@ -29,6 +29,7 @@ core::UncertaintyBudget with_vector() {
   b.directivity_vector_bound = {0.004, 0.0045};
   b.directivity_vector_systematic = {0.0035, 0.004};
   b.directivity_vector_sigma = {0.0002, 0.00021};
+  b.directivity_bound_from_load = {0.035, 0.03};   // the vector's |d̂| + r_d was smaller at the first point
   return b;
 }
 
@@ -42,6 +43,19 @@ TEST(BudgetJson, KeepsTheDirectivityVector) {
   EXPECT_EQ(back->directivity_vector_bound, b.directivity_vector_bound);
   EXPECT_EQ(back->directivity_vector_systematic, b.directivity_vector_systematic);
   EXPECT_EQ(back->directivity_vector_sigma, b.directivity_vector_sigma);
+  EXPECT_EQ(back->directivity_bound_from_load, b.directivity_bound_from_load);
+}
+
+// A budget stored before the mismatches could tighten the directivity bound has no LOAD-only
+// copy: the bound it used was the LOAD's, and that is what loads.
+TEST(BudgetJson, AnOlderVectorBudgetTakesItsBoundAsTheLoads) {
+  core::UncertaintyBudget b = with_vector();
+  b.directivity_bound_from_load.clear();
+  const std::string text = budget_to_json(b);
+  ASSERT_EQ(text.find("directivity_bound_from_load"), std::string::npos);
+  const auto back = budget_from_json(text);
+  ASSERT_TRUE(back);
+  EXPECT_EQ(back->directivity_bound_from_load, b.directivity_bound);
 }
 
 TEST(BudgetJson, ABudgetWithoutItStaysWithout) {
