@@ -18,6 +18,7 @@
 
 #include "daemon/service/api_handler.hpp"
 #include "daemon/service/api_server.hpp"
+#include "daemon/service/instance_lock.hpp"
 #include "daemon/service/instruments.hpp"
 #include "daemon/service/sd_notify.hpp"
 #include "drivers/logging.hpp"
@@ -158,15 +159,27 @@ void start_logging(const drivers::StationConfig& config, const std::string& leve
   }
 }
 
-std::string read_token(const std::filesystem::path& file) {
+// The API token named by api.token_file; a missing or short one is a configuration error at
+// that key, with how to make one.
+std::string read_token(const drivers::StationConfig& config) {
+  const std::filesystem::path& file = config.api.token_file;
   if (file.empty()) return "";
+  const auto fail = [&](const std::string& what) {
+    throw drivers::ConfigError(
+        config.file, config.api.token_file_line, "/api/token_file",
+        fmt::format("{}: {}. Make one readable by the daemon's user only, for example: umask 077; head -c 24 "
+                    "/dev/urandom | base64 > {} (or remove the key: the API then serves the local socket only)",
+                    file.string(), what, file.string()));
+  };
+  std::error_code ec;
+  if (!std::filesystem::exists(file, ec)) fail("no such file");
   std::ifstream in(file);
-  if (!in) throw std::runtime_error(fmt::format("api.token_file {}: cannot read", file.string()));
+  if (!in) fail("cannot be read");
   std::stringstream ss;
   ss << in.rdbuf();
   std::string t = ss.str();
   while (!t.empty() && (t.back() == '\n' || t.back() == '\r' || t.back() == ' ' || t.back() == '\t')) t.pop_back();
-  if (t.size() < 16) throw std::runtime_error(fmt::format("api.token_file {}: token shorter than 16 characters", file.string()));
+  if (t.size() < 16) fail("the token is shorter than 16 characters");
   return t;
 }
 
@@ -218,19 +231,24 @@ int run(const Args& args) {
   pthread_sigmask(SIG_BLOCK, &signals, nullptr);
   ::signal(SIGPIPE, SIG_IGN);
 
-  const std::string token = read_token(config.api.token_file);
+  const std::string token = read_token(config);
+  // A second daemon on the same store stops here, before it finalizes the first one's run in
+  // progress or resets an instrument in the middle of its sweep.
+  const service::InstanceLock lock = service::InstanceLock::acquire(config.data_dir / (config.station + ".lock"));
   service::Station station(config);
-  station.connect_instruments();
   service::ApiHandler handler(station, token);
-  // The pages watch the handler's jobs: started before the API serves, stopped after the handler.
-  std::unique_ptr<web::WebServer> pages;
-  if (config.web.port != 0) pages = std::make_unique<web::WebServer>(handler, station, web::WebOptions{config.web.host, config.web.port, token});
+  // The API's sockets are bound before any instrument is touched: a daemon that cannot serve
+  // (another one listens there) leaves the instruments alone.
   service::ServerOptions so;
   so.unix_socket = config.api.unix_socket;
   so.tcp_host = config.api.tcp_host;
   so.tcp_port = config.api.tcp_port;
   so.token_configured = !token.empty();
   auto server = service::ApiServer::create(handler, so);
+  // The pages watch the handler's jobs: started before the API serves, stopped after the handler.
+  std::unique_ptr<web::WebServer> pages;
+  if (config.web.port != 0) pages = std::make_unique<web::WebServer>(handler, station, web::WebOptions{config.web.host, config.web.port, token});
+  station.connect_instruments();
   std::thread io([&] { server->run(); });
 
   const std::string web_address = pages ? "http://" + pages->address() + "/" : "";

@@ -45,7 +45,10 @@ void load_api(const JsoncDocument& doc, const std::filesystem::path& base, const
   if (a.tcp_host.empty()) doc.fail(at / "tcp_host", "must not be empty");
   a.tcp_port = static_cast<int>(doc.integer_or(at / "tcp_port", a.tcp_port));
   if (a.tcp_port < 0 || a.tcp_port > 65535) doc.fail(at / "tcp_port", "must be 0 (TCP off) or a port 1..65535");
-  a.token_file = doc.has(at / "token_file") ? resolve(base, doc.require_string(at / "token_file")) : std::filesystem::path{};
+  // null, like a missing key, means no token: the API serves the local socket only.
+  const bool token = doc.has(at / "token_file") && !doc.at(at / "token_file").is_null();
+  a.token_file = token ? resolve(base, doc.require_string(at / "token_file")) : std::filesystem::path{};
+  a.token_file_line = token ? doc.line_of(at / "token_file") : 0;
   const bool loopback = a.tcp_host == "127.0.0.1" || a.tcp_host == "::1" || a.tcp_host == "localhost";
   if (a.tcp_port != 0 && !loopback && a.token_file.empty())
     doc.fail(at / "tcp_host", fmt::format("listening on {} (not loopback) needs a token_file: anyone on the network "

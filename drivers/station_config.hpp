@@ -33,6 +33,7 @@ struct ApiConfig {
   std::string tcp_host = "127.0.0.1";  // loopback unless set otherwise
   int tcp_port = 0;                    // 0 = TCP off
   std::filesystem::path token_file;    // absolute after loading; "" = none
+  int token_file_line = 0;             // where the config names it (for the daemon's message)
 };
 
 // The browser pages and /metrics (daemon/web/): loopback only unless a token file is configured.

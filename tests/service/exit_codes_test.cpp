@@ -7,6 +7,7 @@
 #include <gtest/gtest.h>
 
 #include <cstring>
+#include <fstream>
 #include <string>
 #include <vector>
 
@@ -38,6 +39,29 @@ TEST(ExitCodes, DaemonTcpPortOutsideZeroTo65535IsAUsageError) {
     EXPECT_FALSE(says(o, "--tcp-port")) << o.output;
     EXPECT_TRUE(says(o, "/nonexistent/station.jsonc")) << o.output;
   }
+}
+
+// A token file the config names but that is missing or too short is a configuration error (2)
+// at its key, saying how to make one; null, like no key, means no token.
+TEST(ExitCodes, DaemonTokenFileMissingIsAConfigErrorAtItsKey) {
+  testing::TempDir dir("echoline-token");
+  Sim sim("tiny-lot.jsonc");
+  const auto missing = dir / "api-token";
+  const auto config = write_station_config(dir.path(), sim, "whip915.jsonc",
+                                           json({{"token_file", missing.string()}}).dump());
+  Outcome o = run(testing::daemon_binary(), {"--config", config.string(), "--no-log-file"});
+  EXPECT_EQ(o.code, 2) << o.output;
+  EXPECT_TRUE(says(o, config.string() + ":")) << o.output;
+  EXPECT_TRUE(says(o, "/api/token_file")) << o.output;
+  EXPECT_TRUE(says(o, "no such file")) << o.output;
+  EXPECT_TRUE(says(o, "umask 077")) << o.output;
+  std::ofstream(missing) << "short\n";
+  o = run(testing::daemon_binary(), {"--config", config.string(), "--no-log-file"});
+  EXPECT_EQ(o.code, 2) << o.output;
+  EXPECT_TRUE(says(o, "shorter than 16 characters")) << o.output;
+  const auto without = write_station_config(dir.path(), sim, "whip915.jsonc", R"({"token_file": null})");
+  Daemon d(without);   // starts: no token, local socket only
+  EXPECT_FALSE(d.unix_path().empty());
 }
 
 TEST(ExitCodes, ClientNumbersOutOfRangeAreUsageErrors) {
