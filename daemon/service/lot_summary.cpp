@@ -29,7 +29,7 @@ json yield_json(const std::optional<store::YieldSummary>& y) {
 
 // Equal-width bins over the resonances and the window (when the recipe has one).
 json histogram_json(const store::LotStats& st, const core::Limits& limits) {
-  json h = {{"bins", json::array()}, {"count", st.resonances_hz.size()}};
+  json h = {{"bins", json::array()}, {"count", st.resonances_hz.size()}, {"left_out", st.resonances_left_out}};
   h["mean_hz"] = st.mean_hz ? json(*st.mean_hz) : json(nullptr);
   h["stddev_hz"] = st.stddev_hz ? json(*st.stddev_hz) : json(nullptr);
   h["cpk"] = st.cpk ? json(*st.cpk) : json(nullptr);

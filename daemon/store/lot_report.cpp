@@ -258,6 +258,9 @@ std::string histogram_svg(const LotStats& st, const core::Limits& limits) {
   if (limits.resonance_max_hz) vline(*limits.resonance_max_hz, "spec", "USL " + mhz(*limits.resonance_max_hz, 1));
   if (st.mean_hz) vline(*st.mean_hz, "mean", "mean");
   std::string stats = fmt::format("n = {}", st.resonances_hz.size());
+  if (st.resonances_left_out > 0) {
+    stats += fmt::format(" ({} left out: no dip, or the maximum at the sweep's end)", st.resonances_left_out);
+  }
   if (st.mean_hz) stats += fmt::format("   mean = {} MHz", mhz(*st.mean_hz));
   if (st.stddev_hz) stats += fmt::format("   σ = {} MHz", mhz(*st.stddev_hz));
   stats += st.cpk ? fmt::format("   Cpk = {}", fixed(*st.cpk, 2)) : std::string("   Cpk: n/a");

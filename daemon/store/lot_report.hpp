@@ -25,7 +25,10 @@ struct LotStats {
   std::map<std::string, int> units_by_final_verdict; // counts of units by their final run
   std::vector<std::pair<std::string, int>> pareto;   // failure classes of final fail/inconclusive runs, descending
   double final_yield = 0;                            // yield.hpp: units whose final run passed / units with a finished run
-  std::vector<double> resonances_hz;                 // final runs that have a resonance
+  std::vector<double> resonances_hz;                 // final runs whose resonance lies inside the sweep
+  // Final runs left out of the resonance statistics: no dip (no-response), or the return loss
+  // maximum on the sweep's first or last point, where the true resonance may lie beyond it.
+  int resonances_left_out = 0;
   std::optional<double> mean_hz, stddev_hz;          // sample standard deviation (n-1), n >= 2
   std::optional<double> cpk;                         // min(USL-mean, mean-LSL)/(3 sigma), needs window and sigma > 0
   std::string first_started_utc, last_started_utc;

@@ -39,6 +39,15 @@ double lot_final_yield(const std::vector<core::RunResult>& runs) {
   return y.empty() ? 0.0 : y.front().final_yield;
 }
 
+// A resonance the statistics may use: the unit has a dip (not no-response) and its maximum lies
+// strictly inside the sweep (a maximum on the first or last point only says "at or beyond").
+static bool resonance_inside(const core::RunResult& r) {
+  if (r.failure_class == core::FailureClass::no_response) return false;
+  if (r.points.empty()) return true;
+  const double f = *r.metrics.resonance_hz;
+  return f > r.points.front().frequency_hz && f < r.points.back().frequency_hz;
+}
+
 LotStats compute_lot_stats(const std::vector<core::RunResult>& runs, const core::Limits& limits) {
   LotStats s;
   s.runs = static_cast<int>(runs.size());
@@ -61,7 +70,8 @@ LotStats compute_lot_stats(const std::vector<core::RunResult>& runs, const core:
       ++classes[core::to_string(r.failure_class)];
     }
     if (r.metrics.resonance_hz && std::isfinite(*r.metrics.resonance_hz) && r.verdict != core::Verdict::aborted) {
-      s.resonances_hz.push_back(*r.metrics.resonance_hz);
+      if (resonance_inside(r)) s.resonances_hz.push_back(*r.metrics.resonance_hz);
+      else ++s.resonances_left_out;
     }
   }
   s.pareto.assign(classes.begin(), classes.end());

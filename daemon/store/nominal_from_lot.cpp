@@ -40,7 +40,12 @@ NominalFromLot nominal_from_lot(const std::vector<core::RunResult>& runs) {
       else bw.push_back(*r.metrics.bandwidth_hz);
     }
     if (std::isfinite(r.metrics.depth_db) && r.metrics.depth_db > 0) depth.push_back(r.metrics.depth_db);
-    if (r.metrics.resonance_hz && std::isfinite(*r.metrics.resonance_hz)) f0.push_back(*r.metrics.resonance_hz);
+    // A maximum on the sweep's first or last point is no resonance to spread (lot_stats.cpp).
+    if (r.metrics.resonance_hz && std::isfinite(*r.metrics.resonance_hz) &&
+        (r.points.empty() || (*r.metrics.resonance_hz > r.points.front().frequency_hz &&
+                              *r.metrics.resonance_hz < r.points.back().frequency_hz))) {
+      f0.push_back(*r.metrics.resonance_hz);
+    }
   }
   out.bandwidth_hz = median(bw);
   out.depth_db = median(depth);

@@ -98,6 +98,25 @@ std::size_t occurrences(const std::string& s, const std::string& what) {
   return n;
 }
 
+// A unit with no dip and a unit whose maximum sits on the sweep's last point have no resonance
+// the statistics can use: they are counted as left out, and the mean and spread are those of
+// the others (elementary statistics).
+TEST(LotStats, ResonanceStatisticsLeaveOutNoDipAndTheSweepsEnds) {
+  std::vector<core::RunResult> runs;
+  runs.push_back(testdata::make_run("A", "L", 1, 910e6));
+  runs.push_back(testdata::make_run("B", "L", 2, 920e6));
+  runs.push_back(testdata::make_run("C", "L", 3, 1100e6, Verdict::fail, FailureClass::tuned_high));   // max on 950 MHz
+  runs.push_back(testdata::make_run("D", "L", 4, 930e6, Verdict::fail, FailureClass::no_response));
+  ASSERT_DOUBLE_EQ(*runs[2].metrics.resonance_hz, runs[2].points.back().frequency_hz);
+  const auto st = compute_lot_stats(runs, testdata::demo_limits());
+  EXPECT_EQ(st.resonances_left_out, 2);
+  ASSERT_EQ(st.resonances_hz.size(), 2u);
+  ASSERT_TRUE(st.mean_hz);
+  EXPECT_NEAR(*st.mean_hz, (*runs[0].metrics.resonance_hz + *runs[1].metrics.resonance_hz) / 2, 1e-3);
+  const std::string html = build_lot_report("L", runs, {}, testdata::demo_limits());
+  EXPECT_NE(html.find("n = 2 (2 left out"), std::string::npos);
+}
+
 TEST(LotStats, CountsParetoAndCpk) {
   std::vector<core::RunResult> runs;
   runs.push_back(testdata::make_run("A", "L", 1, 910e6));
