@@ -47,6 +47,14 @@ UnitAdvice advise(const json& run, bool inconclusive_before) {
       return {fmt::format("Put it in the REJECT tray: the element is {:.1f} mm too short (cannot be lengthened).", *change),
               ""};
     }
+    if (cls == "no-response" && run.value("reason", "").find(core::kIntermittentTrace) != std::string::npos) {
+      // A loose seat in the fixture reads the same as an intermittent feed: one reseat tells them apart.
+      if (!run.value("retest", false)) {
+        return {"Reseat the unit firmly and scan it again; if the trace jumps again, REJECT tray (intermittent feed).",
+                "Check the test-port connector for dirt or wear if several units do this."};
+      }
+      return {"Put it in the REJECT tray: intermittent feed (the trace jumped again after a reseat).", ""};
+    }
     if (cls == "no-response") {
       return {"Put it in the REJECT tray: no response (broken or shorted feed).", ""};
     }

@@ -224,9 +224,9 @@ void classify(const Recipe& recipe, const std::vector<PointResult>& points, cons
     // the rest like the antenna. No resonance or trim can be read from such a trace.
     d.failure_class = FailureClass::no_response;
     d.reason = fmt::format(
-        "the trace jumps between full reflection and a dip ({} jumps of more than {:.0f} dB between neighbouring "
-        "points): an intermittent feed or a loose connection; check the feed and the connector, then retest",
-        a.erratic_jumps, kErraticJumpDb);
+        "{} ({} jumps of more than {:.0f} dB between neighbouring points): an intermittent feed or a loose "
+        "connection; check the feed and the connector, then retest",
+        kIntermittentTrace, a.erratic_jumps, kErraticJumpDb);
     return;
   }
   const Resonance& r = *a.resonance;

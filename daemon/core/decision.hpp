@@ -73,5 +73,8 @@ Decision decide(const Recipe& recipe, const std::vector<PointResult>& points, co
 
 // The words an inconclusive reason carries when no retest on this bench can settle the unit.
 inline constexpr const char* kRetestCannotSettle = "a retest on this bench cannot settle it";
+// In the reason of a trace that jumps between full reflection and a dip (an intermittent feed or
+// a loose connection): class no-response, and the console asks for one reseat before the reject.
+inline constexpr const char* kIntermittentTrace = "the trace jumps between full reflection and a dip";
 
 }  // namespace echoline::core

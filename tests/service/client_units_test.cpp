@@ -148,6 +148,22 @@ TEST(ClientAdvice, TooShortOrBrokenGoesToReject) {
   EXPECT_NE(advise(open_feed, false).action.find("no response"), std::string::npos);
 }
 
+// A trace that jumps between full reflection and a dip: a loose seat reads like an intermittent
+// feed, so the first run asks for a reseat and the retest that jumps again goes to REJECT.
+TEST(ClientAdvice, IntermittentTraceReseatsOnceThenRejects) {
+  json run = {{"verdict", "fail"},
+              {"failure_class", "no-response"},
+              {"reason", std::string(core::kIntermittentTrace) + " (14 jumps of more than 10 dB ...)"},
+              {"retest", false}};
+  const auto first = advise(run, false);
+  EXPECT_NE(first.action.find("Reseat"), std::string::npos) << first.action;
+  EXPECT_EQ(first.action.find("broken or shorted"), std::string::npos) << first.action;
+  run["retest"] = true;
+  const auto again = advise(run, false);
+  EXPECT_NE(again.action.find("REJECT"), std::string::npos) << again.action;
+  EXPECT_NE(again.action.find("intermittent"), std::string::npos) << again.action;
+}
+
 TEST(ClientAdvice, InconclusiveOnceRetestTwiceEngineering) {
   json run = {{"verdict", "inconclusive"}};
   EXPECT_NE(advise(run, false).action.find("Retest once"), std::string::npos);
