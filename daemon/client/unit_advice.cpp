@@ -79,7 +79,7 @@ std::string metrics_line(const json& run) {
   if (auto d = number(m, "depth_db")) add(fmt::format("depth {:.1f} dB", *d));
   if (auto b = number(m, "bandwidth_hz")) add(fmt::format("bandwidth {:.1f} MHz", *b / 1e6));
   if (auto v = number(m, "vswr_at_resonance"); v && std::isfinite(*v) && *v > 0) add(fmt::format("VSWR {:.2f}", *v));
-  if (auto mm = number(m, "min_margin_db")) add(fmt::format("worst margin {:+.1f} dB", *mm));
+  if (auto mm = number(m, "min_margin_db")) add(fmt::format("smallest margin as read {:+.1f} dB", *mm));
   return out;
 }
 
