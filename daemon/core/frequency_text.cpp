@@ -54,7 +54,7 @@ Unit unit_for(double hz) {
 
 }  // namespace
 
-Result<double> parse_frequency(std::string_view text) {
+Result<FrequencyText> parse_frequency_text(std::string_view text) {
   std::size_t b = 0, e = text.size();
   while (b < e && is_space(text[b])) ++b;
   while (e > b && is_space(text[e - 1])) --e;
@@ -72,14 +72,27 @@ Result<double> parse_frequency(std::string_view text) {
   double scale = 1.0;
   if (!rest.empty()) {
     const std::string u = lower(rest);
-    // "mhz" is mega, never milli: IEEE 488.2-1992's MHZ special case for suffix units (§7.7.3, from memory).
+    // SI prefixes: a lower-case m is milli, so only an upper-case M is mega (config/README.md).
+    if (u == "mhz" && rest.front() == 'm') {
+      std::string_view number_text = t.substr(0, t.size() - rest.size());
+      while (!number_text.empty() && is_space(number_text.back())) number_text.remove_suffix(1);
+      return make_error(ErrorKind::invalid_argument,
+                        fmt::format("frequency \"{}\": mHz is millihertz; write MHz for megahertz (\"{} MHz\")", text,
+                                    number_text));
+    }
     if (u == "hz") scale = 1.0;
     else if (u == "khz") scale = 1e3;
     else if (u == "mhz") scale = 1e6;
     else if (u == "ghz") scale = 1e9;
     else return bad(text, fmt::format("unknown unit \"{}\"", rest));
   }
-  return value * scale;
+  return FrequencyText{value * scale, !rest.empty()};
+}
+
+Result<double> parse_frequency(std::string_view text) {
+  auto parsed = parse_frequency_text(text);
+  if (!parsed) return parsed.error();
+  return parsed->hz;
 }
 
 std::string format_frequency(double hz, int max_decimals) {

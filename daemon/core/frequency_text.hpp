@@ -9,10 +9,20 @@
 
 namespace echoline::core {
 
-// Parses "<number>[ ]<unit>" with unit Hz, kHz, MHz or GHz (case-insensitive; "MHz" is mega,
-// as in IEEE 488.2's MHZ special case) or a bare number in Hz. Surrounding spaces are allowed.
-// Rejects empty text, trailing characters, other units, NaN and infinity.
+// A parsed frequency and whether the text named its unit ("860" did not; "860 Hz" did).
+struct FrequencyText {
+  double hz = 0;
+  bool unit_given = false;
+};
+
+// Parses "<number>[ ]<unit>" with unit Hz, kHz, MHz or GHz, or a bare number in Hz. Surrounding
+// spaces are allowed. Letter case: "Hz" in any case, k or K is kilo, G or g giga; the mega prefix
+// must be an upper-case M, because a lower-case m is SI's milli ("mHz" is refused with a hint
+// rather than guessed). Rejects empty text, trailing characters, other units, NaN and infinity.
 // Errors: ErrorKind::invalid_argument, message names the text and the accepted forms.
+Result<FrequencyText> parse_frequency_text(std::string_view text);
+
+// parse_frequency_text without the unit flag.
 Result<double> parse_frequency(std::string_view text);
 
 // "915 MHz", "902.5 MHz", "2.4835 GHz", "100 kHz", "12 Hz": the largest unit in which the value

@@ -22,8 +22,44 @@ TEST(FrequencyText, ParsesUnitsAndBareHertz) {
   EXPECT_DOUBLE_EQ(ok("915e6"), 915e6);
   EXPECT_DOUBLE_EQ(ok("12 Hz"), 12);
   EXPECT_DOUBLE_EQ(ok("  868MHz "), 868e6);
-  EXPECT_DOUBLE_EQ(ok("1 mhz"), 1e6);   // case-insensitive; never millihertz
+  EXPECT_DOUBLE_EQ(ok("1 MHZ"), 1e6);   // SCPI's upper-case spelling: still mega
   EXPECT_DOUBLE_EQ(ok("2.45 GHZ"), 2.45e9);
+}
+
+// SI prefixes (from memory): a lower-case m is milli, so "mHz" is a millihertz, never a megahertz.
+// A recipe that says "970 mHz" almost surely means 970 MHz: refused with that hint, not guessed.
+TEST(FrequencyText, MillihertzIsRefusedWithAHint) {
+  for (const char* milli : {"970 mHz", "970 mhz", "970mHZ"}) {
+    auto r = parse_frequency(milli);
+    EXPECT_FALSE(r.ok()) << milli;
+    if (!r.ok()) {
+      EXPECT_NE(r.error().message.find("mHz is millihertz; write MHz"), std::string::npos) << r.error().message;
+      EXPECT_NE(r.error().message.find(milli), std::string::npos) << r.error().message;
+    }
+  }
+}
+
+// Kilo: SI writes a lower-case k (from memory); an upper-case K has no other meaning in a
+// frequency unit, so "10 KHz" and "10 KHZ" are accepted as kilohertz (config/README.md).
+TEST(FrequencyText, KiloInEitherCase) {
+  EXPECT_DOUBLE_EQ(ok("10 KHz"), 10e3);
+  EXPECT_DOUBLE_EQ(ok("10 KHZ"), 10e3);
+  EXPECT_DOUBLE_EQ(ok("10 khz"), 10e3);
+}
+
+// Whether the text named a unit: a bare "860" is hertz, and the recipe loader asks about it.
+TEST(FrequencyText, TellsWhetherAUnitWasWritten) {
+  auto bare = parse_frequency_text("860");
+  ASSERT_TRUE(bare.ok());
+  EXPECT_DOUBLE_EQ(bare->hz, 860);
+  EXPECT_FALSE(bare->unit_given);
+  auto with = parse_frequency_text(" 860 MHz ");
+  ASSERT_TRUE(with.ok());
+  EXPECT_DOUBLE_EQ(with->hz, 860e6);
+  EXPECT_TRUE(with->unit_given);
+  auto hertz = parse_frequency_text("860 Hz");
+  ASSERT_TRUE(hertz.ok());
+  EXPECT_TRUE(hertz->unit_given);
 }
 
 TEST(FrequencyText, RejectsBadText) {

@@ -145,6 +145,12 @@ TEST(RecipeLoader, BadFrequencyTextIsNamed) {
                {"/segments/0/start_hz", "860 MHzz", "unknown unit"});
 }
 
+// "970 mHz" is a millihertz in SI: refused at its key rather than read as MHz.
+TEST(RecipeLoader, MillihertzIsRefusedAtItsKey) {
+  expect_error(replace(kBase, R"("stop_hz": "970 MHz")", R"("stop_hz": "970 mHz")"),
+               {"/segments/0/stop_hz", "970 mHz", "mHz is millihertz; write MHz"});
+}
+
 TEST(RecipeLoader, StopBelowStart) {
   expect_error(replace(kBase, R"("stop_hz": "970 MHz")", R"("stop_hz": "850 MHz")"),
                {"/segments/0/stop_hz", "850 MHz", "stop 850 MHz is below start 860 MHz"});
