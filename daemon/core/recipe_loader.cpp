@@ -26,6 +26,10 @@ using nlohmann::json;
 constexpr int kMaxPoints = 100000;        // a whole plan; more is almost surely a typo
 constexpr double kMinHz = 1.0;
 constexpr double kMaxHz = 1e12;
+// A frequency written without a unit is in Hz; below this it is far more likely a missing unit
+// ("860" meant as 860 MHz) than a real frequency, so the unit must be written (a project choice:
+// every sub-kilohertz setting of a recipe can still be given as "300 Hz").
+constexpr double kBareNumberMinHz = 1e3;
 
 JsonPointer ptr(const std::string& s) { return JsonPointer(s); }
 
@@ -68,19 +72,28 @@ class Loader {
   }
 
  private:
-  // A frequency: number in Hz or "<number> <unit>".
+  // A frequency: number in Hz or "<number> <unit>". A bare number below 1 kHz is refused here,
+  // at its own key, before it can surface as some other key's range error.
   double frequency(const JsonPointer& at) const {
     const json& v = doc_.at(at);
     double hz = 0;
+    bool unit_given = false;
     if (v.is_number()) {
       hz = v.get<double>();
     } else if (v.is_string()) {
-      auto parsed = parse_frequency(v.get<std::string>());
+      auto parsed = parse_frequency_text(v.get<std::string>());
       if (!parsed) doc_.fail(at, parsed.error().message);
-      hz = *parsed;
+      hz = parsed->hz;
+      unit_given = parsed->unit_given;
     } else {
       doc_.fail(at, fmt::format("expected a frequency (a number in Hz or a string such as \"902 MHz\"), found {}",
                                 v.type_name()));
+    }
+    if (!unit_given && std::isfinite(hz) && hz > 0 && hz < kBareNumberMinHz) {
+      doc_.fail(at, fmt::format("{0} has no unit, so it reads as {0} Hz, below 1 kHz: did you mean \"{0} MHz\"? Write "
+                                "the unit in a string (\"{0} kHz\", \"{0} MHz\", \"{0} GHz\"), or \"{0} Hz\" if "
+                                "hertz are meant",
+                                hz));
     }
     if (!std::isfinite(hz) || hz < kMinHz || hz > kMaxHz) {
       doc_.fail(at, fmt::format("frequency {} Hz is out of range; allowed 1 Hz to 1 THz", hz));

@@ -145,6 +145,25 @@ TEST(RecipeLoader, BadFrequencyTextIsNamed) {
                {"/segments/0/start_hz", "860 MHzz", "unknown unit"});
 }
 
+// A frequency written as a bare number is in hertz; one below 1 kHz in a recipe is nearly
+// always a missing unit ("860" for 860 MHz). It is refused at its own key and line, with the
+// unit to write, before it can show up later as a mask outside the sweep.
+TEST(RecipeLoader, BareNumberBelowOneKilohertzIsRefusedAtItsKey) {
+  expect_error(replace(kBase, R"("start_hz": "860 MHz")", R"("start_hz": 860)"),
+               {"/segments/0/start_hz", "\"start_hz\": 860", "did you mean \"860 MHz\""});
+  expect_error(replace(kBase, R"("stop_hz": "970 MHz")", R"("stop_hz": "970")"),
+               {"/segments/0/stop_hz", "\"stop_hz\": \"970\"", "did you mean \"970 MHz\""});
+  expect_error(replace(kBase, R"("rbw_hz": "10 kHz")", R"("rbw_hz": 300)"),
+               {"/receiver/rbw_hz", "\"rbw_hz\": 300", "no unit"});
+  // With the unit written, hertz are hertz; a bare number of 1 kHz or more stays a number in Hz.
+  EXPECT_DOUBLE_EQ(parse_recipe(replace(kBase, R"("rbw_hz": "10 kHz")", R"("rbw_hz": "300 Hz")"), "ok.jsonc").receiver.rbw_hz,
+                   300);
+  EXPECT_DOUBLE_EQ(parse_recipe(replace(kBase, R"("rbw_hz": "10 kHz")", R"("rbw_hz": 10000)"), "ok.jsonc").receiver.rbw_hz,
+                   10e3);
+  // 0 keeps its meaning where the key allows it (span 0 = zero span).
+  EXPECT_DOUBLE_EQ(parse_recipe(replace(kBase, R"("span_hz": "100 kHz")", R"("span_hz": 0)"), "ok.jsonc").receiver.span_hz, 0);
+}
+
 // "970 mHz" is a millihertz in SI: refused at its key rather than read as MHz.
 TEST(RecipeLoader, MillihertzIsRefusedAtItsKey) {
   expect_error(replace(kBase, R"("stop_hz": "970 MHz")", R"("stop_hz": "970 mHz")"),
