@@ -360,6 +360,15 @@ class Loader {
                                                       t.element_length_mm));
     }
     t.target_hz = frequency(at / "target_hz");
+    // Advice moves a unit's resonance toward the target: a target the sweep never reaches is a
+    // slip (most often the unit, "915 kHz"), and the advice would be absurd.
+    const std::vector<double> plan = plan_frequencies(r);
+    if (t.target_hz < plan.front() - 1e-3 || t.target_hz > plan.back() + 1e-3) {
+      doc_.fail(at / "target_hz", fmt::format("trim target {} is outside the sweep {}: no resonance there is ever "
+                                              "measured, and advice toward it would be meaningless; check the unit",
+                                              format_frequency(t.target_hz),
+                                              format_frequency_range(plan.front(), plan.back())));
+    }
     r.trim = t;
   }
 

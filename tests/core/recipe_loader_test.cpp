@@ -170,6 +170,23 @@ TEST(RecipeLoader, MillihertzIsRefusedAtItsKey) {
                {"/segments/0/stop_hz", "970 mHz", "mHz is millihertz; write MHz"});
 }
 
+// The trim target is where the advice moves a unit's resonance: outside the sweep no unit's
+// resonance is ever measured there, and a wrong unit ("915 kHz") gives absurd advice.
+TEST(RecipeLoader, TrimTargetOutsideTheSweep) {
+  const std::string trim = R"("rule": "guarded", "trim": { "element_length_mm": 78.0, "target_hz": "915 MHz" },)";
+  const std::string with = replace(kBase, R"("rule": "guarded",)", trim);
+  ASSERT_TRUE(parse_recipe(with, "ok.jsonc").trim);
+  EXPECT_DOUBLE_EQ(parse_recipe(with, "ok.jsonc").trim->target_hz, 915e6);
+  expect_error(replace(with, R"("target_hz": "915 MHz")", R"("target_hz": "915 kHz")"),
+               {"/trim/target_hz", "915 kHz", "outside the sweep 860\u2013970 MHz"});
+  expect_error(replace(with, R"("target_hz": "915 MHz")", R"("target_hz": "2.4 GHz")"),
+               {"/trim/target_hz", "2.4 GHz", "outside the sweep"});
+  expect_error(replace(with, R"("element_length_mm": 78.0)", R"("element_length_mm": 0)"),
+               {"/trim/element_length_mm", "\"element_length_mm\": 0", "above 0"});
+  expect_error(replace(with, R"("element_length_mm": 78.0)", R"("element_length_mm": -78)"),
+               {"/trim/element_length_mm", "-78", "above 0"});
+}
+
 TEST(RecipeLoader, StopBelowStart) {
   expect_error(replace(kBase, R"("stop_hz": "970 MHz")", R"("stop_hz": "850 MHz")"),
                {"/segments/0/stop_hz", "850 MHz", "stop 850 MHz is below start 860 MHz"});
