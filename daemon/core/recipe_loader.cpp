@@ -384,8 +384,24 @@ class Loader {
     if (doc_.has(at / "q")) r.nominal.q = doc_.number_in(at / "q", 1, 0.5, 10000, "");
     r.nominal.bandwidth_hz = optional_frequency(at / "bandwidth_hz");
     if (doc_.has(at / "depth_db")) r.nominal.depth_db = doc_.number_in(at / "depth_db", 20, 1, 80, "dB");
+    const std::vector<double> plan = plan_frequencies(r);
+    const std::string sweep = format_frequency_range(plan.front(), plan.back());
     r.nominal.resonance_sd_hz = optional_frequency(at / "resonance_sd_hz");
+    // A spread (one standard deviation) wider than the whole sweep is a lot whose resonances
+    // mostly lie outside it: never a lot this recipe measures, nearly always a unit slip.
+    if (r.nominal.resonance_sd_hz && *r.nominal.resonance_sd_hz > plan.back() - plan.front() + 1e-3) {
+      doc_.fail(at / "resonance_sd_hz",
+                fmt::format("production spread {} is wider than the sweep {} ({} across): most resonances would fall "
+                            "outside it; check the unit",
+                            format_frequency(*r.nominal.resonance_sd_hz), sweep,
+                            format_frequency(plan.back() - plan.front())));
+    }
     r.nominal.center_hz = optional_frequency(at / "center_hz");
+    if (r.nominal.center_hz &&
+        (*r.nominal.center_hz < plan.front() - 1e-3 || *r.nominal.center_hz > plan.back() + 1e-3)) {
+      doc_.fail(at / "center_hz", fmt::format("nominal resonance centre {} is outside the sweep {}; check the unit",
+                                              format_frequency(*r.nominal.center_hz), sweep));
+    }
   }
 
   void load_scpi(const JsonPointer& at, std::map<std::string, std::vector<std::string>>& out) {

@@ -187,6 +187,29 @@ TEST(RecipeLoader, TrimTargetOutsideTheSweep) {
                {"/trim/element_length_mm", "-78", "above 0"});
 }
 
+// A production spread (one standard deviation) wider than the whole sweep cannot be a lot this
+// recipe measures: most resonances would fall outside it. Nearly always a unit slip ("5.9 GHz").
+TEST(RecipeLoader, ResonanceSpreadWiderThanTheSweep) {
+  const std::string nominal = R"("rule": "guarded", "nominal_unit": { "q": 9, "resonance_sd_hz": "5.9 MHz" },)";
+  const std::string with = replace(kBase, R"("rule": "guarded",)", nominal);
+  EXPECT_DOUBLE_EQ(*parse_recipe(with, "ok.jsonc").nominal.resonance_sd_hz, 5.9e6);
+  expect_error(replace(with, R"("5.9 MHz")", R"("5.9 GHz")"),
+               {"/nominal_unit/resonance_sd_hz", "5.9 GHz", "wider than the sweep 860\u2013970 MHz"});
+  // The sweep spans 110 MHz: a spread of exactly that is still taken, a little more is not.
+  EXPECT_DOUBLE_EQ(*parse_recipe(replace(with, R"("5.9 MHz")", R"("110 MHz")"), "ok.jsonc").nominal.resonance_sd_hz, 110e6);
+  expect_error(replace(with, R"("5.9 MHz")", R"("111 MHz")"),
+               {"/nominal_unit/resonance_sd_hz", "111 MHz", "wider than the sweep"});
+}
+
+// The nominal resonance centre must be a frequency the recipe sweeps.
+TEST(RecipeLoader, NominalCentreOutsideTheSweep) {
+  const std::string nominal = R"("rule": "guarded", "nominal_unit": { "q": 9, "center_hz": "915 MHz" },)";
+  const std::string with = replace(kBase, R"("rule": "guarded",)", nominal);
+  EXPECT_DOUBLE_EQ(*parse_recipe(with, "ok.jsonc").nominal.center_hz, 915e6);
+  expect_error(replace(with, R"("915 MHz")", R"("915 kHz")"),
+               {"/nominal_unit/center_hz", "915 kHz", "outside the sweep 860\u2013970 MHz"});
+}
+
 TEST(RecipeLoader, StopBelowStart) {
   expect_error(replace(kBase, R"("stop_hz": "970 MHz")", R"("stop_hz": "850 MHz")"),
                {"/segments/0/stop_hz", "850 MHz", "stop 850 MHz is below start 860 MHz"});
