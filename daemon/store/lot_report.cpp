@@ -319,6 +319,17 @@ std::string opt_cell(const std::optional<double>& v, double scale, int digits, b
   return sign && *v > 0 ? "+" + text : text;
 }
 
+// "unit" for one, "units" for any other count (none too).
+const char* units_word(int n) { return n == 1 ? "unit" : "units"; }
+
+// A verdict card's words under its count: "unit passes" for one, "units pass" otherwise.
+std::string verdict_card_words(std::string_view verdict, int n) {
+  const bool one = n == 1;
+  if (verdict == "pass") return one ? "unit passes" : "units pass";
+  if (verdict == "fail") return one ? "unit fails" : "units fail";
+  return fmt::format("{} {}", units_word(n), verdict);   // inconclusive, aborted
+}
+
 std::string group_table(const char* title, const std::vector<GroupYield>& groups, bool stations) {
   std::string h = fmt::format("<h3>{}</h3>\n<table>\n<tr><th>{}</th><th>units</th><th>finished runs</th><th>passed</th>"
                               "<th>run yield</th><th>retests from another bench</th><th>mean resonance (MHz)</th>"
@@ -414,12 +425,14 @@ std::string build_lot_report(std::string_view lot, const std::vector<core::RunRe
   }
 
   h += "<h2>Yield</h2>\n<div class=\"cards\">\n";
-  h += fmt::format("<div class=\"card\"><div class=\"v\">{}</div><div class=\"k\">units</div></div>\n", st.units);
+  h += fmt::format("<div class=\"card\"><div class=\"v\">{}</div><div class=\"k\">{}</div></div>\n", st.units,
+                   units_word(st.units));
   h += fmt::format("<div class=\"card\"><div class=\"v\">{}%</div><div class=\"k\">final yield (units whose latest judged run passed)</div></div>\n",
                    fixed(100 * st.final_yield, 1));
   for (const char* v : {"pass", "fail", "inconclusive", "aborted"}) {
-    h += fmt::format("<div class=\"card\"><div class=\"v v-{0}\">{1}</div><div class=\"k\">units {0}</div></div>\n", v,
-                     st.units_by_final_verdict.at(v));
+    const int n = st.units_by_final_verdict.at(v);
+    h += fmt::format("<div class=\"card\"><div class=\"v v-{0}\">{1}</div><div class=\"k\">{2}</div></div>\n", v, n,
+                     verdict_card_words(v, n));
   }
   h += "</div>\n<p class=\"small\">Runs (retests included): ";
   for (const char* v : {"pass", "fail", "inconclusive", "aborted"}) {
@@ -438,16 +451,19 @@ std::string build_lot_report(std::string_view lot, const std::vector<core::RunRe
     const NominalFromLot nominal = nominal_from_lot(runs);
     if (!nominal.snippet.empty()) {
       h += "<h2>Nominal unit for the recipe</h2>\n";
-      h += fmt::format("<p class=\"small\">From the {} units this lot passed or left undecided. With it in the recipe, "
+      h += fmt::format("<p class=\"small\">From the {} {} this lot passed or left undecided. With it in the recipe, "
                        "<code>echoline recipe check</code> predicts how many units the mask and the resonance window "
                        "will leave undecided on a station. The resonance centre is left out: a scalar bench reads every "
                        "resonance shifted by its own coupler leakage, so this lot's mean is the bench's, not the "
                        "units'; the trim target stands for it.</p>\n<pre>{}</pre>\n",
-                       nominal.units, html_escape(nominal.snippet));
+                       nominal.units, units_word(nominal.units), html_escape(nominal.snippet));
       if (nominal.bandwidth_clipped > 0) {
-        h += fmt::format("<p class=\"small\">On {} of these units the band reached the end of the sweep, so their "
-                         "bandwidth is only a lower bound; they are left out of the bandwidth{}.</p>\n",
-                         nominal.bandwidth_clipped,
+        const bool one = nominal.bandwidth_clipped == 1;
+        h += fmt::format("<p class=\"small\">On {} the band reached the end of the sweep, so {} "
+                         "bandwidth is only a lower bound; {} left out of the bandwidth{}.</p>\n",
+                         nominal.units == 1 ? std::string("this unit")
+                                            : fmt::format("{} of these units", nominal.bandwidth_clipped),
+                         one ? "its" : "their", one ? "it is" : "they are",
                          nominal.bandwidth_hz ? "" : ", which is therefore not given: widen the sweep to measure it");
       }
     }

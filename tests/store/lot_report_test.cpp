@@ -224,6 +224,37 @@ TEST(LotReport, CountAxesTickAtWholeNumbersOnly) {
   }
 }
 
+// Counts read as words: one unit is "unit", any other count (0 too) is "units".
+TEST(LotReport, OneUnitIsSingular) {
+  const std::vector<core::RunResult> one = {testdata::make_run("U1", "L", 0, 915e6)};
+  const std::string html = build_lot_report("L", one, {}, testdata::demo_limits());
+  EXPECT_NE(html.find("<div class=\"v\">1</div><div class=\"k\">unit</div>"), std::string::npos);
+  EXPECT_NE(html.find("<div class=\"v v-pass\">1</div><div class=\"k\">unit passes</div>"), std::string::npos);
+  EXPECT_NE(html.find("<div class=\"v v-fail\">0</div><div class=\"k\">units fail</div>"), std::string::npos);
+  EXPECT_NE(html.find("From the 1 unit this lot passed"), std::string::npos);
+  EXPECT_EQ(html.find("1 units"), std::string::npos);
+  EXPECT_EQ(html.find(">1</div><div class=\"k\">units"), std::string::npos);
+
+  const std::vector<core::RunResult> two = {testdata::make_run("U1", "L", 0, 915e6),
+                                            testdata::make_run("U2", "L", 7, 916e6)};
+  const std::string html2 = build_lot_report("L", two, {}, testdata::demo_limits());
+  EXPECT_NE(html2.find("<div class=\"v v-pass\">2</div><div class=\"k\">units pass</div>"), std::string::npos);
+  EXPECT_NE(html2.find("From the 2 units this lot passed"), std::string::npos);
+
+  // One unit whose band reaches the sweep's first point: its bandwidth is a lower bound.
+  std::vector<core::RunResult> clipped = one;
+  clipped[0].metrics.band_low_hz = clipped[0].points.front().frequency_hz;
+  const std::string html3 = build_lot_report("L", clipped, {}, testdata::demo_limits());
+  EXPECT_NE(html3.find("On this unit the band reached the end of the sweep, so its bandwidth is only a lower bound; "
+                       "it is left out"),
+            std::string::npos);
+  // Two units, one clipped: "1 of these units ... its ... it is".
+  std::vector<core::RunResult> one_of_two = two;
+  one_of_two[0].metrics.band_low_hz = one_of_two[0].points.front().frequency_hz;
+  const std::string html4 = build_lot_report("L", one_of_two, {}, testdata::demo_limits());
+  EXPECT_NE(html4.find("On 1 of these units the band reached the end of the sweep, so its bandwidth"), std::string::npos);
+}
+
 TEST(LotReport, EmptyLotStillRenders) {
   const auto dir = testdata::temp_dir("empty");
   const auto html = build_lot_report("EMPTY", {}, {}, testdata::demo_limits());
