@@ -42,6 +42,7 @@ TEST(FrequencyText, MillihertzIsRefusedWithAHint) {
 // Kilo: SI writes a lower-case k (from memory); an upper-case K has no other meaning in a
 // frequency unit, so "10 KHz" and "10 KHZ" are accepted as kilohertz (config/README.md).
 TEST(FrequencyText, KiloInEitherCase) {
+  // kilo = 1e3 (SI prefix, from memory).
   EXPECT_DOUBLE_EQ(ok("10 KHz"), 10e3);
   EXPECT_DOUBLE_EQ(ok("10 KHZ"), 10e3);
   EXPECT_DOUBLE_EQ(ok("10 khz"), 10e3);
@@ -49,6 +50,7 @@ TEST(FrequencyText, KiloInEitherCase) {
 
 // Whether the text named a unit: a bare "860" is hertz, and the recipe loader asks about it.
 TEST(FrequencyText, TellsWhetherAUnitWasWritten) {
+  // A bare number is hertz (the project's rule, config/README.md); mega = 1e6 (SI prefix, from memory).
   auto bare = parse_frequency_text("860");
   ASSERT_TRUE(bare.ok());
   EXPECT_DOUBLE_EQ(bare->hz, 860);

@@ -155,7 +155,8 @@ TEST(RecipeLoader, BareNumberBelowOneKilohertzIsRefusedAtItsKey) {
                {"/segments/0/stop_hz", "\"stop_hz\": \"970\"", "did you mean \"970 MHz\""});
   expect_error(replace(kBase, R"("rbw_hz": "10 kHz")", R"("rbw_hz": 300)"),
                {"/receiver/rbw_hz", "\"rbw_hz\": 300", "no unit"});
-  // With the unit written, hertz are hertz; a bare number of 1 kHz or more stays a number in Hz.
+  // With the unit written, hertz are hertz; a bare number of 1 kHz or more stays a number in Hz
+  // (the project's 1 kHz threshold, config/README.md; kilo = 1e3, SI prefix, from memory).
   EXPECT_DOUBLE_EQ(parse_recipe(replace(kBase, R"("rbw_hz": "10 kHz")", R"("rbw_hz": "300 Hz")"), "ok.jsonc").receiver.rbw_hz,
                    300);
   EXPECT_DOUBLE_EQ(parse_recipe(replace(kBase, R"("rbw_hz": "10 kHz")", R"("rbw_hz": 10000)"), "ok.jsonc").receiver.rbw_hz,
@@ -176,6 +177,7 @@ TEST(RecipeLoader, TrimTargetOutsideTheSweep) {
   const std::string trim = R"("rule": "guarded", "trim": { "element_length_mm": 78.0, "target_hz": "915 MHz" },)";
   const std::string with = replace(kBase, R"("rule": "guarded",)", trim);
   ASSERT_TRUE(parse_recipe(with, "ok.jsonc").trim);
+  // 915 MHz lies inside kBase's 860–970 MHz sweep (mega = 1e6, SI prefix, from memory).
   EXPECT_DOUBLE_EQ(parse_recipe(with, "ok.jsonc").trim->target_hz, 915e6);
   expect_error(replace(with, R"("target_hz": "915 MHz")", R"("target_hz": "915 kHz")"),
                {"/trim/target_hz", "915 kHz", "outside the sweep 860\u2013970 MHz"});
@@ -192,10 +194,12 @@ TEST(RecipeLoader, TrimTargetOutsideTheSweep) {
 TEST(RecipeLoader, ResonanceSpreadWiderThanTheSweep) {
   const std::string nominal = R"("rule": "guarded", "nominal_unit": { "q": 9, "resonance_sd_hz": "5.9 MHz" },)";
   const std::string with = replace(kBase, R"("rule": "guarded",)", nominal);
+  // The shipped whip recipes' spread (0.5 mm of cut length); mega = 1e6 (SI prefix, from memory).
   EXPECT_DOUBLE_EQ(*parse_recipe(with, "ok.jsonc").nominal.resonance_sd_hz, 5.9e6);
   expect_error(replace(with, R"("5.9 MHz")", R"("5.9 GHz")"),
                {"/nominal_unit/resonance_sd_hz", "5.9 GHz", "wider than the sweep 860\u2013970 MHz"});
-  // The sweep spans 110 MHz: a spread of exactly that is still taken, a little more is not.
+  // kBase sweeps 860–970 MHz, 110 MHz across: a spread of exactly that is still taken, a little
+  // more is not (the bound is the loader's rule, config/README.md).
   EXPECT_DOUBLE_EQ(*parse_recipe(replace(with, R"("5.9 MHz")", R"("110 MHz")"), "ok.jsonc").nominal.resonance_sd_hz, 110e6);
   expect_error(replace(with, R"("5.9 MHz")", R"("111 MHz")"),
                {"/nominal_unit/resonance_sd_hz", "111 MHz", "wider than the sweep"});
@@ -205,6 +209,7 @@ TEST(RecipeLoader, ResonanceSpreadWiderThanTheSweep) {
 TEST(RecipeLoader, NominalCentreOutsideTheSweep) {
   const std::string nominal = R"("rule": "guarded", "nominal_unit": { "q": 9, "center_hz": "915 MHz" },)";
   const std::string with = replace(kBase, R"("rule": "guarded",)", nominal);
+  // 915 MHz lies inside kBase's 860–970 MHz sweep (mega = 1e6, SI prefix, from memory).
   EXPECT_DOUBLE_EQ(*parse_recipe(with, "ok.jsonc").nominal.center_hz, 915e6);
   expect_error(replace(with, R"("915 MHz")", R"("915 kHz")"),
                {"/nominal_unit/center_hz", "915 kHz", "outside the sweep 860\u2013970 MHz"});

@@ -224,7 +224,8 @@ TEST(LotReport, CountAxesTickAtWholeNumbersOnly) {
   }
 }
 
-// Counts read as words: one unit is "unit", any other count (0 too) is "units".
+// Counts read as words: one unit is "unit", any other count (0 too) is "units" (English
+// grammar, common practice, no source). The counts checked are those of the lots built here.
 TEST(LotReport, OneUnitIsSingular) {
   const std::vector<core::RunResult> one = {testdata::make_run("U1", "L", 0, 915e6)};
   const std::string html = build_lot_report("L", one, {}, testdata::demo_limits());
