@@ -67,6 +67,9 @@ TEST(DemoScript, BuildsOnlyTheThreeProgramsItRunsThenRunsTheJob) {
   EXPECT_EQ(o.code, 0) << o.output;
   EXPECT_NE(o.output.find("Yield of lot whip915-lot-a:"), std::string::npos) << o.output;
   EXPECT_NE(o.output.find("Lot report:"), std::string::npos) << o.output;
+  // How many units were inconclusive, and how many of them a retest cannot settle.
+  EXPECT_NE(o.output.find("Inconclusive: "), std::string::npos) << o.output;
+  EXPECT_NE(o.output.find("a retest on this bench cannot settle"), std::string::npos) << o.output;
 
   std::ifstream in(log);
   std::string line;
