@@ -88,8 +88,12 @@ TEST(RecipeLoader, ShippedRecipesLoad) {
   EXPECT_DOUBLE_EQ(w.coverage_factor, 3);
   Recipe win = load_recipe(std::string(ECHOLINE_SOURCE_DIR) + "/config/recipes/whip915-window.jsonc");
   EXPECT_DOUBLE_EQ(*win.limits.resonance_min_hz, 905e6);
-  EXPECT_DOUBLE_EQ(*win.nominal.q, 9);
-  EXPECT_DOUBLE_EQ(*win.nominal.resonance_sd_hz, 5.9e6);
+  // The pilot lot's block as the recipe gives it (a bandwidth, not a Q).
+  EXPECT_FALSE(win.nominal.q);
+  ASSERT_TRUE(win.nominal.bandwidth_hz && win.nominal.depth_db && win.nominal.resonance_sd_hz);
+  EXPECT_DOUBLE_EQ(*win.nominal.bandwidth_hz, 75.7e6);
+  EXPECT_DOUBLE_EQ(*win.nominal.depth_db, 24.8);
+  EXPECT_DOUBLE_EQ(*win.nominal.resonance_sd_hz, 6.0e6);
   EXPECT_EQ(w.rule, DecisionRule::guarded);
   ASSERT_TRUE(w.trim);
   EXPECT_DOUBLE_EQ(w.trim->target_hz, 915e6);
