@@ -34,6 +34,16 @@ struct Kit {
   double offset_b_s = 137e-12;          // MISMATCH-B's offset delay (one way)
 };
 
+// A synthetic station behind a 25 dB test-port match whose kit holds the two mismatches of `kit`.
+StationCapability mismatch_station(const Kit& kit) {
+  StationCapability st = testing_bench::station();
+  st.source_match_db = 25;
+  st.kit.mismatch = {MismatchStandard{"MISMATCH-A", kit.magnitude, kit.magnitude_tolerance, 0, 0, kit.phase_tolerance},
+                     MismatchStandard{"MISMATCH-B", kit.magnitude, kit.magnitude_tolerance, 0, kit.offset_b_s,
+                                      kit.phase_tolerance}};
+  return st;
+}
+
 Trial draw(std::mt19937& rng) {
   std::uniform_real_distribution<double> u(0, 1);
   Trial t;
@@ -208,11 +218,7 @@ TEST(DirectivityVector, FromACalibrationHoldsTheTrueVector) {
       bench.directivity_db = directivity;
       bench.source_match_db = 25;
       bench.delay_s = delay;
-      StationCapability st = tb::station();
-      st.source_match_db = 25;
-      st.kit.mismatch = {MismatchStandard{"MISMATCH-A", kit.magnitude, kit.magnitude_tolerance, 0, 0, kit.phase_tolerance},
-                         MismatchStandard{"MISMATCH-B", kit.magnitude, kit.magnitude_tolerance, 0, kit.offset_b_s,
-                                          kit.phase_tolerance}};
+      StationCapability st = mismatch_station(kit);
       auto traces = tb::standards(recipe, bench);
       // The true standards at the corners of their tolerance.
       traces["MISMATCH-A"] = tb::measure(recipe, bench, [&](double) { return cd(kit.magnitude + kit.magnitude_tolerance, 0); });
@@ -266,12 +272,8 @@ TEST(DirectivityVector, TheMismatchesTightenTheBoundAnImperfectLoadLeaves) {
   bench.directivity_db = 35;
   bench.source_match_db = 25;
   bench.delay_s = 5e-9;
-  StationCapability st = tb::station();
-  st.source_match_db = 25;
+  StationCapability st = mismatch_station(kit);
   st.kit.load = {LoadStep{6e9, 40}};
-  st.kit.mismatch = {MismatchStandard{"MISMATCH-A", kit.magnitude, kit.magnitude_tolerance, 0, 0, kit.phase_tolerance},
-                     MismatchStandard{"MISMATCH-B", kit.magnitude, kit.magnitude_tolerance, 0, kit.offset_b_s,
-                                      kit.phase_tolerance}};
   auto traces = tb::standards(recipe, bench);
   const auto load = [](double) { return std::polar(std::pow(10.0, -40.0 / 20), 0.3); };
   traces["LOAD"] = tb::measure(recipe, bench, load);
@@ -324,10 +326,7 @@ TEST(DirectivityVector, AFastCaptureWidensTheBoundByItsOffset) {
   bench.directivity_db = 35;
   bench.source_match_db = 25;
   bench.delay_s = 1e-9;
-  StationCapability st = tb::station();
-  st.source_match_db = 25;
-  st.kit.mismatch = {MismatchStandard{"MISMATCH-A", kit.magnitude, kit.magnitude_tolerance, 0, 0, kit.phase_tolerance},
-                     MismatchStandard{"MISMATCH-B", kit.magnitude, kit.magnitude_tolerance, 0, kit.offset_b_s, kit.phase_tolerance}};
+  StationCapability st = mismatch_station(kit);
   auto traces = tb::standards(step, bench);
   traces["MISMATCH-A"] = tb::measure(step, bench, [&](double) { return cd(kit.magnitude, 0); });
   traces["MISMATCH-B"] = tb::measure(step, bench, [&](double f) { return std::polar(kit.magnitude, -2 * 2 * kPi * f * kit.offset_b_s); });
