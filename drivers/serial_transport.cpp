@@ -20,6 +20,7 @@
 #include <fmt/format.h>
 #include <libserialport.h>
 
+#include "drivers/scpi_codec.hpp"
 #include "drivers/wire.hpp"
 
 namespace echoline::drivers {
@@ -423,11 +424,13 @@ class SerialTransport final : public Transport {
     for (;;) {
       auto left = remaining(deadline);
       if (left.count() <= 0) {
-        std::size_t partial = buffer_.size();
+        // buffer_ holds only bytes read (chunk is appended by the count read_some returned).
+        const std::string arrived =
+            buffer_.empty() ? std::string("nothing arrived")
+                            : fmt::format("{} bytes arrived: {}", buffer_.size(), scpi::quote(buffer_, wire::kPartialReplyQuoteLimit));
         close();
         return fail(ErrorKind::timeout, doing,
-                    fmt::format("nothing complete within {} ms ({} bytes arrived); port closed", timeout.count(),
-                                partial));
+                    fmt::format("nothing complete within {} ms ({}); port closed", timeout.count(), arrived));
       }
       auto got = backend_->read_some(chunk, sizeof chunk, left);
       if (!got) {

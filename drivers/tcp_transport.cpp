@@ -2,12 +2,16 @@
 // not bound Asio's synchronous reads). See tcp_transport.hpp.
 #include "drivers/tcp_transport.hpp"
 
+#include <algorithm>
+#include <array>
 #include <charconv>
+#include <chrono>
 #include <optional>
 
 #include <asio.hpp>
 #include <fmt/format.h>
 
+#include "drivers/scpi_codec.hpp"
 #include "drivers/wire.hpp"
 
 namespace echoline::drivers {
@@ -47,6 +51,7 @@ Result<TcpEndpoint> parse_tcp_address(std::string_view address) {
 namespace {
 
 using asio::ip::tcp;
+using Clock = std::chrono::steady_clock;
 
 class TcpTransport final : public Transport {
  public:
@@ -98,52 +103,49 @@ class TcpTransport final : public Transport {
       return fail(ErrorKind::timeout, "writing",
                   fmt::format("{} bytes not sent within {} ms; link closed", bytes.size(), timeout.count()));
     }
-    if (ec) return io_failure("writing", ec, 0);
+    if (ec) {
+      const Error e = link_error(ec);
+      return io_failure("writing", e.kind, e.message);
+    }
     return {};
   }
 
   Result<std::string> read_until(char terminator, Millis timeout, std::size_t max_bytes) override {
     if (!socket_.is_open()) return not_open("reading reply");
-    std::size_t found = buffer_.find(terminator);
-    if (found == std::string::npos) {
-      if (buffer_.size() > max_bytes) return too_long(max_bytes);
-      asio::error_code ec = asio::error::would_block;
-      std::size_t n = 0;
-      asio::async_read_until(socket_, asio::dynamic_buffer(buffer_, max_bytes + 1), terminator,
-                             [&](const asio::error_code& e, std::size_t k) {
-                               ec = e;
-                               n = k;
-                             });
-      std::size_t before = buffer_.size();
-      if (!run(timeout, [&] { close_socket(); })) {
-        std::size_t partial = buffer_.size() > before ? buffer_.size() : before;
-        close();
-        return fail(ErrorKind::timeout, "reading reply",
-                    fmt::format("no complete reply within {} ms ({} bytes of it arrived); link closed",
-                                timeout.count(), partial));
+    const auto deadline = Clock::now() + timeout;
+    std::size_t scanned = 0;
+    for (;;) {
+      const std::size_t found = buffer_.find(terminator, scanned);
+      if (found != std::string::npos && found <= max_bytes) {
+        std::string line = buffer_.substr(0, found);
+        buffer_.erase(0, found + 1);
+        return line;
       }
-      if (ec == asio::error::not_found) return too_long(max_bytes);
-      if (ec) return io_failure("reading reply", ec, buffer_.size());
-      found = n - 1;
+      if (buffer_.size() > max_bytes) return too_long(max_bytes);
+      scanned = buffer_.size();
+      // At most max_bytes and the terminator in the buffer: a longer reply is refused unread.
+      if (Status s = fill(deadline, max_bytes + 1 - buffer_.size()); !s) {
+        if (s.error().kind != ErrorKind::timeout) return io_failure("reading reply", s.error().kind, s.error().message);
+        std::string what = fmt::format("no complete reply within {} ms ({}); link closed", timeout.count(),
+                                       arrived_text());
+        close();
+        return fail(ErrorKind::timeout, "reading reply", what);
+      }
     }
-    std::string line = buffer_.substr(0, found);
-    buffer_.erase(0, found + 1);
-    return line;
   }
 
   Result<std::string> read_exact(std::size_t n, Millis timeout) override {
     if (!socket_.is_open()) return not_open("reading");
-    if (buffer_.size() < n) {
-      asio::error_code ec = asio::error::would_block;
-      asio::async_read(socket_, asio::dynamic_buffer(buffer_), asio::transfer_at_least(n - buffer_.size()),
-                       [&](const asio::error_code& e, std::size_t) { ec = e; });
-      if (!run(timeout, [&] { close_socket(); })) {
-        std::size_t got = buffer_.size();
+    const auto deadline = Clock::now() + timeout;
+    while (buffer_.size() < n) {
+      if (Status s = fill(deadline, n - buffer_.size()); !s) {
+        const std::string doing = fmt::format("reading {} bytes", n);
+        if (s.error().kind != ErrorKind::timeout) return io_failure(doing, s.error().kind, s.error().message);
+        std::string what = fmt::format("only {} of them arrived within {} ms; link closed", buffer_.size(),
+                                       timeout.count());
         close();
-        return fail(ErrorKind::timeout, fmt::format("reading {} bytes", n),
-                    fmt::format("only {} arrived within {} ms; link closed", got, timeout.count()));
+        return fail(ErrorKind::timeout, doing, what);
       }
-      if (ec) return io_failure(fmt::format("reading {} bytes", n), ec, buffer_.size());
     }
     std::string out = buffer_.substr(0, n);
     buffer_.erase(0, n);
@@ -199,14 +201,46 @@ class TcpTransport final : public Transport {
                 fmt::format("no terminator within {} bytes; link closed", max_bytes));
   }
 
-  Error io_failure(std::string_view doing, const asio::error_code& ec, std::size_t buffered) {
+  // One read of at most `limit` bytes before `deadline`; what arrives is appended to buffer_ (only
+  // the bytes received: buffer_ never holds reserved space). A timeout is ErrorKind::timeout with
+  // the link still open; a failed read is ErrorKind::closed (peer gone) or io with its reason.
+  Status fill(Clock::time_point deadline, std::size_t limit) {
+    const auto left = std::chrono::duration_cast<Millis>(deadline - Clock::now());
+    if (left.count() <= 0) return make_error(ErrorKind::timeout, "deadline passed");
+    std::array<char, 4096> chunk;
+    const std::size_t want = std::min(limit, chunk.size());
+    asio::error_code ec = asio::error::would_block;
+    std::size_t got = 0;
+    socket_.async_read_some(asio::buffer(chunk.data(), want), [&](const asio::error_code& e, std::size_t k) {
+      ec = e;
+      got = k;
+    });
+    const bool completed = run(left, [&] { close_socket(); });
+    buffer_.append(chunk.data(), got);   // a read that completed as the deadline passed still counts
+    if (!completed) return got > 0 ? Status{} : Status{make_error(ErrorKind::timeout, "deadline passed")};
+    if (!ec) return {};
+    return link_error(ec);
+  }
+
+  // A failed socket operation: ErrorKind::closed when the peer went away, io otherwise.
+  static Error link_error(const asio::error_code& ec) {
+    if (ec == asio::error::eof || ec == asio::error::connection_reset || ec == asio::error::broken_pipe)
+      return make_error(ErrorKind::closed, ec == asio::error::eof ? "connection closed by the peer" : ec.message());
+    return make_error(ErrorKind::io, ec.message());
+  }
+
+  // For a timeout message: how much of the reply arrived, with the start of it.
+  std::string arrived_text() const {
+    if (buffer_.empty()) return "nothing arrived";
+    return fmt::format("{} bytes arrived: {}", buffer_.size(), scpi::quote(buffer_, wire::kPartialReplyQuoteLimit));
+  }
+
+  Error io_failure(std::string_view doing, ErrorKind kind, std::string what) {
+    const std::size_t buffered = buffer_.size();
     close();
-    if (ec == asio::error::eof || ec == asio::error::connection_reset || ec == asio::error::broken_pipe) {
-      std::string what = ec == asio::error::eof ? "connection closed by the peer" : ec.message();
-      if (buffered > 0) what += fmt::format(" ({} bytes of an unfinished reply discarded)", buffered);
-      return fail(ErrorKind::closed, doing, what);
-    }
-    return fail(ErrorKind::io, doing, ec.message());
+    if (kind == ErrorKind::closed && buffered > 0)
+      what += fmt::format(" ({} bytes of an unfinished reply discarded)", buffered);
+    return fail(kind, doing, what);
   }
 
   TcpEndpoint endpoint_;

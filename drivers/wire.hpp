@@ -29,6 +29,9 @@ inline constexpr std::size_t kMaxBlockLengthDigits = 9;
 
 // Error messages quote offending text up to this many characters.
 inline constexpr std::size_t kQuoteLimit = 60;
+// A read timeout quotes the start of a partial reply, this many characters (common practice, no
+// source: enough to recognise a reply or a prompt, short enough for one log line).
+inline constexpr std::size_t kPartialReplyQuoteLimit = 24;
 
 // Transport address schemes.
 inline constexpr std::string_view kTcpScheme = "tcp://";

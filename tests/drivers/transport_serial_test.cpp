@@ -133,6 +133,7 @@ TEST(SerialTermios, TimeoutFiresWithSilentPeerAndClosesPort) {
   EXPECT_EQ(reply.error().kind, ErrorKind::timeout);
   EXPECT_NE(reply.error().message.find("bench-switch (serial:" + pty.slave_path()), std::string::npos)
       << reply.error().message;
+  EXPECT_NE(reply.error().message.find("(nothing arrived)"), std::string::npos) << reply.error().message;
   EXPECT_FALSE(t->is_open());
   EXPECT_EQ(t->read_until('\n', 100ms, 64).error().kind, ErrorKind::closed);
   ASSERT_TRUE(t->reconnect(1000ms).ok());
@@ -154,6 +155,17 @@ TEST(SerialTermios, ReplySplitOverManyWritesReassembles) {
   instrument.join();
   ASSERT_TRUE(line.ok()) << line.error().message;
   EXPECT_EQ(*line + "\n", reply);
+}
+
+TEST(SerialTermios, TimeoutCountsAndQuotesTheBytesThatArrived) {
+  PtyPair pty;
+  auto t = open_serial("serial:" + pty.slave_path() + "?driver=termios");
+  ASSERT_TRUE(t);
+  ASSERT_TRUE(pty.write("+1.25E"));   // the start of a reply, no terminator
+  auto reply = t->read_until('\n', 200ms, 256);
+  ASSERT_FALSE(reply.ok());
+  EXPECT_EQ(reply.error().kind, ErrorKind::timeout);
+  EXPECT_NE(reply.error().message.find("(6 bytes arrived: \"+1.25E\")"), std::string::npos) << reply.error().message;
 }
 
 TEST(SerialTermios, PeerHangUpIsClosedError) {

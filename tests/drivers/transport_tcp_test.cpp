@@ -83,10 +83,34 @@ TEST(TcpTransport, ReadTimesOutWithSilentPeerAndClosesTheLink) {
   ASSERT_FALSE(reply.ok());
   EXPECT_EQ(reply.error().kind, ErrorKind::timeout);
   EXPECT_NE(reply.error().message.find(peer.address()), std::string::npos);
+  // Nothing was sent: no byte count made of buffer space reserved for the read.
+  EXPECT_NE(reply.error().message.find("(nothing arrived)"), std::string::npos) << reply.error().message;
+  EXPECT_EQ(reply.error().message.find("bytes"), std::string::npos) << reply.error().message;
   EXPECT_FALSE(t->is_open());
   auto next = t->read_until('\n', 100ms, 1024);
   ASSERT_FALSE(next.ok());
   EXPECT_EQ(next.error().kind, ErrorKind::closed);
+}
+
+TEST(TcpTransport, TimeoutCountsAndQuotesTheBytesThatArrived) {
+  // The peer sends the start of a reply and stops before the terminator.
+  TcpPeer peer([](int fd, const std::string&) { return TcpPeer::send_all(fd, "+1.25E\r"); });
+  auto t = connect_to(peer);
+  ASSERT_TRUE(t->write("MEAS?\n", 1000ms).ok());
+  auto reply = t->read_until('\n', 200ms, 1024);
+  ASSERT_FALSE(reply.ok());
+  EXPECT_EQ(reply.error().kind, ErrorKind::timeout);
+  EXPECT_NE(reply.error().message.find("(7 bytes arrived: \"+1.25E\\x0D\")"), std::string::npos)
+      << reply.error().message;
+
+  // read_exact: the count is of bytes received, not of bytes asked for.
+  TcpPeer block([](int fd, const std::string&) { return TcpPeer::send_all(fd, "#3"); });
+  auto b = connect_to(block);
+  ASSERT_TRUE(b->write("DATA?\n", 1000ms).ok());
+  auto data = b->read_exact(512, 200ms);
+  ASSERT_FALSE(data.ok());
+  EXPECT_EQ(data.error().kind, ErrorKind::timeout);
+  EXPECT_NE(data.error().message.find("only 2 of them arrived"), std::string::npos) << data.error().message;
 }
 
 TEST(TcpTransport, LateReplyIsNotTakenAsTheNextAnswer) {
