@@ -201,16 +201,8 @@ int rf_off(const drivers::StationConfig& config) {
 
 int run(const Args& args) {
   drivers::StationConfig config = drivers::load_station_config(args.config);
-  for (const auto& [role, address] : args.overrides) {
-    bool found = false;
-    for (auto& inst : config.instruments) {
-      if (inst.role == role) {
-        inst.address = address;
-        found = true;
-      }
-    }
-    if (!found) usage_error(fmt::format("--override {}: the station config has no instrument with role {}", role, role));
-  }
+  // A bad role or address throws ConfigError naming the --override value (exit 2).
+  for (const auto& [role, address] : args.overrides) drivers::apply_address_override(config, role, address);
   if (!args.data_dir.empty()) config.data_dir = std::filesystem::absolute(args.data_dir);
   if (!args.log_dir.empty()) config.log_dir = std::filesystem::absolute(args.log_dir);
   if (args.no_log_file) config.log_dir.clear();

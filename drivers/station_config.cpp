@@ -1,6 +1,7 @@
 // Loading config/station.jsonc: instruments, fixture, paths, API.
 #include "drivers/station_config.hpp"
 
+#include <algorithm>
 #include <regex>
 #include <set>
 
@@ -8,11 +9,31 @@
 
 #include "drivers/jsonc.hpp"
 #include "drivers/profile.hpp"
+#include "drivers/serial_transport.hpp"
+#include "drivers/tcp_transport.hpp"
+#include "drivers/wire.hpp"
 
 namespace echoline::drivers {
 namespace {
 
 const JsonPointer kRoot{};
+
+const std::vector<std::string> kRoles{"source", "receiver", "switch"};
+
+// What is wrong with an instrument address, or "" when it parses (tcp://host:port or
+// serial:<device>[?...]). The link is not opened.
+std::string address_problem(const std::string& address) {
+  if (address.starts_with(wire::kTcpScheme)) {
+    auto endpoint = parse_tcp_address(address);
+    return endpoint ? "" : endpoint.error().message;
+  }
+  if (address.starts_with(wire::kSerialScheme)) {
+    auto settings = parse_serial_address(address);
+    return settings ? "" : settings.error().message;
+  }
+  return fmt::format("\"{}\" is not an instrument address; expected \"tcp://host:port\" or "
+                     "\"serial:<device>[?baud=...]\"", address);
+}
 
 std::filesystem::path resolve(const std::filesystem::path& base, const std::string& p) {
   std::filesystem::path path(p);
@@ -78,13 +99,11 @@ void load_instruments(const JsoncDocument& doc, const std::filesystem::path& bas
     doc.require_object(e);
     doc.check_keys(e, {"role", "name", "address", "profile"});
     InstrumentConfig ic;
-    ic.role = doc.require_enum(e / "role", {"source", "receiver", "switch"});
+    ic.role = doc.require_enum(e / "role", kRoles);
     ic.name = doc.require_string(e / "name");
     if (ic.name.empty()) doc.fail(e / "name", "must not be empty");
     ic.address = doc.require_string(e / "address");
-    if (ic.address.rfind("tcp://", 0) != 0 && ic.address.rfind("serial:", 0) != 0)
-      doc.fail(e / "address", fmt::format("\"{}\" is not an instrument address; expected \"tcp://host:port\" or "
-                                          "\"serial:<device>[?baud=...]\"", ic.address));
+    if (const std::string problem = address_problem(ic.address); !problem.empty()) doc.fail(e / "address", problem);
     ic.profile = resolve(base, doc.require_string(e / "profile"));
     if (!roles.insert(ic.role).second) doc.fail(e / "role", fmt::format("a second {} instrument; one per role", ic.role));
     if (!names.insert(ic.name).second) doc.fail(e / "name", fmt::format("name \"{}\" is used twice", ic.name));
@@ -140,6 +159,22 @@ StationConfig load_station_config(const std::filesystem::path& file) {
     doc.fail(kRoot / "serial_pattern", fmt::format("not a valid regular expression: {}", e.what()));
   }
   return c;
+}
+
+void apply_address_override(StationConfig& config, const std::string& role, const std::string& address) {
+  const std::string option = fmt::format("--override {}={}", role, address);
+  auto fail = [&](const std::string& message) { throw ConfigError(option, 0, "", message); };
+  std::string present;
+  for (const auto& i : config.instruments) present += (present.empty() ? "" : ", ") + i.role;
+  if (std::find(kRoles.begin(), kRoles.end(), role) == kRoles.end())
+    fail(fmt::format("\"{}\" is not an instrument role; the roles are source, receiver and switch ({} has {})",
+                     role, config.file, present));
+  InstrumentConfig* target = nullptr;
+  for (auto& i : config.instruments)
+    if (i.role == role) target = &i;
+  if (!target) fail(fmt::format("{} has no {} instrument to override; its instruments: {}", config.file, role, present));
+  if (const std::string problem = address_problem(address); !problem.empty()) fail(problem);
+  target->address = address;
 }
 
 }  // namespace echoline::drivers

@@ -66,4 +66,9 @@ struct StationConfig {
 // Throws ConfigError; relative paths are resolved against the file's folder.
 StationConfig load_station_config(const std::filesystem::path& file);
 
+// echolined --override ROLE=ADDRESS: puts ADDRESS on the instrument with ROLE. Throws ConfigError
+// whose what() starts with "--override ROLE=ADDRESS": an unknown role (the valid ones listed), a
+// role this station has no instrument for, or an address that does not parse.
+void apply_address_override(StationConfig& config, const std::string& role, const std::string& address);
+
 }  // namespace echoline::drivers

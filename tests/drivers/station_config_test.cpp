@@ -108,6 +108,54 @@ TEST(StationConfig, BadAddressAndMissingProfileAreNamed) {
   EXPECT_NE(std::string(e2.what()).find("does not exist"), std::string::npos);
 }
 
+TEST(StationConfig, AddressWithoutPortIsRefusedAtItsLine) {
+  testing::TempDir dir;
+  std::string text = station_text();
+  text.replace(text.find("tcp://127.0.0.1:1"), 17, "tcp://127.0.0.1");
+  ConfigError e = load_error(write(dir, text));
+  EXPECT_EQ(e.key, "/instruments/0/address");
+  EXPECT_EQ(e.line, 5);   // the source's line in station_text()
+  EXPECT_NE(std::string(e.what()).find("missing :port"), std::string::npos) << e.what();
+
+  std::string serial = station_text();
+  serial.replace(serial.find("baud=9600"), 9, "baud=fast");
+  ConfigError s = load_error(write(dir, serial));
+  EXPECT_EQ(s.key, "/instruments/1/address");
+  EXPECT_NE(std::string(s.what()).find("baud \"fast\""), std::string::npos) << s.what();
+}
+
+ConfigError override_error(StationConfig& c, const std::string& role, const std::string& address) {
+  try {
+    apply_address_override(c, role, address);
+  } catch (const ConfigError& e) {
+    return e;
+  }
+  ADD_FAILURE() << "no ConfigError for " << role << "=" << address;
+  return ConfigError("", 0, "", "");
+}
+
+TEST(StationConfig, OverrideErrorsNameTheOptionAndItsValue) {
+  testing::TempDir dir;
+  StationConfig c = load_station_config(write(dir, station_text()));
+
+  ConfigError port = override_error(c, "receiver", "tcp://127.0.0.1");
+  EXPECT_EQ(std::string(port.what()).rfind("--override receiver=tcp://127.0.0.1: ", 0), 0u) << port.what();
+  EXPECT_NE(std::string(port.what()).find("missing :port"), std::string::npos) << port.what();
+  EXPECT_EQ(port.line, 0);   // no file line: the mistake is on the command line
+  EXPECT_EQ(c.find_role("receiver")->address, "serial:/dev/ttyUSB0?baud=9600");   // left as loaded
+
+  ConfigError typo = override_error(c, "reciever", "tcp://127.0.0.1:5026");
+  EXPECT_EQ(std::string(typo.what()).rfind("--override reciever=tcp://127.0.0.1:5026: ", 0), 0u) << typo.what();
+  EXPECT_NE(std::string(typo.what()).find("source, receiver and switch"), std::string::npos) << typo.what();
+
+  ConfigError absent = override_error(c, "switch", "tcp://127.0.0.1:5027");
+  EXPECT_NE(std::string(absent.what()).find("no switch instrument"), std::string::npos) << absent.what();
+  EXPECT_NE(std::string(absent.what()).find("source, receiver"), std::string::npos) << absent.what();
+
+  apply_address_override(c, "receiver", "tcp://[::1]:5026");
+  EXPECT_EQ(c.find_role("receiver")->address, "tcp://[::1]:5026");
+}
+
 TEST(StationConfig, NonLoopbackApiNeedsAToken) {
   testing::TempDir dir;
   ConfigError e = load_error(write(dir, station_text("", ",\n  \"api\": {\"tcp_host\": \"0.0.0.0\", \"tcp_port\": 7000}")));

@@ -64,6 +64,22 @@ TEST(ExitCodes, DaemonTokenFileMissingIsAConfigErrorAtItsKey) {
   EXPECT_FALSE(d.unix_path().empty());
 }
 
+TEST(ExitCodes, DaemonBadOverrideIsAConfigurationErrorNamingTheOption) {
+  const auto config = (testing::source_dir() / "config" / "station.jsonc").string();
+  const Outcome port = run(testing::daemon_binary(), {"--config", config, "--no-log-file", "--override",
+                                                      "receiver=tcp://127.0.0.1"});
+  EXPECT_EQ(port.code, 2) << port.output;
+  EXPECT_TRUE(says(port, "--override receiver=tcp://127.0.0.1:")) << port.output;
+  EXPECT_TRUE(says(port, "missing :port")) << port.output;
+  EXPECT_FALSE(says(port, "station.jsonc: instrument")) << port.output;
+
+  const Outcome role = run(testing::daemon_binary(), {"--config", config, "--no-log-file", "--override",
+                                                      "reciever=tcp://127.0.0.1:5026"});
+  EXPECT_EQ(role.code, 2) << role.output;
+  EXPECT_TRUE(says(role, "--override reciever=tcp://127.0.0.1:5026:")) << role.output;
+  EXPECT_TRUE(says(role, "source, receiver and switch")) << role.output;
+}
+
 TEST(ExitCodes, ClientNumbersOutOfRangeAreUsageErrors) {
   const auto client = testing::client_binary();
   const std::vector<std::pair<std::vector<std::string>, std::string>> cases = {
