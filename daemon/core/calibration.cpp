@@ -220,35 +220,97 @@ CalibrationRecord build_calibration(const Recipe& recipe, const std::map<std::st
 CalibrationState calibration_due(const CalibrationRecord* cal, const Recipe& recipe, double now_unix_s,
                                  double created_unix_s, std::optional<double> temperature_c, double frequency_offset_hz) {
   if (!cal) return {true, "no calibration yet"};
-  if (!cal->valid) return {true, fmt::format("calibration {} did not pass its checks", cal->id)};
+  if (!cal->valid) {
+    if (cal->errors.empty()) return {true, fmt::format("the last calibration ({}) was not valid", cal->id)};
+    return {true, fmt::format("the last calibration ({}) was not valid: {}", cal->id, cal->errors.front())};
+  }
   if (cal->budget.frequency_hz.size() != cal->reference_dbm.size()) {
     return {true, fmt::format("calibration {} has no uncertainty budget (made by an older version)", cal->id)};
   }
-  if (recipe.mode == SweepMode::fast_capture && !(cal->budget.frequency_offset_hz > 0)) {
-    // Its readings carry the capture's frequency offset, but its budget has no term for it.
+  // What the calibration was made for against what this recipe needs: the sweep mode (a record
+  // whose budget has no frequency-offset term was made by a step sweep) and the plan's points.
+  const bool cal_fast = cal->budget.frequency_offset_hz > 0;
+  const bool recipe_fast = recipe.mode == SweepMode::fast_capture;
+  const bool other_recipe = !cal->recipe.content_hash.empty() && !recipe.content_hash.empty() &&
+                            cal->recipe.content_hash != recipe.content_hash;
+  const std::vector<double> plan = plan_frequencies(recipe);
+  std::vector<double> made_plan;
+  if (auto open = cal->traces.find("OPEN"); open != cal->traces.end()) {
+    for (const Reading& r : open->second) made_plan.push_back(r.frequency_hz);
+  }
+  bool same_plan = made_plan.size() == plan.size();
+  for (std::size_t i = 0; same_plan && i < plan.size(); ++i) same_plan = same_frequency(made_plan[i], plan[i]);
+  // The reference must exist at every point we will measure.
+  const bool complete = cal->reference_dbm.size() == made_plan.size() && cal->directivity_db.size() == made_plan.size();
+
+  if (made_plan.empty()) {
+    return {true, fmt::format("calibration {} has no OPEN trace to compare this recipe's frequencies with", cal->id)};
+  }
+  if (recipe_fast && !cal_fast && !other_recipe && same_plan) {
+    // This recipe's own calibration, stored before fast-capture budgets carried the offset term:
+    // its readings may be half a bin off and nothing in its bounds says so.
     return {true, fmt::format("calibration {} has no frequency-offset term for fast capture (made by an older "
                               "version)", cal->id)};
   }
-  if (recipe.mode == SweepMode::fast_capture && frequency_offset_hz >= 0 &&
-      cal->budget.frequency_offset_hz < frequency_offset_hz * (1 - 1e-9)) {
+  const std::string made_for = cal->recipe.name.empty()
+                                   ? std::string()
+                                   : fmt::format(" (recipe {} {})", cal->recipe.name, cal->recipe.version);
+  if ((other_recipe && cal_fast != recipe_fast) || (recipe_fast && !cal_fast) || !same_plan) {
+    // Name only what differs, the calibration's side first.
+    std::vector<std::string> then, now;
+    auto mode = [](bool fast) { return std::string(fast ? "fast capture" : "a step sweep"); };
+    if (cal_fast != recipe_fast) {
+      then.push_back(mode(cal_fast));
+      now.push_back(mode(recipe_fast));
+    }
+    if (!same_plan && !plan.empty()) {
+      auto span = [](const std::vector<double>& f) {
+        return fmt::format("frequencies {} to {}", format_mhz(f.front(), 3), format_mhz(f.back(), 3));
+      };
+      const bool same_count = made_plan.size() == plan.size();
+      const bool same_span = same_frequency(made_plan.front(), plan.front()) && same_frequency(made_plan.back(), plan.back());
+      if (!same_count) {
+        then.push_back(fmt::format("a plan of {} points", made_plan.size()));
+        now.push_back(fmt::format("{} points", plan.size()));
+      }
+      if (!same_span) {
+        then.push_back(span(made_plan));
+        now.push_back(span(plan));
+      }
+      if (same_count && same_span) {
+        std::size_t i = 0;
+        while (i < plan.size() && same_frequency(made_plan[i], plan[i])) ++i;
+        then.push_back(fmt::format("point {} at {}", i + 1, format_mhz(made_plan[i], 3)));
+        now.push_back(fmt::format("{} there", format_mhz(plan[i], 3)));
+      }
+    }
+    auto join = [](const std::vector<std::string>& parts) {
+      std::string out;
+      for (const auto& p : parts) out += (out.empty() ? "" : ", ") + p;
+      return out;
+    };
+    std::string text = fmt::format("calibration {}{} was made for {}", cal->id, made_for, join(then));
+    if (!now.empty()) text += fmt::format("; this recipe uses {}", join(now));
+    return {true, text};
+  }
+  if (!complete) {
+    return {true, fmt::format("calibration {} is incomplete: {} reference and {} directivity values for {} points",
+                              cal->id, cal->reference_dbm.size(), cal->directivity_db.size(), plan.size())};
+  }
+  if (recipe_fast && frequency_offset_hz >= 0 && cal->budget.frequency_offset_hz < frequency_offset_hz * (1 - 1e-9)) {
     return {true, fmt::format("calibration {} bounds readings up to {:.4g} Hz off their frequency; the station's fast "
                               "capture now allows {:.4g} Hz (was the start-pulse cable removed?)",
                               cal->id, cal->budget.frequency_offset_hz, frequency_offset_hz)};
   }
-  if (!cal->recipe.content_hash.empty() && !recipe.content_hash.empty() &&
-      cal->recipe.content_hash != recipe.content_hash) {
-    return {true, fmt::format("calibration {} was made for recipe {} {}, not this one", cal->id, cal->recipe.name,
-                              cal->recipe.version)};
+  if (other_recipe) {
+    // Same sweep mode and plan; some other setting of the recipe file changed.
+    if (cal->recipe.name == recipe.name && cal->recipe.version == recipe.version) {
+      return {true, fmt::format("calibration {} was made for an earlier content of recipe {} {} (same name, version "
+                                "and sweep plan; the file has changed since)", cal->id, recipe.name, recipe.version)};
+    }
+    return {true, fmt::format("calibration {}{} was made for another recipe with the same sweep plan; this one is {} {}",
+                              cal->id, made_for, recipe.name, recipe.version)};
   }
-  // Same plan: the reference must exist at every point we will measure.
-  const std::vector<double> plan = plan_frequencies(recipe);
-  auto open = cal->traces.find("OPEN");
-  bool same_plan = open != cal->traces.end() && open->second.size() == plan.size() &&
-                   cal->reference_dbm.size() == plan.size() && cal->directivity_db.size() == plan.size();
-  for (std::size_t i = 0; same_plan && i < plan.size(); ++i) {
-    same_plan = same_frequency(open->second[i].frequency_hz, plan[i]);
-  }
-  if (!same_plan) return {true, fmt::format("calibration {} covers other frequencies than this recipe", cal->id)};
   const double max_age = cal->max_age_s > 0 ? cal->max_age_s : recipe.calibration.max_age_s;
   const double age = now_unix_s - created_unix_s;
   if (age > max_age) {

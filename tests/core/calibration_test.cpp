@@ -197,6 +197,66 @@ TEST(CalibrationDue, FastCalibrationIsDueWhenTheOffsetBoundGrows) {
   EXPECT_FALSE(s.due) << s.reason;
 }
 
+// A calibration made by a step sweep for one recipe, then another recipe selected that uses fast
+// capture: the reason names the sweep modes, not an older version (common practice, no source).
+TEST(CalibrationDue, StepCalibrationForAFastRecipeNamesBothModes) {
+  Recipe r = whip_recipe();
+  CalibrationRecord cal = calibrate(r);
+  cal.id = "c1";
+  Recipe fast = r;
+  fast.name = "whip915-fast";
+  fast.mode = SweepMode::fast_capture;
+  fast.content_hash = "f00d";
+  const double t0 = 1.8e9;
+  CalibrationState s = calibration_due(&cal, fast, t0 + 60, t0, std::nullopt);
+  EXPECT_TRUE(s.due);
+  EXPECT_NE(s.reason.find("was made for a step sweep; this recipe uses fast capture"), std::string::npos) << s.reason;
+  EXPECT_NE(s.reason.find("recipe whip915-test 1"), std::string::npos) << s.reason;
+  EXPECT_EQ(s.reason.find("older version"), std::string::npos) << s.reason;
+}
+
+// Same recipe name and version, another sweep plan: the reason names the plans' point counts or
+// frequencies (whip_recipe(): 201 points, 860 to 970 MHz).
+TEST(CalibrationDue, OtherSweepPlanIsNamedByPointsAndFrequencies) {
+  Recipe r = whip_recipe();
+  CalibrationRecord cal = calibrate(r);
+  const double t0 = 1.8e9;
+  Recipe denser = r;
+  denser.content_hash = "beef";
+  denser.segments = {Segment{860e6, 970e6, 401}};
+  CalibrationState s = calibration_due(&cal, denser, t0 + 60, t0, std::nullopt);
+  EXPECT_TRUE(s.due);
+  EXPECT_NE(s.reason.find("a plan of 201 points; this recipe uses 401 points"), std::string::npos) << s.reason;
+  EXPECT_EQ(s.reason.find("not this one"), std::string::npos) << s.reason;
+
+  Recipe shifted = r;
+  shifted.content_hash = "beef";
+  shifted.segments = {Segment{880e6, 960e6, 201}};
+  s = calibration_due(&cal, shifted, t0 + 60, t0, std::nullopt);
+  EXPECT_TRUE(s.due);
+  EXPECT_NE(s.reason.find("frequencies 860.000 MHz to 970.000 MHz; this recipe uses frequencies 880.000 MHz to "
+                          "960.000 MHz"), std::string::npos) << s.reason;
+  EXPECT_EQ(s.reason.find("points"), std::string::npos) << s.reason;   // the counts agree
+
+  // Same plan, another content of the same file: said as such.
+  Recipe edited = r;
+  edited.content_hash = "beef";
+  s = calibration_due(&cal, edited, t0 + 60, t0, std::nullopt);
+  EXPECT_TRUE(s.due);
+  EXPECT_NE(s.reason.find("earlier content of recipe whip915-test 1"), std::string::npos) << s.reason;
+}
+
+TEST(CalibrationDue, NotValidSaysWhy) {
+  Recipe r = whip_recipe();
+  CalibrationRecord cal = calibrate(r);
+  cal.id = "c7";
+  cal.valid = false;
+  cal.errors = {"the LOAD is only 14.0 dB below the reference"};
+  CalibrationState s = calibration_due(&cal, r, 1.8e9 + 60, 1.8e9, std::nullopt);
+  EXPECT_TRUE(s.due);
+  EXPECT_EQ(s.reason, "the last calibration (c7) was not valid: the LOAD is only 14.0 dB below the reference");
+}
+
 TEST(CalibrationDue, ReasonsInOrder) {
   Recipe r = whip_recipe();
   EXPECT_TRUE(calibration_due(nullptr, r, 1000, 0, std::nullopt).due);
