@@ -43,6 +43,50 @@ double median(std::vector<double> v) {
   return n % 2 == 1 ? v[n / 2] : (v[n / 2 - 1] + v[n / 2]) / 2;
 }
 
+// A refusal without its figures, so that units refused for the same reason count together:
+// every parenthesis holding a digit goes ("residuals exceed the measured noise (chi-square 312
+// over 40 degrees of freedom, limit 61)" -> "residuals exceed the measured noise").
+std::string refusal_kind(const std::string& why) {
+  std::string out;
+  std::size_t i = 0;
+  while (i < why.size()) {
+    const std::size_t open = why.find('(', i);
+    if (open == std::string::npos) break;
+    const std::size_t close = why.find(')', open);
+    if (close == std::string::npos) break;
+    const bool figures = std::any_of(why.begin() + open, why.begin() + close, [](char c) { return c >= '0' && c <= '9'; });
+    std::string kept = why.substr(i, (figures ? open : close + 1) - i);
+    if (figures)
+      while (!kept.empty() && kept.back() == ' ') kept.pop_back();
+    out += kept;
+    i = close + 1;
+  }
+  return out + why.substr(std::min(i, why.size()));
+}
+
+// `text` broken at spaces into lines of at most `width` characters (a longer word stays whole),
+// the lines after the first starting with `indent`. Never cuts a word.
+std::string wrap_words(const std::string& text, std::size_t width, const std::string& indent) {
+  std::string out, line;
+  std::size_t start = 0;
+  while (start <= text.size()) {
+    std::size_t end = text.find(' ', start);
+    if (end == std::string::npos) end = text.size();
+    const std::string word = text.substr(start, end - start);
+    if (!line.empty() && line.size() + 1 + word.size() > width) {
+      out += line + "\n" + indent;
+      line.clear();
+    }
+    line += (line.empty() ? "" : " ") + word;
+    start = end + 1;
+  }
+  return out + line;
+}
+
+// The refusal list's text column starts after "    NNNNN  " and ends here (common practice, no
+// source: a 100-column terminal).
+constexpr std::size_t kRefusalColumns = 100 - 11;
+
 std::string interval_text(const core::Metrics& m) {
   if (!m.resonance_hz) return "no resonance";
   return fmt::format("{}–{} MHz", m.resonance_low_hz ? fmt::format("{:.2f}", *m.resonance_low_hz / 1e6) : "sweep start",
@@ -154,7 +198,7 @@ int cmd_rejudge(const Argv& argv) {
     count(plain, a);
     count(fitted, b);
     if (b.metrics.resonance_interval_kind == "fit") ++fit_decided;
-    else if (!b.metrics.fit_refused.empty()) ++refused[b.metrics.fit_refused.substr(0, 70)];
+    else if (!b.metrics.fit_refused.empty()) ++refused[refusal_kind(b.metrics.fit_refused)];
     if (a.verdict != b.verdict) {
       changed.push_back(fmt::format("{}: {} -> {}; resonance {} -> {}", serial, core::to_string(a.verdict),
                                     core::to_string(b.verdict), interval_text(a.metrics), interval_text(b.metrics)));
@@ -179,7 +223,8 @@ int cmd_rejudge(const Argv& argv) {
     for (const auto& [why, n] : refused) sorted.push_back({n, why});
     std::sort(sorted.rbegin(), sorted.rend());
     std::cout << "  the fit was refused:\n";
-    for (const auto& [n, why] : sorted) std::cout << fmt::format("    {:>5}  {}\n", n, why);
+    for (const auto& [n, why] : sorted)
+      std::cout << fmt::format("    {:>5}  {}\n", n, wrap_words(why, kRefusalColumns, std::string(11, ' ')));
   }
   std::cout << fmt::format("  verdicts the fit changes: {}\n", changed.size());
   for (std::size_t i = 0; i < changed.size() && i < list; ++i) std::cout << "    " << changed[i] << "\n";

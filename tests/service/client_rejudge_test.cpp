@@ -108,6 +108,19 @@ TEST(ClientRejudge, ComparesTheLotWithAndWithoutTheFit) {
   // The broken and the intermittent feed are refused by the fit, each for its own reason.
   EXPECT_NE(own.output.find("no dip of 10 dB to fit"), std::string::npos) << own.output;
   EXPECT_NE(own.output.find("the trace is erratic"), std::string::npos) << own.output;
+  // A refusal longer than one line is wrapped at spaces, never cut: joined again it reads in full
+  // (the whips are refused for both unit models, a reason of some 150 characters).
+  std::string joined = own.output;
+  for (std::size_t at; (at = joined.find("\n           ")) != std::string::npos;) joined.replace(at, 12, " ");
+  EXPECT_NE(joined.find("series-rlc: the fit needs a larger error vector than the calibration allows; "
+                        "line-monopole: the fit needs a larger error vector than the calibration allows"),
+            std::string::npos) << own.output;
+  std::istringstream lines(own.output);
+  for (std::string line; std::getline(lines, line);) {
+    if (line.find("the fit needs") != std::string::npos) {
+      EXPECT_LE(line.size(), 100u) << line;   // the wrap width in cmd_rejudge.cpp
+    }
+  }
 
   const Outcome window = run_client({"rejudge", "--store", file.string(), "--lot", "LOT-REJUDGE", "--recipe",
                                      "config/recipes/whip915-window.jsonc"});
