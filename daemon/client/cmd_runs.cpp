@@ -27,11 +27,11 @@ namespace {
 constexpr const char* kRunsHelp =
     "usage: echoline runs --serial SERIAL | --lot LOT [--json]\n"
     "                     [--store FILE | --db CONNINFO|FILE | --central] [connection options]\n\n"
-    "Lists the stored runs of one unit or one lot, oldest first: time, run id, verdict, failure\n"
-    "class, resonance (MHz), depth (dB) and the reason. Through the daemon, or offline from a\n"
-    "run store file with --store FILE. A lot listing ends with its yield. From the central database\n"
-    "(--db, --central) it lists every station's runs, with a station column, and marks a run of a\n"
-    "unit that was tested on another bench before as a retest on another bench.\n"
+    "Lists the stored runs of one unit or one lot, oldest first: time, serial (a lot only), run id,\n"
+    "verdict, failure class, resonance (MHz), depth (dB) and the reason. Through the daemon, or\n"
+    "offline from a run store file with --store FILE. A lot listing ends with its yield. From the\n"
+    "central database (--db, --central) it lists every station's runs, with a station column, and\n"
+    "marks a run of a unit that was tested on another bench before as a retest on another bench.\n"
     "--json   one JSON object instead: {\"serial\" or \"lot\": KEY, \"runs\": [API run objects,\n"
     "         oldest first], and for a lot \"yield\": {\"units\", \"judged\", \"passed\", \"yield\"}}\n"
     "         (yield as a fraction, the store's definition)\n\n"
@@ -185,7 +185,7 @@ int cmd_runs(const Argv& argv) {
     std::cout << "no runs stored for " << (serial ? "serial " + *serial : "lot " + *lot) << "\n";
     return kExitNegative;
   }
-  std::cout << run_table(runs);
+  std::cout << run_table(runs, lot.has_value());
   if (lot) print_yield(*lot, runs);
   return kExitOk;
 }

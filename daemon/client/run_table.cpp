@@ -1,5 +1,6 @@
 #include "daemon/client/run_table.hpp"
 
+#include <algorithm>
 #include <map>
 #include <set>
 
@@ -21,12 +22,16 @@ void mark_retests_on_other_benches(json& runs) {
   }
 }
 
-std::string run_table(const json& runs) {
+std::string run_table(const json& runs, bool with_serial) {
   std::set<std::string> stations;
   for (const auto& r : runs) stations.insert(r.value("station", ""));
   const bool by_station = stations.size() > 1;
-  std::string out = fmt::format("{:<24} {:<54} {:<12} {:<11} {:>10} {:>8}  {}{}\n", "time (UTC)", "run id", "verdict",
-                                "class", "res. MHz", "depth dB", by_station ? "station  " : "", "reason");
+  std::size_t serial_width = 6;   // "serial"
+  for (const auto& r : runs) serial_width = std::max(serial_width, r.value("serial", "").size());
+  auto serial_cell = [&](const std::string& text) { return with_serial ? fmt::format("{:<{}} ", text, serial_width) : ""; };
+  std::string out = fmt::format("{:<24} {}{:<54} {:<12} {:<11} {:>10} {:>8}  {}{}\n", "time (UTC)", serial_cell("serial"),
+                                "run id", "verdict", "class", "res. MHz", "depth dB", by_station ? "station  " : "",
+                                "reason");
   for (const auto& r : runs) {
     const json m = r.contains("metrics") && r["metrics"].is_object() ? r["metrics"] : json::object();
     const auto res = m.contains("resonance_hz") && m["resonance_hz"].is_number()
@@ -42,8 +47,8 @@ std::string run_table(const json& runs) {
       reason = fmt::format("RETEST on another bench (before: {}){}{}", r.value("retest_other_bench", ""),
                            reason.empty() ? "" : "; ", reason);
     }
-    out += fmt::format("{:<24} {:<54} {:<12} {:<11} {:>10} {:>8}  {}{}\n", r.value("started_utc", ""),
-                       r.value("run_id", ""), r.value("verdict", ""), cls, res, depth,
+    out += fmt::format("{:<24} {}{:<54} {:<12} {:<11} {:>10} {:>8}  {}{}\n", r.value("started_utc", ""),
+                       serial_cell(r.value("serial", "")), r.value("run_id", ""), r.value("verdict", ""), cls, res, depth,
                        by_station ? r.value("station", "") + "  " : "", reason);
   }
   return out;

@@ -1,4 +1,4 @@
-// Text table of runs for `echoline runs` (time, run id, verdict, class, resonance, depth, reason)
+// Text table of runs for `echoline runs` (time, [serial,] run id, verdict, class, resonance, depth, reason)
 // and lot yield from a list of API run objects. Pure; thread-safe.
 #pragma once
 
@@ -10,7 +10,8 @@ namespace echoline::client {
 
 // `runs`: array of API run objects (API.md), oldest first. When the runs come from more than one
 // station a station column is added, and a run marked retest_other_bench says so before its reason.
-std::string run_table(const nlohmann::json& runs);
+// with_serial: a serial column after the time (a lot's listing; one unit's has no need of it).
+std::string run_table(const nlohmann::json& runs, bool with_serial = false);
 
 // Marks each run (oldest first) whose serial already had a finished run on another station:
 // "retest_other_bench" = that station (the latest such). A station cannot know this itself, so

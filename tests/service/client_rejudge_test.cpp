@@ -1,7 +1,8 @@
 // `echoline rejudge` as a user meets it: a real run store file holding a calibration, the recipe
 // text and a small lot, re-judged offline by the real binary under the lot's own recipe and under
 // another recipe's limits; the comparison table, the refusals of the dip fit, and the exit codes
-// for a missing lot and a missing store. The store file is not changed.
+// for a missing lot and a missing store. The store file is not changed. The same store serves the
+// `echoline runs --lot` listing's serial column.
 #include <gtest/gtest.h>
 
 #include <filesystem>
@@ -127,6 +128,31 @@ TEST(ClientRejudge, ComparesTheLotWithAndWithoutTheFit) {
   ASSERT_EQ(window.code, 0) << window.output;
   EXPECT_NE(window.output.find("under recipe whip915-window"), std::string::npos) << window.output;
   EXPECT_EQ(std::filesystem::last_write_time(file), before) << "the store file was written";
+}
+
+// `echoline runs --lot` lists many units: each row names its serial; one unit's listing does not
+// repeat it. The JSON form carries the serial in every run object.
+TEST(ClientRuns, ALotListingHasASerialColumn) {
+  TempDir dir;
+  const std::filesystem::path file = make_store(dir);
+  const Outcome lot = run_client({"runs", "--store", file.string(), "--lot", "LOT-REJUDGE"});
+  ASSERT_EQ(lot.code, 0) << lot.output;
+  std::istringstream lines(lot.output);
+  std::string header, first;
+  std::getline(lines, header);
+  std::getline(lines, first);
+  EXPECT_NE(header.find(" serial "), std::string::npos) << lot.output;
+  EXPECT_LT(header.find("serial"), header.find("run id")) << header;
+  EXPECT_NE(first.find(" WH915-001 "), std::string::npos) << lot.output;
+  EXPECT_NE(lot.output.find(" WH915-006 "), std::string::npos) << lot.output;
+
+  const Outcome one = run_client({"runs", "--store", file.string(), "--serial", "WH915-002"});
+  ASSERT_EQ(one.code, 0) << one.output;
+  EXPECT_EQ(one.output.find("serial"), std::string::npos) << one.output;
+
+  const Outcome json_lot = run_client({"runs", "--store", file.string(), "--lot", "LOT-REJUDGE", "--json"});
+  ASSERT_EQ(json_lot.code, 0) << json_lot.output;
+  EXPECT_NE(json_lot.output.find("\"serial\": \"WH915-006\""), std::string::npos) << json_lot.output;
 }
 
 TEST(ClientRejudge, AMissingLotOrStoreSaysSo) {
