@@ -26,7 +26,7 @@ const char* const kConnectionHelp =
 
 Args::Args(const std::vector<std::string>& argv, const std::string& command, std::set<std::string> values,
            std::set<std::string> flags, std::size_t max_positional)
-    : command_(command) {
+    : command_(command), accepted_values_(values) {
   for (std::size_t i = 0; i < argv.size(); ++i) {
     std::string a = argv[i];
     if (a.size() > 2 && a.rfind("--", 0) == 0) {
@@ -82,8 +82,10 @@ std::optional<drivers::StationConfig> find_station_config(const Args& args, bool
   }
   if (explicit_file) return drivers::load_station_config(*explicit_file);   // throws ConfigError
   // The checkout's demo station first, then the installed station's (config/packaging/).
+  std::string tried;
   for (const std::filesystem::path fallback : {"config/station.jsonc", ECHOLINE_INSTALLED_STATION_CONFIG}) {
     std::error_code ec;
+    tried += fmt::format("{}{}", tried.empty() ? "" : ", ", std::filesystem::absolute(fallback, ec).string());
     if (!std::filesystem::exists(fallback, ec)) continue;
     try {
       return drivers::load_station_config(fallback);
@@ -92,7 +94,10 @@ std::optional<drivers::StationConfig> find_station_config(const Args& args, bool
     }
   }
   if (required) {
-    throw CliExit(kExitUsage, "no station config: give --config FILE (or set ECHOLINE_CONFIG)");
+    // Name the option this command documents (recipe check and dry-run say --station).
+    const std::string option = args.accepts("--station") ? "--station CONFIG" : "--config FILE";
+    throw CliExit(kExitUsage, fmt::format("no station config: give {} (or set ECHOLINE_CONFIG); none found at {}",
+                                          option, tried));
   }
   return std::nullopt;
 }

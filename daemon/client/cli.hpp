@@ -35,11 +35,14 @@ class Args {
   std::optional<std::string> get(const std::string& name) const;
   std::string get_or(const std::string& name, const std::string& fallback) const;
   bool flag(const std::string& name) const { return flags_set_.count(name) != 0; }
+  // True when this command takes the value option `name` (whether given or not).
+  bool accepts(const std::string& name) const { return accepted_values_.count(name) != 0; }
   const std::vector<std::string>& positional() const { return positional_; }
   [[noreturn]] void usage_error(const std::string& message) const;
 
  private:
   std::string command_;
+  std::set<std::string> accepted_values_;
   std::map<std::string, std::string> values_;
   std::set<std::string> flags_set_;
   std::vector<std::string> positional_;
@@ -50,7 +53,8 @@ inline const std::set<std::string> kConnectionOptions = {"--config", "--socket",
 extern const char* const kConnectionHelp;
 
 // The station config: --config, else $ECHOLINE_CONFIG, else config/station.jsonc when present.
-// `required`: throw when none can be found. A config named explicitly that does not load throws
+// `required`: throw when none can be found (a usage error naming the option the command documents,
+// --station for recipe check and dry-run, and the paths tried). A config named explicitly that does not load throws
 // its ConfigError; the implicit default is skipped quietly when it does not load.
 std::optional<drivers::StationConfig> find_station_config(const Args& args, bool required);
 

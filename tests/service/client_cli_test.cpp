@@ -45,6 +45,31 @@ TEST(ClientCli, HelpOnTheProgramAndEverySubcommandExitsZero) {
   }
 }
 
+// The top-level help names every export format, Touchstone s1p among them.
+TEST(ClientCli, TopLevelHelpNamesTheS1pExport) {
+  const Outcome top = run_client({"--help"});
+  EXPECT_EQ(top.code, 0) << top.output;
+  EXPECT_NE(top.output.find("Touchstone s1p"), std::string::npos) << top.output;
+}
+
+// recipe check without any station config: the message names the option its help documents
+// (--station) and the paths it looked at.
+TEST(ClientCli, RecipeCheckWithoutAStationNamesStationOptionAndPathsTried) {
+  TempDir dir;   // no config/station.jsonc under it
+  ChildProcess::Options o;
+  o.merge_stderr = true;
+  o.cwd = dir.path();
+  o.env = {{"ECHOLINE_CONFIG", ""}};
+  ChildProcess p = ChildProcess::start(
+      {client_binary().string(), "recipe", "check", (source_dir() / "config/recipes/whip915.jsonc").string()}, o);
+  std::string output;
+  while (auto line = p.read_line(20s)) output += *line + "\n";
+  EXPECT_EQ(p.wait(20s), std::optional<int>(2)) << output;
+  EXPECT_NE(output.find("give --station CONFIG"), std::string::npos) << output;
+  EXPECT_EQ(output.find("--config"), std::string::npos) << output;
+  EXPECT_NE(output.find((dir.path() / "config/station.jsonc").string()), std::string::npos) << output;
+}
+
 TEST(ClientCli, BadUsageExitsTwoAndSaysWhatIsWrong) {
   const Outcome none = run_client({});
   EXPECT_EQ(none.code, 2);
