@@ -1,6 +1,8 @@
 // `echoline runs`, `echoline report`, `echoline export`: through the daemon's API (reports and
 // exports come back in the reply and this client writes the file), or offline from a run store
 // file with --store FILE, opened read-only.
+#include <unistd.h>
+
 #include <filesystem>
 #include <iostream>
 #include <optional>
@@ -52,7 +54,8 @@ constexpr const char* kReportHelp =
     "every recipe version the lot's runs used and says so when there is more than one. --recipe FILE\n"
     "(default the station config's recipe) stands in only for runs whose recipe text is not stored,\n"
     "and the report then names it.\n\n"
-    "exit: 0 written, 1 no runs for that lot, 2 usage, 3 daemon unreachable, 5 storage error\n\n";
+    "exit: 0 written, 1 no runs for that lot, 2 usage (also an --out path that cannot be written),\n"
+    "3 daemon unreachable, 5 storage error\n\n";
 
 constexpr const char* kExportHelp =
     "usage: echoline export --scope run|serial|lot --key KEY | --run RUN_ID\n"
@@ -67,13 +70,30 @@ constexpr const char* kExportHelp =
     "Through the daemon (engineer role): the daemon sends the text back and this command writes\n"
     "FILE on this computer; --out - writes it to standard output. Offline from a run store file\n"
     "with --store FILE, opened read-only, or from the central database (--db, --central).\n\n"
-    "exit: 0 written, 1 nothing stored under KEY, 2 usage, 3 daemon unreachable, 5 storage error\n\n";
+    "exit: 0 written, 1 nothing stored under KEY, 2 usage (also an --out path that cannot be\n"
+    "written), 3 daemon unreachable, 5 storage error\n\n";
 
 // Replies that carry a whole report or export may be large (a 10 000-run lot report is ~30 MB).
 constexpr std::size_t kMaxDocumentReplyBytes = std::size_t{512} << 20;
 
 // Writes a document where --out says: "-" is standard output, anything else a file written
 // atomically on this computer. Returns the text to show for where it went.
+// An --out path that cannot be written is the user's to correct (exit 2, usage), found before any
+// work is done: its folder must exist and be writable, and it must not be a folder itself.
+void check_output_path(const std::string& out, const std::string& what) {
+  if (out == "-") return;
+  std::error_code ec;
+  const std::filesystem::path path = std::filesystem::absolute(out, ec);
+  const std::filesystem::path folder = path.parent_path();
+  auto refuse = [&](const std::string& why) {
+    throw CliExit(kExitUsage, fmt::format("{}: --out {}: {}", what, out, why));
+  };
+  if (std::filesystem::is_directory(path, ec)) refuse("is a folder; give a file name in it");
+  if (!std::filesystem::exists(folder, ec)) refuse(fmt::format("folder {} does not exist", folder.string()));
+  if (!std::filesystem::is_directory(folder, ec)) refuse(fmt::format("{} is not a folder", folder.string()));
+  if (::access(folder.c_str(), W_OK) != 0) refuse(fmt::format("folder {} is not writable for this user", folder.string()));
+}
+
 std::string write_output(const std::string& out, const std::string& content, const std::string& what) {
   if (out == "-") {
     std::cout.write(content.data(), static_cast<std::streamsize>(content.size()));
@@ -202,6 +222,7 @@ int cmd_report(const Argv& argv) {
   const auto lot = args.get("--lot");
   const auto out = args.get("--out");
   if (!lot || !out || out->empty()) args.usage_error("--lot LOT and --out FILE.html (or - for standard output) are required");
+  check_output_path(*out, "report");
   std::ostream& info = *out == "-" ? std::cerr : std::cout;
   std::unique_ptr<store::RunReader> source = offline_source(args, "report");
   if (source) {
@@ -254,6 +275,7 @@ int cmd_export(const Argv& argv) {
   }
   if (format == "s1p" && scope != "run") args.usage_error("--format s1p holds one run: give --run RUN_ID");
   if (key.empty() || out.empty()) args.usage_error("--key KEY (or --run RUN_ID) and --out FILE (or - for standard output) are required");
+  check_output_path(out, "export");
   std::ostream& info = out == "-" ? std::cerr : std::cout;
   store::Document doc;
   std::unique_ptr<store::RunReader> source = offline_source(args, "export");

@@ -155,6 +155,29 @@ TEST(ClientRuns, ALotListingHasASerialColumn) {
   EXPECT_NE(json_lot.output.find("\"serial\": \"WH915-006\""), std::string::npos) << json_lot.output;
 }
 
+// An --out path in a folder that does not exist is the user's mistake (README "Exit codes": 2,
+// usage), named with the folder, and found before the report is made; not a run-store error (5).
+TEST(ClientRuns, AnOutputPathThatCannotBeWrittenIsAUsageError) {
+  TempDir dir;
+  const std::filesystem::path file = make_store(dir);
+  const std::string missing = (dir / "no-such-folder" / "lot.html").string();
+  const Outcome report = run_client({"report", "--store", file.string(), "--lot", "LOT-REJUDGE", "--out", missing});
+  EXPECT_EQ(report.code, 2) << report.output;
+  EXPECT_NE(report.output.find("--out " + missing), std::string::npos) << report.output;
+  EXPECT_NE(report.output.find("folder " + (dir / "no-such-folder").string() + " does not exist"), std::string::npos)
+      << report.output;
+
+  const Outcome folder = run_client({"export", "--store", file.string(), "--scope", "lot", "--key", "LOT-REJUDGE",
+                                     "--format", "csv", "--out", dir.path().string()});
+  EXPECT_EQ(folder.code, 2) << folder.output;
+  EXPECT_NE(folder.output.find("is a folder"), std::string::npos) << folder.output;
+
+  const Outcome written = run_client({"report", "--store", file.string(), "--lot", "LOT-REJUDGE", "--out",
+                                      (dir / "lot.html").string()});
+  EXPECT_EQ(written.code, 0) << written.output;
+  EXPECT_TRUE(std::filesystem::exists(dir / "lot.html"));
+}
+
 TEST(ClientRejudge, AMissingLotOrStoreSaysSo) {
   TempDir dir;
   const std::filesystem::path file = make_store(dir);
