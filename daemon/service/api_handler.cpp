@@ -307,7 +307,7 @@ void ApiHandler::call_cal_start(const std::shared_ptr<ClientLink>& link, const R
   auto standards = station_.standards();
   if (check_only) {
     json cal = station_.calibration_json();
-    if (!cal["present"].get<bool>()) return fail(link, req.id, "calibration_due", "cal.check: no calibration yet; run cal.start");
+    if (!cal["present"].get<bool>()) return fail(link, req.id, "calibration_due", "no calibration to check yet: calibrate the station first");
     standards = {cal["check"]["standard"].get<std::string>()};
   }
   const int points = station_.plan_points();

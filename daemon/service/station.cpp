@@ -271,6 +271,8 @@ json Station::calibration_json() const {
   core::CalibrationState st = core::calibration_due(calibration_ ? &*calibration_ : nullptr, *recipe_, unix_now_s(),
                                                     calibration_created_s_, std::nullopt, offset_hz);
   if (!check_failure_.empty()) st = {true, check_failure_};
+  // A calibration just made that came out not valid is what the operator needs to hear about.
+  if (st.due && !failed_calibration_.empty()) st.reason = failed_calibration_;
   if (calibration_) {
     j.update(calibration_summary_json(*calibration_));
     // When the next calibration falls due by age or by count (a drifted check standard or a
@@ -359,10 +361,10 @@ std::optional<Refusal> Station::precheck_test(const TestRequest& request) const 
   json cal = calibration_json();
   if (cal["due"].get<bool>()) {
     return Refusal{"calibration_due",
-                   fmt::format("calibration due: {}; run a calibration (cal.start) before testing", cal["reason"].get<std::string>())};
+                   fmt::format("calibration due: {}; calibrate the station before testing", cal["reason"].get<std::string>())};
   }
   if (cal["check"]["due"].get<bool>()) {
-    return Refusal{"check_due", fmt::format("check standard {} due after {} units; measure it (cal.check) before testing",
+    return Refusal{"check_due", fmt::format("check standard {} due after {} units; measure it before testing",
                                             cal["check"]["standard"].get<std::string>(), cal["check"]["every_units"].get<int>())};
   }
   return std::nullopt;
@@ -552,6 +554,12 @@ CalibrationOutcome Station::run_calibration(Prompter& prompter, const CancelToke
     calibration_created_s_ = now;
     units_since_check_ = 0;
     check_failure_.clear();
+    failed_calibration_.clear();
+  } else {
+    std::lock_guard lock(mu_);
+    failed_calibration_ = rec.errors.empty()
+                              ? fmt::format("the last calibration ({}) was not valid", rec.id)
+                              : fmt::format("the last calibration ({}) was not valid: {}", rec.id, rec.errors.front());
   }
   spdlog::info("calibration {}: {} (min directivity {:.1f} dB, {} warnings)", rec.id, rec.valid ? "valid" : "NOT valid",
                rec.min_directivity_db, rec.warnings.size());
