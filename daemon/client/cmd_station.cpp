@@ -52,6 +52,9 @@ constexpr const char* kHelp =
     "                        exit code 3. 0 = keep retrying until it is back. Default: 0 when\n"
     "                        the input is a terminal, 60 when it is a pipe or file.\n"
     "\n"
+    "exit: 0 at a normal end whatever the verdicts; 3 the station service stayed away; 4 a unit\n"
+    "scanned in the session was left untested because of the instruments (listed in the summary)\n"
+    "\n"
     "RF exposure: during a test the antenna under test radiates the source power.\n";
 
 // Points of a stored run for the console's plot, read from the station's store file.

@@ -94,7 +94,13 @@ int Console::run() {
   }
   if (o == Outcome::done) o = scan_loop();
   print_summary();
-  return o == Outcome::lost ? kExitUnreachable : kExitOk;
+  if (o == Outcome::lost) return kExitUnreachable;
+  return untested_by_instruments_.empty() ? kExitOk : kExitInstrument;
+}
+
+void Console::not_tested_by_instruments(const std::string& serial) {
+  untested_by_instruments_.insert(serial);
+  out_ << "Unit not tested: " << serial << " (instrument trouble)\n" << std::flush;
 }
 
 Console::Outcome Console::first_screen() {
@@ -268,6 +274,7 @@ Result<bool> Console::calibrate(bool check_only) {
   out_ << (check_only ? "\n--- CHECK STANDARD: re-measure one standard to confirm the calibration still holds ---\n"
                       : "\n--- CALIBRATION: connect each standard when asked ---\n")
        << std::flush;
+  calibration_instrument_trouble_ = false;
   auto reply = api_.call(check_only ? "cal.check" : "cal.start", json::object());
   if (!reply) return reply.error();
   if (!reply->ok && reply->code == "shutting_down") {
@@ -284,7 +291,10 @@ Result<bool> Console::calibrate(bool check_only) {
   if (str(e, "event") == "error") {
     const json err = e.contains("error") ? e["error"] : json::object();
     out_ << (check_only ? "CHECK NOT COMPLETED: " : "CALIBRATION NOT COMPLETED: ") << str(err, "message") << "\n";
-    if (str(err, "code") == "instrument") out_ << "Instrument trouble: fix it, then scan a unit to try again.\n";
+    if (str(err, "code") == "instrument" || str(err, "code") == "unsafe") {
+      calibration_instrument_trouble_ = true;
+      out_ << "Instrument trouble: fix it, then scan a unit to try again.\n";
+    }
     out_ << std::flush;
     return false;
   }
@@ -372,7 +382,8 @@ Console::Outcome Console::test_unit(const std::string& serial, bool again) {
         auto ok = calibrate(reply->code == "check_due");
         if (!ok) return lost(ok.error());
         if (!*ok && reply->code == "calibration_due") {
-          out_ << "Unit not tested: " << serial << " (no valid calibration)\n" << std::flush;
+          if (calibration_instrument_trouble_) not_tested_by_instruments(serial);
+          else out_ << "Unit not tested: " << serial << " (no valid calibration)\n" << std::flush;
           return Outcome::done;
         }
         continue;
@@ -382,6 +393,7 @@ Console::Outcome Console::test_unit(const std::string& serial, bool again) {
              << "\nScan the unit's barcode again.\n" << std::flush;
       } else if (reply->code == "instrument" || reply->code == "unsafe") {
         out_ << "\nINSTRUMENT TROUBLE: " << reply->message << "\nUnit not judged. Call the test engineer.\n" << std::flush;
+        not_tested_by_instruments(serial);
       } else if (reply->code == "busy") {
         out_ << "\nSTATION BUSY: " << reply->message << "\nWait for it to finish, then scan again.\n" << std::flush;
       } else {
@@ -394,10 +406,15 @@ Console::Outcome Console::test_unit(const std::string& serial, bool again) {
     if (!end) return lost(end.error());
     const json& e = *end;
     if (str(e, "event") == "error" || !e.contains("run")) {
-      out_ << "\nTEST NOT COMPLETED: " << e.dump() << "\n" << std::flush;
+      const json err = e.contains("error") ? e["error"] : json::object();
+      out_ << "\nTEST NOT COMPLETED: " << str(err, "message", "the station gave no result") << "\n" << std::flush;
+      if (str(err, "code") == "instrument" || str(err, "code") == "unsafe") not_tested_by_instruments(serial);
       return Outcome::done;
     }
     show_run(e["run"]);
+    // Judged now, or aborted: by the instruments it stays untested for the exit code.
+    if (aborted_by_instruments(e["run"])) untested_by_instruments_.insert(serial);
+    else untested_by_instruments_.erase(serial);
     // A daemon that is being stopped aborts the running test (API.md, Shutdown): the unit was not
     // judged, and the link is about to close.
     if (str(e["run"], "verdict") == "aborted" && str(e["run"], "reason").find("daemon stopping") != std::string::npos) {
@@ -450,7 +467,7 @@ void Console::show_plot(const std::string& run_id) {
 }
 
 void Console::print_summary() {
-  if (summary_.runs == 0 && input_.interactive()) return;
+  if (summary_.runs == 0 && untested_by_instruments_.empty() && input_.interactive()) return;
   const auto count = [&](const char* v) {
     auto it = summary_.runs_by_verdict.find(v);
     return it == summary_.runs_by_verdict.end() ? 0 : it->second;
@@ -464,6 +481,12 @@ void Console::print_summary() {
                       summary_.units_judged());
   if (summary_.interrupted > 0) {
     out_ << fmt::format("  Tests interrupted by a lost station service: {} \n", summary_.interrupted);
+  }
+  if (!untested_by_instruments_.empty()) {
+    std::string serials;
+    for (const auto& s : untested_by_instruments_) serials += (serials.empty() ? "" : ", ") + s;
+    out_ << fmt::format("  NOT TESTED because of instrument trouble: {} unit{} ({})\n", untested_by_instruments_.size(),
+                        untested_by_instruments_.size() == 1 ? "" : "s", serials);
   }
   out_ << "==============================================================\n";
   out_ << fmt::format("summary units={} runs={} pass={} fail={} inconclusive={} aborted={} yield={:.1f}%\n",

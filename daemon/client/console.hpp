@@ -7,6 +7,7 @@
 
 #include <functional>
 #include <map>
+#include <set>
 #include <memory>
 #include <optional>
 #include <ostream>
@@ -57,7 +58,10 @@ class Console {
   Console(ApiClient& api, LineInput& input, std::ostream& out, ConsoleOptions options, PlotSource plot);
 
   // Runs until EOF, "q"/"quit", or a daemon link that stays lost past the reconnect timeout.
-  // Returns an exit code (kExitOk at a normal end, kExitUnreachable when the daemon stayed away).
+  // Returns an exit code: kExitUnreachable when the daemon stayed away; kExitInstrument when a
+  // unit scanned in the session was left untested because of the instruments (a calibration or
+  // test that stopped on instrument trouble, or the daemon refusing for it) and not tested later;
+  // else kExitOk, whatever the verdicts.
   int run();
   const SessionSummary& summary() const { return summary_; }
 
@@ -95,6 +99,10 @@ class Console {
   std::optional<std::string> requeued_;      // interrupted serial to test before the next input line
   std::map<std::string, int> inconclusive_count_;
   bool plot_warned_ = false;
+  bool calibration_instrument_trouble_ = false;   // the last calibrate() ended on instrument trouble
+  std::set<std::string> untested_by_instruments_;  // serials left untested because of the instruments
+  // A unit not tested because of instrument trouble: said on screen, counted for the exit code.
+  void not_tested_by_instruments(const std::string& serial);
 };
 
 }  // namespace echoline::client

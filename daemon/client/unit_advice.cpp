@@ -61,11 +61,15 @@ UnitAdvice advise(const json& run, bool inconclusive_before) {
     return {"Put it in the REJECT tray.", ""};
   }
   // aborted: not judged.
-  const std::string reason = run.value("reason", "");
-  const bool instrument = reason.find("instrument") != std::string::npos || reason.find("timeout") != std::string::npos ||
-                          reason.find("no reply") != std::string::npos;
-  if (instrument) return {"Instrument trouble: unit not judged, test it again.", "If it happens again, call the test engineer."};
+  if (aborted_by_instruments(run)) return {"Instrument trouble: unit not judged, test it again.", "If it happens again, call the test engineer."};
   return {"The test did not finish: unit not judged, test it again.", ""};
+}
+
+bool aborted_by_instruments(const json& run) {
+  if (run.value("verdict", "aborted") != "aborted") return false;
+  const std::string reason = run.value("reason", "");
+  return reason.find("instrument") != std::string::npos || reason.find("timeout") != std::string::npos ||
+         reason.find("no reply") != std::string::npos;
 }
 
 std::string metrics_line(const json& run) {

@@ -203,6 +203,27 @@ TEST_F(ConsoleBench, WithoutTheFixtureAPipeMustConfirmEachStandard) {
   EXPECT_NE(text.find("Unit not tested: TINY-01"), std::string::npos) << text;
 }
 
+// The instruments gone (the simulator stopped): nothing can be calibrated, so the scanned unit is
+// not tested, and the session ends with README's instrument-trouble exit code (4), not 0.
+TEST_F(ConsoleBench, AUnitLeftUntestedByTheInstrumentsEndsWithExitFour) {
+  sim_->terminate(5s);
+  sim_.reset();
+  std::vector<std::string> args = {client_binary().string(), "station", "--config", config_};
+  ChildProcess::Options o;
+  o.pipe_stdin = true;
+  o.merge_stderr = true;
+  ChildProcess p = ChildProcess::start(args, o);
+  p.write_stdin("TINY-01\n\n\n\n");
+  p.close_stdin();
+  std::string text;
+  while (auto line = p.read_line(60s)) text += *line + "\n";
+  EXPECT_EQ(p.wait(30s).value_or(-1), 4) << text;   // README "Exit codes": 4 instrument trouble
+  EXPECT_NE(text.find("CALIBRATION NOT COMPLETED"), std::string::npos) << text;
+  EXPECT_NE(text.find("Unit not tested: TINY-01 (instrument trouble)"), std::string::npos) << text;
+  EXPECT_NE(text.find("NOT TESTED because of instrument trouble: 1 unit (TINY-01)"), std::string::npos) << text;
+  EXPECT_EQ(text.find("(cal.start)"), std::string::npos) << text;
+}
+
 // Runs the console on a pseudo-terminal; returns everything it wrote.
 std::string run_on_pty(const std::vector<std::string>& args, const std::string& input,
                        const std::map<std::string, std::string>& env) {
