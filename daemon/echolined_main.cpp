@@ -237,10 +237,13 @@ int run(const Args& args) {
   so.tcp_port = config.api.tcp_port;
   so.token_configured = !token.empty();
   auto server = service::ApiServer::create(handler, so);
-  // The pages watch the handler's jobs: started before the API serves, stopped after the handler.
+  station.connect_instruments();
+  // The pages serve from their own thread as soon as they exist, so they start only after the
+  // instruments are connected (a test started from a page would otherwise drive the instruments
+  // beside the connect). They watch the handler's jobs: started before the API serves, stopped
+  // after the handler.
   std::unique_ptr<web::WebServer> pages;
   if (config.web.port != 0) pages = std::make_unique<web::WebServer>(handler, station, web::WebOptions{config.web.host, config.web.port, token});
-  station.connect_instruments();
   std::thread io([&] { server->run(); });
 
   const std::string web_address = pages ? "http://" + pages->address() + "/" : "";

@@ -216,8 +216,10 @@ class TcpTransport final : public Transport {
       got = k;
     });
     const bool completed = run(left, [&] { close_socket(); });
-    buffer_.append(chunk.data(), got);   // a read that completed as the deadline passed still counts
-    if (!completed) return got > 0 ? Status{} : Status{make_error(ErrorKind::timeout, "deadline passed")};
+    buffer_.append(chunk.data(), got);   // kept for the timeout message
+    // A read cut off by the deadline is a timeout even if some bytes came in: the socket was
+    // closed to cancel it, so nothing more can be read or written on this link.
+    if (!completed) return make_error(ErrorKind::timeout, "deadline passed");
     if (!ec) return {};
     return link_error(ec);
   }

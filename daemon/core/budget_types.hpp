@@ -46,7 +46,8 @@ struct UncertaintyBudget {
   std::vector<double> directivity_bound;        // |E_D| bound relative to T, linear, LOAD residual included
   // With the directivity vector (below) |E_D| ≤ |d̂| + bound as well; directivity_bound is then the
   // smaller of the two and this keeps what the LOAD alone gave (MEASUREMENT.md §3.1, 6.5). Empty
-  // without mismatch standards (directivity_bound is then the LOAD's).
+  // without mismatch standards, and in calibrations stored before this existed: directivity_bound
+  // is then the LOAD's.
   std::vector<double> directivity_bound_from_load;
   std::vector<double> directivity_measured;     // 10^((P_load − R)/20): what the LOAD alone says
   std::vector<double> load_residual;            // the kit's |Γ_load| bound at the point

@@ -355,7 +355,8 @@ std::vector<BudgetTerm> budget_terms(const UncertaintyBudget& b, std::size_t i, 
   const double s = b.load_residual[i] / (1 - b.source_match * b.load_residual[i]);
   t.push_back({"directivity from the LOAD reading", "bounded", b.directivity_measured[i], "|Γ|"});
   t.push_back({"LOAD residual reflection (kit)", "bounded", s, "|Γ|"});
-  if (i < b.directivity_bound_from_load.size() && b.has_directivity_vector()) {
+  // A point whose vector was not solved has bound 1 (nothing known): no mismatch term there.
+  if (i < b.directivity_bound_from_load.size() && b.has_directivity_vector() && b.directivity_vector_bound[i] < 1) {
     t.push_back({"directivity bound from the LOAD (2)", "bounded", b.directivity_bound_from_load[i], "|Γ|"});
     t.push_back({"directivity bound from the mismatches (|d̂| + r_d)", "bounded",
                  std::hypot(b.directivity_re[i], b.directivity_im[i]) + b.directivity_vector_bound[i], "|Γ|"});

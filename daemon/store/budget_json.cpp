@@ -102,10 +102,11 @@ std::optional<core::UncertaintyBudget> budget_from_json(const std::string& text)
       b.directivity_vector_bound = j.at("directivity_vector_bound").get<std::vector<double>>();
       b.directivity_vector_systematic = j.at("directivity_vector_systematic").get<std::vector<double>>();
       b.directivity_vector_sigma = j.at("directivity_vector_sigma").get<std::vector<double>>();
-      // Calibrations made before the mismatches could bound |d| used the LOAD's bound alone.
-      b.directivity_bound_from_load = j.contains("directivity_bound_from_load")
-                                          ? j.at("directivity_bound_from_load").get<std::vector<double>>()
-                                          : b.directivity_bound;
+      // Calibrations made before the mismatches could bound |d| used the LOAD's bound alone and
+      // have no copy: it stays empty, so the budget's text (and its hash) reads back unchanged.
+      if (j.contains("directivity_bound_from_load")) {
+        b.directivity_bound_from_load = j.at("directivity_bound_from_load").get<std::vector<double>>();
+      }
     }
   } catch (const json::exception&) {
     return std::nullopt;
@@ -119,7 +120,7 @@ std::optional<core::UncertaintyBudget> budget_from_json(const std::string& text)
   if (!b.directivity_re.empty() &&
       (b.directivity_re.size() != n || b.directivity_im.size() != n || b.directivity_vector_bound.size() != n ||
        b.directivity_vector_systematic.size() != n || b.directivity_vector_sigma.size() != n ||
-       b.directivity_bound_from_load.size() != n)) {
+       (!b.directivity_bound_from_load.empty() && b.directivity_bound_from_load.size() != n))) {
     return std::nullopt;
   }
   return b;
