@@ -80,6 +80,11 @@ class ConsoleBench : public ::testing::Test {
     std::vector<std::string> args = {client_binary().string(), "station", "--config", config_, "--sim-fixture", control_,
                                      "--lot", "TINY", "--operator", "ci"};
     args.insert(args.end(), extra.begin(), extra.end());
+    return piped(args, input);
+  }
+
+  // The console started with `args` (no fixture unless they name one), fed `input`.
+  static Session piped(const std::vector<std::string>& args, const std::string& input) {
     ChildProcess::Options o;
     o.pipe_stdin = true;
     o.merge_stderr = true;
@@ -188,16 +193,9 @@ TEST_F(ConsoleBench, InvalidSerialIsShownPlainlyAndQuitEndsTheSession) {
 
 TEST_F(ConsoleBench, WithoutTheFixtureAPipeMustConfirmEachStandard) {
   // No --sim-fixture: a serial where an Enter is expected cancels the calibration; nothing is tested.
-  std::vector<std::string> args = {client_binary().string(), "station", "--config", config_};
-  ChildProcess::Options o;
-  o.pipe_stdin = true;
-  o.merge_stderr = true;
-  ChildProcess p = ChildProcess::start(args, o);
-  p.write_stdin("TINY-01\n");
-  p.close_stdin();
-  std::string text;
-  while (auto line = p.read_line(60s)) text += *line + "\n";
-  EXPECT_EQ(p.wait(30s).value_or(-1), 0) << text;
+  const Session s = piped({client_binary().string(), "station", "--config", config_}, "TINY-01\n");
+  const std::string& text = s.text;
+  EXPECT_EQ(s.code, 0) << text;
   EXPECT_NE(text.find("expected an empty line to confirm; cancelled"), std::string::npos) << text;
   EXPECT_NE(text.find("CALIBRATION NOT COMPLETED"), std::string::npos) << text;
   EXPECT_NE(text.find("Unit not tested: TINY-01"), std::string::npos) << text;
@@ -208,16 +206,9 @@ TEST_F(ConsoleBench, WithoutTheFixtureAPipeMustConfirmEachStandard) {
 TEST_F(ConsoleBench, AUnitLeftUntestedByTheInstrumentsEndsWithExitFour) {
   sim_->terminate(5s);
   sim_.reset();
-  std::vector<std::string> args = {client_binary().string(), "station", "--config", config_};
-  ChildProcess::Options o;
-  o.pipe_stdin = true;
-  o.merge_stderr = true;
-  ChildProcess p = ChildProcess::start(args, o);
-  p.write_stdin("TINY-01\n\n\n\n");
-  p.close_stdin();
-  std::string text;
-  while (auto line = p.read_line(60s)) text += *line + "\n";
-  EXPECT_EQ(p.wait(30s).value_or(-1), 4) << text;   // README "Exit codes": 4 instrument trouble
+  const Session s = piped({client_binary().string(), "station", "--config", config_}, "TINY-01\n\n\n\n");
+  const std::string& text = s.text;
+  EXPECT_EQ(s.code, 4) << text;   // README "Exit codes": 4 instrument trouble
   EXPECT_NE(text.find("CALIBRATION NOT COMPLETED"), std::string::npos) << text;
   EXPECT_NE(text.find("Unit not tested: TINY-01 (instrument trouble)"), std::string::npos) << text;
   EXPECT_NE(text.find("NOT TESTED because of instrument trouble: 1 unit (TINY-01)"), std::string::npos) << text;
