@@ -211,8 +211,15 @@ int run(const Args& args) {
   if (args.tcp_port) config.api.tcp_port = *args.tcp_port;
   if (args.web_port) config.web.port = *args.web_port;
 
+  if (args.rf_off) {
+    start_logging(config, args.log_level);
+    return rf_off(config);
+  }
+  const std::string token = read_token(config);
+  // A second daemon on the same store stops here, before it writes into the first one's log,
+  // finalizes its run in progress or resets an instrument in the middle of its sweep.
+  const service::InstanceLock lock = service::InstanceLock::acquire(config.data_dir / (config.station + ".lock"));
   start_logging(config, args.log_level);
-  if (args.rf_off) return rf_off(config);
   spdlog::info("{} starting: station {} config {}", version_line("echolined"), config.station, config.file);
 
   // Signals are taken by sigwait() on this thread; block them before any thread starts.
@@ -223,10 +230,6 @@ int run(const Args& args) {
   pthread_sigmask(SIG_BLOCK, &signals, nullptr);
   ::signal(SIGPIPE, SIG_IGN);
 
-  const std::string token = read_token(config);
-  // A second daemon on the same store stops here, before it finalizes the first one's run in
-  // progress or resets an instrument in the middle of its sweep.
-  const service::InstanceLock lock = service::InstanceLock::acquire(config.data_dir / (config.station + ".lock"));
   service::Station station(config);
   service::ApiHandler handler(station, token);
   // The API's sockets are bound before any instrument is touched: a daemon that cannot serve

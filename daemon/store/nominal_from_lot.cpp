@@ -6,6 +6,7 @@
 
 #include <fmt/format.h>
 
+#include "daemon/core/frequency_text.hpp"
 #include "daemon/store/lot_report.hpp"
 
 namespace echoline::store {
@@ -58,10 +59,10 @@ NominalFromLot nominal_from_lot(const std::vector<core::RunResult>& runs) {
     out.resonance_sd_hz = std::sqrt(ss / static_cast<double>(f0.size() - 1));
   }
   std::vector<std::string> parts;
-  if (out.bandwidth_hz) parts.push_back(fmt::format("\"bandwidth_hz\": \"{:.2f} MHz\"", *out.bandwidth_hz / 1e6));
+  if (out.bandwidth_hz) parts.push_back(fmt::format("\"bandwidth_hz\": \"{}\"", core::format_frequency(*out.bandwidth_hz, 2)));
   // The recipe loader takes a depth of 1 to 80 dB: a deeper median is given as 80 (a deep dip).
   if (out.depth_db) parts.push_back(fmt::format("\"depth_db\": {:.1f}", std::clamp(*out.depth_db, 1.0, 80.0)));
-  if (out.resonance_sd_hz) parts.push_back(fmt::format("\"resonance_sd_hz\": \"{:.2f} MHz\"", *out.resonance_sd_hz / 1e6));
+  if (out.resonance_sd_hz) parts.push_back(fmt::format("\"resonance_sd_hz\": \"{}\"", core::format_frequency(*out.resonance_sd_hz, 2)));
   if (!parts.empty()) {
     std::string body;
     for (const auto& p : parts) body += (body.empty() ? "" : ", ") + p;

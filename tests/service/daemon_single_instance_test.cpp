@@ -4,6 +4,8 @@
 #include <gtest/gtest.h>
 
 #include <chrono>
+#include <fstream>
+#include <iterator>
 #include <string>
 
 #include "tests/core/e2e_station.hpp"
@@ -37,6 +39,18 @@ TEST(SingleInstance, ASecondDaemonOnTheSameStoreStopsWithoutDisturbingTheRunning
             std::string::npos)
       << second.output;
   EXPECT_NE(second.output.find("e2e-bench.lock"), std::string::npos) << second.output;
+  // Started with the same log folder at level info, it leaves the first one's log alone: the
+  // first daemon logs at warn, so no "starting" line may appear there (the lock is taken before
+  // the log is opened).
+  const testing::Outcome third = testing::run_to_end(
+      {testing::daemon_binary().string(), "--config", config.string(), "--socket", (dir / "third.sock").string(),
+       "--log-level", "info"});
+  EXPECT_EQ(third.code, 1) << third.output;
+  std::ifstream log_file(dir / "log" / "echolined.log");
+  const std::string log((std::istreambuf_iterator<char>(log_file)), std::istreambuf_iterator<char>());
+  std::size_t starts = 0;
+  for (std::size_t at = log.find(" starting: station "); at != std::string::npos; at = log.find(" starting: station ", at + 1)) ++starts;
+  EXPECT_EQ(starts, 0u) << log;
 
   json cleared = sim.control({{"cmd", "clear-faults"}});
   ASSERT_TRUE(cleared.value("ok", false)) << cleared.dump();

@@ -42,7 +42,19 @@ TEST(NominalFromLot, GoodAndUndecidedUnitsGiveMediansAndSpread) {
   // Sample standard deviation (n − 1) of 914, 916, 915 MHz: sqrt((1 + 1 + 0)/2) = 1 MHz
   // (elementary statistics).
   EXPECT_NEAR(*n.resonance_sd_hz, 1e6, 1e-3);
-  EXPECT_EQ(n.snippet, R"("nominal_unit": { "bandwidth_hz": "80.00 MHz", "depth_db": 20.0, "resonance_sd_hz": "1.00 MHz" })");
+  EXPECT_EQ(n.snippet, R"("nominal_unit": { "bandwidth_hz": "80 MHz", "depth_db": 20.0, "resonance_sd_hz": "1 MHz" })");
+}
+
+// A spread under 1 MHz is written in kHz, not rounded to "0.00 MHz" (which the recipe loader
+// would read as no spread at all): 914.000, 914.004, 914.002 MHz have a sample s.d. of 2 kHz.
+TEST(NominalFromLot, ASmallSpreadKeepsItsDigits) {
+  using core::Verdict;
+  const NominalFromLot n = nominal_from_lot({run("A", Verdict::pass, 914.000e6, 20, 70e6, "2026-12-01T10:00:00Z"),
+                                             run("B", Verdict::pass, 914.004e6, 20, 70e6, "2026-12-01T10:01:00Z"),
+                                             run("C", Verdict::pass, 914.002e6, 20, 70e6, "2026-12-01T10:02:00Z")});
+  ASSERT_TRUE(n.resonance_sd_hz);
+  EXPECT_NEAR(*n.resonance_sd_hz, 2e3, 1e-3);
+  EXPECT_NE(n.snippet.find(R"("resonance_sd_hz": "2 kHz")"), std::string::npos) << n.snippet;
 }
 
 // One unit gives no spread; a lot with nothing passed or undecided gives no text at all.
@@ -50,7 +62,7 @@ TEST(NominalFromLot, TooFewUnitsSayLess) {
   using core::Verdict;
   const NominalFromLot one = nominal_from_lot({run("A", Verdict::pass, 914e6, 20, 70e6, "2026-12-01T10:00:00Z")});
   EXPECT_FALSE(one.resonance_sd_hz);
-  EXPECT_EQ(one.snippet, R"("nominal_unit": { "bandwidth_hz": "70.00 MHz", "depth_db": 20.0 })");
+  EXPECT_EQ(one.snippet, R"("nominal_unit": { "bandwidth_hz": "70 MHz", "depth_db": 20.0 })");
   const NominalFromLot none = nominal_from_lot({run("D", Verdict::fail, 880e6, 6, 20e6, "2026-12-01T10:04:00Z")});
   EXPECT_EQ(none.units, 0);
   EXPECT_TRUE(none.snippet.empty());
