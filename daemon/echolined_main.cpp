@@ -2,6 +2,7 @@
 // JSON-lines API (daemon/service/API.md) on a Unix socket and optional TCP, and stops cleanly on
 // SIGTERM/SIGINT: stop accepting, abort (or finish) the current run, close the store, exit 0.
 #include <signal.h>
+#include <sys/stat.h>
 #include <unistd.h>
 
 #include <cstdio>
@@ -183,6 +184,17 @@ std::string read_token(const drivers::StationConfig& config) {
   return t;
 }
 
+// The token is a password: a file others may read gives it to every account on the station
+// computer. It still serves (the engineer decides), but says so at every start.
+void warn_if_token_file_is_open(const drivers::StationConfig& config) {
+  struct stat st {};
+  if (config.api.token_file.empty() || ::stat(config.api.token_file.c_str(), &st) != 0) return;
+  if ((st.st_mode & 077) == 0) return;
+  spdlog::warn("{}: the API token file may be read by group or others (mode {:03o}): any account on this "
+               "computer can take the engineer role; chmod 600 {}",
+               config.api.token_file.string(), st.st_mode & 0777, config.api.token_file.string());
+}
+
 // SAFETY: the source's RF output OFF without serving; see --rf-off in the usage text.
 int rf_off(const drivers::StationConfig& config) {
   service::Instruments instruments(config);
@@ -220,6 +232,7 @@ int run(const Args& args) {
   // finalizes its run in progress or resets an instrument in the middle of its sweep.
   const service::InstanceLock lock = service::InstanceLock::acquire(config.data_dir / (config.station + ".lock"));
   start_logging(config, args.log_level);
+  warn_if_token_file_is_open(config);
   spdlog::info("{} starting: station {} config {}", version_line("echolined"), config.station, config.file);
 
   // Signals are taken by sigwait() on this thread; block them before any thread starts.

@@ -177,6 +177,23 @@ TEST(AccessUnixSocket, AnotherUserIsRefusedByTheFileMode) {
   EXPECT_EQ(connect_as(d.unix_path(), kNobody, 0), 0);
 }
 
+// A token file others may read gives the engineer role to every account on the computer: the
+// daemon still serves but warns at start, naming the file and the fix (common practice, no source:
+// secrets readable by their owner alone).
+TEST(AccessToken, AFileOthersMayReadIsWarnedAbout) {
+  const mode_t before = ::umask(022);   // the token file is written 0644: group and others may read
+  Daemon d(json{{"token_file", "token"}});
+  ::umask(before);
+  ASSERT_TRUE(d.listening());
+  ASSERT_NE(fs::status(d.dir() / "token").permissions() & (fs::perms::group_read | fs::perms::others_read),
+            fs::perms::none);
+  bool warned = false;
+  for (const auto& l : d.process().output_lines()) {
+    warned |= l.find("may be read by group or others") != std::string::npos && l.find("chmod 600") != std::string::npos;
+  }
+  EXPECT_TRUE(warned);
+}
+
 TEST(AccessUnixSocket, OperatorCannotMakeEngineerCalls) {
   Daemon d(json{{"token_file", "token"}});
   ASSERT_TRUE(d.listening());
