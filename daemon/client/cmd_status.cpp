@@ -1,4 +1,5 @@
 // `echoline status` and `echoline cal status|history`.
+#include <chrono>
 #include <iostream>
 #include <set>
 
@@ -43,7 +44,8 @@ constexpr const char* kStatusHelp =
     "usage: echoline status [--json] [connection options]\n\n"
     "Shows the daemon's station, recipe, instruments (healthy or not), calibration, forwarding to\n"
     "the central database (outbox depth, oldest unforwarded run, last successful forward) and\n"
-    "what is running.\n"
+    "what is running. While the station is idle, an instrument that is not ready is tried once\n"
+    "more first (a cable plugged back in shows as ready without starting a test).\n"
     "--json   one JSON object instead: the daemon's status reply (daemon/service/API.md, status)\n"
     "         with \"ready\": true when every instrument is healthy; same exit codes\n"
     "exit: 0 every instrument ready, 4 an instrument is NOT READY (the station cannot test),\n"
@@ -63,6 +65,29 @@ constexpr const char* kCalHelp =
     "exit: 0 shown, 1 no calibration stored (history), 2 usage, 3 daemon unreachable,\n"
     "      5 storage error\n\n";
 
+bool all_healthy(const json& st) {
+  bool healthy = true;
+  if (st.contains("instruments")) {
+    for (const auto& i : st["instruments"]) healthy = healthy && i.value("healthy", false);
+  }
+  return healthy;
+}
+
+// An instrument reported NOT READY may have come back since its last bring-up (a cable
+// plugged in, a generator switched on): while the station is idle, ask the daemon to try once
+// more before showing it. Returns whether it tried (the caller then asks for status again).
+bool probe_when_idle(ApiClient& api, const json& st) {
+  if (all_healthy(st) || (st.contains("busy") && !st["busy"].is_null())) return false;
+  auto r = api.call("instruments.probe", json::object());
+  if (!r || !r->ok) return false;   // busy meanwhile, or an older daemon: show what it has
+  const long id = api.last_id();
+  for (;;) {
+    auto m = api.next_message(std::chrono::seconds(120));
+    if (!m) return false;
+    if (m->value("id", -1L) == id && m->contains("event")) return true;
+  }
+}
+
 }  // namespace
 
 int cmd_status(const Argv& argv) {
@@ -74,11 +99,12 @@ int cmd_status(const Argv& argv) {
   auto api = connect_daemon(args, "operator", "echoline status");
   ApiReply r = require_link(api->call("status", json::object()), "status");
   require_ok(r, "status");
-  const json& st = r.result;
-  bool healthy = true;
-  if (st.contains("instruments")) {
-    for (const auto& i : st["instruments"]) healthy = healthy && i.value("healthy", false);
+  if (probe_when_idle(*api, r.result)) {
+    r = require_link(api->call("status", json::object()), "status");
+    require_ok(r, "status");
   }
+  const json& st = r.result;
+  const bool healthy = all_healthy(st);
   if (args.flag("--json")) {
     json out = st;
     out["ready"] = healthy;

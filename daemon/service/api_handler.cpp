@@ -244,6 +244,7 @@ void ApiHandler::dispatch(const std::shared_ptr<ClientLink>& link, ConnectionSta
   if (call == "cal.check") return call_cal_start(link, req, true);
   if (call == "cal.answer") return call_cal_answer(link, req);
   if (call == "cancel") return call_cancel(link, req);
+  if (call == "instruments.probe") return call_probe(link, req);
   if (call == "runs.history" || call == "runs.lot") return call_runs(link, req);
   if (call == "report.lot") return call_report_lot(link, req);
   if (call == "export") return call_export(link, req);
@@ -363,6 +364,20 @@ void ApiHandler::call_cal_answer(const std::shared_ptr<ClientLink>& link, const 
   }
   cv_.notify_all();
   reply(link, req.id, {{"standard", standard}, {"measuring", connected}});
+}
+
+// A job of its own, so it never talks to an instrument beside a test or a calibration.
+void ApiHandler::call_probe(const std::shared_ptr<ClientLink>& link, const Request& req) {
+  if (auto busy = busy_text()) return fail(link, req.id, "busy", fmt::format("busy: {} is running", *busy));
+  json id = req.id;
+  bool started = start_job("probe", json::object(), link, reply_ok(req.id, json::object()), [this, id] {
+    station_.probe_instruments();
+    return event_line(id, "result", {{"instruments", station_.status_json()["instruments"]}});
+  });
+  if (!started) {
+    if (auto busy = busy_text()) return fail(link, req.id, "busy", fmt::format("busy: {} is running", *busy));
+    return fail(link, req.id, "shutting_down", "instruments.probe: the daemon is stopping");
+  }
 }
 
 void ApiHandler::call_cancel(const std::shared_ptr<ClientLink>& link, const Request& req) {

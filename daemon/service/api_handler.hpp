@@ -90,6 +90,7 @@ class ApiHandler {
   void call_cal_start(const std::shared_ptr<ClientLink>&, const Request&, bool check_only);
   void call_cal_answer(const std::shared_ptr<ClientLink>&, const Request&);
   void call_cancel(const std::shared_ptr<ClientLink>&, const Request&);
+  void call_probe(const std::shared_ptr<ClientLink>&, const Request&);
   void call_runs(const std::shared_ptr<ClientLink>&, const Request&);
   void call_report_lot(const std::shared_ptr<ClientLink>&, const Request&);
   void call_export(const std::shared_ptr<ClientLink>&, const Request&);

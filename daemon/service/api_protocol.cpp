@@ -35,6 +35,7 @@ const std::vector<CallSpec>& calls() {
       {"cal.answer", {{"standard", ArgType::string, true}, {"connected", ArgType::boolean, false}}},
       {"cal.check", {}},
       {"cal.status", {}},
+      {"instruments.probe", {}},
       {"cancel", {}},
       {"recipe.select", {{"path", ArgType::string, true}}},
       {"runs.history", {{"serial", ArgType::string, true}}},

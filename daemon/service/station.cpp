@@ -226,6 +226,12 @@ void Station::connect_instruments() {
   }
 }
 
+void Station::probe_instruments() {
+  if (Status s = instruments_->ensure_ready(1); !s) {
+    spdlog::warn("instruments probed, not all ready: {}", s.error().message);
+  }
+}
+
 void Station::shutdown() {
   instruments_->close_all();
   if (forwarder_) forwarder_->stop();

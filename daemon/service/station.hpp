@@ -90,6 +90,9 @@ class Station {
   // Connects the instruments once (worker thread or before the API starts); failures are
   // logged and shown in status, and retried before each job.
   void connect_instruments();
+  // One more bring-up of every instrument that is not ready (one attempt each); the result
+  // shows in status. Call only while no job runs (the job's thread owns the instruments).
+  void probe_instruments();
   // Closes the instrument links and the store (shutdown; no job may run).
   void shutdown();
 

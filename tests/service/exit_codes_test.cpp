@@ -118,6 +118,25 @@ TEST(ExitCodes, StatusExitsZeroWhenReadyAndFourWhenAnInstrumentIsNotReady) {
   EXPECT_TRUE(says(o, "analyzer")) << o.output;
 }
 
+// An analyzer that answered with the wrong identity at start is NOT READY; once it answers right
+// (switched back, or the right one cabled in), `status` on an idle station tries it again and
+// shows it ready, without a test having to start first.
+TEST(ExitCodes, StatusTriesAnInstrumentThatWasNotReadyAgainWhileIdle) {
+  testing::TempDir dir("echoline-exit-codes");
+  Sim sim("tiny-lot.jsonc");
+  json armed = sim.control({{"cmd", "fault"}, {"role", "receiver"}, {"kind", "wrong-identity"}, {"probability", 1}, {"seed", 1}});
+  ASSERT_TRUE(armed.value("ok", false)) << armed.dump();
+  Daemon daemon(write_station_config(dir.path(), sim));
+  Outcome o = run(testing::client_binary(), {"status", "--socket", daemon.unix_path()});
+  EXPECT_EQ(o.code, 4) << o.output;   // tried again, still the wrong identity
+  EXPECT_TRUE(says(o, "NOT READY")) << o.output;
+  json cleared = sim.control({{"cmd", "clear-faults"}});
+  ASSERT_TRUE(cleared.value("ok", false)) << cleared.dump();
+  o = run(testing::client_binary(), {"status", "--socket", daemon.unix_path()});
+  EXPECT_EQ(o.code, 0) << o.output;
+  EXPECT_FALSE(says(o, "NOT READY")) << o.output;
+}
+
 TEST(ExitCodes, ASocketThisLoginMayNotUseSaysWhichGroupToJoin) {
   if (::geteuid() != 0) GTEST_SKIP() << "needs root to run the client as another user";
   testing::TempDir dir("echoline-exit-codes");   // mode 0700, like /run/echoline to a non-member

@@ -185,7 +185,7 @@ async function refreshStatus() {
     state.job = null;
   }
   renderStrip();
-  if (state.job) {
+  if (state.job && state.job.job !== "probe") {
     if (state.job.job === "test") renderRun(); else renderCalibration();
   } else {
     renderIdle();
@@ -290,7 +290,11 @@ async function cancelJob() {
 }
 
 function onEvent(ev) {
-  if (ev.event === "started") {
+  // A probe (`echoline status` trying an instrument again) is brief and needs nobody: the page
+  // only waits for it before starting the next unit.
+  if (ev.event === "started" && ev.job === "probe") {
+    state.job = { job: "probe" };
+  } else if (ev.event === "started") {
     state.job = { job: ev.job, serial: ev.serial, standard: ev.standard, point: 0, of: ev.of || 0, waiting: false };
     if (ev.job === "test") renderRun(); else { state.calDone = []; renderCalibration(); }
   } else if (ev.event === "progress") {
