@@ -90,7 +90,7 @@ TEST_F(CentralClientPasswordDb, PasswordFileNamedByPgpassfileIsReadAndIgnoredWhe
   std::ofstream(pgpass) << "127.0.0.1:" << server_->port() << ":echoline:quality:Pgpass-Pw-43\n";
   ::chmod(pgpass.c_str(), 0600);
   const std::string conninfo =
-      "host=127.0.0.1 port=" + std::to_string(server_->port()) + " dbname=echoline user=quality connect_timeout=3";
+      "host=127.0.0.1 port=" + std::to_string(server_->port()) + " dbname=echoline user=quality connect_timeout=15";
   const std::map<std::string, std::string> env = {{"PGPASSFILE", pgpass.string()}, {"HOME", dir.path().string()}};
 
   // Connected and read: the lot has no runs, which `runs` reports with exit 1.

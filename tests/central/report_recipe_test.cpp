@@ -99,7 +99,7 @@ class CentralReportRecipe : public ::testing::Test {
     std::ofstream(pgpass) << "127.0.0.1:" << server_->port() << ":echoline:quality:Quality-Pw-52\n";
     ::chmod(pgpass.c_str(), 0600);
     const std::string conninfo =
-        "host=127.0.0.1 port=" + std::to_string(server_->port()) + " dbname=echoline user=quality connect_timeout=3";
+        "host=127.0.0.1 port=" + std::to_string(server_->port()) + " dbname=echoline user=quality connect_timeout=15";
     const auto out = dir / (lot + ".html");
     const Outcome o = testing::run_to_end({testing::client_binary().string(), "report", "--lot", lot, "--out",
                                            out.string(), "--db", conninfo, "--recipe", local.string()},

@@ -121,7 +121,7 @@ std::string PostgresServer::admin_conninfo() const {
 
 std::string PostgresServer::tcp_conninfo(const std::string& user, const std::string& password) const {
   return "host=127.0.0.1 port=" + std::to_string(port_) + " user=" + user + " password=" + password +
-         " dbname=echoline connect_timeout=3";
+         " dbname=echoline connect_timeout=15";   // generous: a loaded 2-core CI machine, a local server
 }
 
 std::string PostgresServer::psql(const std::string& sql) const {
