@@ -92,7 +92,7 @@ class ApiHandler::CalPrompter : public Prompter {
     while (!h_.answered_ && !h_.cancel_.cancelled()) {
       if (!link_->alive()) {
         lock.unlock();
-        h_.cancel_.cancel("calibration cancelled: the client that started it disconnected");
+        h_.cancel_.cancel("cancelled: the client that started it disconnected");
         lock.lock();
         break;
       }
@@ -359,7 +359,7 @@ void ApiHandler::call_cal_answer(const std::shared_ptr<ClientLink>& link, const 
     if (connected) {
       answered_ = true;
     } else {
-      cancel_.cancel(fmt::format("calibration cancelled: {} not connected", standard));
+      cancel_.cancel(fmt::format("cancelled: {} not connected", standard));
     }
   }
   cv_.notify_all();

@@ -502,7 +502,7 @@ Result<std::vector<core::Reading>> Station::sweep_standard(const std::string& st
     if (Status s = sw->select(standard); !s) return s.error();
   } else if (!prompter.wait_connected(standard)) {
     std::string why = cancel.reason();
-    return make_error(ErrorKind::cancelled, why.empty() ? "calibration cancelled" : why);
+    return make_error(ErrorKind::cancelled, why.empty() ? "cancelled" : why);
   }
   if (cancel.cancelled()) return make_error(ErrorKind::cancelled, cancel.reason());
   if (Status s = instruments_->ensure_ready(); !s) return s.error();
@@ -562,10 +562,14 @@ CalibrationOutcome Station::run_calibration(Prompter& prompter, const CancelToke
     check_failure_.clear();
     failed_calibration_.clear();
   } else {
+    // The bench no longer calibrates cleanly, so an older calibration no longer describes it:
+    // no unit is judged until a calibration comes out valid. A restart reads the same from the
+    // store (the newest calibration is this one), so the two never disagree.
     std::lock_guard lock(mu_);
     failed_calibration_ = rec.errors.empty()
                               ? fmt::format("the last calibration ({}) was not valid", rec.id)
                               : fmt::format("the last calibration ({}) was not valid: {}", rec.id, rec.errors.front());
+    check_failure_ = failed_calibration_;
   }
   spdlog::info("calibration {}: {} (min directivity {:.1f} dB, {} warnings)", rec.id, rec.valid ? "valid" : "NOT valid",
                rec.min_directivity_db, rec.warnings.size());

@@ -67,6 +67,67 @@ TEST_F(DaemonApi, AfterACalibrationThatIsNotValidTheRefusalSaysSoAndWhy) {
       << status.dump();
 }
 
+// A calibration that comes out NOT VALID after a valid one (the bench changed under it) leaves the
+// station due: the older calibration no longer describes the bench, and a restart, which loads
+// the newest calibration from the store, must not see a different station than the running one.
+// Common practice, no source: a failed calibration blocks testing until one succeeds.
+TEST_F(DaemonApi, ACalibrationThatIsNotValidAfterAValidOneStopsTestingUntilTheNext) {
+  Api api = connect();
+  ASSERT_TRUE(calibrate(api, *sim_)["calibration"]["valid"].get<bool>());
+  sim_->connect_unit("TINY-01");
+  json ok = api.call("test.start", {{"serial", "TINY-01"}});
+  ASSERT_TRUE(ok.value("ok", false)) << ok.dump();
+  for (json e = api.next_event(); e["event"] != "result"; e = api.next_event()) {
+  }
+
+  ASSERT_TRUE(api.call("cal.start").value("ok", false));
+  json end;
+  for (;;) {
+    json e = api.next_event();
+    if (e["event"] == "prompt") {
+      sim_->connect_standard(e["standard"] == "LOAD" ? "OPEN" : e["standard"].get<std::string>());
+      ASSERT_TRUE(api.call("cal.answer", {{"standard", e["standard"]}}).value("ok", false));
+    } else if (e["event"] == "result" || e["event"] == "error") {
+      end = e;
+      break;
+    }
+  }
+  ASSERT_FALSE(end["calibration"]["valid"].get<bool>()) << end.dump();
+
+  sim_->connect_unit("TINY-02");
+  json refused = api.call("test.start", {{"serial", "TINY-02"}});
+  ASSERT_FALSE(refused.value("ok", true)) << refused.dump();
+  EXPECT_EQ(refused["error"]["code"], "calibration_due") << refused.dump();
+  EXPECT_NE(refused["error"]["message"].get<std::string>().find("was not valid"), std::string::npos) << refused.dump();
+
+  // A valid calibration clears it.
+  ASSERT_TRUE(calibrate(api, *sim_)["calibration"]["valid"].get<bool>());
+  sim_->connect_unit("TINY-02");
+  EXPECT_TRUE(api.call("test.start", {{"serial", "TINY-02"}}).value("ok", false));
+}
+
+// An operator who answers that the standard is not connected cancels the calibration; the error
+// says so once, in order: what was cancelled, then why ("calibration: cancelled: OPEN not
+// connected"), not "calibration: calibration cancelled". Nothing is stored as valid.
+TEST_F(DaemonApi, ACalibrationCancelledAtAPromptSaysSoOnce) {
+  Api api = connect();
+  ASSERT_TRUE(api.call("cal.start").value("ok", false));
+  json end;
+  for (;;) {
+    json e = api.next_event();
+    if (e["event"] == "prompt") {
+      ASSERT_TRUE(api.call("cal.answer", {{"standard", e["standard"]}, {"connected", false}}).value("ok", false));
+    } else if (e["event"] == "result" || e["event"] == "error") {
+      end = e;
+      break;
+    }
+  }
+  ASSERT_EQ(end["event"], "error") << end.dump();
+  const std::string message = end["error"]["message"];
+  EXPECT_EQ(message, "calibration: cancelled: OPEN not connected") << end.dump();
+  EXPECT_FALSE(api.call("status")["result"]["calibration"]["present"].get<bool>());
+}
+
 TEST_F(DaemonApi, HelloNamesStationAndStatusShowsHealthyInstruments) {
   Api api = connect();
   json h = api.call("hello", {{"role", "operator"}, {"client", "test"}});
