@@ -68,8 +68,8 @@ UnitAdvice advise(const json& run, bool inconclusive_before) {
 bool aborted_by_instruments(const json& run) {
   if (run.value("verdict", "aborted") != "aborted") return false;
   const std::string reason = run.value("reason", "");
-  return reason.find("instrument") != std::string::npos || reason.find("timeout") != std::string::npos ||
-         reason.find("no reply") != std::string::npos;
+  return reason.starts_with(core::kInstrumentTroublePrefix) || reason.find("instrument") != std::string::npos ||
+         reason.find("timeout") != std::string::npos || reason.find("no reply") != std::string::npos;
 }
 
 std::string metrics_line(const json& run) {

@@ -13,6 +13,7 @@
 #include <spdlog/spdlog.h>
 
 #include "daemon/core/cal_kit_loader.hpp"
+#include "daemon/core/decision.hpp"
 #include "daemon/core/judge.hpp"
 #include "daemon/core/recipe_loader.hpp"
 #include "daemon/core/rf_math.hpp"
@@ -45,6 +46,22 @@ json findings_json(const std::vector<core::CheckFinding>& findings) {
   json out = json::array();
   for (const auto& f : findings) out.push_back({{"severity", f.severity}, {"key", f.key}, {"message", f.message}});
   return out;
+}
+
+// The reason of a run the instruments stopped begins "instrument trouble: " in the operator's
+// words, then the driver's message (instrument, command, reply); the console and the pages read
+// that prefix to tell instrument trouble from other aborts (exit code 4, "call the engineer").
+std::string aborted_reason(const Error& e) {
+  switch (e.kind) {
+    case ErrorKind::timeout:
+    case ErrorKind::io:
+    case ErrorKind::closed:
+    case ErrorKind::protocol:
+    case ErrorKind::instrument:
+      return fmt::format("{}{}", core::kInstrumentTroublePrefix, e.message);
+    default:
+      return e.message;
+  }
 }
 
 std::string random_hex4() {
@@ -444,7 +461,7 @@ TestOutcome Station::run_test(const TestRequest& request, const CancelToken& can
   if (auto* sw = instruments_->switch_()) {
     if (Status s = sw->select("DUT"); !s) {
       instruments_->invalidate(s.error().message);
-      run.reason = s.error().message;
+      run.reason = aborted_reason(s.error());
       return finish();
     }
   }
@@ -467,7 +484,7 @@ TestOutcome Station::run_test(const TestRequest& request, const CancelToken& can
       run.reason = why.empty() ? sweep.error->message : fmt::format("{} ({})", why, sweep.error->message);
     } else {
       instruments_->invalidate(sweep.error->message);
-      run.reason = sweep.error->message;
+      run.reason = aborted_reason(*sweep.error);
     }
     for (const auto& r : sweep.readings) {
       const double nan = std::numeric_limits<double>::quiet_NaN();

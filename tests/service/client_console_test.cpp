@@ -215,6 +215,30 @@ TEST_F(ConsoleBench, AUnitLeftUntestedByTheInstrumentsEndsWithExitFour) {
   EXPECT_EQ(text.find("(cal.start)"), std::string::npos) << text;
 }
 
+// An instrument that stops answering in the middle of a unit (the analyzer's link dropped): the
+// run is stored as aborted with a reason that says "instrument trouble" and names the instrument,
+// and the session ends with README's instrument-trouble exit code (4), not 0.
+TEST_F(ConsoleBench, AUnitAbortedByADroppedAnalyzerEndsWithExitFour) {
+  const Session first = console("TINY-02\nq\n");   // calibrates, then one unit judged
+  ASSERT_EQ(first.code, 0) << first.text;
+  ASSERT_EQ(verdicts(first).count("TINY-02"), 1u) << first.text;
+  auto c = client::LineConnection::connect_address(control_, client::Millis{3000});
+  ASSERT_TRUE(c.ok());
+  ASSERT_TRUE((*c)->write_line(json{{"cmd", "fault"}, {"role", "receiver"}, {"kind", "drop"}, {"probability", 1}}.dump()).ok());
+  auto armed = (*c)->read_line(client::Millis{5000});
+  ASSERT_TRUE(armed.ok());
+  ASSERT_TRUE(json::parse(*armed)["ok"].get<bool>()) << *armed;
+
+  const Session s = console("TINY-03\n");
+  const std::string& text = s.text;
+  EXPECT_EQ(verdicts(s)["TINY-03"], "aborted") << text;   // never a pass
+  EXPECT_EQ(s.code, 4) << text;                           // README "Exit codes": 4 instrument trouble
+  EXPECT_NE(text.find("instrument trouble: "), std::string::npos) << text;   // the reason says so
+  EXPECT_NE(text.find("analyzer ("), std::string::npos) << text;             // and names the instrument
+  EXPECT_NE(text.find("Instrument trouble: unit not judged, test it again."), std::string::npos) << text;
+  EXPECT_NE(text.find("NOT TESTED because of instrument trouble: 1 unit (TINY-03)"), std::string::npos) << text;
+}
+
 // Runs the console on a pseudo-terminal; returns everything it wrote.
 std::string run_on_pty(const std::vector<std::string>& args, const std::string& input,
                        const std::map<std::string, std::string>& env) {
