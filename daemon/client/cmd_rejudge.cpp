@@ -3,6 +3,7 @@
 // intervals of the points alone and once with the dip fit, under the runs' own recipe or
 // another recipe's limits, and prints the comparison. Nothing is written. Edge code; one thread.
 #include <algorithm>
+#include <cmath>
 #include <filesystem>
 #include <iostream>
 #include <map>
@@ -16,6 +17,7 @@
 #include "daemon/client/commands.hpp"
 #include "daemon/client/exit_codes.hpp"
 #include "daemon/core/calibration.hpp"
+#include "daemon/core/frequency_text.hpp"
 #include "daemon/core/judge.hpp"
 #include "daemon/core/recipe_loader.hpp"
 #include "daemon/store/run_store.hpp"
@@ -30,7 +32,9 @@ constexpr const char* kRejudgeHelp =
     "(as the station judged before the dip fit existed) and with the dip fit, which narrows the\n"
     "resonance interval only when a unit model passes its goodness-of-fit test. By default each\n"
     "run is judged under its own recipe as stored; --recipe FILE judges under that recipe's limits\n"
-    "instead (it must sweep the same points). Prints the verdicts stored and re-judged, the units\n"
+    "instead. That recipe must sweep the points the runs were measured at: a run measured at other\n"
+    "points is listed as not re-judged, and a recipe that fits none of the lot's runs is refused\n"
+    "(exit 2). Prints the verdicts stored and re-judged, the units\n"
     "whose verdict the fit changes (up to --list N, default 20), the median resonance-interval\n"
     "half-widths and why the fit was refused. The store is opened read-only; nothing is written.\n\n"
     "Compare the two columns on a whole lot before switching a line over to the fit.\n\n"
@@ -93,6 +97,24 @@ std::string interval_text(const core::Metrics& m) {
                      m.resonance_high_hz ? fmt::format("{:.2f}", *m.resonance_high_hz / 1e6) : "sweep end");
 }
 
+// "" when the run was measured at the recipe's plan points, else both sweeps in words. A recipe
+// given with --recipe judges stored readings only at the points it would have measured itself;
+// limits over frequencies the run never measured would give a verdict about nothing.
+std::string plan_difference(const std::vector<double>& plan, const core::RunResult& run) {
+  bool same = plan.size() == run.points.size();
+  for (std::size_t i = 0; same && i < plan.size(); ++i) {
+    same = std::fabs(plan[i] - run.points[i].frequency_hz) <= std::max(1.0, 1e-9 * plan[i]);
+  }
+  if (same) return "";
+  auto sweep = [](double first, double last, std::size_t n) {
+    return fmt::format("{} in {} point{}", core::format_frequency_range(first, last), n, n == 1 ? "" : "s");
+  };
+  return fmt::format("measured at {}, the recipe sweeps {}",
+                     run.points.empty() ? std::string("no point")
+                                        : sweep(run.points.front().frequency_hz, run.points.back().frequency_hz, run.points.size()),
+                     plan.empty() ? std::string("no point") : sweep(plan.front(), plan.back(), plan.size()));
+}
+
 struct Column {
   std::map<std::string, int> verdicts;
   std::vector<double> half_widths;
@@ -152,6 +174,9 @@ int cmd_rejudge(const Argv& argv) {
   Column stored, plain, fitted;
   std::map<std::string, int> refused;
   std::vector<std::string> changed, problems;
+  const std::vector<double> other_plan = other ? core::plan_frequencies(*other) : std::vector<double>{};
+  int other_plan_differs = 0, other_plan_compared = 0;
+  std::string first_difference;
   int fit_decided = 0;
   std::size_t done = 0;
   for (const std::string& serial : order) {
@@ -191,6 +216,15 @@ int cmd_rejudge(const Argv& argv) {
       if (run.points.empty() && run.verdict != core::Verdict::aborted) problems.push_back(serial + ": no readings stored");
       continue;
     }
+    if (other && run.verdict != core::Verdict::aborted) {
+      ++other_plan_compared;
+      if (std::string why = plan_difference(other_plan, run); !why.empty()) {
+        ++other_plan_differs;
+        if (first_difference.empty()) first_difference = why;
+        problems.push_back(fmt::format("{}: {}; not re-judged", serial, why));
+        continue;
+      }
+    }
     std::vector<core::Reading> readings;
     for (const core::PointResult& p : run.points) readings.push_back({p.frequency_hz, p.raw_dbm});
     const core::Judgement a = core::judge(*recipe, *ci->second, readings, core::JudgeOptions{false});
@@ -205,6 +239,12 @@ int cmd_rejudge(const Argv& argv) {
     }
   }
 
+  if (other_plan_compared > 0 && other_plan_differs == other_plan_compared) {
+    throw CliExit(kExitUsage,
+                  fmt::format("rejudge: --recipe {}: recipe {} {} does not sweep the points lot {} was measured at ({}); "
+                              "it must sweep the same points",
+                              other->source_path, other->name, other->version, *lot, first_difference));
+  }
   std::cout << fmt::format("re-judged lot {} from {}: {} units (final runs), {}\n", *lot, *file, order.size(),
                            other ? fmt::format("under recipe {} {} ({})", other->name, other->version, other->source_path)
                                  : std::string("each under its own stored recipe"));

@@ -130,6 +130,24 @@ TEST(ClientRejudge, ComparesTheLotWithAndWithoutTheFit) {
   EXPECT_EQ(std::filesystem::last_write_time(file), before) << "the store file was written";
 }
 
+// A recipe that sweeps other frequencies than the lot was measured at is refused (exit 2), naming
+// both sweeps: its limits would otherwise judge frequencies no run measured and give a verdict
+// about nothing (before this check the 915 MHz lot came out as fails and inconclusives under the
+// 2.4 GHz recipe).
+TEST(ClientRejudge, ARecipeSweepingOtherPointsIsRefused) {
+  TempDir dir;
+  const std::filesystem::path file = make_store(dir);
+  const Outcome other = run_client({"rejudge", "--store", file.string(), "--lot", "LOT-REJUDGE", "--recipe",
+                                    "config/recipes/ism2g4.jsonc"});
+  EXPECT_EQ(other.code, 2) << other.output;   // the command's help: 2 usage or recipe error
+  EXPECT_NE(other.output.find("recipe ism2g4"), std::string::npos) << other.output;
+  EXPECT_NE(other.output.find("config/recipes/ism2g4.jsonc"), std::string::npos) << other.output;
+  // The shipped whip915 recipe: 860 to 970 MHz in 221 points (README, "A shift at the station").
+  EXPECT_NE(other.output.find("measured at 860–970 MHz in 221 points"), std::string::npos) << other.output;
+  EXPECT_NE(other.output.find("it must sweep the same points"), std::string::npos) << other.output;
+  EXPECT_EQ(other.output.find("re-judged lot"), std::string::npos) << other.output;   // no table of verdicts
+}
+
 // `echoline runs --lot` lists many units: each row names its serial; one unit's listing does not
 // repeat it. The JSON form carries the serial in every run object.
 TEST(ClientRuns, ALotListingHasASerialColumn) {
