@@ -75,9 +75,9 @@ Decision decide(const Recipe& recipe, const std::vector<PointResult>& points, co
 inline constexpr const char* kRetestCannotSettle = "a retest on this bench cannot settle it";
 // In the reason of a trace that jumps between full reflection and a dip (an intermittent feed or
 // a loose connection): class no-response, and the console asks for one reseat before the reject.
+inline constexpr const char* kIntermittentTrace = "the trace jumps between full reflection and a dip";
 // How the reason of a run the instruments stopped begins (timeout, dropped link, garbled reply,
 // the instrument's own error); the driver's message naming instrument, command and reply follows.
 inline constexpr const char* kInstrumentTroublePrefix = "instrument trouble: ";
-inline constexpr const char* kIntermittentTrace = "the trace jumps between full reflection and a dip";
 
 }  // namespace echoline::core
