@@ -1,8 +1,8 @@
 // echoline-score: the acceptance scorer for "Verdicts that hold on any bench". Tests the first N
-// units of a simulated lot through real echoline-sim and echolined processes, then scores every
-// unit's final run against the simulator's ground truth: true return loss against the stored
-// bounds, escapes, false rejects, inconclusives, failure classes, trim advice, and the centring
-// prediction for a resonance window against offline re-judging. Prints a summary, writes JSON.
+// units of a lot through real bench (echoline-sim by default) and echolined processes, then
+// scores every unit's final run against the bench's ground truth: true return loss against the
+// stored bounds, escapes, false rejects, inconclusives, failure classes, trim advice, and the
+// centring prediction for a resonance window against offline re-judging. Prints a summary, writes JSON.
 // Exit 0 every acceptance figure met, 1 one is not, 2 usage error, 3 the station could not run.
 #include <chrono>
 #include <cstdio>
@@ -41,16 +41,23 @@ struct Inputs {
   core::Recipe recipe;
   core::Recipe window;
   std::optional<double> directivity_db;   // the simulated coupler's, when the bench config states it
+  std::optional<nlohmann::json> fixture;  // --fixture's object, when given
 };
 
-// Loads both recipes and the bench's directivity; a bad file or two different plans is a usage
-// error.
+// Loads both recipes, the bench's directivity and the --fixture object; a bad file or two
+// different plans is a usage error.
 Inputs load_inputs(const ScoreOptions& o) {
   Inputs in;
   try {
     in.recipe = core::load_recipe(o.recipe);
     in.window = core::load_recipe(o.window_recipe);
     in.directivity_db = drivers::JsoncDocument::load(o.sim_config).optional_number(drivers::JsonPointer("/bench/directivity_db"), "dB");
+    if (!o.fixture.empty()) {
+      const drivers::JsoncDocument fixture = drivers::JsoncDocument::load(o.fixture);
+      fixture.require_object(drivers::JsonPointer(""));
+      in.fixture = fixture.root();
+      in.directivity_db = fixture.optional_number(drivers::JsonPointer("/nominal_directivity_db"), "dB");
+    }
   } catch (const drivers::ConfigError& e) {
     std::fprintf(stderr, "echoline-score: %s\n", e.what());
     std::exit(kExitUsage);
@@ -77,7 +84,12 @@ ScoreResult run(const ScoreOptions& o, const Inputs& in, const fs::path& dir) {
 
   soak::StationSetup setup;
   setup.work_dir = dir;
+  setup.bench_program = o.bench_program;
   setup.sim_config = o.sim_config;
+  setup.source_profile = o.source_profile;
+  setup.receiver_profile = o.receiver_profile;
+  setup.calibration_kit = o.kit;
+  setup.fixture = in.fixture;
   setup.lot_file = o.lot_file;
   setup.recipe = o.recipe;
   setup.lot_name = "SCORE-" + o.lot_file.stem().string();

@@ -11,14 +11,23 @@ namespace echoline::score {
 namespace {
 
 constexpr const char* kUsage = R"(usage: echoline-score [options]
-Tests the first N units of a simulated lot through a real echoline-sim and echolined, then scores
-every unit's final run against the simulator's ground truth and prints the acceptance figures.
-  --sim CONFIG           simulator bench (default config/sim/instant.jsonc)
-  --lot FILE             simulator lot (default config/sim/lots/whip915-rlc-600.jsonc)
+Tests the first N units of a lot through a real bench (echoline-sim unless --bench) and echolined,
+then scores every unit's final run against the bench's ground truth and prints the acceptance figures.
+  --bench PROGRAM        bench program, started as PROGRAM --config CONFIG --lot FILE --log-file F
+                         --log-level warn; it must print echoline-sim's endpoint and ready lines and
+                         answer its fixture control requests (default echoline-sim)
+  --sim CONFIG           bench config (default config/sim/instant.jsonc)
+  --lot FILE             lot (default config/sim/lots/whip915-rlc-600.jsonc)
   --units N              test the first N units of the lot (default: all)
   --recipe FILE          recipe the daemon runs (default config/recipes/whip915.jsonc)
   --window-recipe FILE   recipe with a resonance window, re-judged offline for the centring
                          prediction; same plan as --recipe (default config/recipes/whip915-window.jsonc)
+  --source-profile FILE, --receiver-profile FILE
+                         instrument profiles in the station config (default config/instruments/
+                         sim-source.jsonc and sim-receiver.jsonc)
+  --kit FILE             calibration kit in the station config (default config/kits/sim-kit.jsonc)
+  --fixture FILE         JSONC file with the station config's "fixture" object (default: echoline-sim's
+                         coupler, with the directivity of the --sim config's /bench/directivity_db)
   --unit-model MODEL     the dip shape the mask prediction assumes: series-rlc (default) or
                          line-monopole (what the product is, as the engineer knows it)
   --label TEXT           name of this configuration in the summary (default "<lot> @ <sim>")
@@ -45,10 +54,14 @@ std::filesystem::path existing_file(const std::string& option, const std::string
 ScoreOptions parse_score_options(int argc, char** argv) {
   const std::filesystem::path src = testing::source_dir();
   ScoreOptions o;
+  o.bench_program = testing::sim_binary();
   o.sim_config = src / "config/sim/instant.jsonc";
   o.lot_file = src / "config/sim/lots/whip915-rlc-600.jsonc";
   o.recipe = src / "config/recipes/whip915.jsonc";
   o.window_recipe = src / "config/recipes/whip915-window.jsonc";
+  o.source_profile = src / "config/instruments/sim-source.jsonc";
+  o.receiver_profile = src / "config/instruments/sim-receiver.jsonc";
+  o.kit = src / "config/kits/sim-kit.jsonc";
   for (int i = 1; i < argc; ++i) {
     const std::string a = argv[i];
     if (a == "--help" || a == "-h") {
@@ -57,10 +70,15 @@ ScoreOptions parse_score_options(int argc, char** argv) {
     }
     if (i + 1 >= argc) usage(a.rfind("--", 0) == 0 ? a + " needs a value" : "unexpected argument " + a);
     const std::string v = argv[++i];
-    if (a == "--sim") o.sim_config = existing_file(a, v);
+    if (a == "--bench") o.bench_program = existing_file(a, v);
+    else if (a == "--sim") o.sim_config = existing_file(a, v);
     else if (a == "--lot") o.lot_file = existing_file(a, v);
     else if (a == "--recipe") o.recipe = existing_file(a, v);
     else if (a == "--window-recipe") o.window_recipe = existing_file(a, v);
+    else if (a == "--source-profile") o.source_profile = existing_file(a, v);
+    else if (a == "--receiver-profile") o.receiver_profile = existing_file(a, v);
+    else if (a == "--kit") o.kit = existing_file(a, v);
+    else if (a == "--fixture") o.fixture = existing_file(a, v);
     else if (a == "--label") o.label = v;
     else if (a == "--unit-model") {
       if (v != "series-rlc" && v != "line-monopole") usage("--unit-model must be series-rlc or line-monopole");

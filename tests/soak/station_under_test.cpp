@@ -1,4 +1,4 @@
-// The station on loopback for reliability runs (station_under_test.hpp).
+// The station on loopback for reliability and acceptance runs (station_under_test.hpp).
 #include "tests/soak/station_under_test.hpp"
 
 #include <sqlite3.h>
@@ -123,7 +123,7 @@ void StationUnderTest::write_lot() {
 
 void StationUnderTest::start_simulator() {
   const fs::path lot = setup_.lot_file.empty() ? setup_.work_dir / "lot.jsonc" : setup_.lot_file;
-  sim_.emplace(start_logged(testing::sim_binary(),
+  sim_.emplace(start_logged(setup_.bench_program,
                             {"--config", setup_.sim_config.string(), "--lot", lot.string(), "--log-file",
                              (log_dir() / "sim.log").string(), "--log-level", "warn"},
                             log_dir() / "sim.stderr"));
@@ -131,7 +131,10 @@ void StationUnderTest::start_simulator() {
   for (;;) {
     auto left = std::chrono::duration_cast<std::chrono::milliseconds>(deadline - std::chrono::steady_clock::now());
     auto line = sim_->read_line(std::max(left, std::chrono::milliseconds(1)));
-    if (!line) throw std::runtime_error("echoline-sim: no \"ready\" line (see " + (log_dir() / "sim.stderr").string() + ")");
+    if (!line) {
+      throw std::runtime_error(setup_.bench_program.filename().string() + ": no \"ready\" line (see " +
+                               (log_dir() / "sim.stderr").string() + ")");
+    }
     if (*line == "ready") break;
     auto f = testing::parse_fields(*line);
     if (f["role"] == "source") source_address_ = f["address"];
@@ -139,12 +142,12 @@ void StationUnderTest::start_simulator() {
     if (f["role"] == "control") control_address_ = f["address"];
   }
   if (source_address_.empty() || receiver_address_.empty() || control_address_.empty()) {
-    throw std::runtime_error("echoline-sim: source, receiver or control endpoint missing from its start-up lines");
+    throw std::runtime_error(setup_.bench_program.filename().string() +
+                             ": source, receiver or control endpoint missing from its start-up lines");
   }
 }
 
 void StationUnderTest::write_station_config() {
-  const fs::path src = testing::source_dir();
   unix_socket_ = (setup_.work_dir / "api.sock").string();
   // No switch: the calibration prompts, and the harness connects each standard on the
   // fixture control port as an operator would by hand.
@@ -155,13 +158,14 @@ void StationUnderTest::write_station_config() {
       {"recipe", fs::absolute(setup_.recipe).string()},
       {"instruments",
        {{{"role", "source"}, {"name", "siggen"}, {"address", source_address_},
-         {"profile", (src / "config/instruments/sim-source.jsonc").string()}},
+         {"profile", fs::absolute(setup_.source_profile).string()}},
         {{"role", "receiver"}, {"name", "analyzer"}, {"address", receiver_address_},
-         {"profile", (src / "config/instruments/sim-receiver.jsonc").string()}}}},
-      {"calibration_kit", (src / "config/kits/sim-kit.jsonc").string()},
-      {"fixture",
-       {{"coupling_db", 20}, {"mainline_loss_db", 0.5}, {"cable_loss_db", 0.3}, {"source_match_db", 25},
-        {"nominal_directivity_db", setup_.nominal_directivity_db}, {"test_port_delay_ns", 2}}},
+         {"profile", fs::absolute(setup_.receiver_profile).string()}}}},
+      {"calibration_kit", fs::absolute(setup_.calibration_kit).string()},
+      {"fixture", setup_.fixture ? *setup_.fixture
+                                 : json{{"coupling_db", 20}, {"mainline_loss_db", 0.5}, {"cable_loss_db", 0.3},
+                                        {"source_match_db", 25}, {"nominal_directivity_db", setup_.nominal_directivity_db},
+                                        {"test_port_delay_ns", 2}}},
       {"api", {{"unix_socket", unix_socket_}}}};
   if (!setup_.central_settings.empty()) station["central"] = setup_.central_settings.string();
   write_file(setup_.work_dir / "station.jsonc", station.dump(2) + "\n");

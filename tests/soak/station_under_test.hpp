@@ -1,6 +1,6 @@
-// A whole station on loopback for reliability and acceptance runs: echoline-sim (a bench config
-// and a lot: by default the instant bench and a generated lot), echolined pointed at the
-// simulator's endpoints, an API client on the daemon's Unix socket, the simulator's fixture
+// A whole station on loopback for reliability and acceptance runs: echoline-sim or another bench
+// program (a bench config and a lot: by default the instant bench and a generated lot), echolined
+// pointed at the bench's endpoints, an API client on the daemon's Unix socket, the bench's fixture
 // control port, and read-only access to the run store file.
 // Throws std::runtime_error for set-up failures (an edge). Not thread-safe: one driving thread.
 #pragma once
@@ -24,6 +24,11 @@ namespace echoline::soak {
 
 struct StationSetup {
   std::filesystem::path work_dir;   // REQUIRES: exists; gets the lot, configs, store and logs
+  // The bench program: echoline-sim, or another program started the same way
+  // (`PROGRAM --config <sim_config> --lot <lot> --log-file <file> --log-level warn`) that prints
+  // the same "endpoint role=... address=..." lines, then "ready", and answers the same fixture
+  // control requests (connect, units, truth).
+  std::filesystem::path bench_program = testing::sim_binary();
   // The simulator's bench (coupler, standards, instruments).
   std::filesystem::path sim_config = testing::source_dir() / "config/sim/instant.jsonc";
   // A lot file for the simulator (--lot); empty: a lot generated into work_dir from the three
@@ -35,6 +40,12 @@ struct StationSetup {
   std::filesystem::path recipe = testing::source_dir() / "config/recipes/whip915.jsonc";
   // The coupler's datasheet directivity written into the station config's fixture.
   double nominal_directivity_db = 30;
+  // The station config's instrument profiles, calibration kit and fixture; the defaults are
+  // echoline-sim's. A `fixture` object, when set, is written as it is (nominal_directivity_db unused).
+  std::filesystem::path source_profile = testing::source_dir() / "config/instruments/sim-source.jsonc";
+  std::filesystem::path receiver_profile = testing::source_dir() / "config/instruments/sim-receiver.jsonc";
+  std::filesystem::path calibration_kit = testing::source_dir() / "config/kits/sim-kit.jsonc";
+  std::optional<nlohmann::json> fixture;
   std::string lot_name = "SOAK-LOT";   // the lot the runs are stored under
   std::string client_name = "echoline-soak";   // the API hello's client name
   std::string station_name = "soak-bench";     // the station config's "station"
