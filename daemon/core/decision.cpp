@@ -261,19 +261,28 @@ void classify(const Recipe& recipe, const std::vector<PointResult>& points, cons
     // (a dip beyond the sweep edge shows only its skirt).
     if (wholly_below(lo)) return tuned(true, true);
     if (wholly_above(hi)) return tuned(false, true);
-    // The maximum on the sweep's first or last point: the dip lies at or beyond the sweep edge,
-    // so its depth is not seen; the tuning is what shows (certain only when the whole interval
-    // lies outside the band).
-    if (r.at_edge) {
-      const bool low = r.index == 0;
-      return tuned(low, low ? wholly_below(lo) : wholly_above(hi));
-    }
-    const double lim = limit_at(recipe.limits.mask, r.frequency_hz);
     // Placeable: the interval does not span the whole band (an open side counts as reaching
     // beyond the sweep), so the dip's position relative to the band is known.
     const double reach_low = r.low_open ? -kInf : r.low_hz;
     const double reach_high = r.high_open ? kInf : r.high_hz;
     const bool placeable = !(reach_low <= lo && reach_high >= hi);
+    // The maximum on the sweep's first or last point: the dip lies at or beyond the sweep edge,
+    // so its depth is not seen. The tuning is what shows when the interval can place the dip
+    // (certain only when the whole interval lies outside the band). When it cannot, the trace
+    // is a broad slope with its top at the edge: a lossy element looks so as much as a
+    // mistuned one, and nothing on this bench tells them apart.
+    if (r.at_edge) {
+      const bool low = r.index == 0;
+      if (placeable) return tuned(low, low ? wholly_below(lo) : wholly_above(hi));
+      d.failure_class = FailureClass::shallow;
+      d.reason = fmt::format(
+          "the dip is too broad to place: its top is at the sweep edge ({}) and with the measurement uncertainty the "
+          "resonance lies {}; {}; a lossy or damaged element or a poor match (check the feed, the solder joint and the "
+          "ground connection), so no trim advice",
+          format_mhz(r.frequency_hz), interval_text(r), mask->detail);
+      return;
+    }
+    const double lim = limit_at(recipe.limits.mask, r.frequency_hz);
     const bool deep = r.depth_db >= lim;
     if (!placeable || !deep) {
       d.failure_class = FailureClass::shallow;

@@ -348,6 +348,20 @@ TEST(JudgeDiagnosis, DipBelowTheSweepIsTunedLowWithTrimAdvice) {
   EXPECT_TRUE(j.trim) << j.reason;
 }
 
+// A lossy element whose shallow, broad dip tilts to a top at the sweep's start (7 dB there,
+// falling 1 dB every 150 MHz): the interval spans the band, so neither the dip's place nor its
+// depth is known. It is `shallow`, not tuned-low, and gets no trim advice (on a bench of wire
+// monopoles a corroded joint looked so and was once told "element too long").
+TEST(JudgeDiagnosis, BroadSlopeWithItsTopAtTheSweepEdgeIsShallowWithoutTrimAdvice) {
+  const auto plan = plan_frequencies(whip_recipe());
+  Judgement j = judge_mask_only([&](double f) { return 7.0 - (f - plan.front()) / 150e6; });
+  EXPECT_EQ(j.verdict, Verdict::fail) << j.reason;
+  EXPECT_EQ(j.failure_class, FailureClass::shallow) << j.reason;
+  EXPECT_FALSE(j.trim) << j.reason;
+  EXPECT_TRUE(has(j.reason, "too broad to place")) << j.reason;
+  EXPECT_FALSE(has(j.reason, "element too long")) << j.reason;
+}
+
 // An intermittent feed switches between open and good from one reading to the next: the trace
 // jumps. It is a broken feed, not a tuning problem: no-response and never trim advice.
 TEST(JudgeDiagnosis, ErraticTraceIsAnIntermittentFeedWithoutTrimAdvice) {
