@@ -266,23 +266,25 @@ void classify(const Recipe& recipe, const std::vector<PointResult>& points, cons
     const double reach_low = r.low_open ? -kInf : r.low_hz;
     const double reach_high = r.high_open ? kInf : r.high_hz;
     const bool placeable = !(reach_low <= lo && reach_high >= hi);
+    const double lim = limit_at(recipe.limits.mask, r.frequency_hz);
     // The maximum on the sweep's first or last point: the dip lies at or beyond the sweep edge,
-    // so its depth is not seen. The tuning is what shows when the interval can place the dip
-    // (certain only when the whole interval lies outside the band). When it cannot, the trace
-    // is a broad slope with its top at the edge: a lossy element looks so as much as a
-    // mistuned one, and nothing on this bench tells them apart.
+    // so its full depth is not seen. The tuning is what shows when the interval can place the
+    // dip (certain only when the whole interval lies outside the band), or when the edge
+    // already reads as deep as the limit: a working element, only off frequency. Otherwise the
+    // trace is a slope that nowhere meets the limit with its top at the edge; a lossy element
+    // looks so as much as one tuned far off, and only a wider sweep tells them apart.
     if (r.at_edge) {
       const bool low = r.index == 0;
-      if (placeable) return tuned(low, low ? wholly_below(lo) : wholly_above(hi));
+      if (placeable || r.depth_db >= lim) return tuned(low, low ? wholly_below(lo) : wholly_above(hi));
       d.failure_class = FailureClass::shallow;
       d.reason = fmt::format(
-          "the dip is too broad to place: its top is at the sweep edge ({}) and with the measurement uncertainty the "
-          "resonance lies {}; {}; a lossy or damaged element or a poor match (check the feed, the solder joint and the "
-          "ground connection), so no trim advice",
-          format_mhz(r.frequency_hz), interval_text(r), mask->detail);
+          "the dip is too broad to place: its top is at the sweep edge ({}, {}, below the {} limit) and with the "
+          "measurement uncertainty the resonance lies {}; {}; a lossy or damaged element or a poor match (check the "
+          "feed, the solder joint and the ground connection), or a dip far beyond the sweep edge (a wider sweep tells "
+          "them apart); no trim advice",
+          format_mhz(r.frequency_hz), db_text(r.depth_db), limit_text(lim), interval_text(r), mask->detail);
       return;
     }
-    const double lim = limit_at(recipe.limits.mask, r.frequency_hz);
     const bool deep = r.depth_db >= lim;
     if (!placeable || !deep) {
       d.failure_class = FailureClass::shallow;
