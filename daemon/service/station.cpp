@@ -49,8 +49,8 @@ json findings_json(const std::vector<core::CheckFinding>& findings) {
 }
 
 // The reason of a run the instruments stopped begins "instrument trouble: " in the operator's
-// words, then the driver's message (instrument, command, reply); the console and the pages read
-// that prefix to tell instrument trouble from other aborts (exit code 4, "call the engineer").
+// words, then the driver's message (instrument, command, reply); the console reads that prefix
+// to tell instrument trouble from other aborts (exit code 4, "call the engineer").
 std::string aborted_reason(const Error& e) {
   switch (e.kind) {
     case ErrorKind::timeout:
@@ -62,6 +62,15 @@ std::string aborted_reason(const Error& e) {
     default:
       return e.message;
   }
+}
+
+// Why the newest calibration does not count, the same words while running and after a restart:
+// its first error is the cause (a calibration that failed its sanity checks lists them first; a
+// valid one later invalidated by a drifted check standard has that as its only error; what the
+// store adds on loading comes after).
+std::string not_valid_text(const core::CalibrationRecord& c) {
+  return fmt::format("the last calibration ({}) was not valid: {}", c.id,
+                     c.errors.empty() ? std::string("sanity checks failed") : c.errors.front());
 }
 
 std::string random_hex4() {
@@ -228,9 +237,7 @@ Station::Station(drivers::StationConfig config) : config_(std::move(config)) {
                  calibration_->units_since);
   } else if (latest->has_value()) {
     // Not loaded; say why (e.g. invalidated by a drifted check standard before a restart).
-    const auto& errors = latest->value().errors;
-    check_failure_ = fmt::format("calibration {} is not valid: {}", latest->value().id,
-                                 errors.empty() ? std::string("sanity checks failed") : errors.back());
+    check_failure_ = not_valid_text(latest->value());
     spdlog::warn("{}", check_failure_);
   }
 }
@@ -455,7 +462,7 @@ TestOutcome Station::run_test(const TestRequest& request, const CancelToken& can
     return finish();
   }
   if (Status s = instruments_->ensure_ready(); !s) {
-    run.reason = fmt::format("instrument not ready: {}", s.error().message);
+    run.reason = fmt::format("{}not ready: {}", core::kInstrumentTroublePrefix, s.error().message);
     return finish();
   }
   if (auto* sw = instruments_->switch_()) {
@@ -583,9 +590,7 @@ CalibrationOutcome Station::run_calibration(Prompter& prompter, const CancelToke
     // no unit is judged until a calibration comes out valid. A restart reads the same from the
     // store (the newest calibration is this one), so the two never disagree.
     std::lock_guard lock(mu_);
-    failed_calibration_ = rec.errors.empty()
-                              ? fmt::format("the last calibration ({}) was not valid", rec.id)
-                              : fmt::format("the last calibration ({}) was not valid: {}", rec.id, rec.errors.front());
+    failed_calibration_ = not_valid_text(rec);
     check_failure_ = failed_calibration_;
   }
   spdlog::info("calibration {}: {} (min directivity {:.1f} dB, {} warnings)", rec.id, rec.valid ? "valid" : "NOT valid",

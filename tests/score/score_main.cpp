@@ -56,7 +56,8 @@ Inputs load_inputs(const ScoreOptions& o) {
       const drivers::JsoncDocument fixture = drivers::JsoncDocument::load(o.fixture);
       fixture.require_object(drivers::JsonPointer(""));
       in.fixture = fixture.root();
-      in.directivity_db = fixture.optional_number(drivers::JsonPointer("/nominal_directivity_db"), "dB");
+      // The fixture's datasheet directivity when it states one; else the bench file's.
+      if (auto d = fixture.optional_number(drivers::JsonPointer("/nominal_directivity_db"), "dB")) in.directivity_db = d;
     }
   } catch (const drivers::ConfigError& e) {
     std::fprintf(stderr, "echoline-score: %s\n", e.what());

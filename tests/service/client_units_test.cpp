@@ -181,7 +181,7 @@ TEST(ClientAdvice, InconclusiveThatNoRetestCanSettleGoesToEngineering) {
 }
 
 TEST(ClientAdvice, AbortedIsNeverJudged) {
-  json run = {{"verdict", "aborted"}, {"reason", "instrument not ready: analyzer: timeout"}};
+  json run = {{"verdict", "aborted"}, {"reason", "instrument trouble: not ready: analyzer: timeout"}};
   EXPECT_EQ(advise(run, false).action, "Instrument trouble: unit not judged, test it again.");
   json cancelled = {{"verdict", "aborted"}, {"reason", "cancelled by request"}};
   EXPECT_NE(advise(cancelled, false).action.find("not judged"), std::string::npos);

@@ -92,10 +92,18 @@ TEST_F(DaemonApi, ACalibrationThatIsNotValidAfterAValidOneStopsTestingUntilTheNe
   EXPECT_EQ(refused["error"]["code"], "calibration_due") << refused.dump();
   EXPECT_NE(refused["error"]["message"].get<std::string>().find("was not valid"), std::string::npos) << refused.dump();
 
+  // After a restart the station is due for the same reason, in the same words.
+  daemon_.reset();
+  daemon_.emplace(config_);
+  Api again = connect();
+  json refused_again = again.call("test.start", {{"serial", "TINY-02"}});
+  ASSERT_FALSE(refused_again.value("ok", true)) << refused_again.dump();
+  EXPECT_EQ(refused_again["error"]["message"], refused["error"]["message"]) << refused_again.dump();
+
   // A valid calibration clears it.
-  ASSERT_TRUE(calibrate(api, *sim_)["calibration"]["valid"].get<bool>());
+  ASSERT_TRUE(calibrate(again, *sim_)["calibration"]["valid"].get<bool>());
   sim_->connect_unit("TINY-02");
-  EXPECT_TRUE(api.call("test.start", {{"serial", "TINY-02"}}).value("ok", false));
+  EXPECT_TRUE(again.call("test.start", {{"serial", "TINY-02"}}).value("ok", false));
 }
 
 // An operator who answers that the standard is not connected cancels the calibration; the error
