@@ -1,6 +1,9 @@
 // The stored budget (calibrations.budget_json) keeps the directivity vector from known
 // mismatches, the mismatch standards' definitions and a fast capture's frequency offset when a
 // calibration has them, and budgets stored before they existed still load.
+#include <cmath>
+#include <limits>
+
 #include <gtest/gtest.h>
 
 #include "daemon/store/budget_json.hpp"
@@ -67,6 +70,33 @@ TEST(BudgetJson, ABudgetWithoutItStaysWithout) {
   ASSERT_TRUE(back);
   EXPECT_FALSE(back->has_directivity_vector());
   EXPECT_EQ(budget_to_json(two_points()).find("directivity_re"), std::string::npos);
+}
+
+// A calibration that failed its checks can hold an infinite directivity bound (the LOAD read as
+// loud as the OPEN) or a NaN. JSON has no such numbers (RFC 8259 §6); the budget still reads
+// back whole, so a failed calibration is kept and shown as it was, not as "unreadable". Text
+// stored when they were written as null reads back as NaN.
+TEST(BudgetJson, InfinityAndNaNReadBack) {
+  core::UncertaintyBudget b = two_points();
+  b.directivity_bound = {std::numeric_limits<double>::infinity(), 0.03};
+  b.reference_error_low_db = {-std::numeric_limits<double>::infinity(), -0.05};
+  b.directivity_measured = {std::numeric_limits<double>::quiet_NaN(), 0.02};
+  const std::string text = budget_to_json(b);
+  const auto back = budget_from_json(text);
+  ASSERT_TRUE(back) << text;
+  EXPECT_TRUE(std::isinf(back->directivity_bound[0]) && back->directivity_bound[0] > 0) << text;
+  EXPECT_TRUE(std::isinf(back->reference_error_low_db[0]) && back->reference_error_low_db[0] < 0) << text;
+  EXPECT_TRUE(std::isnan(back->directivity_measured[0])) << text;
+  EXPECT_EQ(back->directivity_bound[1], 0.03);
+  EXPECT_EQ(budget_to_json(*back), text);
+
+  std::string old = text;
+  old.replace(old.find("\"inf\""), 5, "null");
+  const auto from_null = budget_from_json(old);
+  ASSERT_TRUE(from_null) << old;
+  EXPECT_TRUE(std::isnan(from_null->directivity_bound[0]));
+  EXPECT_FALSE(budget_from_json(text.substr(0, text.find("\"inf\"")) + "\"infinite\"" +
+                                text.substr(text.find("\"inf\"") + 5)));
 }
 
 TEST(BudgetJson, AShortDirectivityVectorIsRefused) {
