@@ -301,8 +301,6 @@ json Station::calibration_json() const {
   core::CalibrationState st = core::calibration_due(calibration_ ? &*calibration_ : nullptr, *recipe_, unix_now_s(),
                                                     calibration_created_s_, std::nullopt, offset_hz);
   if (!check_failure_.empty()) st = {true, check_failure_};
-  // A calibration just made that came out not valid is what the operator needs to hear about.
-  if (st.due && !failed_calibration_.empty()) st.reason = failed_calibration_;
   if (calibration_) {
     j.update(calibration_summary_json(*calibration_));
     // When the next calibration falls due by age or by count (a drifted check standard or a
@@ -584,14 +582,12 @@ CalibrationOutcome Station::run_calibration(Prompter& prompter, const CancelToke
     calibration_created_s_ = now;
     units_since_check_ = 0;
     check_failure_.clear();
-    failed_calibration_.clear();
   } else {
     // The bench no longer calibrates cleanly, so an older calibration no longer describes it:
     // no unit is judged until a calibration comes out valid. A restart reads the same from the
     // store (the newest calibration is this one), so the two never disagree.
     std::lock_guard lock(mu_);
-    failed_calibration_ = not_valid_text(rec);
-    check_failure_ = failed_calibration_;
+    check_failure_ = not_valid_text(rec);
   }
   spdlog::info("calibration {}: {} (min directivity {:.1f} dB, {} warnings)", rec.id, rec.valid ? "valid" : "NOT valid",
                rec.min_directivity_db, rec.warnings.size());

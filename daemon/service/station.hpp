@@ -140,10 +140,10 @@ class Station {
   std::optional<core::CalibrationRecord> calibration_;
   double calibration_created_s_ = 0;
   int units_since_check_ = 0;
-  std::string check_failure_;   // check standard drifted, or the stored calibration is not valid: calibration due
-  // The latest calibration made came out not valid ("the last calibration (<id>) was not valid:
-  // <why>"); while a calibration is due this is the reason given. Cleared by a valid one.
-  std::string failed_calibration_;
+  // Why a calibration is due whatever its age: a drifted check standard, or the newest
+  // calibration is not valid ("the last calibration (<id>) was not valid: <why>"). Cleared by a
+  // valid calibration.
+  std::string check_failure_;
   std::uint64_t run_counter_ = 0;   // counts on from the store's last run number
   std::string instance_id_;          // the store's random instance id (run ids)
   // How long the store took to record runs (begin_run + save_run of one run), for status: the
