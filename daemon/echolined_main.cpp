@@ -253,14 +253,24 @@ int run(const Args& args) {
   so.tcp_port = config.api.tcp_port;
   so.token_configured = !token.empty();
   auto server = service::ApiServer::create(handler, so);
-  station.connect_instruments();
-  // The pages serve from their own thread as soon as they exist, so they start only after the
-  // instruments are connected (a test started from a page would otherwise drive the instruments
-  // beside the connect). They watch the handler's jobs: started before the API serves, stopped
-  // after the handler.
+  // The API serves while the instruments connect: an instrument that does not answer holds the
+  // connect for its timeouts, and a client meanwhile hears "busy: instrument connect is
+  // running" instead of waiting unanswered. The "listening" line and READY=1 still come after.
+  std::thread io([&] { server->run(); });
+  struct IoGuard {   // a throw from here on (pages' port taken) stops the io thread first
+    service::ApiServer& server;
+    std::thread& io;
+    ~IoGuard() {
+      if (!io.joinable()) return;
+      server.stop();
+      io.join();
+    }
+  } io_guard{*server, io};
+  handler.run_busy("instrument connect", [&] { station.connect_instruments(); });
+  // The pages serve from their own thread as soon as they exist; they watch the handler's jobs
+  // and are stopped after the handler.
   std::unique_ptr<web::WebServer> pages;
   if (config.web.port != 0) pages = std::make_unique<web::WebServer>(handler, station, web::WebOptions{config.web.host, config.web.port, token});
-  std::thread io([&] { server->run(); });
 
   const std::string web_address = pages ? "http://" + pages->address() + "/" : "";
   std::cout << "listening unix=" << server->unix_path() << " tcp=" << server->tcp_address() << " web=" << web_address

@@ -133,6 +133,23 @@ void ApiHandler::finish_and_stop() {
   if (worker_.joinable()) worker_.join();
 }
 
+void ApiHandler::run_busy(const std::string& kind, const std::function<void()>& work) {
+  {
+    std::lock_guard lock(mu_);
+    busy_ = true;
+    busy_info_ = {{"kind", kind}};
+  }
+  struct Idle {
+    ApiHandler& h;
+    ~Idle() {
+      std::lock_guard lock(h.mu_);
+      h.busy_ = false;
+      h.busy_info_ = nullptr;
+    }
+  } idle{*this};
+  work();
+}
+
 void ApiHandler::reply(const std::shared_ptr<ClientLink>& link, const json& id, json result) {
   link->send(reply_ok(id, std::move(result)));
 }

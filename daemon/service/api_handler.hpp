@@ -69,6 +69,12 @@ class ApiHandler {
   // answer its prompts); returns when the worker is idle.
   void finish_and_stop();
 
+  // Runs `work` on the calling thread with the station busy as `kind` (no job may start; status
+  // shows it), so clients served meanwhile are answered "busy" instead of waiting. The daemon
+  // connects its instruments this way at start-up, when an instrument that does not answer can
+  // hold it for its timeouts. REQUIRES: idle.
+  void run_busy(const std::string& kind, const std::function<void()>& work);
+
  private:
   class CalPrompter;
   using Json = nlohmann::json;

@@ -1,0 +1,54 @@
+// echolined answers its clients while it connects the instruments: a generator that is slow to
+// answer holds the start-up for seconds, and a client that asks meanwhile hears "busy:
+// instrument connect" at once instead of waiting unanswered. "listening" still means ready.
+#include <filesystem>
+#include <thread>
+
+#include <gtest/gtest.h>
+
+#include "tests/core/e2e_station.hpp"
+
+namespace echoline::e2e {
+namespace {
+
+TEST(DaemonStartup, AClientIsAnsweredBusyWhileTheInstrumentsConnect) {
+  testing::TempDir dir("echoline-startup");
+  Sim sim("tiny-lot.jsonc");
+  // Every reply of the generator 1.5 s late (inside its 2 s timeout): the connect's queries
+  // (identity, status, errors) then take several seconds.
+  json armed = sim.control({{"cmd", "fault"}, {"role", "source"}, {"kind", "slow-reply"}, {"probability", 1},
+                            {"seed", 1}, {"delay_ms", 1500}});
+  ASSERT_TRUE(armed.value("ok", false)) << armed.dump();
+  const auto config = write_station_config(dir.path(), sim);
+  const auto socket = dir.path() / "echolined.sock";
+  auto daemon = testing::ChildProcess::start(
+      {testing::daemon_binary().string(), "--config", config.string(), "--log-level", "warn", "--no-log-file"});
+
+  // The socket is bound before any instrument is touched.
+  const auto deadline = std::chrono::steady_clock::now() + 20s;
+  while (!std::filesystem::exists(socket) && std::chrono::steady_clock::now() < deadline) {
+    std::this_thread::sleep_for(20ms);
+  }
+  ASSERT_TRUE(std::filesystem::exists(socket)) << "echolined did not bind " << socket;
+  Api api(LineSocket::unix_socket(socket.string()));
+  const auto asked = std::chrono::steady_clock::now();
+  json status = api.call("status");
+  const double waited_s = std::chrono::duration<double>(std::chrono::steady_clock::now() - asked).count();
+  ASSERT_TRUE(status.value("ok", false)) << status.dump();
+  const json& busy = status["result"]["busy"];
+  EXPECT_TRUE(busy.is_object() && busy.value("kind", "") == "instrument connect") << status.dump();
+  EXPECT_LT(waited_s, 1.0) << "the status reply waited for the connect";   // one slow reply alone is 1.5 s
+  json refused = api.call("test.start", {{"serial", "TINY-01"}});
+  EXPECT_FALSE(refused.value("ok", true)) << refused.dump();
+  EXPECT_EQ(refused["error"].value("code", ""), "busy") << refused.dump();
+  EXPECT_NE(refused["error"].value("message", "").find("instrument connect"), std::string::npos) << refused.dump();
+
+  // Then the daemon becomes ready as before, and is idle.
+  ASSERT_TRUE(daemon.wait_for_line("listening ", 60s).has_value());
+  json after = api.call("status");
+  EXPECT_TRUE(after["result"]["busy"].is_null()) << after.dump();
+  EXPECT_GE(daemon.terminate(30s), 0);
+}
+
+}  // namespace
+}  // namespace echoline::e2e
