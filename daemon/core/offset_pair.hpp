@@ -1,0 +1,54 @@
+// The offset pair: a unit read twice, once on the test port and once through an offset line
+// that turns its reflection by about half a turn. The sum of the two powers (the second scaled
+// by the line's loss) no longer holds the leakage-times-unit cross term (parallelogram law), so
+// |Γ| is bounded by second-order terms instead of by the directivity. Pure; thread-safe.
+// Derivation, assumptions and numbers: daemon/core/MEASUREMENT.md §12. Not yet measured by the
+// station (no recipe or fixture reads a unit twice); this module is the computation it will use.
+#pragma once
+
+namespace echoline::core {
+
+// The offset line between the test port and the unit for the second reading (a quarter-wave
+// adapter, or a switched-line arm).
+struct OffsetLine {
+  double delay_s = 0;             // one-way electrical delay, nominal (1/(4·f) turns Γ by half a turn at f)
+  double delay_tolerance_s = 0;   // |true − nominal| at most
+  double loss_db = 0;             // one-way insertion loss, nominal, dB (≥ 0)
+  double loss_tolerance_db = 0;   // |true − nominal| at most
+  double match = 0;               // |S11|, |S22| bound of the line as connected, linear (connection included)
+};
+
+// One point of the pair, as the station has it.
+struct OffsetPairPoint {
+  double frequency_hz = 0;
+  double p_direct = 0;            // 10^((P − R)/10): the unit on the port, relative to the reference R
+  double p_offset = 0;            // the same through the offset line
+  double reference_low_db = 0;    // R − T ∈ [low, high] (bounded), as in the budget (§3.2)
+  double reference_high_db = 0;
+  double reference_sigma_db = 0;  // standard uncertainty of R (common to both readings)
+  double sigma_direct_db = 0;     // standard uncertainty of each reading, dB (§3.4)
+  double sigma_offset_db = 0;
+  double coverage_factor = 3;     // k for the statistical terms
+  double directivity_low = 0;     // |E_D| ∈ [low, high] relative to T, linear (low = 0 is always safe)
+  double directivity_high = 0;
+  double source_match = 0;        // |E_S| bound, linear
+};
+
+struct OffsetPairInterval {
+  double gamma_low = 0, gamma_high = 1;   // |Γ| of the unit (bounded terms worst case + k·statistical)
+  double turn_error_rad = 0;     // largest |arg(offset turn) − π| the line's delay allows at this frequency
+  double residual = 0;           // bound on the terms the sum leaves (|Γ|² units, before dividing by 1 + a)
+  double g2_sigma = 0;           // standard uncertainty of |Γ|² from the noise
+  // false when the line's delay tolerance allows a turn more than a quarter turn from half a
+  // turn at this frequency: the pair then cancels too little to be worth using (gamma_* = [0, 1]).
+  bool usable = false;
+};
+
+// REQUIRES: p_direct, p_offset > 0; directivity_low ≤ directivity_high; source_match, match < 0.5.
+OffsetPairInterval combine_offset_pair(const OffsetPairPoint& point, const OffsetLine& line);
+
+// The largest |arg(t²) − π| over the line's delay tolerance at `frequency_hz` (t: the line's
+// one-way transmission), radians in [0, π].
+double offset_turn_error(double frequency_hz, const OffsetLine& line);
+
+}  // namespace echoline::core
