@@ -83,17 +83,19 @@ std::optional<Vertex> parabola_vertex(double x0, double y0, double x1, double y1
 //   RL_best(f*) ≥ RL_true(f*) ≥ RL_true(f_p) ≥ RL_worst(f_p),
 // so f* lies where RL_best(f) ≥ RL_worst(f_p). The directivity error's phase turns with
 // frequency, which tilts the measured curve and moves the apparent peak; this interval covers
-// that shift without knowing the phase. We take the contiguous region around f_p (a second
-// region would be a second dip nearly as deep, not this resonance), interpolate RL_best
-// linearly at its edges, and widen each edge by half the local point step because RL_best is
-// known only at the samples. A region reaching a sweep end is open: the maximum may lie beyond.
+// that shift without knowing the phase. Every sample where RL_best ≥ RL_worst(f_p) qualifies,
+// also one in a second dip apart from the peak's (its true return loss may be the larger), so
+// the interval runs from the first qualifying sample to the last: one interval covering every
+// region. RL_best is interpolated linearly at its outer edges, and each edge widened by half
+// the local point step because RL_best is known only at the samples. An interval reaching a
+// sweep end is open: the maximum may lie beyond.
 // Used for guarded acceptance of the resonance window (JCGM 106:2012 §8.3.2, clause from memory).
 Band resonance_interval(const std::vector<PointResult>& points, std::size_t peak) {
   Band b;
   const double level = points[peak].return_loss_worst_db;
   const auto best = [&](std::size_t i) { return points[i].return_loss_best_db; };
-  std::size_t lo = peak;
-  while (lo > 0 && best(lo - 1) >= level) --lo;
+  std::size_t lo = 0;
+  while (lo < peak && !(best(lo) >= level)) ++lo;
   if (lo == 0) {
     b.low_hz = points.front().frequency_hz;
     b.low_open = true;
@@ -102,8 +104,8 @@ Band resonance_interval(const std::vector<PointResult>& points, std::size_t peak
     b.low_hz = crossing_hz(points[lo].frequency_hz, best(lo), points[lo - 1].frequency_hz, best(lo - 1), level) -
                step / 2;
   }
-  std::size_t hi = peak;
-  while (hi + 1 < points.size() && best(hi + 1) >= level) ++hi;
+  std::size_t hi = points.size() - 1;
+  while (hi > peak && !(best(hi) >= level)) --hi;
   if (hi + 1 == points.size()) {
     b.high_hz = points.back().frequency_hz;
     b.high_open = true;
@@ -250,6 +252,17 @@ std::optional<ShiftBound> resonance_shift_bound(const std::vector<PointResult>& 
   return ShiftBound{f_pk + xv * 1e6, hw * 1e6};
 }
 
+bool another_dip_qualifies(const std::vector<PointResult>& points, std::size_t peak) {
+  const double level = points[peak].return_loss_worst_db;
+  std::size_t lo = peak, hi = peak;
+  while (lo > 0 && points[lo - 1].return_loss_best_db >= level) --lo;
+  while (hi + 1 < points.size() && points[hi + 1].return_loss_best_db >= level) ++hi;
+  for (std::size_t i = 0; i < points.size(); ++i) {
+    if ((i < lo || i > hi) && points[i].return_loss_best_db >= level) return true;
+  }
+  return false;
+}
+
 std::optional<Resonance> find_resonance(const std::vector<PointResult>& points, const ShiftContext* context) {
   if (points.empty()) return std::nullopt;
   std::size_t best = 0;
@@ -285,8 +298,11 @@ std::optional<Resonance> find_resonance(const std::vector<PointResult>& points, 
   // The rigorous interval lets every point's error take its worst phase independently; the
   // coupler's and cable's errors are smooth over a dip, so where the dip meets the shift
   // bound's assumptions that interval is the tighter honest one (both hold: the intersection).
+  // A second dip whose best case reaches the peak's worst case may hold the true maximum: the
+  // shift bound, which follows one dip, does not apply, and the rigorous interval spans both.
   const ShiftContext own = context ? ShiftContext{} : context_from_bounds(points);
-  if (auto sb = resonance_shift_bound(points, best, context ? *context : own)) {
+  if (auto sb = another_dip_qualifies(points, best) ? std::nullopt
+                                                     : resonance_shift_bound(points, best, context ? *context : own)) {
     const double low = sb->center_hz - sb->half_width_hz;
     const double high = sb->center_hz + sb->half_width_hz;
     if (low > r.low_hz) {

@@ -78,11 +78,15 @@ struct Resonance {
 // worst-case bounds and the error delay is 5 ns, with no statistical term.
 std::optional<Resonance> find_resonance(const std::vector<PointResult>& points, const ShiftContext* context = nullptr);
 
-// Contiguous region around sample `peak` where the best-case RL reaches the worst-case RL of
-// the peak sample, edges linearly interpolated and widened by half the local point step, and
-// reaching the sweep edge ("open") when the region does. Used by find_resonance.
+// From the first to the last sample where the best-case RL reaches the worst-case RL of sample
+// `peak` (a second dip that qualifies is inside), outer edges linearly interpolated and widened
+// by half the local point step, and reaching the sweep edge ("open") when a qualifying sample
+// lies on it. Used by find_resonance.
 // REQUIRES: peak < points.size().
 Band resonance_interval(const std::vector<PointResult>& points, std::size_t peak);
+// True when a sample apart from the peak's own region (a second dip) has a best case reaching
+// the peak's worst case: the true maximum may lie there.
+bool another_dip_qualifies(const std::vector<PointResult>& points, std::size_t peak);
 
 // The interval the true resonance lies in when the error terms are smooth over the dip, as a
 // coupler's and a cable's are (derivation in daemon/core/MEASUREMENT.md, "Where the resonance can

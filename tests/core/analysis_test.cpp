@@ -107,6 +107,32 @@ TEST(Analysis, BoundIntervalReachingTheSweepEdgeIsOpen) {
   EXPECT_LT(r->high_hz, 870.5e6);
 }
 
+// Two dips: one reading 20 dB at 915 MHz and one reading 16 dB at 950 MHz behind a 28 dB coupler
+// (|d| 0.04). The second one's best case (|Γ| 0.158 − 0.04: 18.6 dB) reaches the first one's worst
+// case (0.1 + 0.04: 17.1 dB), so the true maximum may be at 950 MHz: the interval must hold both,
+// and the shift bound, which follows one dip, must not narrow it (the one-port bounds of
+// MEASUREMENT.md §3.6; the numbers from rf_math).
+TEST(Analysis, ASecondDipThatMayBeDeeperIsInsideTheResonanceInterval) {
+  auto dip = [](double f, double f0, double depth) {
+    const double x = (f - f0) / 6e6;
+    return depth / (1 + x * x);
+  };
+  auto pts = trace(860e6, 0.5e6, 221, [&](double f) { return std::max({3.0, dip(f, 915e6, 20), dip(f, 950e6, 16)}); }, 28);
+  auto r = find_resonance(pts);
+  ASSERT_TRUE(r);
+  EXPECT_NEAR(r->frequency_hz, 915e6, 0.5e6);
+  EXPECT_TRUE(another_dip_qualifies(pts, r->index));
+  EXPECT_LE(r->low_hz, 915e6);
+  EXPECT_GE(r->high_hz, 950e6) << "the interval stops at " << r->high_hz / 1e6 << " MHz";
+  EXPECT_FALSE(r->shift_bound_used);
+  // A second dip too shallow to matter (10 dB: best case 12.0 dB, under 17.1 dB) leaves it alone.
+  auto one = trace(860e6, 0.5e6, 221, [&](double f) { return std::max({3.0, dip(f, 915e6, 20), dip(f, 950e6, 10)}); }, 28);
+  auto r1 = find_resonance(one);
+  ASSERT_TRUE(r1);
+  EXPECT_FALSE(another_dip_qualifies(one, r1->index));
+  EXPECT_LT(r1->high_hz, 935e6);
+}
+
 // Unequal spacing around the maximum (a joint between segments) still gives the exact vertex.
 TEST(Analysis, ParabolaVertexWithUnequalSpacing) {
   auto y = [](double x) { return 5.0 - 3.0 * (x - 1.3) * (x - 1.3); };
