@@ -5,7 +5,9 @@
 #include <cerrno>
 #include <cstdlib>
 #include <fstream>
+#include <iostream>
 #include <sstream>
+#include <thread>
 
 #include <fmt/format.h>
 
@@ -172,7 +174,28 @@ std::unique_ptr<ApiClient> connect_daemon(const Args& args, const std::string& r
     throw CliExit(exit_code_for_api_error(hello->code),
                   fmt::format("the daemon refused the {} role ({}): {}", role, hello->code, hello->message));
   }
+  wait_while_instruments_connect(*api, std::cerr);
   return api;
+}
+
+bool wait_while_instruments_connect(ApiClient& api, std::ostream& note, std::chrono::seconds limit) {
+  const auto deadline = std::chrono::steady_clock::now() + limit;
+  bool said = false;
+  for (;;) {
+    auto st = api.call("status", nlohmann::json::object());
+    if (!st || !st->ok) return true;   // the caller's own request reports what is wrong
+    const nlohmann::json& busy = st->result.contains("busy") ? st->result["busy"] : nlohmann::json();
+    if (!busy.is_object() || busy.value("kind", "") != "instrument connect") {
+      if (said) note << "The instruments are connected.\n" << std::flush;
+      return true;
+    }
+    if (std::chrono::steady_clock::now() >= deadline) return false;
+    if (!said) {
+      note << "echolined is starting: it is connecting the instruments. Waiting...\n" << std::flush;
+      said = true;
+    }
+    std::this_thread::sleep_for(std::chrono::milliseconds(250));
+  }
 }
 
 void require_ok(const ApiReply& reply, const std::string& what) {

@@ -4,6 +4,9 @@
 // One thread.
 #pragma once
 
+#include <chrono>
+#include <ostream>
+
 #include <filesystem>
 #include <map>
 #include <memory>
@@ -65,7 +68,14 @@ std::filesystem::path store_file(const drivers::StationConfig& config);
 // $ECHOLINE_SOCKET, else the station config's api.unix_socket. Token: --token-file, else the
 // config's api.token_file when readable. Throws CliExit: kExitUnreachable when the daemon
 // cannot be reached, kExitUsage when no address is known or the token is refused.
+// After hello it waits (a line on stderr) while the daemon is still connecting its instruments
+// at start-up, so every command sees the station as it will be once ready.
 std::unique_ptr<ApiClient> connect_daemon(const Args& args, const std::string& role, const std::string& client_name);
+
+// Polls status while the daemon's busy kind is "instrument connect" (its start-up), saying once on
+// `note` that it waits. False when `limit` passed first; true otherwise (also when status fails:
+// the caller's next request reports that).
+bool wait_while_instruments_connect(ApiClient& api, std::ostream& note, std::chrono::seconds limit = std::chrono::seconds(120));
 
 // Throws CliExit for a refused reply: the exit code from the API error code, the message
 // prefixed with `what`.

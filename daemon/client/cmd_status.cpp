@@ -65,6 +65,21 @@ constexpr const char* kCalHelp =
     "exit: 0 shown, 1 no calibration stored (history), 2 usage, 3 daemon unreachable,\n"
     "      5 storage error\n\n";
 
+// The daemon's busy object in words: "no", "test of WH915A-0007 (point 12 of 221)",
+// "calibration (waiting for SHORT to be connected)", "probe", "instrument connect".
+std::string busy_text(const json& b) {
+  if (!b.is_object()) return "no";
+  std::string text = b.value("kind", "job");
+  if (text == "test") text += " of " + b.value("serial", std::string("?"));
+  if (b.value("waiting", false) && b.contains("standard")) {
+    text += fmt::format(" (waiting for {} to be connected)", b.value("standard", std::string("?")));
+  } else if (b.contains("point") && b.contains("of")) {
+    text += fmt::format(" (point {} of {}{})", b.value("point", 0), b.value("of", 0),
+                        b.contains("standard") ? ", " + b.value("standard", std::string()) : std::string());
+  }
+  return text;
+}
+
 bool all_healthy(const json& st) {
   bool healthy = true;
   if (st.contains("instruments")) {
@@ -151,7 +166,7 @@ int cmd_status(const Argv& argv) {
                                s(f, "last_forwarded_run").empty() ? "" : " (" + s(f, "last_forwarded_run") + ")");
     }
   }
-  std::cout << "busy: " << (st.contains("busy") && !st["busy"].is_null() ? st["busy"].dump() : std::string("no")) << "\n";
+  std::cout << "busy: " << busy_text(st.contains("busy") ? st["busy"] : json()) << "\n";
   return healthy ? kExitOk : kExitInstrument;
 }
 

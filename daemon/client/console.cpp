@@ -1,5 +1,7 @@
 #include "daemon/client/console.hpp"
 
+#include "daemon/client/cli.hpp"
+
 #include <chrono>
 #include <thread>
 
@@ -371,6 +373,12 @@ Console::Outcome Console::test_unit(const std::string& serial, bool again) {
       return lost(make_error(ErrorKind::closed, fmt::format("the daemon is stopping: {}", reply->message)));
     }
     if (!reply->ok) {
+      // A daemon that has just restarted may still be connecting its instruments.
+      if (reply->code == "busy" && reply->message.find("instrument connect") != std::string::npos &&
+          wait_while_instruments_connect(api_, out_)) {
+        --attempt;
+        continue;
+      }
       // The daemon may still be closing the previous job for a moment after its result event.
       if (reply->code == "busy" && busy_waits++ < 50) {
         std::this_thread::sleep_for(std::chrono::milliseconds(100));

@@ -43,6 +43,14 @@ TEST(DaemonStartup, AClientIsAnsweredBusyWhileTheInstrumentsConnect) {
   EXPECT_EQ(refused["error"].value("code", ""), "busy") << refused.dump();
   EXPECT_NE(refused["error"].value("message", "").find("instrument connect"), std::string::npos) << refused.dump();
 
+  // The client waits for the connect to end, says so, then shows the station as it is once
+  // ready (README "Exit codes": 0 shown, every instrument ready).
+  const testing::Outcome shown =
+      testing::run_to_end({testing::client_binary().string(), "status", "--socket", socket.string()}, {}, 60s);
+  EXPECT_EQ(shown.code, 0) << shown.output;
+  EXPECT_NE(shown.output.find("connecting the instruments"), std::string::npos) << shown.output;
+  EXPECT_EQ(shown.output.find("busy: {"), std::string::npos) << shown.output;
+
   // Then the daemon becomes ready as before, and is idle.
   ASSERT_TRUE(daemon.wait_for_line("listening ", 60s).has_value());
   json after = api.call("status");
