@@ -188,9 +188,9 @@ Station::Station(drivers::StationConfig config) : config_(std::move(config)) {
   auto instance = store_->instance_id();
   if (!instance) throw std::runtime_error(instance.error().message);
   instance_id_ = *instance;
-  auto last_seq = store_->last_run_seq();
-  if (!last_seq) throw std::runtime_error(last_seq.error().message);
-  run_counter_ = static_cast<std::uint64_t>(*last_seq);
+  auto last_number = store_->last_run_number();
+  if (!last_number) throw std::runtime_error(last_number.error().message);
+  run_counter_ = static_cast<std::uint64_t>(*last_number);
 
   // Runs are queued for forwarding only when a central database is configured (before the runs
   // left in progress are finalized, so they follow the same rule). A station that gets one later

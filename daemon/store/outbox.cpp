@@ -2,6 +2,8 @@
 // the central database (in commit order), whether runs are queued at all (not on a station without
 // a central database), and the forwarder's last success. Same connection and mutex as the rest of
 // RunStore (run_store_impl.hpp).
+#include <algorithm>
+
 #include <fmt/format.h>
 
 #include "daemon/store/run_store.hpp"
@@ -95,6 +97,31 @@ Result<std::string> RunStore::instance_id() {
 Result<long long> RunStore::last_run_seq() {
   std::lock_guard lock(impl_->mutex);
   auto n = impl_->db.query_int("SELECT coalesce(max(seq), 0) FROM runs");
+  if (!n.ok()) return impl_->fail(n.error(), "reading the last run number");
+  return n.value();
+}
+
+Result<long long> RunStore::last_run_number() {
+  std::lock_guard lock(impl_->mutex);
+  // A run's row is written twice (ahead of the sweep, then replaced when it ends), so seq grows
+  // faster than the runs: the number is the one in the run ids themselves, after their last '-'.
+  // The newest rows by seq hold the newest number; a few more cover a run finalized late.
+  auto st = impl_->db.prepare("SELECT run_id FROM runs ORDER BY seq DESC LIMIT 20");
+  if (!st.ok()) return st.error();
+  long long number = -1;
+  for (;;) {
+    auto row = st->step();
+    if (!row.ok()) return impl_->fail(row.error(), "reading the last run number");
+    if (!*row) break;
+    const std::string id = st->text(0);
+    const auto dash = id.rfind('-');
+    if (dash == std::string::npos || dash + 1 == id.size()) continue;
+    const std::string digits = id.substr(dash + 1);
+    if (digits.size() > 18 || digits.find_first_not_of("0123456789") != std::string::npos) continue;
+    number = std::max(number, std::stoll(digits));
+  }
+  if (number >= 0) return number;
+  auto n = impl_->db.query_int("SELECT coalesce(max(seq), 0) FROM runs");   // no id in that form: as before
   if (!n.ok()) return impl_->fail(n.error(), "reading the last run number");
   return n.value();
 }

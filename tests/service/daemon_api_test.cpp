@@ -106,6 +106,27 @@ TEST_F(DaemonApi, ACalibrationThatIsNotValidAfterAValidOneStopsTestingUntilTheNe
   EXPECT_TRUE(again.call("test.start", {{"serial", "TINY-02"}}).value("ok", false));
 }
 
+// Run ids end in a number that counts on across daemon restarts without a gap (README, "Run
+// ids"): an auditor reading …-000002 then …-000005 would ask where two runs went. Each run's row
+// is written twice (ahead of the sweep, then when it ends), so the store's row numbers cannot
+// serve as the count.
+TEST_F(DaemonApi, RunNumbersCountOnWithoutAGapAfterARestart) {
+  auto number = [](const json& run) {
+    const std::string id = run.value("run_id", std::string());
+    return std::stol(id.substr(id.rfind('-') + 1));
+  };
+  Api api = connect();
+  ASSERT_EQ(calibrate(api, *sim_)["event"], "result");
+  const long first = number(test_unit(api, *sim_, "TINY-01", "LOT-N"));
+  const long second = number(test_unit(api, *sim_, "TINY-02", "LOT-N"));
+  EXPECT_EQ(second, first + 1);
+  daemon_.reset();
+  daemon_.emplace(config_);
+  Api again = connect();
+  const long third = number(test_unit(again, *sim_, "TINY-03", "LOT-N"));
+  EXPECT_EQ(third, second + 1);
+}
+
 // An operator who answers that the standard is not connected cancels the calibration; the error
 // says so once, in order: what was cancelled, then why ("calibration: cancelled: OPEN not
 // connected"), not "calibration: calibration cancelled". Nothing is stored as valid.
