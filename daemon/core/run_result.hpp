@@ -127,6 +127,7 @@ struct CalibrationRecord {
   int max_units = 0;
   double max_temperature_change_c = 0;
   int units_since = 0;                                  // maintained by the service
+  int units_since_check = 0;                            // ... since the last check standard (service)
   // The calibration kit the standards came from, and the uncertainty budget built from the
   // standards' readings, their repeats and the kit (uncertainty.hpp). An empty budget (records
   // made before budgets existed) makes the record unusable for judging: calibrate again.

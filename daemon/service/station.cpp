@@ -233,8 +233,9 @@ Station::Station(drivers::StationConfig config) : config_(std::move(config)) {
   if (latest->has_value() && latest->value().valid) {
     calibration_ = latest->value();
     calibration_created_s_ = parse_utc_iso8601(calibration_->created_utc).value_or(0);
-    spdlog::info("calibration {} from {} loaded ({} units since)", calibration_->id, calibration_->created_utc,
-                 calibration_->units_since);
+    units_since_check_ = calibration_->units_since_check;   // a restart does not put off the check standard
+    spdlog::info("calibration {} from {} loaded ({} units since, {} since the check standard)", calibration_->id,
+                 calibration_->created_utc, calibration_->units_since, units_since_check_);
   } else if (latest->has_value()) {
     // Not loaded; say why (e.g. invalidated by a drifted check standard before a restart).
     check_failure_ = not_valid_text(latest->value());
@@ -447,7 +448,7 @@ TestOutcome Station::run_test(const TestRequest& request, const CancelToken& can
       ++units_since_check_;
       if (calibration_) {
         ++calibration_->units_since;
-        (void)store_->set_calibration_units(calibration_->id, calibration_->units_since);
+        (void)store_->set_calibration_units(calibration_->id, calibration_->units_since, units_since_check_);
       }
     }
     spdlog::info("run {} serial {}: {}{}{}", run.run_id, run.serial, core::to_string(run.verdict),
@@ -626,6 +627,11 @@ CheckOutcome Station::run_check(Prompter& prompter, const CancelToken& cancel, c
   }
   std::lock_guard lock(mu_);
   units_since_check_ = 0;
+  if (calibration_ && calibration_->id == cal->id) {
+    if (Status s = store_->set_calibration_units(cal->id, calibration_->units_since, 0); !s) {
+      spdlog::error("check-standard count of calibration {} not stored: {}", cal->id, s.error().message);
+    }
+  }
   if (out.drifted) check_failure_ = fmt::format("check standard drifted: {}", why);
   return out;
 }

@@ -471,11 +471,11 @@ Status RunStore::save_calibration(const core::CalibrationRecord& cal) {
   });
 }
 
-Status RunStore::set_calibration_units(std::string_view calibration_id, int units_since) {
+Status RunStore::set_calibration_units(std::string_view calibration_id, int units_since, int units_since_check) {
   std::lock_guard lock(impl_->mutex);
-  auto st = impl_->db.prepare("UPDATE calibrations SET units_since = ?2 WHERE id = ?1");
+  auto st = impl_->db.prepare("UPDATE calibrations SET units_since = ?2, units_since_check = ?3 WHERE id = ?1");
   if (!st.ok()) return st.error();
-  st->bind(1, calibration_id).bind(2, units_since);
+  st->bind(1, calibration_id).bind(2, units_since).bind(3, units_since_check);
   if (auto s = st->run(); !s.ok()) return impl_->fail(s.error(), "updating calibration unit count");
   if (sqlite3_changes(impl_->db.handle()) == 0) {
     return make_error(ErrorKind::invalid_argument,
@@ -619,7 +619,7 @@ Result<std::optional<core::CalibrationRecord>> RunStore::Impl::select_calibratio
       "SELECT id, created_utc, recipe_name, recipe_version, recipe_hash, station, instruments_json, temperature_c, "
       "reference_json, directivity_json, min_directivity_db, warnings_json, valid, max_age_s, max_units, "
       "max_temperature_change_c, noise_margin_db, units_since, errors_json, invalidated_reason, invalidated_utc, "
-      "kit_identity, kit_serial, budget_json, software "
+      "kit_identity, kit_serial, budget_json, software, units_since_check "
       "FROM calibrations {} ORDER BY created_utc DESC, seq DESC "
       "LIMIT 1",
       where));
@@ -650,6 +650,7 @@ Result<std::optional<core::CalibrationRecord>> RunStore::Impl::select_calibratio
   c.max_temperature_change_c = st->real(15);
   c.noise_margin_db = st->real(16);
   c.units_since = static_cast<int>(st->integer(17));
+  c.units_since_check = static_cast<int>(st->integer(25));
   auto errs = nlohmann::json::parse(st->text(18), nullptr, false);
   if (errs.is_array()) {
     for (auto& x : errs) {

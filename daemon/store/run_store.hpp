@@ -22,7 +22,7 @@ namespace echoline::store {
 
 // Schema version this code writes (PRAGMA user_version). Older files are migrated on open;
 // newer files are refused (ErrorKind::storage, message names both versions).
-inline constexpr int kSchemaVersion = 10;
+inline constexpr int kSchemaVersion = 11;
 
 // The reason a run carries while it is in progress, and the reason it gets when a starting daemon
 // finds it still in progress (the daemon that ran it was killed or crashed).
@@ -134,8 +134,9 @@ class RunStore : public RunReader {
   // The text stored for a content hash, or nullopt.
   Result<std::optional<std::string>> recipe_text(std::string_view content_hash) override;
   Status save_calibration(const core::CalibrationRecord& cal);
-  // Updates the units-since counter the service maintains.
-  Status set_calibration_units(std::string_view calibration_id, int units_since);
+  // Updates the counters the service maintains: units judged since the calibration and since its
+  // last check-standard measurement (both survive a restart).
+  Status set_calibration_units(std::string_view calibration_id, int units_since, int units_since_check);
   // Marks a stored calibration as no longer usable (e.g. the check standard drifted), with the
   // reason and the time (UTC, station form). Persisted: every later load returns valid=false
   // with "invalidated at <utc>: <reason>" appended to errors. Invalidating again keeps the first

@@ -202,6 +202,10 @@ ALTER TABLE forwarding ADD COLUMN unqueued_from_seq INTEGER;
 ALTER TABLE forwarding ADD COLUMN unqueued_since_utc TEXT;
 )sql";
 
+constexpr std::string_view kVersion11 = R"sql(
+ALTER TABLE calibrations ADD COLUMN units_since_check INTEGER NOT NULL DEFAULT 0;
+)sql";
+
 }  // namespace
 
 const std::vector<Migration>& migrations() {
@@ -218,6 +222,8 @@ const std::vector<Migration>& migrations() {
        kVersion8},
       {9, "outbox counts kept by triggers (status and /metrics read them instead of counting)", kVersion9},
       {10, "runs not queued while no central database is configured, and since when", kVersion10},
+      {11, "units judged since the last check-standard measurement, per calibration (kept across restarts)",
+       kVersion11},
   };
   return steps;
 }

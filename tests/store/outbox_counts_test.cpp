@@ -72,7 +72,8 @@ TEST(OutboxCounts, FollowQueueingForwardingFromAnotherConnectionAndRefusals) {
                            "DROP TRIGGER outbox_counts_insert; DROP TRIGGER outbox_counts_delete; "
                            "DROP TRIGGER outbox_counts_update; DROP TABLE outbox_counts; "
                            "ALTER TABLE forwarding DROP COLUMN unqueued_from_seq; "
-                           "ALTER TABLE forwarding DROP COLUMN unqueued_since_utc; PRAGMA user_version = 8;",
+                           "ALTER TABLE forwarding DROP COLUMN unqueued_since_utc; ALTER TABLE calibrations DROP COLUMN units_since_check; "
+                           "PRAGMA user_version = 8;",
                            nullptr, nullptr, nullptr),
               SQLITE_OK);
     sqlite3_close(db);

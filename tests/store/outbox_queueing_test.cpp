@@ -141,7 +141,8 @@ TEST(OutboxQueueing, UpgradedStationWithoutCentralDatabaseDropsItsStuckOutboxWit
     ASSERT_EQ(sqlite3_open(file.c_str(), &db), SQLITE_OK);
     ASSERT_EQ(sqlite3_exec(db,
                            "ALTER TABLE forwarding DROP COLUMN unqueued_from_seq; "
-                           "ALTER TABLE forwarding DROP COLUMN unqueued_since_utc; PRAGMA user_version = 9;",
+                           "ALTER TABLE forwarding DROP COLUMN unqueued_since_utc; ALTER TABLE calibrations DROP COLUMN units_since_check; "
+                           "PRAGMA user_version = 9;",
                            nullptr, nullptr, nullptr),
               SQLITE_OK);
     sqlite3_close(db);

@@ -195,12 +195,13 @@ TEST_F(RunStoreTest, LatestCalibrationWithTraces) {
   cal2.errors = {"LOAD reads above the noise floor by only 3 dB"};
   ASSERT_TRUE(store_->save_calibration(cal2).ok());
   ASSERT_TRUE(store_->save_calibration(testdata::make_calibration("cal-0", "2026-03-01T09:00:00.000Z")).ok());
-  ASSERT_TRUE(store_->set_calibration_units("cal-2", 17).ok());
+  ASSERT_TRUE(store_->set_calibration_units("cal-2", 17, 7).ok());
   auto latest = store_->latest_calibration();
   ASSERT_TRUE(latest.ok() && latest->has_value());
   const auto& c = **latest;
   EXPECT_EQ(c.id, "cal-2");
   EXPECT_EQ(c.units_since, 17);
+  EXPECT_EQ(c.units_since_check, 7);
   EXPECT_EQ(c.traces.size(), 3u);
   EXPECT_EQ(c.traces.at("LOAD").size(), 201u);
   EXPECT_EQ(c.traces.at("LOAD")[3].raw_dbm, testdata::make_calibration("x", "y").traces.at("LOAD")[3].raw_dbm);
