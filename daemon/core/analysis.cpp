@@ -13,7 +13,7 @@ namespace echoline::core {
 namespace {
 constexpr double kInf = std::numeric_limits<double>::infinity();
 // Points on a limit-segment edge count as inside it (plan frequencies are computed, not exact).
-constexpr double kEdgeToleranceHz = 1e-3;
+constexpr double kEdgeToleranceHz = kLimitEdgeToleranceHz;
 }  // namespace
 
 CalibratedTrace calibrate_points(const CalibrationRecord& cal, const std::vector<Reading>& dut) {

@@ -17,7 +17,7 @@ namespace echoline::core {
 namespace {
 
 constexpr double kInf = std::numeric_limits<double>::infinity();
-constexpr double kEdgeToleranceHz = 1e-3;
+constexpr double kEdgeToleranceHz = kLimitEdgeToleranceHz;
 
 std::string db_text(double v) {
   if (std::isinf(v)) return v > 0 ? "+inf dB" : "-inf dB";

@@ -1,7 +1,7 @@
 // The directivity phase from the calibration (directivity_phase.hpp). MEASUREMENT.md, "The
 // directivity phase": with w_x = d/Γ_x + E_S·Γ_x, to first order
 //   ln p_O − ln p_S = 2·ln(|Γ_O|/|Γ_S|) + 2·Re(d·(1/Γ_O − 1/Γ_S)) + 2·Re(E_S·(Γ_O − Γ_S)),
-// and P in dB is 10·log10(p) = 4.343·ln p, so Re(d·A) = (P_O − P_S)/17.37 − ln(|Γ_O|/|Γ_S|)
+// and P in dB is 10·log10(p) = 4.343·ln p, so Re(d·A) = (P_O − P_S)/17.37 − ½·ln(|Γ_O|/|Γ_S|)
 // − Re(E_S·B), A = (1/Γ_O − 1/Γ_S)/2 ≈ 1, B = (Γ_O − Γ_S)/2 ≈ 1. The second-order terms cancel
 // between OPEN and SHORT (both hold (d + E_S)²), so the first-order form is good to |w|³.
 #include "daemon/core/directivity_phase.hpp"

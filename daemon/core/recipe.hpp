@@ -44,6 +44,10 @@ struct CalibrationPolicy {
   bool use_mismatch = false;
 };
 
+// A plan point this close to a limit segment's edge is on it (judged against that segment, and
+// `recipe check` counts the edge as measured): one tolerance for both.
+inline constexpr double kLimitEdgeToleranceHz = 1e-3;
+
 // Minimum return loss over a frequency range (a limit-line segment).
 struct LimitSegment {
   double start_hz = 0;

@@ -226,7 +226,7 @@ std::vector<CheckFinding> check_recipe(const Recipe& r, const StationCapability&
   const std::vector<double> plan = plan_frequencies(r);
   for (std::size_t i = 0; i < r.limits.mask.size(); ++i) {
     for (double edge : {r.limits.mask[i].start_hz, r.limits.mask[i].stop_hz}) {
-      const bool on_plan = std::any_of(plan.begin(), plan.end(), [&](double f) { return std::fabs(f - edge) <= 1.0; });
+      const bool on_plan = std::any_of(plan.begin(), plan.end(), [&](double f) { return std::fabs(f - edge) <= kLimitEdgeToleranceHz; });
       if (!on_plan) {
         add(out, "warning", fmt::format("/limits/mask/{}", i),
             fmt::format("the limit edge {} is not a plan frequency: the return loss exactly at the edge is not "

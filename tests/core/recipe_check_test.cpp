@@ -46,6 +46,19 @@ TEST(RecipeCheck, LimitEdgeBetweenPlanPointsIsWarned) {
   EXPECT_TRUE(find(f, "warning", "the limit edge 928 MHz is not a plan frequency")) << dump(f);
 }
 
+// A point 0.4 Hz below 902 MHz is judged against the shoulder below the band, not the band's
+// limit (decision.cpp takes a point as on an edge within kLimitEdgeToleranceHz): the check must
+// say the edge is not measured, with the same tolerance.
+TEST(RecipeCheck, APlanPointJustOffALimitEdgeDoesNotCountAsOnIt) {
+  Recipe r = whip_recipe();
+  r.segments = {Segment{860e6 - 0.4, 970e6 - 0.4, 221}};
+  r.limits.resonance_min_hz.reset();
+  r.limits.resonance_max_hz.reset();
+  auto f = check_recipe(r, station());
+  EXPECT_TRUE(find(f, "warning", "the limit edge 902 MHz is not a plan frequency")) << dump(f);
+  EXPECT_FALSE(std::fabs(860e6 - 0.4 + 84e6 - 902e6) <= kLimitEdgeToleranceHz);
+}
+
 // A window the station cannot resolve: the check says how many units it will leave undecided
 // and what directivity would help (centring_prediction.hpp).
 TEST(RecipeCheck, NarrowWindowIsWarnedWithThePredictedInconclusiveShare) {
