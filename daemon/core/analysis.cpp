@@ -350,6 +350,10 @@ std::optional<Band> find_band(const std::vector<PointResult>& points, std::size_
   if (lo == 0) {
     band.low_hz = points[0].frequency_hz;
     band.low_open = true;
+  } else if (which == TraceValue::worst) {
+    band.low_hz = points[lo].frequency_hz;
+  } else if (which == TraceValue::best) {
+    band.low_hz = points[lo - 1].frequency_hz;
   } else {
     band.low_hz = crossing_hz(points[lo].frequency_hz, value_of(points[lo], which),
                               points[lo - 1].frequency_hz, value_of(points[lo - 1], which), threshold_db);
@@ -359,6 +363,10 @@ std::optional<Band> find_band(const std::vector<PointResult>& points, std::size_
   if (hi + 1 == points.size()) {
     band.high_hz = points.back().frequency_hz;
     band.high_open = true;
+  } else if (which == TraceValue::worst) {
+    band.high_hz = points[hi].frequency_hz;
+  } else if (which == TraceValue::best) {
+    band.high_hz = points[hi + 1].frequency_hz;
   } else {
     band.high_hz = crossing_hz(points[hi].frequency_hz, value_of(points[hi], which),
                                points[hi + 1].frequency_hz, value_of(points[hi + 1], which), threshold_db);

@@ -121,9 +121,12 @@ std::optional<Vertex> parabola_vertex(double x0, double y0, double x1, double y1
 enum class TraceValue { measured, worst, best };
 double value_of(const PointResult& p, TraceValue which);
 
-// Band around the resonance where RL >= threshold, each edge linearly interpolated between the
-// last point at or above and the first point below; open at a sweep end reached without crossing.
-// Empty when the chosen trace is below the threshold at `center_index`.
+// Band around the resonance where RL >= threshold; open at a sweep end reached without crossing.
+// Its edges: for the measured trace, linearly interpolated between the last point at or above and
+// the first point below; for the bounds, only what the samples prove, since between two samples
+// the true return loss is unknown: the worst case's band ends at its last sample at or above the
+// threshold (a lower bound of the width), the best case's at its first sample below (an upper
+// bound). Empty when the chosen trace is below the threshold at `center_index`.
 std::optional<Band> find_band(const std::vector<PointResult>& points, std::size_t center_index,
                               double threshold_db, TraceValue which = TraceValue::measured);
 

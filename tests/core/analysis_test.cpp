@@ -167,12 +167,17 @@ TEST(Analysis, BandwidthCrossingsAreInterpolated) {
   EXPECT_NEAR(band->width_hz(), 40e6, 1e-3);
   EXPECT_FALSE(band->low_open);
   EXPECT_FALSE(band->high_open);
-  // Worst-case trace is narrower, best-case wider.
+  // Worst-case trace is narrower, best-case wider; their edges are samples (what the samples
+  // prove), not interpolated crossings.
   auto worst = find_band(pts, r->index, 10.0, TraceValue::worst);
   auto best = find_band(pts, r->index, 10.0, TraceValue::best);
   ASSERT_TRUE(worst && best);
   EXPECT_LT(worst->width_hz(), band->width_hz());
   EXPECT_GT(best->width_hz(), band->width_hz());
+  for (double edge : {worst->low_hz, worst->high_hz, best->low_hz, best->high_hz}) {
+    const double steps = (edge - 860e6) / 0.55e6;
+    EXPECT_NEAR(steps, std::round(steps), 1e-6) << edge;
+  }
   EXPECT_DOUBLE_EQ(crossing_hz(1.0, 12.0, 2.0, 8.0, 10.0), 1.5);
 }
 
