@@ -222,6 +222,22 @@ int run(const Args& args) {
   if (!args.socket.empty()) config.api.unix_socket = std::filesystem::absolute(args.socket);
   if (args.tcp_port) config.api.tcp_port = *args.tcp_port;
   if (args.web_port) config.web.port = *args.web_port;
+  // The config's own check (a listener off loopback needs a token file) again, now that a port
+  // may have come from the command line: the same exit 2, before any instrument is touched.
+  if (config.api.token_file.empty()) {
+    if (args.tcp_port && config.api.tcp_port != 0 && !drivers::is_loopback_host(config.api.tcp_host)) {
+      throw drivers::ConfigError(config.file, 0, "/api/tcp_host",
+                                 fmt::format("--tcp-port: listening on {} (not loopback) needs api.token_file: anyone on "
+                                             "the network could otherwise drive the instruments",
+                                             config.api.tcp_host));
+    }
+    if (args.web_port && config.web.port != 0 && !drivers::is_loopback_host(config.web.host)) {
+      throw drivers::ConfigError(config.file, 0, "/web/host",
+                                 fmt::format("--web-port: serving the pages on {} (not loopback) needs api.token_file: "
+                                             "anyone on the network could otherwise drive the instruments",
+                                             config.web.host));
+    }
+  }
 
   if (args.rf_off) {
     start_logging(config, args.log_level);

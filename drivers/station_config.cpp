@@ -14,6 +14,9 @@
 #include "drivers/wire.hpp"
 
 namespace echoline::drivers {
+
+bool is_loopback_host(const std::string& host) { return host == "127.0.0.1" || host == "::1" || host == "localhost"; }
+
 namespace {
 
 const JsonPointer kRoot{};
@@ -76,7 +79,6 @@ void load_api(const JsoncDocument& doc, const std::filesystem::path& base, const
                                           "could otherwise drive the instruments", a.tcp_host));
 }
 
-bool is_loopback_host(const std::string& host) { return host == "127.0.0.1" || host == "::1" || host == "localhost"; }
 
 void load_web(const JsoncDocument& doc, const ApiConfig& api, WebConfig& w) {
   const JsonPointer at = kRoot / "web";

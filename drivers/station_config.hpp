@@ -66,6 +66,9 @@ struct StationConfig {
 // Throws ConfigError; relative paths are resolved against the file's folder.
 StationConfig load_station_config(const std::filesystem::path& file);
 
+// 127.0.0.1, ::1 or localhost: a listener there needs no token.
+bool is_loopback_host(const std::string& host);
+
 // echolined --override ROLE=ADDRESS: puts ADDRESS on the instrument with ROLE. Throws ConfigError
 // whose what() starts with "--override ROLE=ADDRESS": an unknown role (the valid ones listed), a
 // role this station has no instrument for, or an address that does not parse.

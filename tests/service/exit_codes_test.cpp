@@ -64,6 +64,20 @@ TEST(ExitCodes, DaemonTokenFileMissingIsAConfigErrorAtItsKey) {
   EXPECT_FALSE(d.unix_path().empty());
 }
 
+// A listener off loopback without a token is refused as a configuration error (2) at its key
+// also when the port comes from the command line (README, "Exit codes"), before any instrument
+// is connected: the simulator sees no connection.
+TEST(ExitCodes, DaemonPortFromTheCommandLineOffLoopbackWithoutATokenIsAConfigError) {
+  testing::TempDir dir("echoline-offloop");
+  Sim sim("tiny-lot.jsonc");
+  const auto config = write_station_config(dir.path(), sim, "whip915.jsonc", R"({"tcp_host": "0.0.0.0"})");
+  const Outcome o = run(testing::daemon_binary(), {"--config", config.string(), "--tcp-port", "auto", "--no-log-file"});
+  EXPECT_EQ(o.code, 2) << o.output;
+  EXPECT_TRUE(says(o, config.string() + ": /api/tcp_host: --tcp-port")) << o.output;
+  EXPECT_TRUE(says(o, "needs api.token_file")) << o.output;
+  EXPECT_FALSE(says(o, "starting")) << "it started before refusing: " << o.output;
+}
+
 TEST(ExitCodes, DaemonBadOverrideIsAConfigurationErrorNamingTheOption) {
   const auto config = (testing::source_dir() / "config" / "station.jsonc").string();
   const Outcome port = run(testing::daemon_binary(), {"--config", config, "--no-log-file", "--override",
