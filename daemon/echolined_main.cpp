@@ -147,7 +147,10 @@ Args parse_args(int argc, char** argv) {
   return a;
 }
 
+bool logging_started = false;   // before it, spdlog's default logger would write to stdout
+
 void start_logging(const drivers::StationConfig& config, const std::string& level) {
+  logging_started = true;
   LogOptions o;
   o.program = "echolined";
   if (!config.log_dir.empty()) o.file = config.log_dir / "echolined.log";
@@ -330,7 +333,9 @@ int main(int argc, char** argv) {
     code = 2;
   } catch (const std::exception& e) {
     std::cerr << "echolined: " << e.what() << "\n";
-    spdlog::error("{}", e.what());
+    // Into the log file too once there is one; before that (a second daemon on the same store)
+    // stderr alone: stdout carries the "listening" line scripts read.
+    if (logging_started) spdlog::error("{}", e.what());
     code = 1;
   }
   spdlog::shutdown();
