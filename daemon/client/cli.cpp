@@ -199,7 +199,12 @@ bool wait_while_instruments_connect(ApiClient& api, std::ostream& note, std::chr
 }
 
 void require_ok(const ApiReply& reply, const std::string& what) {
-  if (!reply.ok) throw CliExit(exit_code_for_api_error(reply.code), fmt::format("{}: {} ({})", what, reply.message, reply.code));
+  if (reply.ok) return;
+  // The daemon's messages often name the call already ("export: no runs stored ..."): once is enough.
+  const bool named = reply.message.rfind(what + ":", 0) == 0;
+  throw CliExit(exit_code_for_api_error(reply.code),
+                named ? fmt::format("{} ({})", reply.message, reply.code)
+                      : fmt::format("{}: {} ({})", what, reply.message, reply.code));
 }
 
 ApiReply require_link(Result<ApiReply> reply, const std::string& what) {

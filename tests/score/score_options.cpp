@@ -3,8 +3,10 @@
 
 #include <cstdio>
 #include <cstdlib>
+#include <set>
 #include <stdexcept>
 
+#include "echoline/version.hpp"
 #include "tests/support/process.hpp"
 
 namespace echoline::score {
@@ -35,6 +37,7 @@ then scores every unit's final run against the bench's ground truth and prints t
   --json OUT             write every figure to OUT
   --require all|safety   figures that decide the exit code (default all): safety = 0 points outside
                          bounds, 0 escapes, false rejects <= 1 %, no trim advice on non-length defects
+  --help, --version      this text; the program's version
 Exit: 0 the required figures met, 1 one is not, 2 usage error, 3 the station could not be run.
 )";
 
@@ -68,7 +71,16 @@ ScoreOptions parse_score_options(int argc, char** argv) {
       std::fputs(kUsage, stdout);
       std::exit(0);
     }
-    if (i + 1 >= argc) usage(a.rfind("--", 0) == 0 ? a + " needs a value" : "unexpected argument " + a);
+    if (a == "--version") {
+      std::puts(version_line("echoline-score").c_str());
+      std::exit(0);
+    }
+    static const std::set<std::string> kValued = {"--bench", "--sim", "--lot", "--recipe", "--window-recipe",
+                                                  "--source-profile", "--receiver-profile", "--kit", "--fixture",
+                                                  "--label", "--unit-model", "--work-dir", "--json", "--require",
+                                                  "--units"};
+    if (!kValued.count(a)) usage(a.rfind("-", 0) == 0 ? "unknown option " + a : "unexpected argument " + a);
+    if (i + 1 >= argc) usage(a + " needs a value");
     const std::string v = argv[++i];
     if (a == "--bench") o.bench_program = existing_file(a, v);
     else if (a == "--sim") o.sim_config = existing_file(a, v);
