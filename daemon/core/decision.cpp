@@ -388,7 +388,7 @@ Decision decide(const Recipe& recipe, const std::vector<PointResult>& points, co
       systematic = check_mask(recipe.rule, *noise_free, seg).verdict == Verdict::inconclusive;
     }
     for (std::size_t i = k; i < d.checks.size() && systematic; ++i) systematic = d.checks[i].verdict != Verdict::inconclusive;
-    d.reason = parts + (systematic ? fmt::format(". {}: the bench's bounded terms (coupler directivity, standards, source "
+    d.reason = parts + (systematic ? fmt::format("; {}: the bench's bounded terms (coupler directivity, standards, source "
                                                  "match), not reading noise or the connection, leave it undecided; hold the "
                                                  "unit for review",
                                                  kRetestCannotSettle)
