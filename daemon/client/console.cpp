@@ -176,6 +176,7 @@ Console::Outcome Console::scan_loop() {
     }
     if (test_unit(serial, again) == Outcome::done) continue;
     ++summary_.interrupted;
+    summary_.interrupted_serials.push_back(serial);
     if (!recover(serial)) return Outcome::lost;
     if (again) {
       // Interrupted twice in a row: a unit that keeps the service from answering is not fed to it
@@ -482,19 +483,28 @@ void Console::print_summary() {
   };
   out_ << "\n==============================================================\n";
   out_ << " SESSION SUMMARY\n";
+  const auto joined = [](const auto& serials) {
+    std::string text;
+    for (const auto& s : serials) text += (text.empty() ? "" : ", ") + s;
+    return text;
+  };
   out_ << fmt::format("  Units tested: {}   runs: {}\n", summary_.final_verdict.size(), summary_.runs);
   out_ << fmt::format("  pass {}   fail {}   inconclusive {}   aborted {}   (runs)\n", count("pass"), count("fail"),
                       count("inconclusive"), count("aborted"));
-  out_ << fmt::format("  Yield: {:.1f} % (units whose latest judged run passed, of {} judged)\n", 100 * summary_.yield(),
-                      summary_.units_judged());
+  if (summary_.units_judged() > 0) {
+    out_ << fmt::format("  Yield: {:.1f} % (units whose latest judged run passed, of {} judged)\n", 100 * summary_.yield(),
+                        summary_.units_judged());
+  } else {
+    out_ << "  Yield: none (no unit judged)\n";
+  }
   if (summary_.interrupted > 0) {
-    out_ << fmt::format("  Tests interrupted by a lost station service: {} \n", summary_.interrupted);
+    out_ << fmt::format("  Tests interrupted by a lost station service: {} ({})\n", summary_.interrupted,
+                        joined(summary_.interrupted_serials));
   }
   if (!untested_by_instruments_.empty()) {
-    std::string serials;
-    for (const auto& s : untested_by_instruments_) serials += (serials.empty() ? "" : ", ") + s;
-    out_ << fmt::format("  NOT TESTED because of instrument trouble: {} unit{} ({})\n", untested_by_instruments_.size(),
-                        untested_by_instruments_.size() == 1 ? "" : "s", serials);
+    // Their runs are counted above as aborted: measured, never judged.
+    out_ << fmt::format("  NOT JUDGED because of instrument trouble: {} unit{} ({})\n", untested_by_instruments_.size(),
+                        untested_by_instruments_.size() == 1 ? "" : "s", joined(untested_by_instruments_));
   }
   out_ << "==============================================================\n";
   out_ << fmt::format("summary units={} runs={} pass={} fail={} inconclusive={} aborted={} yield={:.1f}%\n",

@@ -46,6 +46,7 @@ struct SessionSummary {
   std::map<std::string, std::string> final_verdict;   // serial -> verdict of its latest run
   std::vector<store::RunOutcome> outcomes;            // every run of the session, in run order
   int interrupted = 0;                                // tests cut off by a lost daemon link (no result)
+  std::vector<std::string> interrupted_serials;       // ... their serials, in order
   // Yield as the store defines it (daemon/store/yield.hpp): units whose latest finished run
   // passed / units with a finished (non-aborted) run; 0 when none.
   double yield() const;

@@ -211,7 +211,7 @@ TEST_F(ConsoleBench, AUnitLeftUntestedByTheInstrumentsEndsWithExitFour) {
   EXPECT_EQ(s.code, 4) << text;   // README "Exit codes": 4 instrument trouble
   EXPECT_NE(text.find("CALIBRATION NOT COMPLETED"), std::string::npos) << text;
   EXPECT_NE(text.find("Unit not tested: TINY-01 (instrument trouble)"), std::string::npos) << text;
-  EXPECT_NE(text.find("NOT TESTED because of instrument trouble: 1 unit (TINY-01)"), std::string::npos) << text;
+  EXPECT_NE(text.find("NOT JUDGED because of instrument trouble: 1 unit (TINY-01)"), std::string::npos) << text;
   EXPECT_EQ(text.find("(cal.start)"), std::string::npos) << text;
 }
 
@@ -237,7 +237,7 @@ TEST_F(ConsoleBench, AUnitAbortedByADroppedAnalyzerEndsWithExitFour) {
   // says "instrument trouble: 1 unit" whatever the reason is, so it cannot stand in for this).
   EXPECT_TRUE(std::regex_search(text, std::regex("instrument trouble: [^\n]*analyzer \\("))) << text;
   EXPECT_NE(text.find("Instrument trouble: unit not judged, test it again."), std::string::npos) << text;
-  EXPECT_NE(text.find("NOT TESTED because of instrument trouble: 1 unit (TINY-03)"), std::string::npos) << text;
+  EXPECT_NE(text.find("NOT JUDGED because of instrument trouble: 1 unit (TINY-03)"), std::string::npos) << text;
 }
 
 // Runs the console on a pseudo-terminal; returns everything it wrote.

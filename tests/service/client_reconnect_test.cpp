@@ -189,7 +189,7 @@ TEST_F(ReconnectBench, KilledMidTestTheConsoleWaitsRetestsTheUnitAndFinishesTheL
   const std::string summary = fmt::format("summary units=3 runs=3 pass={} fail={} inconclusive={} aborted={}",
                                           counts["pass"], counts["fail"], counts["inconclusive"], counts["aborted"]);
   EXPECT_NE(text.find(summary), std::string::npos) << summary << "\n" << text;
-  EXPECT_NE(text.find("Tests interrupted by a lost station service: 1"), std::string::npos) << text;
+  EXPECT_NE(text.find("Tests interrupted by a lost station service: 1 ("), std::string::npos) << text;
 
   // The store: every TINY-02 run other than the retest shown by the console is aborted (a run that
   // did not finish is never a pass); SIGKILL leaves none at all, SIGTERM one aborted.
