@@ -212,6 +212,17 @@ int cmd_recipe(const Argv& argv) {
   Checked c = load_and_check(file, config);
   print_centring(c.recipe, c.capability);
   print_mask(c.recipe, c.capability);
+  if (c.recipe.mode == core::SweepMode::fast_capture && c.capability.frequency_offset_hz > 0) {
+    // Not a finding (the budget bounds it), but the engineer should know the capture runs free.
+    std::cout << fmt::format("fast capture: the receiver's sweep starts at a ramp phase left to chance, so each reading "
+                             "may be up to {:.4g} MHz (half a bin) off its frequency; the budget bounds that, at the "
+                             "cost of wider intervals on steep slopes.{}\n",
+                             c.capability.frequency_offset_hz / 1e6,
+                             config.fixture.start_pulse_cable
+                                 ? std::string()
+                                 : " A cable from the generator's ramp-start pulse to the analyzer's trigger input "
+                                   "(fixture.start_pulse_cable) removes it.");
+  }
   std::cout << fmt::format("recipe check: {} {} on station {}: {} error{}, {} warning{}\n", c.recipe.name, c.recipe.version,
                            config.station, count(c.findings, "error"), count(c.findings, "error") == 1 ? "" : "s",
                            count(c.findings, "warning"), count(c.findings, "warning") == 1 ? "" : "s");

@@ -173,6 +173,17 @@ TEST(ClientCli, DryRunShowsTheFastCapturePlanAndWhy) {
   EXPECT_NE(o.output.find("expected capture 0.224 s per unit"), std::string::npos) << o.output;
 }
 
+// The shipped station config has no start-pulse cable: recipe check says that the capture runs
+// free and what a cable would change (README, "Fast capture"), though it is no finding.
+TEST(ClientCli, RecipeCheckSaysAFastCaptureRunsFree) {
+  const Outcome o = run_client({"recipe", "check", "config/recipes/whip915-fast.jsonc", "--station", "config/station.jsonc"});
+  EXPECT_EQ(o.code, 0) << o.output;
+  EXPECT_NE(o.output.find("ramp phase left to chance"), std::string::npos) << o.output;
+  EXPECT_NE(o.output.find("fixture.start_pulse_cable"), std::string::npos) << o.output;
+  const Outcome step = run_client({"recipe", "check", "config/recipes/whip915.jsonc", "--station", "config/station.jsonc"});
+  EXPECT_EQ(step.output.find("ramp phase"), std::string::npos) << step.output;
+}
+
 TEST(ClientCli, DaemonUnreachableExitsThreeWithAClearMessage) {
   TempDir dir;
   const std::string sock = (dir / "nobody.sock").string();
