@@ -218,7 +218,8 @@ CalibrationRecord build_calibration(const Recipe& recipe, const std::map<std::st
 }
 
 CalibrationState calibration_due(const CalibrationRecord* cal, const Recipe& recipe, double now_unix_s,
-                                 double created_unix_s, std::optional<double> temperature_c, double frequency_offset_hz) {
+                                 double created_unix_s, std::optional<double> temperature_c, double frequency_offset_hz,
+                                 const StationCapability* station) {
   if (!cal) return {true, "no calibration yet"};
   if (!cal->valid) {
     if (cal->errors.empty()) return {true, fmt::format("the last calibration ({}) was not valid", cal->id)};
@@ -301,6 +302,23 @@ CalibrationState calibration_due(const CalibrationRecord* cal, const Recipe& rec
     return {true, fmt::format("calibration {} bounds readings up to {:.4g} Hz off their frequency; the station's fast "
                               "capture now allows {:.4g} Hz (was the start-pulse cable removed?)",
                               cal->id, cal->budget.frequency_offset_hz, frequency_offset_hz)};
+  }
+  if (station) {
+    // The budget froze the fixture's figures when it was made; a config corrected since to a worse
+    // match or a longer cable needs wider bounds than it holds. (A better figure leaves it safe.)
+    const double now_match = rho_from_db(std::min(station->source_match_db, recipe.source_match_db));
+    if (now_match > cal->budget.source_match * (1 + 1e-6) + 1e-12) {
+      return {true, fmt::format("calibration {} assumed a test-port source match of {:.1f} dB; the station config now "
+                                "states {:.1f} dB",
+                                cal->id, -20 * std::log10(std::max(cal->budget.source_match, 1e-12)),
+                                -20 * std::log10(now_match))};
+    }
+    const double now_delay = 2 * station->test_port_delay_s + 1e-9;
+    if (now_delay > cal->budget.error_delay_s * (1 + 1e-6) + 1e-15) {
+      return {true, fmt::format("calibration {} assumed a test-port delay of {:.2f} ns; the station config now states "
+                                "{:.2f} ns",
+                                cal->id, (cal->budget.error_delay_s - 1e-9) / 2 * 1e9, station->test_port_delay_s * 1e9)};
+    }
   }
   if (other_recipe) {
     // Same sweep mode and plan; some other setting of the recipe file changed.

@@ -44,10 +44,13 @@ struct CalibrationState {
 // its max age; max units reached (cal->units_since); temperature changed beyond the limit (when
 // both the record's and the current temperature are known); a fast-capture record whose budget
 // bounds a smaller frequency offset than the station's capture now allows (frequency_offset_hz,
-// StationCapability; negative = not checked), e.g. after the start-pulse cable was removed.
+// StationCapability; negative = not checked), e.g. after the start-pulse cable was removed; and,
+// when `station` is given, a budget made for a better test-port source match or a shorter
+// test-port cable than the station config now states (the bounds would be too narrow).
 CalibrationState calibration_due(const CalibrationRecord* cal, const Recipe& recipe,
                                  double now_unix_s, double created_unix_s,
-                                 std::optional<double> temperature_c, double frequency_offset_hz = -1);
+                                 std::optional<double> temperature_c, double frequency_offset_hz = -1,
+                                 const StationCapability* station = nullptr);
 
 // Compares a re-measured check standard with the calibration's own trace of it, point by point
 // in dB. True when any point moved more than limit_db, or the traces cannot be compared; `why`

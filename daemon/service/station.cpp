@@ -298,9 +298,10 @@ int Station::plan_points() const { return static_cast<int>(core::plan_frequencie
 json Station::calibration_json() const {
   std::lock_guard lock(mu_);
   json j = {{"present", calibration_.has_value()}};
-  const double offset_hz = recipe_->mode == core::SweepMode::fast_capture ? capability(*recipe_).frequency_offset_hz : -1;
+  const core::StationCapability now = capability(*recipe_);
+  const double offset_hz = recipe_->mode == core::SweepMode::fast_capture ? now.frequency_offset_hz : -1;
   core::CalibrationState st = core::calibration_due(calibration_ ? &*calibration_ : nullptr, *recipe_, unix_now_s(),
-                                                    calibration_created_s_, std::nullopt, offset_hz);
+                                                    calibration_created_s_, std::nullopt, offset_hz, &now);
   if (!check_failure_.empty()) st = {true, check_failure_};
   if (calibration_) {
     j.update(calibration_summary_json(*calibration_));

@@ -197,6 +197,29 @@ TEST(CalibrationDue, FastCalibrationIsDueWhenTheOffsetBoundGrows) {
   EXPECT_FALSE(s.due) << s.reason;
 }
 
+// The budget keeps the source match and test-port delay the station config gave when it was
+// made. An engineer who corrects them to worse figures must not go on testing with bounds that
+// assumed the better ones; a better figure leaves the (wider) bounds safe. The synthetic station
+// states 30 dB (|Γ| 0.0316); 20 dB is |Γ| 0.1 (common practice, no source).
+TEST(CalibrationDue, AStationConfigNowWorseThanTheBudgetAssumedMakesItDue) {
+  Recipe r = whip_recipe();
+  r.source_match_db = 40;   // the fixture's figure decides
+  CalibrationRecord cal = calibrate(r);
+  StationCapability now = station();
+  const double t0 = 1.8e9;
+  EXPECT_FALSE(calibration_due(&cal, r, t0 + 60, t0, std::nullopt, -1, &now).due);
+  now.source_match_db = 20;
+  CalibrationState s = calibration_due(&cal, r, t0 + 60, t0, std::nullopt, -1, &now);
+  EXPECT_TRUE(s.due);
+  EXPECT_NE(s.reason.find("source match of 30.0 dB; the station config now states 20.0 dB"), std::string::npos) << s.reason;
+  now.source_match_db = 35;
+  EXPECT_FALSE(calibration_due(&cal, r, t0 + 60, t0, std::nullopt, -1, &now).due);
+  now.test_port_delay_s = station().test_port_delay_s + 3e-9;
+  s = calibration_due(&cal, r, t0 + 60, t0, std::nullopt, -1, &now);
+  EXPECT_TRUE(s.due);
+  EXPECT_NE(s.reason.find("test-port delay"), std::string::npos) << s.reason;
+}
+
 // A calibration made by a step sweep for one recipe, then another recipe selected that uses fast
 // capture: the reason names the sweep modes, not an older version (common practice, no source).
 TEST(CalibrationDue, StepCalibrationForAFastRecipeNamesBothModes) {
