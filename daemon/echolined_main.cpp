@@ -203,6 +203,8 @@ int rf_off(const drivers::StationConfig& config) {
   service::Instruments instruments(config);
   const std::string who = fmt::format("source {} ({})", instruments.source().session().name(),
                                       instruments.source().session().address());
+  // A source that accepts the connection but does not answer holds this for its timeouts.
+  std::cerr << "echolined: --rf-off: switching the RF output of " << who << " off and confirming it..." << std::endl;
   if (Status s = instruments.source_output_off(); !s) {
     spdlog::error("--rf-off: {}: RF output NOT confirmed off: {}", who, s.error().message);
     std::cerr << "echolined: --rf-off: " << who << ": RF output NOT confirmed off: " << s.error().message

@@ -31,7 +31,7 @@ void print_help() {
 
 Usage:
   echoline-sim --config <bench.jsonc> [--lot <lot.jsonc>] [--profile instant|bench]
-               [--log-file <file>] [--log-level trace|debug|info|warn|error]
+               [--log-file <file>] [--log-level trace|debug|info|warn|error|off]
   echoline-sim --help | --version
 
 Options:
@@ -45,8 +45,9 @@ Options:
                             count as done (fast tests)
                    bench    real waits: modelled sweep/settling time plus a per-command
                             processing time (latency.command_ms, default 3 ms)
-  --log-file F   log every command received (with role and endpoint) to F instead of stderr.
-  --log-level L  default info (every command); debug adds every reply.
+  --log-file F   log every command received (with role and endpoint) to F instead of stderr
+                 (its folder is made when missing).
+  --log-level L  default info (every command); debug adds every reply; off logs nothing.
   --version      print the version and the commit it was built from, as in
                  echoline-sim 0.2.0 (g1234abc), and exit.
   --help         this text.

@@ -40,6 +40,8 @@ TEST(RfOff, SwitchesALiveSourceOffAndConfirmsIt) {
 
   const RfOffRun r = run_rf_off(config);
   EXPECT_EQ(r.exit_code, 0) << r.output;
+  // It says what it is doing first: a source that does not answer holds it for its timeouts.
+  EXPECT_LT(r.output.find("switching the RF output of source siggen"), r.output.find("RF output off, confirmed")) << r.output;
   EXPECT_NE(r.output.find("RF output off, confirmed"), std::string::npos) << r.output;
   EXPECT_EQ(ask(source, "OUTP?"), "0") << r.output;
 }
