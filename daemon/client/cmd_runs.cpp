@@ -19,6 +19,7 @@
 #include "daemon/store/documents.hpp"
 #include "daemon/store/export.hpp"
 #include "daemon/store/run_store.hpp"
+#include "daemon/store/serial.hpp"
 
 namespace echoline::client {
 
@@ -191,6 +192,10 @@ int cmd_runs(const Argv& argv) {
   const auto serial = args.get("--serial");
   const auto lot = args.get("--lot");
   if (!serial == !lot) args.usage_error("give exactly one of --serial SERIAL or --lot LOT");
+  // A serial no station accepts cannot have runs: say so rather than "no runs stored".
+  if (serial) {
+    if (Status s = store::validate_serial(*serial, ".*"); !s) args.usage_error("--serial: " + s.error().message);
+  }
   const json runs = fetch_runs(args, "runs", serial.has_value(), serial ? *serial : *lot);
   if (args.flag("--json")) {
     json out = {{serial ? "serial" : "lot", serial ? *serial : *lot}, {"runs", runs}};

@@ -184,6 +184,14 @@ TEST(ClientCli, RecipeCheckSaysAFastCaptureRunsFree) {
   EXPECT_EQ(step.output.find("ramp phase"), std::string::npos) << step.output;
 }
 
+// A serial no station accepts (a space: serial.hpp's fixed rules) is a usage error naming the
+// character, not "no runs stored": the operator typed it wrong.
+TEST(ClientCli, RunsForASerialNoStationAcceptsIsAUsageError) {
+  const Outcome o = run_client({"runs", "--serial", "bad serial!", "--store", "/nonexistent/store.sqlite"});
+  EXPECT_EQ(o.code, 2) << o.output;
+  EXPECT_NE(o.output.find("space at position 4"), std::string::npos) << o.output;
+}
+
 TEST(ClientCli, DaemonUnreachableExitsThreeWithAClearMessage) {
   TempDir dir;
   const std::string sock = (dir / "nobody.sock").string();
