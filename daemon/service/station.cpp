@@ -523,6 +523,9 @@ Result<std::vector<core::Reading>> Station::sweep_standard(const std::string& st
   if (!connect) {
     // A repeat sweep of the standard already connected (reading noise): no switch, no prompt.
   } else if (auto* sw = instruments_->switch_()) {
+    // Bring the instruments up first: a switch left closed by an earlier error would otherwise
+    // report only "not connected", hiding why (the connection refused, the host unreachable).
+    if (Status s = instruments_->ensure_ready(); !s) return s.error();
     if (Status s = sw->select(standard); !s) return s.error();
   } else if (!prompter.wait_connected(standard)) {
     std::string why = cancel.reason();

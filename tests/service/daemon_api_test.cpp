@@ -593,6 +593,35 @@ TEST(DaemonMismatch, CalibrationSwitchSelectsTheMismatchStandards) {
   }
 }
 
+// A calibration switch that refuses connections (port 1 on loopback: nobody listens) ends the
+// calibration with that cause named, not with "not connected" from the switch session an
+// earlier failure had closed.
+TEST(DaemonApiSwitch, ACalibrationSwitchThatRefusesConnectionsIsNamedWithItsCause) {
+  testing::TempDir dir("echoline-daemon-switch-refused");
+  Sim sim("tiny-lot.jsonc");
+  auto config = write_station_config(dir.path(), sim);
+  json cfg = json::parse(std::ifstream(config));
+  cfg["instruments"].push_back({{"role", "switch"}, {"name", "calswitch"}, {"address", "tcp://127.0.0.1:1"},
+                                {"profile", (testing::source_dir() / "config/instruments/sim-switch.jsonc").string()}});
+  std::ofstream(config) << cfg.dump(2) << "\n";
+  Daemon daemon(config);
+  Api api = Api::connect(daemon);
+  ASSERT_TRUE(api.call("cal.start").value("ok", false));
+  json last;
+  for (;;) {
+    json e = api.next_event();
+    if (e["event"] == "result" || e["event"] == "error") {
+      last = e;
+      break;
+    }
+  }
+  ASSERT_EQ(last["event"], "error") << last.dump();
+  const std::string message = last["error"].value("message", "");
+  EXPECT_NE(message.find("calswitch"), std::string::npos) << message;
+  EXPECT_NE(message.find("refused"), std::string::npos) << message;
+  EXPECT_EQ(message.find("closed after an earlier error"), std::string::npos) << message;
+}
+
 // A station whose kit has no mismatch standards refuses a recipe that asks for them, naming the
 // recipe key and the kit file: at recipe.select, and at start-up (exit 2, a configuration error).
 TEST(DaemonMismatch, RecipeAskingForMismatchIsRefusedWhenTheKitHasNone) {
