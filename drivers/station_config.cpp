@@ -138,6 +138,7 @@ StationConfig load_station_config(const std::filesystem::path& file) {
   if (!doc.has(kRoot / "log_dir")) c.log_dir = c.data_dir / "log";
   else if (!doc.at(kRoot / "log_dir").is_null()) c.log_dir = resolve(base, doc.require_string(kRoot / "log_dir"));
   c.recipe = doc.has(kRoot / "recipe") ? resolve(base, doc.require_string(kRoot / "recipe")) : std::filesystem::path{};
+  c.recipe_line = doc.has(kRoot / "recipe") ? doc.line_of(kRoot / "recipe") : 0;
   load_instruments(doc, base, c.instruments);
   load_fixture(doc, c.fixture);
   if (doc.has(kRoot / "calibration_kit")) {

@@ -45,6 +45,7 @@ struct WebConfig {
 struct StationConfig {
   std::string station;
   std::filesystem::path data_dir, log_dir, recipe;   // absolute after loading; log_dir empty = no log file
+  int recipe_line = 0;                              // where the config names the recipe (for messages)
   std::vector<InstrumentConfig> instruments;
   FixtureConfig fixture;
   std::filesystem::path calibration_kit;                    // kit definition file (absolute); "" = built-in conservative kit

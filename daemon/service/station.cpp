@@ -19,6 +19,7 @@
 #include "daemon/core/rf_math.hpp"
 #include "daemon/core/station_capability.hpp"
 #include "drivers/config_error.hpp"
+#include "drivers/jsonc.hpp"
 #include "daemon/service/clock.hpp"
 #include "daemon/service/fast_capture.hpp"
 #include "daemon/store/export.hpp"
@@ -157,7 +158,15 @@ Station::Station(drivers::StationConfig config) : config_(std::move(config)) {
     kit_ = core::load_cal_kit(config_.calibration_kit);
     spdlog::info("calibration kit: {} serial {} ({})", kit_.identity, kit_.serial, config_.calibration_kit.string());
   }
-  auto recipe = std::make_shared<core::Recipe>(core::load_recipe(config_.recipe));
+  std::shared_ptr<core::Recipe> recipe;
+  try {
+    recipe = std::make_shared<core::Recipe>(core::load_recipe(config_.recipe));
+  } catch (const drivers::ConfigError& e) {
+    // The file itself could not be read: name the station config's key that points at it.
+    if (e.line > 0 || !e.key.empty()) throw;
+    throw drivers::ConfigError(config_.file, config_.recipe_line, "/recipe",
+                               fmt::format("{}: {}", config_.recipe.string(), e.message));
+  }
   instruments_ = std::make_unique<Instruments>(config_);
   auto findings = core::check_recipe(*recipe, capability(*recipe));
   for (const auto& f : findings) spdlog::log(f.severity == "error" ? spdlog::level::err : spdlog::level::warn,
@@ -166,7 +175,14 @@ Station::Station(drivers::StationConfig config) : config_(std::move(config)) {
     for (const auto& f : findings) {
       if (f.severity == "error") {
         // A configuration error (exit 2): the recipe and the station's instruments do not fit.
-        throw drivers::ConfigError(recipe->source_path, 0, f.key,
+        int line = 0;
+        try {
+          line = drivers::JsoncDocument::load(recipe->source_path)
+                     .line_of(nlohmann::json::json_pointer(f.key.empty() || f.key[0] != '/' ? "" : f.key));
+        } catch (const std::exception&) {
+          line = 0;   // the message still names the file and the key
+        }
+        throw drivers::ConfigError(recipe->source_path, line, f.key,
                                    fmt::format("cannot run on station {}: {}", config_.station, f.message));
       }
     }

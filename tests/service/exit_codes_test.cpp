@@ -4,10 +4,13 @@
 #include <sys/un.h>
 #include <unistd.h>
 
+#include <regex>
+
 #include <gtest/gtest.h>
 
 #include <cstring>
 #include <fstream>
+#include <regex>
 #include <string>
 #include <vector>
 
@@ -76,6 +79,21 @@ TEST(ExitCodes, DaemonPortFromTheCommandLineOffLoopbackWithoutATokenIsAConfigErr
   EXPECT_TRUE(says(o, config.string() + ": /api/tcp_host: --tcp-port")) << o.output;
   EXPECT_TRUE(says(o, "needs api.token_file")) << o.output;
   EXPECT_FALSE(says(o, "starting")) << "it started before refusing: " << o.output;
+}
+
+// A station config naming a recipe file that does not exist is a configuration error (2) at the
+// config's own key and line, with the file named (README: "the message names file, line and key").
+TEST(ExitCodes, DaemonRecipeFileMissingIsAConfigErrorAtTheConfigsKey) {
+  testing::TempDir dir("echoline-norecipe");
+  Sim sim("tiny-lot.jsonc");
+  const auto missing = dir / "nope.jsonc";
+  const auto config = write_station_config(dir.path(), sim, missing.string());
+  const Outcome o = run(testing::daemon_binary(), {"--config", config.string(), "--no-log-file"});
+  EXPECT_EQ(o.code, 2) << o.output;
+  // "<config>:<line>: /recipe: <file>: cannot open ...": the line is where write_station_config put the key.
+  EXPECT_TRUE(says(o, config.string() + ":")) << o.output;
+  EXPECT_TRUE(std::regex_search(o.output, std::regex(R"(station\.jsonc:[0-9]+: /recipe: )"))) << o.output;
+  EXPECT_TRUE(says(o, missing.string() + ": cannot open the recipe file")) << o.output;
 }
 
 TEST(ExitCodes, DaemonBadOverrideIsAConfigurationErrorNamingTheOption) {
