@@ -178,6 +178,29 @@ std::unique_ptr<ApiClient> connect_daemon(const Args& args, const std::string& r
   return api;
 }
 
+bool all_healthy(const nlohmann::json& st) {
+  bool healthy = true;
+  if (st.contains("instruments")) {
+    for (const auto& i : st["instruments"]) healthy = healthy && i.value("healthy", false);
+  }
+  return healthy;
+}
+
+// An instrument reported NOT READY may have come back since its last bring-up (a cable
+// plugged in, a generator switched on): while the station is idle, ask the daemon to try once
+// more before showing it. Returns whether it tried (the caller then asks for status again).
+bool probe_when_idle(ApiClient& api, const nlohmann::json& st) {
+  if (all_healthy(st) || (st.contains("busy") && !st["busy"].is_null())) return false;
+  auto r = api.call("instruments.probe", nlohmann::json::object());
+  if (!r || !r->ok) return false;   // busy meanwhile, or an older daemon: show what it has
+  const long id = api.last_id();
+  for (;;) {
+    auto m = api.next_message(std::chrono::seconds(120));
+    if (!m) return false;
+    if (m->value("id", -1L) == id && m->contains("event")) return true;
+  }
+}
+
 bool wait_while_instruments_connect(ApiClient& api, std::ostream& note, std::chrono::seconds limit) {
   const auto deadline = std::chrono::steady_clock::now() + limit;
   bool said = false;

@@ -72,6 +72,13 @@ std::filesystem::path store_file(const drivers::StationConfig& config);
 // at start-up, so every command sees the station as it will be once ready.
 std::unique_ptr<ApiClient> connect_daemon(const Args& args, const std::string& role, const std::string& client_name);
 
+// Every instrument in a status reply is healthy.
+bool all_healthy(const nlohmann::json& st);
+// An instrument reported NOT READY may have come back since its last bring-up: while the station
+// is idle, asks the daemon to try once more (instruments.probe). True when it tried (ask for
+// status again); false when all were healthy, the station was busy, or the daemon refused.
+bool probe_when_idle(ApiClient& api, const nlohmann::json& st);
+
 // Polls status while the daemon's busy kind is "instrument connect" (its start-up), saying once on
 // `note` that it waits. False when `limit` passed first; true otherwise (also when status fails:
 // the caller's next request reports that).

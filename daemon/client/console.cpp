@@ -107,6 +107,8 @@ void Console::not_tested_by_instruments(const std::string& serial) {
 
 Console::Outcome Console::first_screen() {
   auto st = api_.call("status", json::object());
+  // An instrument last seen NOT READY is tried once more before the banner shows it.
+  if (st && st->ok && probe_when_idle(api_, st->result)) st = api_.call("status", json::object());
   if (!st) return lost(st.error());
   if (!st->ok) {
     out_ << "The daemon refused status: " << st->message << "\n";

@@ -169,6 +169,21 @@ TEST(ExitCodes, StatusTriesAnInstrumentThatWasNotReadyAgainWhileIdle) {
   EXPECT_FALSE(says(o, "NOT READY")) << o.output;
 }
 
+// The console's opening banner does the same: an instrument that has come back since it was
+// last seen NOT READY is tried again before the banner shows it, not shown stale.
+TEST(ExitCodes, TheConsoleBannerTriesAnInstrumentThatWasNotReadyAgain) {
+  testing::TempDir dir("echoline-exit-codes");
+  Sim sim("tiny-lot.jsonc");
+  json armed = sim.control({{"cmd", "fault"}, {"role", "receiver"}, {"kind", "wrong-identity"}, {"probability", 1}, {"seed", 1}});
+  ASSERT_TRUE(armed.value("ok", false)) << armed.dump();
+  Daemon daemon(write_station_config(dir.path(), sim));
+  json cleared = sim.control({{"cmd", "clear-faults"}});
+  ASSERT_TRUE(cleared.value("ok", false)) << cleared.dump();
+  const Outcome o = run(testing::client_binary(), {"station", "--socket", daemon.unix_path()});   // stdin at its end: banner, then out
+  EXPECT_TRUE(says(o, "ECHOLINE STATION")) << o.output;
+  EXPECT_FALSE(says(o, "NOT READY")) << o.output;
+}
+
 TEST(ExitCodes, ASocketThisLoginMayNotUseSaysWhichGroupToJoin) {
   if (::geteuid() != 0) GTEST_SKIP() << "needs root to run the client as another user";
   testing::TempDir dir("echoline-exit-codes");   // mode 0700, like /run/echoline to a non-member
