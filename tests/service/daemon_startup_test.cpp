@@ -31,13 +31,11 @@ TEST(DaemonStartup, AClientIsAnsweredBusyWhileTheInstrumentsConnect) {
   }
   ASSERT_TRUE(std::filesystem::exists(socket)) << "echolined did not bind " << socket;
   Api api(LineSocket::unix_socket(socket.string()));
-  const auto asked = std::chrono::steady_clock::now();
+  // Answered during the connect, not after it: only then is the busy kind "instrument connect".
   json status = api.call("status");
-  const double waited_s = std::chrono::duration<double>(std::chrono::steady_clock::now() - asked).count();
   ASSERT_TRUE(status.value("ok", false)) << status.dump();
   const json& busy = status["result"]["busy"];
   EXPECT_TRUE(busy.is_object() && busy.value("kind", "") == "instrument connect") << status.dump();
-  EXPECT_LT(waited_s, 1.0) << "the status reply waited for the connect";   // one slow reply alone is 1.5 s
   json refused = api.call("test.start", {{"serial", "TINY-01"}});
   EXPECT_FALSE(refused.value("ok", true)) << refused.dump();
   EXPECT_EQ(refused["error"].value("code", ""), "busy") << refused.dump();
