@@ -174,7 +174,7 @@ std::unique_ptr<ApiClient> connect_daemon(const Args& args, const std::string& r
     throw CliExit(exit_code_for_api_error(hello->code),
                   fmt::format("the daemon refused the {} role ({}): {}", role, hello->code, hello->message));
   }
-  wait_while_instruments_connect(*api, std::cerr);
+  wait_while_instruments_busy(*api, std::cerr);
   return api;
 }
 
@@ -201,20 +201,26 @@ bool probe_when_idle(ApiClient& api, const nlohmann::json& st) {
   }
 }
 
-bool wait_while_instruments_connect(ApiClient& api, std::ostream& note, std::chrono::seconds limit) {
+bool instruments_busy_kind(const std::string& kind) { return kind == "instrument connect" || kind == "probe"; }
+
+bool wait_while_instruments_busy(ApiClient& api, std::ostream& note, std::chrono::seconds limit) {
   const auto deadline = std::chrono::steady_clock::now() + limit;
   bool said = false;
   for (;;) {
     auto st = api.call("status", nlohmann::json::object());
     if (!st || !st->ok) return true;   // the caller's own request reports what is wrong
     const nlohmann::json& busy = st->result.contains("busy") ? st->result["busy"] : nlohmann::json();
-    if (!busy.is_object() || busy.value("kind", "") != "instrument connect") {
+    const std::string kind = busy.is_object() ? busy.value("kind", std::string()) : std::string();
+    if (!instruments_busy_kind(kind)) {
       if (said) note << "The instruments are connected.\n" << std::flush;
       return true;
     }
     if (std::chrono::steady_clock::now() >= deadline) return false;
     if (!said) {
-      note << "echolined is starting: it is connecting the instruments. Waiting...\n" << std::flush;
+      note << (kind == "probe" ? "echolined is trying the instruments again (an instrument that does not answer holds "
+                                 "it for its timeouts). Waiting...\n"
+                               : "echolined is starting: it is connecting the instruments. Waiting...\n")
+           << std::flush;
       said = true;
     }
     std::this_thread::sleep_for(std::chrono::milliseconds(250));

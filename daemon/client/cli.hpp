@@ -69,7 +69,7 @@ std::filesystem::path store_file(const drivers::StationConfig& config);
 // config's api.token_file when readable. Throws CliExit: kExitUnreachable when the daemon
 // cannot be reached, kExitUsage when no address is known or the token is refused.
 // After hello it waits (a line on stderr) while the daemon is still connecting its instruments
-// at start-up, so every command sees the station as it will be once ready.
+// at start-up or probing them, so every command sees the station as it will be once ready.
 std::unique_ptr<ApiClient> connect_daemon(const Args& args, const std::string& role, const std::string& client_name);
 
 // Every instrument in a status reply is healthy.
@@ -79,10 +79,14 @@ bool all_healthy(const nlohmann::json& st);
 // status again); false when all were healthy, the station was busy, or the daemon refused.
 bool probe_when_idle(ApiClient& api, const nlohmann::json& st);
 
-// Polls status while the daemon's busy kind is "instrument connect" (its start-up), saying once on
-// `note` that it waits. False when `limit` passed first; true otherwise (also when status fails:
-// the caller's next request reports that).
-bool wait_while_instruments_connect(ApiClient& api, std::ostream& note, std::chrono::seconds limit = std::chrono::seconds(120));
+// True for the daemon's busy kinds that only bring instruments up: "instrument connect" (its
+// start-up) and "probe" (another client's instruments.probe). Both end within the instruments'
+// timeouts, so a client waits for them instead of reporting the station busy.
+bool instruments_busy_kind(const std::string& kind);
+// Polls status while the daemon is busy with one of those, saying once on `note` that it waits.
+// False when `limit` passed first; true otherwise (also when status fails: the caller's next
+// request reports that).
+bool wait_while_instruments_busy(ApiClient& api, std::ostream& note, std::chrono::seconds limit = std::chrono::seconds(120));
 
 // Throws CliExit for a refused reply: the exit code from the API error code, the message
 // prefixed with `what`.

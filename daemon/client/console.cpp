@@ -376,9 +376,12 @@ Console::Outcome Console::test_unit(const std::string& serial, bool again) {
       return lost(make_error(ErrorKind::closed, fmt::format("the daemon is stopping: {}", reply->message)));
     }
     if (!reply->ok) {
-      // A daemon that has just restarted may still be connecting its instruments.
-      if (reply->code == "busy" && reply->message.find("instrument connect") != std::string::npos &&
-          wait_while_instruments_connect(api_, out_)) {
+      // A daemon that has just restarted may still be connecting its instruments, or another
+      // client's probe may be trying them: both end within the instruments' timeouts.
+      if (reply->code == "busy" &&
+          (reply->message.find("instrument connect") != std::string::npos ||
+           reply->message.find("busy: probe ") != std::string::npos) &&
+          wait_while_instruments_busy(api_, out_)) {
         --attempt;
         continue;
       }

@@ -1,6 +1,7 @@
 // echolined answers its clients while it connects the instruments: a generator that is slow to
 // answer holds the start-up for seconds, and a client that asks meanwhile hears "busy:
 // instrument connect" at once instead of waiting unanswered. "listening" still means ready.
+// The `echoline` commands wait for that, and for a probe, instead of calling the station busy.
 #include <filesystem>
 #include <thread>
 
@@ -54,6 +55,30 @@ TEST(DaemonStartup, AClientIsAnsweredBusyWhileTheInstrumentsConnect) {
   json after = api.call("status");
   EXPECT_TRUE(after["result"]["busy"].is_null()) << after.dump();
   EXPECT_GE(daemon.terminate(30s), 0);
+}
+
+// The same for another client's instruments.probe: it ends within the instruments' timeouts,
+// so an `echoline` command waits for it (saying so) instead of reporting the station busy.
+TEST(DaemonStartup, ACommandWaitsForAProbeOfSlowInstruments) {
+  testing::TempDir dir("echoline-probe-wait");
+  Sim sim("tiny-lot.jsonc");
+  // The analyzer answers with another identity at start-up: NOT READY, so a probe has work.
+  json armed = sim.control({{"cmd", "fault"}, {"role", "receiver"}, {"kind", "wrong-identity"}, {"probability", 1}, {"seed", 1}});
+  ASSERT_TRUE(armed.value("ok", false)) << armed.dump();
+  Daemon daemon(write_station_config(dir.path(), sim));
+  ASSERT_TRUE(sim.control({{"cmd", "clear-faults"}}).value("ok", false));
+  // Now right, but every reply 1.5 s late: the probe's bring-up takes several seconds.
+  ASSERT_TRUE(sim.control({{"cmd", "fault"}, {"role", "receiver"}, {"kind", "slow-reply"}, {"probability", 1},
+                           {"seed", 1}, {"delay_ms", 1500}})
+                  .value("ok", false));
+  Api api = Api::connect(daemon);
+  ASSERT_TRUE(api.call("instruments.probe").value("ok", false));
+  json busy = api.call("status")["result"]["busy"];
+  ASSERT_TRUE(busy.is_object() && busy.value("kind", "") == "probe") << busy.dump();
+  const testing::Outcome shown =
+      testing::run_to_end({testing::client_binary().string(), "status", "--socket", daemon.unix_path()}, {}, 60s);
+  EXPECT_NE(shown.output.find("trying the instruments again"), std::string::npos) << shown.output;
+  EXPECT_NE(shown.output.find("busy: no"), std::string::npos) << shown.output;
 }
 
 }  // namespace
