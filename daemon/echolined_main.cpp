@@ -277,8 +277,12 @@ int run(const Args& args) {
   // The API serves while the instruments connect: an instrument that does not answer holds the
   // connect for its timeouts, and a client meanwhile hears "busy: instrument connect is
   // running" instead of waiting unanswered. The "listening" line and READY=1 still come after.
-  std::thread io([&] { server->run(); });
-  struct IoGuard {   // a throw from here on (pages' port taken) stops the io thread first
+  // Everything that serves starts inside the busy state, so no job can start beside the connect;
+  // the pages first (they set the handler's event watcher, which must be in place before anything
+  // serves, and a taken port then stops the daemon before any instrument is touched).
+  std::unique_ptr<web::WebServer> pages;
+  std::thread io;
+  struct IoGuard {   // a throw once the io thread runs stops it first
     service::ApiServer& server;
     std::thread& io;
     ~IoGuard() {
@@ -287,11 +291,11 @@ int run(const Args& args) {
       io.join();
     }
   } io_guard{*server, io};
-  handler.run_busy("instrument connect", [&] { station.connect_instruments(); });
-  // The pages serve from their own thread as soon as they exist; they watch the handler's jobs
-  // and are stopped after the handler.
-  std::unique_ptr<web::WebServer> pages;
-  if (config.web.port != 0) pages = std::make_unique<web::WebServer>(handler, station, web::WebOptions{config.web.host, config.web.port, token});
+  handler.run_busy("instrument connect", [&] {
+    if (config.web.port != 0) pages = std::make_unique<web::WebServer>(handler, station, web::WebOptions{config.web.host, config.web.port, token});
+    io = std::thread([&] { server->run(); });
+    station.connect_instruments();
+  });
 
   const std::string web_address = pages ? "http://" + pages->address() + "/" : "";
   std::cout << "listening unix=" << server->unix_path() << " tcp=" << server->tcp_address() << " web=" << web_address

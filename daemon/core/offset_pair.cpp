@@ -33,19 +33,24 @@ void pair_g2_range(double x_lo, double x_hi, double pa, double pb, double d2, do
 }
 
 // Bound on what the sum p_A + p_B/a leaves besides D²(1 + 1/a) + |Γ|²(1 + a), for |Γ| ≤ g
-// (MEASUREMENT.md §12, the terms R1–R6). The source match's first-order terms are bounded
-// together, because the half turn cancels most of them too.
-double residual_bound(double g, double d_hi, double a_lo, double a_hi, double x_hi, double s, double m, double turn) {
+// (MEASUREMENT.md §12, the terms R1–R5). The source match's first-order terms are bounded
+// together, because the half turn cancels most of them too. cn: the unit's own connection
+// (k·u_conn), made anew for each reading.
+double residual_bound(double g, double d_hi, double a_lo, double a_hi, double x_hi, double s, double m, double cn,
+                      double turn) {
   const double turn_factor = 2.0 * std::sin(turn / 2.0);                          // |1 − e^{jδ}|
   const double r1 = 2.0 * d_hi * g * turn_factor;                                 // 2·Re(d̄Γ(1 − e^{jδ}))
   const double r2 = 2.0 * g * g * g * s * ((1.0 - a_lo * a_lo) + turn_factor);    // 2|Γ|²·Re(sΓ(1 − a²e^{jδ}))
   const double r3 = 2.0 * d_hi * s * g * g * (1.0 + a_hi);                        // 2·Re(d̄sΓ²(1 + τ²/a))
-  // Direct reading beyond first order in s: Γ'_A = Γ + sΓ² + r_A.
-  const double ra = s * s * g * g * g / (1.0 - s * g);
-  const double r4 = 2.0 * (d_hi + g) * ra + (s * g * g + ra) * (s * g * g + ra);
-  // Offset reading: g_B = τΓ + μ (the line's mismatch), Γ'_B = τΓ + sτ²Γ² + ν_B.
-  const double mu = m + a_hi * m * g * g / (1.0 - m * g);
-  const double gb = a_hi * g + mu;
+  // Direct reading: g_A = Γ + c_A (the connection), Γ'_A = Γ + sΓ² + ν_A.
+  const double ga = std::min(1.0, g + cn);
+  const double nu_a = cn + s * cn * (2.0 * g + cn) + s * s * ga * ga * ga / (1.0 - s * ga);
+  const double r4 = 2.0 * (d_hi + g) * nu_a + (s * g * g + nu_a) * (s * g * g + nu_a);
+  // Offset reading: g_B = τΓ + μ (the line's mismatch and the connection at its far end),
+  // Γ'_B = τΓ + sτ²Γ² + ν_B. A passive line and unit keep |g_B| ≤ 1.
+  const double gc = std::min(1.0, g + cn);
+  const double mu = m + a_hi * (cn + m * gc * gc / (1.0 - m * gc));
+  const double gb = std::min(1.0, a_hi * g + mu);
   const double rb = s * s * gb * gb * gb / (1.0 - s * gb);
   const double nu = mu + s * mu * (2.0 * a_hi * g + mu) + rb;
   const double wb = a_hi * a_hi * s * g * g + nu;
@@ -72,9 +77,10 @@ OffsetPairInterval combine_offset_pair(const OffsetPairPoint& p, const OffsetLin
   out.turn_error_rad = offset_turn_error(p.frequency_hz, line);
   if (out.turn_error_rad > kPi / 2.0) return out;   // usable = false, [0, 1]
   const double k = p.coverage_factor;
-  // a = |t|² (two passes through the line), never above 1 for a passive line; x = 1/a.
-  const double a_hi = std::min(1.0, from_db_power(-2.0 * (line.loss_db - line.loss_tolerance_db)));
-  const double a_lo = from_db_power(-2.0 * (line.loss_db + line.loss_tolerance_db));
+  // a = |τ| = |t|² (the reflection passes the line twice; its one-way loss L gives |t|² =
+  // 10^(−L/10)), never above 1 for a passive line; x = 1/a.
+  const double a_hi = std::min(1.0, from_db_power(-(line.loss_db - line.loss_tolerance_db)));
+  const double a_lo = from_db_power(-(line.loss_db + line.loss_tolerance_db));
   const double x_lo = 1.0 / a_hi, x_hi = 1.0 / a_lo;
   // The true powers relative to T are c·p with c = 10^((R − T)/10); R's noise scales both alike.
   const double c_lo = from_db_power(p.reference_low_db - k * p.reference_sigma_db);
@@ -82,23 +88,25 @@ OffsetPairInterval combine_offset_pair(const OffsetPairPoint& p, const OffsetLin
   const double d_lo = std::max(0.0, p.directivity_low), d_hi = p.directivity_high;
   const double s = p.source_match, m = line.match;
 
-  // Noise of each reading as a relative standard uncertainty of its power (d ln p = (ln 10/10) dP).
-  const double ra = p.sigma_direct_db * std::log(10.0) / 10.0;
-  const double rb = p.sigma_offset_db * std::log(10.0) / 10.0;
+  // Each reading's noise at the coverage factor, converted exactly (a reading k·σ dB high is
+  // 10^(kσ/10) − 1 high in power; low, less), the two readings independent.
+  const double ea = from_db_power(k * p.sigma_direct_db) - 1.0;
+  const double eb = from_db_power(k * p.sigma_offset_db) - 1.0;
   const double w = x_hi / (x_hi + 1.0);
-  out.g2_sigma = std::hypot(w * c_hi * p.p_direct * ra, w * x_hi * c_hi * p.p_offset * rb);
+  out.g2_noise = std::hypot(w * c_hi * p.p_direct * ea, w * x_hi * c_hi * p.p_offset * eb);
 
   // A first bound on |Γ| from the direct reading alone (§3.6), then tightened by the pair.
-  const double g_prime = std::sqrt(c_hi * p.p_direct * from_db_power(k * p.sigma_direct_db)) + d_hi;
-  double g_bound = s * g_prime < 1.0 ? std::min(1.0, g_prime / (1.0 - s * g_prime)) : 1.0;
+  const double cn = std::max(0.0, p.connection);
+  const double g_prime = std::sqrt(c_hi * p.p_direct * (1.0 + ea)) + d_hi;
+  double g_bound = s * g_prime < 1.0 ? std::min(1.0, g_prime / (1.0 - s * g_prime) + cn) : 1.0;
   double g2_lo = 0, g2_hi = 1;
   for (int pass = 0; pass < 4; ++pass) {
-    out.residual = residual_bound(g_bound, d_hi, a_lo, a_hi, x_hi, s, m, out.turn_error_rad);
+    out.residual = residual_bound(g_bound, d_hi, a_lo, a_hi, x_hi, s, m, cn, out.turn_error_rad);
     double lo_lo, lo_hi, hi_lo, hi_hi;
     pair_g2_range(x_lo, x_hi, c_lo * p.p_direct, c_lo * p.p_offset, d_hi * d_hi, lo_lo, lo_hi);
     pair_g2_range(x_lo, x_hi, c_hi * p.p_direct, c_hi * p.p_offset, d_lo * d_lo, hi_lo, hi_hi);
-    g2_lo = lo_lo - w * out.residual - k * out.g2_sigma;
-    g2_hi = hi_hi + w * out.residual + k * out.g2_sigma;
+    g2_lo = lo_lo - w * out.residual - out.g2_noise;
+    g2_hi = hi_hi + w * out.residual + out.g2_noise;
     const double next = std::sqrt(std::clamp(g2_hi, 0.0, 1.0));
     if (next >= g_bound) break;
     g_bound = next;

@@ -32,19 +32,21 @@ struct OffsetPairPoint {
   double directivity_low = 0;     // |E_D| ∈ [low, high] relative to T, linear (low = 0 is always safe)
   double directivity_high = 0;
   double source_match = 0;        // |E_S| bound, linear
+  double connection = 0;          // the unit's own connection, k·u_conn (§3.5), linear; made anew for each reading
 };
 
 struct OffsetPairInterval {
   double gamma_low = 0, gamma_high = 1;   // |Γ| of the unit (bounded terms worst case + k·statistical)
   double turn_error_rad = 0;     // largest |arg(offset turn) − π| the line's delay allows at this frequency
   double residual = 0;           // bound on the terms the sum leaves (|Γ|² units, before dividing by 1 + a)
-  double g2_sigma = 0;           // standard uncertainty of |Γ|² from the noise
+  double g2_noise = 0;           // the readings' noise at the coverage factor, in |Γ|² (already expanded)
   // false when the line's delay tolerance allows a turn more than a quarter turn from half a
   // turn at this frequency: the pair then cancels too little to be worth using (gamma_* = [0, 1]).
   bool usable = false;
 };
 
-// REQUIRES: p_direct, p_offset > 0; directivity_low ≤ directivity_high; source_match, match < 0.5.
+// REQUIRES: p_direct, p_offset > 0; directivity_low ≤ directivity_high; source_match, match < 0.5;
+// a passive unit (|Γ| ≤ 1).
 OffsetPairInterval combine_offset_pair(const OffsetPairPoint& point, const OffsetLine& line);
 
 // The largest |arg(t²) − π| over the line's delay tolerance at `frequency_hz` (t: the line's

@@ -400,6 +400,10 @@ void ApiHandler::call_probe(const std::shared_ptr<ClientLink>& link, const Reque
 void ApiHandler::call_cancel(const std::shared_ptr<ClientLink>& link, const Request& req) {
   auto busy = busy_text();
   if (!busy) return fail(link, req.id, "idle", "cancel: nothing is running");
+  if (*busy == "instrument connect") {
+    return fail(link, req.id, "busy", "cancel: the instrument connect at start-up cannot be cancelled; it ends within the "
+                                      "instruments' timeouts");
+  }
   cancel_.cancel("cancelled by request");
   cv_.notify_all();
   reply(link, req.id, {{"cancelled", *busy}});

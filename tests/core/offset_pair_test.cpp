@@ -58,6 +58,28 @@ TEST(OffsetPair, AnIdealHalfTurnCancelsTheLeakageExactly) {
   }
 }
 
+// A lossy line: 0.5 dB one way is |t|² = 10^(−0.05) = 0.891 on the round trip (a power ratio of
+// 10^(−L/10) per pass, common practice). With that the pair is exact again; a conversion that
+// took the loss twice over would put the unit at 0.334 instead of 0.316.
+TEST(OffsetPair, ALossyLineIsScaledByItsRoundTrip) {
+  OffsetLine line;
+  line.delay_s = 1.0 / (4.0 * 915e6);
+  line.loss_db = 0.5;
+  const double a = std::pow(10.0, -0.05);
+  for (double phase_deg : {0.0, 90.0, 200.0}) {
+    const cd d = std::polar(0.056, phase_deg * kPi / 180.0);
+    const cd gamma = std::polar(0.3162, 1.1);
+    OffsetPairPoint p;
+    p.frequency_hz = 915e6;
+    p.p_direct = std::norm(d + gamma);
+    p.p_offset = std::norm(d - a * gamma);
+    p.directivity_low = p.directivity_high = std::abs(d);
+    const OffsetPairInterval r = combine_offset_pair(p, line);
+    EXPECT_NEAR(r.gamma_low, std::abs(gamma), 1e-9) << phase_deg;
+    EXPECT_NEAR(r.gamma_high, std::abs(gamma), 1e-9) << phase_deg;
+  }
+}
+
 // A quarter-wave line turns the reflection by 2·2π·f·τ = π·f/915 MHz: off by π·(1 − f/915 MHz)
 // at another frequency (arithmetic from the definition of electrical delay; common practice).
 TEST(OffsetPair, TheTurnErrorFollowsTheLinesDelay) {
@@ -84,15 +106,16 @@ struct BenchFigures {
 };
 
 // Random benches behind a coupler of `directivity_db`, a 25 dB source match, a LOAD that leaves
-// |d| known to ±0.01 (40 dB), ±0.05 dB reference error and 0.03 dB reading noise (clipped at 2σ,
-// so the k = 3 statistical widening covers the sum of both readings' noise).
+// |d| known to ±0.01 (40 dB), ±0.05 dB reference error, 0.03 dB reading noise (clipped at 2σ,
+// so the k = 3 widening covers both readings' noise) and the unit's connection made anew for
+// each reading (a 60 dB repeatability: k·u_conn = 0.003, drawn within it).
 BenchFigures run_benches(double directivity_db, double line_match_db, int benches, unsigned seed) {
   std::mt19937 rng(seed);
   std::uniform_real_distribution<double> u01(0.0, 1.0);
   std::normal_distribution<double> n01(0.0, 1.0);
   const OffsetLine line = quarter_wave_915(line_match_db);
   const double sigma_db = 0.03, load_residual = db_to_gamma(40), ref_bound_db = 0.05;
-  const double s_bound = db_to_gamma(25);
+  const double s_bound = db_to_gamma(25), connection = 3 * db_to_gamma(60);
   BenchFigures fig;
   for (int b = 0; b < benches; ++b) {
     const double d_mag = db_to_gamma(directivity_db) * (0.7 + 0.3 * u01(rng));
@@ -100,7 +123,7 @@ BenchFigures run_benches(double directivity_db, double line_match_db, int benche
     const double s_mag = s_bound * u01(rng), s_phase = 2 * kPi * u01(rng);
     const double tau = line.delay_s + line.delay_tolerance_s * (2 * u01(rng) - 1);
     const double loss = line.loss_db + line.loss_tolerance_db * (2 * u01(rng) - 1);
-    const double a = std::pow(10.0, -2.0 * loss / 10.0);
+    const double a = std::pow(10.0, -loss / 10.0);   // |t|², t the one-way transmission (loss dB one way)
     const cd m1 = std::polar(line.match * u01(rng), 2 * kPi * u01(rng));
     const cd m2 = std::polar(line.match * u01(rng), 2 * kPi * u01(rng));
     const double ref_err_db = ref_bound_db * (2 * u01(rng) - 1);
@@ -116,7 +139,10 @@ BenchFigures run_benches(double directivity_db, double line_match_db, int benche
       const cd d = std::polar(d_mag, d_phase - 2 * w * d_delay);
       const cd s = std::polar(s_mag, s_phase - 2 * w * 2e-9);
       const cd t2 = std::polar(a, -2 * w * tau);
-      const cd g_b = m1 + t2 * gamma / (1.0 - m2 * gamma);
+      const cd c_a = std::polar(connection * u01(rng), 2 * kPi * u01(rng));   // each connection's own error
+      const cd c_b = std::polar(connection * u01(rng), 2 * kPi * u01(rng));
+      const cd g_a = gamma + c_a;
+      const cd g_b = m1 + t2 * (gamma + c_b) / (1.0 - m2 * (gamma + c_b));
       auto reading = [&](cd g) {
         const double noise = std::clamp(n01(rng), -2.0, 2.0) * sigma_db;
         const double p_true = std::norm(d + g / (1.0 - s * g));
@@ -124,7 +150,7 @@ BenchFigures run_benches(double directivity_db, double line_match_db, int benche
       };
       OffsetPairPoint p;
       p.frequency_hz = f;
-      p.p_direct = reading(gamma);
+      p.p_direct = reading(g_a);
       p.p_offset = reading(g_b);
       p.reference_low_db = -ref_bound_db;
       p.reference_high_db = ref_bound_db;
@@ -133,6 +159,7 @@ BenchFigures run_benches(double directivity_db, double line_match_db, int benche
       p.directivity_low = std::max(0.0, load_seen - load_residual);
       p.directivity_high = load_seen + load_residual;
       p.source_match = s_bound;
+      p.connection = connection;
       const OffsetPairInterval iv = combine_offset_pair(p, line);
       EXPECT_TRUE(iv.usable) << f;
       const double g_true = std::abs(gamma);
@@ -147,8 +174,9 @@ BenchFigures run_benches(double directivity_db, double line_match_db, int benche
       // The single reading's interval (§3.6) at the same point, for comparison.
       const double k = 3, c_lo = std::pow(10.0, (-ref_bound_db - k * sigma_db) / 10.0);
       const double c_hi = std::pow(10.0, (ref_bound_db + k * sigma_db) / 10.0);
-      const double g1_lo = std::max(0.0, std::sqrt(c_lo * p.p_direct) - p.directivity_high);
-      const double g1_hi = std::sqrt(c_hi * p.p_direct) + p.directivity_high;
+      const double e = p.directivity_high + connection;   // §3.6: |E_D| bound + k·u_conn
+      const double g1_lo = std::max(0.0, std::sqrt(c_lo * p.p_direct) - e);
+      const double g1_hi = std::sqrt(c_hi * p.p_direct) + e;
       const double single_lo = g1_lo / (1 + s_bound * g1_lo), single_hi = std::min(1.0, g1_hi / (1 - s_bound * g1_hi));
       const double rl = rl_db(g_true);
       if (rl > 9 && rl < 11) {
@@ -208,7 +236,7 @@ TEST(OffsetPair, TheResidualBoundIsReachedByTheWorstPhases) {
   line.delay_tolerance_s = 0;
   line.loss_tolerance_db = 0;
   const double f = 860e6, w = 2 * kPi * f;
-  const double a = std::pow(10.0, -2.0 * line.loss_db / 10.0);
+  const double a = std::pow(10.0, -line.loss_db / 10.0);
   const cd t2 = std::polar(a, -2 * w * line.delay_s);
   const double d_mag = db_to_gamma(25), s_mag = db_to_gamma(25), g_mag = db_to_gamma(10);
   double reach = 0;

@@ -41,6 +41,10 @@ TEST(DaemonStartup, AClientIsAnsweredBusyWhileTheInstrumentsConnect) {
   EXPECT_FALSE(refused.value("ok", true)) << refused.dump();
   EXPECT_EQ(refused["error"].value("code", ""), "busy") << refused.dump();
   EXPECT_NE(refused["error"].value("message", "").find("instrument connect"), std::string::npos) << refused.dump();
+  // Nothing to cancel: the connect ends within the instruments' timeouts, and cancel says so.
+  json cancel = api.call("cancel");
+  EXPECT_FALSE(cancel.value("ok", true)) << cancel.dump();
+  EXPECT_NE(cancel["error"].value("message", "").find("cannot be cancelled"), std::string::npos) << cancel.dump();
 
   // The client waits for the connect to end, says so, then shows the station as it is once
   // ready (README "Exit codes": 0 shown, every instrument ready).
