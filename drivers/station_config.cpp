@@ -73,7 +73,7 @@ void load_api(const JsoncDocument& doc, const std::filesystem::path& base, const
   const bool token = doc.has(at / "token_file") && !doc.at(at / "token_file").is_null();
   a.token_file = token ? resolve(base, doc.require_string(at / "token_file")) : std::filesystem::path{};
   a.token_file_line = token ? doc.line_of(at / "token_file") : 0;
-  const bool loopback = a.tcp_host == "127.0.0.1" || a.tcp_host == "::1" || a.tcp_host == "localhost";
+  const bool loopback = is_loopback_host(a.tcp_host);
   if (a.tcp_port != 0 && !loopback && a.token_file.empty())
     doc.fail(at / "tcp_host", fmt::format("listening on {} (not loopback) needs a token_file: anyone on the network "
                                           "could otherwise drive the instruments", a.tcp_host));

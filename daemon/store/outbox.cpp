@@ -94,13 +94,6 @@ Result<std::string> RunStore::instance_id() {
   return id.value();
 }
 
-Result<long long> RunStore::last_run_seq() {
-  std::lock_guard lock(impl_->mutex);
-  auto n = impl_->db.query_int("SELECT coalesce(max(seq), 0) FROM runs");
-  if (!n.ok()) return impl_->fail(n.error(), "reading the last run number");
-  return n.value();
-}
-
 Result<long long> RunStore::last_run_number() {
   std::lock_guard lock(impl_->mutex);
   // A run's row is written twice (ahead of the sweep, then replaced when it ends), so seq grows

@@ -178,8 +178,6 @@ class RunStore : public RunReader {
   // The station's instance id: 16 hex digits drawn when the store was made (schema 8). Part of
   // every run id, so run ids stay unique when two stations share a name or one is re-installed.
   Result<std::string> instance_id();
-  // The highest insertion number a run has had (0 for an empty store).
-  Result<long long> last_run_seq();
   // The number at the end of the newest run ids (…-000041 → 41; 0 for an empty store): run ids
   // count on from it across restarts, without gaps.
   Result<long long> last_run_number();
