@@ -13,6 +13,8 @@ namespace {
 
 using nlohmann::json;
 
+constexpr const char* kViaOffsetLine = "offset-line";
+
 json fail(std::string message) { return json{{"ok", false}, {"error", std::move(message)}}; }
 
 std::string string_field(const json& req, const char* key) {
@@ -60,6 +62,7 @@ json ControlService::handle(std::string_view line) {
     if (cmd == "disconnect") {
       world_.connected.reset();
       world_.connected_name.clear();
+      world_.via_offset_line = false;
       return json{{"ok", true}, {"connected", ""}};
     }
     if (cmd == "units") {
@@ -102,6 +105,12 @@ const SimUnit* ControlService::unit_of(const json& req, std::string& error) cons
 }
 
 json ControlService::connect(const json& req) {
+  bool via_line = false;
+  if (req.contains("via")) {
+    if (string_field(req, "via") != kViaOffsetLine) return fail("connect: \"via\" must be \"offset-line\" (or left out)");
+    if (!req.contains("unit")) return fail("connect: \"via\" goes with \"unit\": the offset line is in the DUT socket's arm");
+    via_line = true;
+  }
   if (req.contains("standard")) {
     const std::string standard = string_field(req, "standard");
     auto dut = make_standard(standard, world_.standards);
@@ -117,8 +126,11 @@ json ControlService::connect(const json& req) {
   } else {
     return fail(std::string("connect: needs \"standard\" (") + standard_names() + ") or \"unit\" (a serial)");
   }
-  spdlog::info("control: {} connected at the test port", world_.connected_name);
-  return json{{"ok", true}, {"connected", world_.connected_name}};
+  world_.via_offset_line = via_line;
+  spdlog::info("control: {} connected at the test port{}", world_.connected_name, via_line ? " behind the offset line" : "");
+  json reply{{"ok", true}, {"connected", world_.connected_name}};
+  if (via_line) reply["via"] = kViaOffsetLine;
+  return reply;
 }
 
 json ControlService::truth(const json& req) {
@@ -204,6 +216,7 @@ json ControlService::status() const {
   }
   return json{{"ok", true},
               {"connected", world_.connected_name},
+              {"via", world_.via_offset_line ? kViaOffsetLine : ""},
               {"lot", lot_ != nullptr ? lot_->name : std::string{}},
               {"profile", profile_name_},
               {"sim_time_s", clock_.now()},

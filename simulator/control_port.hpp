@@ -1,7 +1,6 @@
-// The fixture control port's protocol: JSON lines, one request -> one reply line with "ok".
-// Connects a calibration standard or a lot unit to the simulated test port, reports ground
-// truth for a unit, arms and clears faults, reports status. Pure (no Asio); the server puts it
-// on a TCP endpoint. Threading: single-threaded (the server's io thread).
+// The fixture control port's protocol: JSON lines, one request -> one reply line with "ok":
+// connects standards and lot units (directly or behind the offset line), reports ground truth,
+// arms and clears faults, reports status. Pure (no Asio); single-threaded (the server's io thread).
 #pragma once
 
 #include <map>
@@ -18,6 +17,9 @@ namespace echoline::sim {
 
 // Requests (see simulator/README.md for the full list):
 //   {"cmd":"connect","standard":"OPEN"|"SHORT"|"LOAD"|"MISMATCH-A"|"MISMATCH-B"}  {"cmd":"connect","unit":"<serial>"}
+//   {"cmd":"connect","unit":"<serial>","via":"offset-line"}: the unit behind the offset line
+//     (World::standards.offset_line), as the switch's DUT-OFFSET arm; without "via", directly.
+//     "truth" stays the unit's own reflection.
 //   {"cmd":"disconnect"}  {"cmd":"units"}  {"cmd":"status"}
 //   {"cmd":"truth","unit":"<serial>","frequencies_hz":[...]}
 //   {"cmd":"fault","role":"source","kind":"garble","probability":0.5,"seed":1,"delay_ms":500}

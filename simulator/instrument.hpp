@@ -82,7 +82,9 @@ class SimInstrument {
 //   "positions"           object  {"1":"OPEN","2":"SHORT","3":"LOAD","4":"DUT","5":"MISMATCH-A","6":"MISMATCH-B"}
 //                                 channel number -> what it connects: OPEN|SHORT|LOAD|MISMATCH-A|MISMATCH-B connect
 //                                 that standard; DUT leaves the World's connected DUT alone
-//                                 (the server's control port connects units)
+//                                 (the server's control port connects units); DUT-OFFSET
+//                                 does the same with the DUT behind the offset line
+//                                 (World::standards.offset_line, World::via_offset_line)
 //   "load_return_loss_db" number  (none)           RL of the LOAD standard at 1 GHz, dB (6 .. 80);
 //                                 when given it sets World::standards.load_return_loss_db
 //                                 (the bench file's "standards" key, which must then agree)

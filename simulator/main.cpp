@@ -63,6 +63,8 @@ slave device, removed at exit.
 Control port (TCP, one JSON object per line, one reply line each with "ok" and, when false,
 "error"):
   {"cmd":"connect","standard":"OPEN"|"SHORT"|"LOAD"|"MISMATCH-A"|"MISMATCH-B"}   {"cmd":"connect","unit":"<serial>"}
+  {"cmd":"connect","unit":"<serial>","via":"offset-line"}   the unit behind the offset line
+   ("standards"/"offset_line"; the switch's DUT-OFFSET position does the same)
   {"cmd":"disconnect"}   {"cmd":"units"}   {"cmd":"status"}
   {"cmd":"truth","unit":"<serial>","frequencies_hz":[...]}  -> true return loss, defect, f0
   {"cmd":"fault","role":"source|receiver|switch","kind":"<kind>","probability":1,"seed":1,

@@ -4,9 +4,10 @@
 //   noise: complex Gaussian with mean power kTB + NF + attenuation (noise_floor_dbm), so the
 //          sample detector reads a Rayleigh envelope; the positive-peak detector takes the
 //          largest of ~bin-width/RBW samples;
-//   tone:  the source CW through the bench and DUT (coupled_power_dbm), visible once the
-//          source has settled, shaped by the Gaussian RBW filter at the bin's offset (for the
-//          positive detector: the closest point of the bin), added as a coherent amplitude;
+//   tone:  the source CW through the bench and DUT (coupled_power_dbm; the DUT behind the
+//          offset line when World::via_offset_line), visible once the source has settled,
+//          shaped by the Gaussian RBW filter at the bin's offset (for the positive detector:
+//          the closest point of the bin), added as a coherent amplitude;
 //   reading noise: a multiplicative Gaussian of reading_noise_db.
 //
 // Swept source (World::source_sweeping, fast capture). The analyzer is tuned to
@@ -57,6 +58,7 @@
 #include "simulator/command_tree.hpp"
 #include "simulator/instrument.hpp"
 #include "simulator/physics/dut_models.hpp"
+#include "simulator/physics/offset_line.hpp"
 #include "simulator/physics/spectrum.hpp"
 
 namespace echoline::sim {
@@ -81,6 +83,21 @@ constexpr double kMinRbwHz = 1, kMaxRbwHz = 10e6;
 constexpr double kMinPoints = 2, kMaxPoints = 10001;
 constexpr std::size_t kMarkers = 4;
 constexpr double kNeverS = 1e9;   // an armed sweep with no trigger: "never" on the sim clock
+
+// What the test port sees, for one use: the connected DUT (an unterminated port reflects like
+// `open`), behind the offset line when World::via_offset_line.
+class PortLoad {
+ public:
+  PortLoad(const World& world, const Dut& open)
+      : plain_(world.connected ? *world.connected : open), through_(plain_, world.standards.offset_line),
+        via_line_(world.via_offset_line) {}
+  const Dut& dut() const { return via_line_ ? static_cast<const Dut&>(through_) : plain_; }
+
+ private:
+  const Dut& plain_;
+  OffsetLineView through_;
+  bool via_line_;
+};
 
 double mw_of(double dbm) { return std::pow(10.0, dbm / 10.0); }
 double dbm_of(double mw) { return 10.0 * std::log10(std::max(mw, 1e-30)); }
@@ -214,7 +231,8 @@ class ReceiverInstrument final : public SimInstrument {
   // One sweep starting at sim time t0; returns readings in dBm. `overload` is set when the
   // input exceeded the max safe level during this sweep.
   std::vector<double> sweep_once(double t0, bool& overload) {
-    const Dut& dut = world_.connected ? *world_.connected : *open_;  // unterminated port = OPEN
+    const PortLoad port(world_, *open_);
+    const Dut& dut = port.dut();
     const double st = sweep_time();
     const bool on = world_.source_output_on;
     const double f_src = world_.source_frequency_hz;
@@ -306,7 +324,8 @@ class ReceiverInstrument final : public SimInstrument {
   }
 
   void report_overload() {
-    const Dut& dut = world_.connected ? *world_.connected : *open_;
+    const PortLoad port(world_, *open_);
+    const Dut& dut = port.dut();
     const double in = coupled_power_dbm(world_.bench, dut, world_.source_frequency_hz, world_.source_power_dbm);
     // A real analyzer can be damaged above its max safe input; the sim only complains.
     const std::string msg = fmt::format("Device-specific error;input overload: {:.1f} dBm at the input, max safe input {:.1f} dBm",

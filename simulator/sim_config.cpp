@@ -64,6 +64,18 @@ MismatchParams read_mismatch(const JsoncDocument& doc, const JsonPointer& at, Mi
   return m;
 }
 
+// "standards"/"offset_line": the DUT-OFFSET arm's line as built, every key optional.
+OffsetLineParams read_offset_line(const JsoncDocument& doc, const JsonPointer& at, OffsetLineParams p) {
+  if (!doc.has(at)) return p;
+  doc.require_object(at);
+  doc.check_keys(at, {"delay_ps", "loss_db", "match_return_loss_db", "match_phase_deg"});
+  p.delay_ps = doc.number_in(at / "delay_ps", p.delay_ps, 0, 1e5, "ps");
+  p.loss_db = doc.number_in(at / "loss_db", p.loss_db, 0, 10, "dB");
+  p.match_return_loss_db = doc.number_in(at / "match_return_loss_db", p.match_return_loss_db, 6, 120, "dB");
+  p.match_phase_deg = doc.number_in(at / "match_phase_deg", p.match_phase_deg, -180, 180, "degrees");
+  return p;
+}
+
 // "standards": every key optional, defaults in StandardsParams. A switch's older
 // "load_return_loss_db" setting still works; given in both places, the two must agree.
 StandardsParams read_standards(const JsoncDocument& doc, const JsonPointer& at) {
@@ -71,7 +83,7 @@ StandardsParams read_standards(const JsoncDocument& doc, const JsonPointer& at) 
   if (!doc.has(at)) return s;
   doc.require_object(at);
   doc.check_keys(at, {"open_gamma_magnitude", "open_capacitance_ff", "short_gamma_magnitude", "short_inductance_ph",
-                      "load_return_loss_db", "mismatch_a", "mismatch_b"});
+                      "load_return_loss_db", "mismatch_a", "mismatch_b", "offset_line"});
   s.open_gamma_magnitude = doc.number_in(at / "open_gamma_magnitude", s.open_gamma_magnitude, 0.5, 1, "");
   s.open_capacitance_ff = doc.number_in(at / "open_capacitance_ff", s.open_capacitance_ff, 0, 1000, "fF");
   s.short_gamma_magnitude = doc.number_in(at / "short_gamma_magnitude", s.short_gamma_magnitude, 0.5, 1, "");
@@ -79,6 +91,7 @@ StandardsParams read_standards(const JsoncDocument& doc, const JsonPointer& at) 
   s.load_return_loss_db = doc.number_in(at / "load_return_loss_db", s.load_return_loss_db, 6, 80, "dB");
   s.mismatch_a = read_mismatch(doc, at / "mismatch_a", s.mismatch_a);
   s.mismatch_b = read_mismatch(doc, at / "mismatch_b", s.mismatch_b);
+  s.offset_line = read_offset_line(doc, at / "offset_line", s.offset_line);
   return s;
 }
 

@@ -49,7 +49,7 @@ struct SimConfig {
   std::string file;                       // as given
   std::string name;                       // "name": free text for logs
   BenchParams bench;                      // "bench": fixture physics (BenchParams fields)
-  StandardsParams standards;              // "standards": OPEN/SHORT/LOAD (StandardsParams fields)
+  StandardsParams standards;              // "standards": the standards and the offset line (StandardsParams fields)
   TriggerCable trigger_cable;             // "trigger_cable": {"latency_ns", "jitter_ns"}; absent = no cable
   LatencyProfile latency;                 // "latency": {"profile", "command_ms", "delay_scale", "instant_step_s"}
   std::optional<std::filesystem::path> lot;   // "lot": default lot file, relative to this file

@@ -12,6 +12,8 @@
 
 namespace echoline::sim {
 
+bool is_dut_arm(const std::string& position) { return position == "DUT" || position == "DUT-OFFSET"; }
+
 SwitchConfig switch_config_from_json(const nlohmann::json& config) {
   SwitchConfig c;
   c.identity = detail::config_identity(config, c.identity);
@@ -23,7 +25,9 @@ SwitchConfig switch_config_from_json(const nlohmann::json& config) {
   }
   if (config.is_object() && config.contains("positions")) {
     const auto& p = config.at("positions");
-    if (!p.is_object() || p.empty()) throw std::invalid_argument("instrument settings: \"positions\": must be an object {\"<channel>\": \"OPEN|SHORT|LOAD|MISMATCH-A|MISMATCH-B|DUT\"}");
+    if (!p.is_object() || p.empty())
+      throw std::invalid_argument(
+          "instrument settings: \"positions\": must be an object {\"<channel>\": \"OPEN|SHORT|LOAD|MISMATCH-A|MISMATCH-B|DUT|DUT-OFFSET\"}");
     c.positions.clear();
     for (const auto& [key, value] : p.items()) {
       int channel = 0;
@@ -32,9 +36,9 @@ SwitchConfig switch_config_from_json(const nlohmann::json& config) {
         throw std::invalid_argument("instrument settings: \"positions\": key \"" + key + "\" is not a channel number 1..9999");
       if (!value.is_string()) throw std::invalid_argument("instrument settings: \"positions/" + key + "\": must be a string");
       const std::string what = value.get<std::string>();
-      if (what != "DUT" && !make_standard(what))
-        throw std::invalid_argument("instrument settings: \"positions/" + key + "\": \"" + what + "\" is not DUT or a standard (" +
-                                    standard_names() + ")");
+      if (!is_dut_arm(what) && !make_standard(what))
+        throw std::invalid_argument("instrument settings: \"positions/" + key + "\": \"" + what +
+                                    "\" is not DUT, DUT-OFFSET or a standard (" + standard_names() + ")");
       c.positions[channel] = what;
     }
   }
@@ -60,17 +64,19 @@ class SwitchInstrument final : public SimInstrument {
 
  private:
   // Connects a position. A standard displaces whatever the control port put in the DUT
-  // socket; DUT brings it back (if nobody connected something else meanwhile).
+  // socket; DUT brings it back (if nobody connected something else meanwhile), DUT-OFFSET the
+  // same behind the offset line.
   void select(int channel) {
     const std::string& what = config_.positions.at(channel);
     const bool ours = world_.connected_name == placed_name_ && !placed_name_.empty();
-    if (what == "DUT") {
+    if (is_dut_arm(what)) {
       if (ours || (!world_.connected && parked_)) {
         world_.connected = std::move(parked_);
         world_.connected_name = parked_name_;
       }
       parked_name_.clear();
       placed_name_.clear();
+      world_.via_offset_line = what == "DUT-OFFSET";
     } else {
       if (!ours) {  // keep what sits in the DUT socket
         parked_ = std::move(world_.connected);
@@ -79,6 +85,7 @@ class SwitchInstrument final : public SimInstrument {
       world_.connected = make_standard(what, world_.standards);
       world_.connected_name = what;
       placed_name_ = what;
+      world_.via_offset_line = false;
     }
     closed_ = channel;
   }
@@ -122,11 +129,13 @@ class SwitchInstrument final : public SimInstrument {
           world_.connected.reset();
           world_.connected_name.clear();
           placed_name_.clear();
-        } else if (config_.positions.at(ch) == "DUT") {
+          world_.via_offset_line = false;
+        } else if (is_dut_arm(config_.positions.at(ch))) {
           parked_ = std::move(world_.connected);
           parked_name_ = world_.connected_name;
           world_.connected_name.clear();
           placed_name_.clear();
+          world_.via_offset_line = false;
         }
         closed_ = 0;
       }

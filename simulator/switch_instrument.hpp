@@ -1,7 +1,7 @@
 // The simulated calibration switch: a single-pole N-throw between the test port and the
-// OPEN/SHORT/LOAD (and MISMATCH-A/B) standards or the DUT socket, driven by ROUTe:CLOSe (@n). Selecting a
-// standard connects it in the World; selecting DUT puts back what the standard displaced.
-// Pure, no I/O. Single-threaded (the server's io thread). Create with make_switch_instrument.
+// OPEN/SHORT/LOAD (and MISMATCH-A/B) standards or the DUT socket, directly (DUT) or through the
+// offset line (DUT-OFFSET), driven by ROUTe:CLOSe (@n). Selecting a standard connects it in the
+// World; DUT and DUT-OFFSET put back what the standard displaced. Pure, no I/O; single-threaded.
 #pragma once
 
 #include <map>
@@ -21,7 +21,11 @@ struct SwitchConfig {
   std::optional<double> load_return_loss_db;
 };
 
-// Throws std::invalid_argument naming the key ("positions" values must be DUT or a standard make_standard knows).
+// Throws std::invalid_argument naming the key ("positions" values must be DUT, DUT-OFFSET or a
+// standard make_standard knows).
 SwitchConfig switch_config_from_json(const nlohmann::json& config);
+
+// "DUT" or "DUT-OFFSET": a position that connects the DUT socket rather than a standard.
+bool is_dut_arm(const std::string& position);
 
 }  // namespace echoline::sim

@@ -18,7 +18,8 @@ struct Lot;  // simulator/physics/lot.hpp
 
 struct World {
   BenchParams bench;                    // fixture between source, DUT and receiver
-  StandardsParams standards;            // the OPEN/SHORT/LOAD that the switch and the control port connect
+  StandardsParams standards;            // the OPEN/SHORT/LOAD that the switch and the control port
+                                        // connect, and the offset line (standards.offset_line)
 
   // Source state as the receiver sees it (written by the source instrument).
   double source_frequency_hz = 915e6;   // CW frequency, Hz
@@ -64,6 +65,10 @@ struct World {
   // reflects like an OPEN (the receiver models it so).
   std::unique_ptr<Dut> connected;
   std::string connected_name;           // "OPEN", "SHORT", "LOAD", "MISMATCH-A", "MISMATCH-B", a unit serial, or ""
+  // true: `connected` sits behind standards.offset_line (the switch's DUT-OFFSET arm, or a
+  // control-port connect with "via":"offset-line"); with nothing connected the line's far end
+  // is open. Every other connection (a standard, DUT, disconnect) sets it false.
+  bool via_offset_line = false;
   const Lot* lot = nullptr;             // the loaded lot, if any (owned by the server)
 
   std::uint64_t sweep_counter = 0;      // incremented by the receiver at each INIT

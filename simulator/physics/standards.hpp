@@ -1,12 +1,13 @@
 // The OPEN, SHORT, LOAD and the two mismatch calibration standards (MISMATCH-A, MISMATCH-B) as
 // reflection coefficients, with the imperfections and true values a bench file can set
-// ("standards" in config/sim/*.jsonc). Pure functions of frequency; each Dut is immutable.
+// ("standards" in config/sim/*.jsonc; it also holds the offset line). Pure; each Dut is immutable.
 #pragma once
 
 #include <memory>
 #include <string>
 
 #include "simulator/physics/bench.hpp"
+#include "simulator/physics/offset_line.hpp"
 
 namespace echoline::sim {
 
@@ -28,6 +29,8 @@ struct StandardsParams {
   // behind about an eighth wave at 915 MHz; close to, never exactly, what a kit file would say.
   MismatchParams mismatch_a{0.1013, 0.6, 0};
   MismatchParams mismatch_b{0.0989, -0.4, 137.5};
+  // The line of the switch's DUT-OFFSET arm (and of a control-port connect "via":"offset-line").
+  OffsetLineParams offset_line;
 };
 
 // OPEN: Gamma = rho_open * (Z - Z0)/(Z + Z0), Z = 1/(j w C): phase -2 atan(w C Z0).
