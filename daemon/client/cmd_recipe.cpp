@@ -159,8 +159,10 @@ void print_step_estimate(const core::Recipe& r, std::size_t points) {
   }
   const double per_point = r.source.settle_s + per_reading * std::max(r.receiver.averages, 1);
   const double sweep = per_point * static_cast<double>(points);
-  std::cout << fmt::format("  estimated sweep time {:.2f} s per unit ({:.4f} s per point, command overhead not included)\n",
-                           sweep, per_point);
+  // The offset pair sweeps each unit twice (on the DUT arm, then on the DUT-OFFSET arm).
+  const int sweeps = r.offset_pair ? 2 : 1;
+  std::cout << fmt::format("  estimated sweep time {:.2f} s per unit ({}{:.4f} s per point, command overhead not included)\n",
+                           sweep * sweeps, sweeps == 2 ? "two sweeps with the offset pair, " : "", per_point);
   std::cout << fmt::format("  estimated calibration {:.2f} s of sweeps ({} standards, 2 repeats)\n",
                            sweep * (r.calibration.use_short ? 5 : 4), r.calibration.use_short ? 3 : 2);
 }
@@ -270,6 +272,13 @@ int cmd_dry_run(const Argv& argv) {
                            c.capability.receiver_max_safe_input_dbm);
   std::cout << "  calibration standards: " << (r.calibration.use_short ? "OPEN, SHORT, LOAD" : "OPEN, LOAD")
             << " (OPEN and LOAD swept twice: the repeat measures the reading noise)\n";
+  if (r.offset_pair && c.capability.kit.offset_line) {
+    const core::OffsetLine& l = *c.capability.kit.offset_line;
+    std::cout << fmt::format("  offset pair: each unit swept again on the switch's DUT-OFFSET arm, through the kit's line "
+                             "({:.1f} ± {:.1f} ps, {:.2f} ± {:.2f} dB, match {:.0f} dB)\n",
+                             l.delay_s * 1e12, l.delay_tolerance_s * 1e12, l.loss_db, l.loss_tolerance_db,
+                             -20 * std::log10(l.match));
+  }
   std::cout << fmt::format("  calibration kit: {} serial {}\n", c.capability.kit.identity, c.capability.kit.serial);
   print_centring(r, c.capability, "  ");
   print_mask(r, c.capability, "  ");

@@ -225,10 +225,10 @@ int cmd_rejudge(const Argv& argv) {
         continue;
       }
     }
-    std::vector<core::Reading> readings;
-    for (const core::PointResult& p : run.points) readings.push_back({p.frequency_hz, p.raw_dbm});
-    const core::Judgement a = core::judge(*recipe, *ci->second, readings, core::JudgeOptions{false});
-    const core::Judgement b = core::judge(*recipe, *ci->second, readings, core::JudgeOptions{true});
+    const std::vector<core::Reading> readings = core::direct_readings(run);
+    const std::vector<core::Reading> offset = core::offset_readings(run);
+    const core::Judgement a = core::judge(*recipe, *ci->second, readings, core::JudgeOptions{false}, offset);
+    const core::Judgement b = core::judge(*recipe, *ci->second, readings, core::JudgeOptions{true}, offset);
     count(plain, a);
     count(fitted, b);
     if (b.metrics.resonance_interval_kind == "fit") ++fit_decided;

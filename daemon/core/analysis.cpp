@@ -6,6 +6,7 @@
 #include <limits>
 #include <numbers>
 
+#include "daemon/core/offset_pair_points.hpp"
 #include "daemon/core/rf_math.hpp"
 #include "daemon/core/uncertainty.hpp"
 
@@ -16,8 +17,13 @@ constexpr double kInf = std::numeric_limits<double>::infinity();
 constexpr double kEdgeToleranceHz = kLimitEdgeToleranceHz;
 }  // namespace
 
-CalibratedTrace calibrate_points(const CalibrationRecord& cal, const std::vector<Reading>& dut) {
+CalibratedTrace calibrate_points(const CalibrationRecord& cal, const std::vector<Reading>& dut,
+                                 const std::vector<Reading>* offset) {
   CalibratedTrace out;
+  std::vector<OffsetPairInterval> pair;
+  if (offset && cal.budget.offset_line && offset->size() == dut.size()) {
+    pair = offset_pair_intervals(cal.budget, cal.reference_dbm, dut, *offset);
+  }
   out.points.reserve(dut.size());
   out.shift.coverage_factor = cal.budget.coverage_factor;
   out.shift.error_delay_s = cal.budget.error_delay_s;
@@ -47,8 +53,30 @@ CalibratedTrace calibrate_points(const CalibrationRecord& cal, const std::vector
     p.return_loss_db = rl;
     p.return_loss_worst_db = std::min(b.worst_db, rl);
     p.return_loss_best_db = std::max(b.best_db, rl);
+    double error_radius = gamma_error_radius(cal.budget, i, cal.reference_dbm[i], dut[i].raw_dbm, offset_db[i], offset_u[i]);
+    if (offset) p.offset_raw_dbm = (*offset)[i].raw_dbm;
+    if (i < pair.size() && pair[i].usable) {
+      // |Γ| from the direct reading alone, then intersected with the pair's.
+      const double g_hi1 = b.worst_db <= 0 ? 1.0 : std::pow(10.0, -b.worst_db / 20);
+      const double g_lo1 = std::isinf(b.best_db) ? 0.0 : std::pow(10.0, -b.best_db / 20);
+      const double g_lo = std::max(g_lo1, pair[i].gamma_low);
+      const double g_hi = std::min(g_hi1, pair[i].gamma_high);
+      if (g_lo <= g_hi) {
+        ++out.pair_points;
+        p.return_loss_worst_db = g_hi >= 1 ? 0.0 : -20 * std::log10(g_hi);
+        p.return_loss_best_db = g_lo > 0 ? -20 * std::log10(g_lo) : std::numeric_limits<double>::infinity();
+        // The value shown is the pair's own estimate (no leakage cross term), inside both.
+        const double g_est = std::clamp(pair[i].gamma_estimate, g_lo, g_hi);
+        p.return_loss_db = g_est >= 1 ? 0.0 : g_est > 0 ? -20 * std::log10(g_est) : p.return_loss_best_db;
+        if (!std::isfinite(p.return_loss_db)) p.return_loss_db = std::clamp(rl, p.return_loss_worst_db, 200.0);
+        const double g_m = std::pow(10.0, -p.return_loss_db / 20);
+        error_radius = std::max(g_hi - g_m, g_m - g_lo);
+      } else {
+        ++out.pair_disagreements;
+      }
+    }
     out.points.push_back(p);
-    out.shift.gamma_error.push_back(gamma_error_radius(cal.budget, i, cal.reference_dbm[i], dut[i].raw_dbm, offset_db[i], offset_u[i]));
+    out.shift.gamma_error.push_back(error_radius);
     const double s_d = reading_sigma_db(cal.budget, i, dut[i].raw_dbm);
     const double s_r = cal.budget.reference_noise_db[i];
     out.shift.sigma_db.push_back(std::sqrt(s_d * s_d + s_r * s_r));

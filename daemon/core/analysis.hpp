@@ -36,12 +36,20 @@ struct ShiftContext {
 // RL = reference − P_dut per point; bounds from the calibration's uncertainty budget
 // (uncertainty.hpp). A reading above the reference (|Γ| > 1, noise) is clamped to RL = 0 dB
 // and counted. REQUIRES: dut.size() == cal.reference_dbm.size() == cal.budget size (judge() checks).
+// With `offset` (the same plan read through the kit's offset line; the budget must hold the
+// line) each point's interval is also bounded by the offset pair (offset_pair_points.hpp) and
+// the two intervals intersected; the return loss shown is then the pair's own estimate (no
+// leakage cross term), inside the interval. A point whose two intervals do not overlap keeps the direct
+// reading's alone and is counted: the line or the unit's connection is not what the kit states.
 struct CalibratedTrace {
   std::vector<PointResult> points;
   ShiftContext shift;
   std::size_t clamped_points = 0;
+  std::size_t pair_points = 0;          // points the offset pair narrowed or confirmed
+  std::size_t pair_disagreements = 0;   // points whose two intervals did not overlap
 };
-CalibratedTrace calibrate_points(const CalibrationRecord& cal, const std::vector<Reading>& dut);
+CalibratedTrace calibrate_points(const CalibrationRecord& cal, const std::vector<Reading>& dut,
+                                 const std::vector<Reading>* offset = nullptr);
 
 // A frequency interval around the resonance; an edge that reaches the end of the sweep without
 // crossing its level is "open" (the true interval is at least that wide there).

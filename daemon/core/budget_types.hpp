@@ -3,6 +3,7 @@
 #pragma once
 
 #include <cstddef>
+#include <optional>
 #include <string>
 #include <vector>
 
@@ -38,6 +39,9 @@ struct UncertaintyBudget {
   // The kit's definitions of the mismatch standards this calibration measured (their traces are
   // under the same names), so a stored calibration can be worked again offline. Empty: none.
   std::vector<MismatchStandard> mismatch;
+  // The kit's offset line when the recipe reads each unit a second time through it (the offset
+  // pair, MEASUREMENT.md §12), so a stored run can be judged again offline. Empty: one reading.
+  std::optional<OffsetLine> offset_line;
   // Per plan point:
   std::vector<double> frequency_hz;
   std::vector<double> reference_error_low_db;   // bounded: R − T ∈ [low, high] (R: reference, T: true |Γ|=1 level)

@@ -4,6 +4,7 @@
 #pragma once
 
 #include <complex>
+#include <optional>
 #include <string>
 #include <vector>
 
@@ -39,6 +40,18 @@ struct MismatchStandard {
   double phase_tolerance_rad = 0;      // how far the true phase may be from the model's
 };
 
+// The offset line of the offset pair (MEASUREMENT.md §12): a line between the test port and the
+// unit for a second reading of it, about a quarter wave long so that it turns the unit's
+// reflection by half a turn (a quarter-wave adapter, or a switched-line arm), as its data sheet
+// or its own measurement states it.
+struct OffsetLine {
+  double delay_s = 0;             // one-way electrical delay, nominal (1/(4·f) turns Γ by half a turn at f)
+  double delay_tolerance_s = 0;   // |true − nominal| at most
+  double loss_db = 0;             // one-way insertion loss, nominal, dB (≥ 0)
+  double loss_tolerance_db = 0;   // |true − nominal| at most, over the band it is used in
+  double match = 0;               // |S11|, |S22| bound of the line as connected, linear (connection included)
+};
+
 struct CalKit {
   std::string identity;                // e.g. "Echoline SIM-KIT-N"
   std::string serial;                  // the physical kit's serial number
@@ -49,6 +62,7 @@ struct CalKit {
   // Standard uncertainty of one connection's repeatability, as a reflection magnitude (linear).
   double connection_repeatability = 0;
   std::vector<MismatchStandard> mismatch;   // optional; empty for a plain OPEN/SHORT/LOAD kit
+  std::optional<OffsetLine> offset_line;    // optional; for recipes that read each unit twice
 };
 
 // The kit used when the station config names none: deliberately pessimistic figures for an

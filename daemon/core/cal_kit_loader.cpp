@@ -91,6 +91,27 @@ std::vector<MismatchStandard> mismatch_list(const JsoncDocument& doc, const Json
   return out;
 }
 
+// "offset_line": {delay_ps, delay_tolerance_ps, loss_db, loss_tolerance_db, match_return_loss_db}:
+// the line of the offset pair. Every key is required: a line whose delay, loss or match the kit
+// does not state cannot bound a second reading.
+OffsetLine offset_line(const JsoncDocument& doc, const JsonPointer& at) {
+  doc.require_object(at);
+  const std::vector<std::string> keys = {"delay_ps", "delay_tolerance_ps", "loss_db", "loss_tolerance_db",
+                                         "match_return_loss_db"};
+  doc.check_keys(at, keys);
+  for (const std::string& key : keys) {
+    if (!doc.has(at / key)) doc.fail(at / key, "is required (the offset line's data sheet or measurement states it)");
+  }
+  OffsetLine line;
+  line.delay_s = doc.number_in(at / "delay_ps", 0, 1, 1e5, "ps") * 1e-12;
+  line.delay_tolerance_s = doc.number_in(at / "delay_tolerance_ps", 0, 0, 1e4, "ps") * 1e-12;
+  line.loss_db = doc.number_in(at / "loss_db", 0, 0, 3, "dB");
+  line.loss_tolerance_db = doc.number_in(at / "loss_tolerance_db", 0, 0, 3, "dB");
+  const double match_db = doc.number_in(at / "match_return_loss_db", 0, 10, 80, "dB");
+  line.match = std::pow(10.0, -match_db / 20);
+  return line;
+}
+
 }  // namespace
 
 CalKit parse_cal_kit(std::string text, std::string file_name) {
@@ -98,7 +119,7 @@ CalKit parse_cal_kit(std::string text, std::string file_name) {
   const JsonPointer root("");
   doc.require_object(root);
   doc.check_keys(root, {"identity", "serial", "description", "open", "short", "load", "connection_repeatability_db",
-                        "mismatch"});
+                        "mismatch", "offset_line"});
   CalKit k;
   k.source = file_name;
   k.identity = doc.require_string(JsonPointer("/identity"));
@@ -132,6 +153,7 @@ CalKit parse_cal_kit(std::string text, std::string file_name) {
   const double rep_db = doc.number_in(JsonPointer("/connection_repeatability_db"), 0, 0, 100, "dB");
   k.connection_repeatability = rep_db > 0 ? std::pow(10.0, -rep_db / 20) : 0;
   k.mismatch = mismatch_list(doc, JsonPointer("/mismatch"));
+  if (doc.has(JsonPointer("/offset_line"))) k.offset_line = offset_line(doc, JsonPointer("/offset_line"));
   return k;
 }
 

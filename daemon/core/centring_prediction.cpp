@@ -19,6 +19,7 @@
 #include <fmt/format.h>
 
 #include "daemon/core/cal_kit.hpp"
+#include "daemon/core/offset_pair.hpp"
 #include "daemon/core/rf_math.hpp"
 
 namespace echoline::core {
@@ -79,10 +80,20 @@ std::optional<CentringPrediction> predict_centring(const Recipe& recipe, const S
   // Noise is taken as 0.05 dB per reading until a calibration has measured it (the typical
   // figure of a swept analyzer well above its floor; common practice, from memory).
   const double src = rho_from_db(station.source_match_db);
+  // With the offset pair (MEASUREMENT.md §12) each point's radius is what the pair leaves, at
+  // most one reading's: the leakage bound e enters only at second order.
+  const std::optional<OffsetLine> pair_line =
+      recipe.offset_pair && station.kit.offset_line ? station.kit.offset_line : std::nullopt;
   auto radius_at_edge = [&](double e) {
     const double g_edge = 2 * (g0_given >= 0 ? g0_given : e);
     const double u = recipe.coverage_factor * 0.05 * std::sqrt(2.0);
-    return e + g_edge * (std::pow(10.0, u / 20) - 1) + src * g_edge * g_edge;
+    const double one = e + g_edge * (std::pow(10.0, u / 20) - 1) + src * g_edge * g_edge;
+    if (!pair_line) return one;
+    // e = |d| + L + k·u_conn from the LOAD reading |d| (MEASUREMENT.md §3.1): |d| is then at
+    // least e − 2(L + k·u_conn).
+    const double spread = load_gamma_bound(station.kit, f0) + recipe.coverage_factor * station.kit.connection_repeatability;
+    return offset_pair_error_radius(std::min(g_edge, 1.0), f0, std::max(0.0, e - 2 * spread), e, src, 0, 0.05,
+                                    recipe.coverage_factor, *pair_line, one);
   };
   auto half_width = [&](double e_dir) {
     const double e = radius_at_edge(e_dir);
@@ -102,10 +113,13 @@ std::optional<CentringPrediction> predict_centring(const Recipe& recipe, const S
     }
     if (a > 0) p.directivity_for_5_percent_db = -20 * std::log10(a);
   }
-  p.basis = fmt::format("Q {:.1f} at {:.3f} MHz, {}, error radius {:.4f} (|\u0393|), {} interval, {}", p.q, f0 / 1e6,
+  p.basis = fmt::format("Q {:.1f} at {:.3f} MHz, {}, error radius {:.4f} (|\u0393|{}), {} interval, {}", p.q, f0 / 1e6,
                         recipe.nominal.depth_db ? fmt::format("depth {:.1f} dB", *recipe.nominal.depth_db)
                                                 : std::string("a deep dip"),
-                        error_radius, p.rigorous ? "rigorous" : "shift-bound",
+                        error_radius, pair_line ? fmt::format("; {:.4f} at the dip's edge with the offset pair",
+                                                              radius_at_edge(error_radius))
+                                                : std::string(),
+                        p.rigorous ? "rigorous" : "shift-bound",
                         p.spread_hz ? fmt::format("production spread {:.2f} MHz (s.d.)", *p.spread_hz / 1e6)
                                     : std::string("units spread evenly across the window"));
   return p;

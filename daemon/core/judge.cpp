@@ -47,7 +47,7 @@ std::string mismatch(const CalibrationRecord& cal, const std::vector<Reading>& d
 }  // namespace
 
 Judgement judge(const Recipe& recipe, const CalibrationRecord& cal, const std::vector<Reading>& dut,
-                const JudgeOptions& options) {
+                const JudgeOptions& options, const std::vector<Reading>& offset) {
   if (!cal.valid) return aborted(fmt::format("calibration {} is not valid; calibrate again", cal.id));
   if (cal.budget.frequency_hz.size() != cal.reference_dbm.size()) {
     return aborted(fmt::format("calibration {} has no uncertainty budget (made by an older version); calibrate again",
@@ -57,7 +57,20 @@ Judgement judge(const Recipe& recipe, const CalibrationRecord& cal, const std::v
     return aborted(fmt::format("readings do not match calibration {}: {}", cal.id, why));
   }
 
-  CalibratedTrace trace = calibrate_points(cal, dut);
+  const std::vector<Reading>* pair = nullptr;
+  if (recipe.offset_pair) {
+    if (!cal.budget.offset_line) {
+      return aborted(fmt::format("the recipe reads each unit through the offset line too, but calibration {} holds no "
+                                 "offset line (its kit defined none, or its recipe did not use the pair); calibrate "
+                                 "again",
+                                 cal.id));
+    }
+    if (std::string why = mismatch(cal, offset); !why.empty()) {
+      return aborted(fmt::format("the reading through the offset line does not match calibration {}: {}", cal.id, why));
+    }
+    pair = &offset;
+  }
+  CalibratedTrace trace = calibrate_points(cal, dut, pair);
   trace.shift.fit = options.fit;
   const Analysis analysis = analyze(recipe, trace);
   Decision decision = decide(recipe, trace.points, analysis);
@@ -75,7 +88,7 @@ Judgement judge(const Recipe& recipe, const CalibrationRecord& cal, const std::v
     // The unit's own connection is statistical too (a retest reconnects it); the LOAD's stays in
     // the calibration's directivity bound, fixed for this calibration.
     quiet.budget.connection = 0;
-    const std::vector<PointResult> noise_free = calibrate_points(quiet, dut).points;
+    const std::vector<PointResult> noise_free = calibrate_points(quiet, dut, pair).points;
     decision = decide(recipe, trace.points, analysis, &noise_free);
   }
 
@@ -84,6 +97,20 @@ Judgement judge(const Recipe& recipe, const CalibrationRecord& cal, const std::v
   j.verdict = decision.verdict;
   j.failure_class = decision.failure_class;
   j.reason = decision.reason;
+  if (trace.pair_disagreements > 0) {
+    // The pair's model failed somewhere: the line is not what the kit states, or the unit
+    // changed between the readings (an intermittent feed, a connection that moved).
+    const std::string note = fmt::format(
+        "the reading through the offset line disagrees with the direct one beyond both bounds at {} point(s): check "
+        "the line against the kit and the unit's connection",
+        trace.pair_disagreements);
+    if (j.verdict == Verdict::pass) {
+      j.verdict = Verdict::inconclusive;
+      j.reason = note + "; hold the unit for review";
+    } else {
+      j.reason += " (" + note + ")";
+    }
+  }
   if (analysis.clamped_points > 0) {
     j.reason += fmt::format(" ({} reading(s) above the OPEN/SHORT reference were taken as total reflection)",
                             analysis.clamped_points);

@@ -27,7 +27,11 @@ struct Judgement {
 struct JudgeOptions {
   bool fit = true;   // try the dip fit (false: the resonance intervals of the points alone)
 };
+// `offset`: the unit read again through the kit's offset line (recipe.offset_pair), in plan
+// order. A recipe with the offset pair and no usable second reading (missing, the wrong size or
+// frequencies, a calibration without the line) gives aborted; a recipe without it ignores them.
+// Where the two readings disagree beyond both bounds a pass becomes inconclusive.
 Judgement judge(const Recipe& recipe, const CalibrationRecord& cal, const std::vector<Reading>& dut,
-                const JudgeOptions& options = {});
+                const JudgeOptions& options = {}, const std::vector<Reading>& offset = {});
 
 }  // namespace echoline::core

@@ -10,7 +10,8 @@
 // the same model at its depth. The unit's expected reading is |Γ + d(f)|, the coupler's leakage
 // d of the given magnitude turning with the fixture's error delay; its phase is unknown before
 // calibration, so each share is the mean over twelve phases (and its range over them), and over
-// the normal spread of f_r.
+// the normal spread of f_r. With the offset pair the thresholds are on the pair's estimate
+// (the unit's own return loss, no leakage term), from the pair's error radius.
 #include "daemon/core/mask_prediction.hpp"
 
 #include <algorithm>
@@ -24,6 +25,7 @@
 #include "daemon/core/cal_kit.hpp"
 #include "daemon/core/dip_models.hpp"
 #include "daemon/core/frequency_text.hpp"
+#include "daemon/core/offset_pair.hpp"
 #include "daemon/core/rf_math.hpp"
 #include "daemon/core/uncertainty.hpp"
 
@@ -39,7 +41,48 @@ struct MaskPoint {
   double f = 0;
   std::size_t segment = 0;
   double pass = 0, fail = 0;   // reading thresholds, dB
+  // With the offset pair the thresholds are on the pair's estimate, which holds no leakage
+  // cross term: the unit's own return loss stands for it.
+  bool pair = false;
 };
+
+// The offset pair's thresholds at f (MEASUREMENT.md §12): on the unit's own return loss t, pass
+// from the t where |Γ| + r(|Γ|) reaches the limit, fail below the t where |Γ| − r(|Γ|) does, r
+// the pair's error radius (offset_pair_error_radius) for the leakage in [D_lo, D_hi]. False
+// where the recipe has no pair or the line is too far from half a turn.
+bool pair_thresholds(const Recipe& r, const StationCapability& st, double error_radius, double f, double limit_db,
+                     double& pass, double& fail) {
+  if (!r.offset_pair || !st.kit.offset_line || offset_turn_error(f, *st.kit.offset_line) > std::numbers::pi / 2) {
+    return false;
+  }
+  const double conn = r.coverage_factor * st.kit.connection_repeatability;
+  const double d_hi = std::max(0.0, error_radius - conn);
+  const double d_lo = std::max(0.0, d_hi - 2 * (load_gamma_bound(st.kit, f) + conn));
+  const double src = rho_from_db(st.source_match_db);
+  const double limit = gamma_from_return_loss(limit_db);
+  auto radius = [&](double g) {
+    return offset_pair_error_radius(g, f, d_lo, d_hi, src, conn, kAssumedNoiseDb, r.coverage_factor,
+                                    *st.kit.offset_line, 1.0);
+  };
+  // Pass: the largest |Γ| with |Γ| + r ≤ limit; fail: the smallest with |Γ| − r > limit.
+  double lo = 0, hi = limit;
+  for (int i = 0; i < 50; ++i) {
+    const double m = (lo + hi) / 2;
+    (m + radius(m) <= limit ? lo : hi) = m;
+  }
+  pass = lo > 0 ? -20 * std::log10(lo) : kInf;
+  lo = limit, hi = 1;
+  if (1 - radius(1) <= limit) {
+    fail = 0;
+  } else {
+    for (int i = 0; i < 50; ++i) {
+      const double m = (lo + hi) / 2;
+      (m - radius(m) > limit ? hi : lo) = m;
+    }
+    fail = -20 * std::log10(hi);
+  }
+  return true;
+}
 
 // Reading thresholds at one frequency for a limit, from a one-point predicted budget.
 void thresholds(const Recipe& r, const StationCapability& st, double error_radius, double f, double limit_db,
@@ -102,7 +145,8 @@ std::vector<MaskPoint> mask_points(const Recipe& r, const StationCapability& st,
       MaskPoint p;
       p.f = f;
       p.segment = k;
-      thresholds(r, st, error_radius, f, m.min_return_loss_db, p.pass, p.fail);
+      p.pair = pair_thresholds(r, st, error_radius, f, m.min_return_loss_db, p.pass, p.fail);
+      if (!p.pair) thresholds(r, st, error_radius, f, m.min_return_loss_db, p.pass, p.fail);
       out.push_back(p);
     }
   }
@@ -198,7 +242,10 @@ double reading_rl(double f, double f_r, const UnitModel& u, double theta) {
 int outcome(const std::vector<MaskPoint>& pts, double f_r, const UnitModel& u, double theta) {
   int worst = 0;
   for (const MaskPoint& p : pts) {
-    const double rl = reading_rl(p.f, f_r, u, theta);
+    const double rl = p.pair ? reading_rl(p.f, f_r, UnitModel{u.q, u.g0, 0.0, 0.0, u.center_hz, u.monopole, u.shape,
+                                                               u.min_at_1ghz},
+                                          0)
+                             : reading_rl(p.f, f_r, u, theta);
     if (rl < p.fail) return 2;
     if (rl < p.pass) worst = 1;
   }
@@ -279,8 +326,11 @@ std::optional<MaskPrediction> predict_mask(const Recipe& recipe, const StationCa
     p.center_hz = (lo + hi) / 2;
   }
   p.leakage = leakage;
-  p.basis = fmt::format("error radius {:.4f} and leakage {:.4f} (|\u0393|), reading noise {:.2f} dB assumed, coverage factor {:g}",
-                        error_radius, leakage, kAssumedNoiseDb, recipe.coverage_factor);
+  p.basis = fmt::format("error radius {:.4f} and leakage {:.4f} (|\u0393|), reading noise {:.2f} dB assumed, coverage factor {:g}{}",
+                        error_radius, leakage, kAssumedNoiseDb, recipe.coverage_factor,
+                        std::any_of(pts.begin(), pts.end(), [](const MaskPoint& q) { return q.pair; })
+                            ? ", the offset pair's thresholds (on its estimate, no leakage cross term)"
+                            : "");
   if ((!n.q && !n.bandwidth_hz) || pts.empty()) return p;
   p.have_unit = true;
   const double g0 = n.depth_db ? gamma_from_return_loss(*n.depth_db) : 0.0;

@@ -113,8 +113,35 @@ OffsetPairInterval combine_offset_pair(const OffsetPairPoint& p, const OffsetLin
   }
   out.gamma_low = std::sqrt(std::clamp(g2_lo, 0.0, 1.0));
   out.gamma_high = std::min(g_bound, std::sqrt(std::clamp(g2_hi, 0.0, 1.0)));
+  const double c_mid = from_db_power((p.reference_low_db + p.reference_high_db) / 2);
+  const double x_mid = 1.0 / std::min(1.0, from_db_power(-line.loss_db));
+  const double g2_mid = pair_g2(x_mid, c_mid * p.p_direct, c_mid * p.p_offset, (d_lo * d_lo + d_hi * d_hi) / 2);
+  out.gamma_estimate = std::clamp(std::sqrt(std::clamp(g2_mid, 0.0, 1.0)), out.gamma_low, out.gamma_high);
   out.usable = true;
   return out;
+}
+
+double offset_pair_error_radius(double g, double frequency_hz, double directivity_low, double directivity_high,
+                                double source_match, double connection, double sigma_db, double coverage_factor,
+                                const OffsetLine& line, double fallback) {
+  const double directivity = directivity_high;
+  // The readings of a unit whose reflection is a quarter turn from the leakage (no cross term
+  // in either reading): p_A = D² + g², p_B = D² + a²g²; any other phase gives the same sum.
+  const double a = std::pow(10.0, -line.loss_db / 10.0);
+  const double d2 = directivity * directivity;
+  OffsetPairPoint p;
+  p.frequency_hz = frequency_hz;
+  p.p_direct = d2 + g * g;
+  p.p_offset = d2 + a * a * g * g;
+  p.sigma_direct_db = p.sigma_offset_db = sigma_db;
+  p.coverage_factor = coverage_factor;
+  p.directivity_high = directivity;
+  p.directivity_low = std::clamp(directivity_low, 0.0, directivity);
+  p.source_match = source_match;
+  p.connection = connection;
+  const OffsetPairInterval i = combine_offset_pair(p, line);
+  if (!i.usable) return fallback;
+  return std::min(fallback, std::max(i.gamma_high - g, g - i.gamma_low));
 }
 
 }  // namespace echoline::core

@@ -2,21 +2,13 @@
 // that turns its reflection by about half a turn. The sum of the two powers (the second scaled
 // by the line's loss) no longer holds the leakage-times-unit cross term (parallelogram law), so
 // |Γ| is bounded by second-order terms instead of by the directivity. Pure; thread-safe.
-// Derivation, assumptions and numbers: daemon/core/MEASUREMENT.md §12. Not yet measured by the
-// station (no recipe or fixture reads a unit twice); this module is the computation it will use.
+// Derivation, assumptions and numbers: daemon/core/MEASUREMENT.md §12. The line (OffsetLine) is
+// defined in the calibration kit (cal_kit.hpp).
 #pragma once
 
-namespace echoline::core {
+#include "daemon/core/cal_kit.hpp"
 
-// The offset line between the test port and the unit for the second reading (a quarter-wave
-// adapter, or a switched-line arm).
-struct OffsetLine {
-  double delay_s = 0;             // one-way electrical delay, nominal (1/(4·f) turns Γ by half a turn at f)
-  double delay_tolerance_s = 0;   // |true − nominal| at most
-  double loss_db = 0;             // one-way insertion loss, nominal, dB (≥ 0)
-  double loss_tolerance_db = 0;   // |true − nominal| at most
-  double match = 0;               // |S11|, |S22| bound of the line as connected, linear (connection included)
-};
+namespace echoline::core {
 
 // One point of the pair, as the station has it.
 struct OffsetPairPoint {
@@ -37,6 +29,9 @@ struct OffsetPairPoint {
 
 struct OffsetPairInterval {
   double gamma_low = 0, gamma_high = 1;   // |Γ| of the unit (bounded terms worst case + k·statistical)
+  // The pair's own estimate of |Γ| (nominal line loss and reference, the leakage's mean square
+  // over its interval, no residual), inside [gamma_low, gamma_high]: the value to show.
+  double gamma_estimate = 0;
   double turn_error_rad = 0;     // largest |arg(offset turn) − π| the line's delay allows at this frequency
   double residual = 0;           // bound on the terms the sum leaves (|Γ|² units, before dividing by 1 + a)
   double g2_noise = 0;           // the readings' noise at the coverage factor, in |Γ|² (already expanded)
@@ -48,6 +43,16 @@ struct OffsetPairInterval {
 // REQUIRES: p_direct, p_offset > 0; directivity_low ≤ directivity_high; source_match, match < 0.5;
 // a passive unit (|Γ| ≤ 1).
 OffsetPairInterval combine_offset_pair(const OffsetPairPoint& point, const OffsetLine& line);
+
+// What the pair leaves of a unit's |Γ| interval, for predictions before any unit is read: half
+// the interval's width around |Γ| = g at `frequency_hz`, for a leakage known to lie in
+// [directivity_low, directivity_high] (its phase then does not matter), readings of σ
+// `sigma_db`, a source match and the unit's connection (k·u_conn) as in OffsetPairPoint, and no
+// reference error. At most `fallback` (one reading's radius), and `fallback` where the line is
+// too far from half a turn.
+double offset_pair_error_radius(double g, double frequency_hz, double directivity_low, double directivity_high,
+                                double source_match, double connection, double sigma_db, double coverage_factor,
+                                const OffsetLine& line, double fallback);
 
 // The largest |arg(t²) − π| over the line's delay tolerance at `frequency_hz` (t: the line's
 // one-way transmission), radians in [0, π].

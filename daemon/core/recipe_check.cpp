@@ -12,6 +12,7 @@
 #include "daemon/core/fast_capture_plan.hpp"
 #include "daemon/core/frequency_text.hpp"
 #include "daemon/core/instrument_needs.hpp"
+#include "daemon/core/offset_pair_check.hpp"
 
 namespace echoline::core {
 namespace {
@@ -137,7 +138,7 @@ std::vector<CheckFinding> check_recipe(const Recipe& r, const StationCapability&
     }
     // A position that names nothing the station knows is most likely misspelt.
     for (const std::string& pos : st.switch_positions) {
-      const bool known = pos == "OPEN" || pos == "SHORT" || pos == "LOAD" || pos == "DUT" ||
+      const bool known = pos == "OPEN" || pos == "SHORT" || pos == "LOAD" || pos == "DUT" || pos == kOffsetArm ||
                          std::any_of(st.kit.mismatch.begin(), st.kit.mismatch.end(),
                                      [&](const MismatchStandard& m) { return m.name == pos; });
       if (known) continue;
@@ -147,6 +148,8 @@ std::vector<CheckFinding> check_recipe(const Recipe& r, const StationCapability&
                       st.switch_profile, pos, st.kit.source.empty() ? st.kit.identity : st.kit.source));
     }
   }
+
+  check_offset_pair(r, st, out);
 
   // Frequency ranges: the source sets each point; the receiver looks span/2 either side.
   for (std::size_t i = 0; i < r.segments.size(); ++i) {

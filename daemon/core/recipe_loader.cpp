@@ -43,7 +43,7 @@ class Loader {
     doc_.require_object(root);
     doc_.check_keys(root, {"name", "version", "description", "mode", "segments", "source", "receiver",
                            "calibration", "limits", "rule", "trim", "source_match_db", "setup", "teardown", "fast_capture",
-                           "coverage_factor", "nominal_unit"});
+                           "coverage_factor", "nominal_unit", "offset_pair"});
     r.name = doc_.require_string(ptr("/name"));
     if (r.name.empty()) doc_.fail(ptr("/name"), "must not be empty");
     r.version = doc_.require_string(ptr("/version"));
@@ -56,6 +56,8 @@ class Loader {
     load_receiver(r);
     load_fast_capture(r);
     load_calibration(r);
+    // Read each unit a second time through the kit's offset line (MEASUREMENT.md §12).
+    r.offset_pair = doc_.bool_or(ptr("/offset_pair"), false);
     // ISO/IEC 17025 §7.1.3 (via ILAC-G8 §4.2.3): the decision rule is agreed before measuring,
     // so a recipe must state it.
     r.rule = doc_.require_enum(ptr("/rule"), {"simple", "guarded"}) == "simple" ? DecisionRule::simple

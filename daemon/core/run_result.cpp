@@ -1,5 +1,8 @@
-// Names of verdicts and failure classes as users, the store and the API see them.
+// Names of verdicts and failure classes as users, the store and the API see them; a stored run's
+// raw readings for judging it again.
 #include "daemon/core/run_result.hpp"
+
+#include <cmath>
 
 namespace echoline::core {
 
@@ -23,6 +26,23 @@ const char* to_string(FailureClass c) {
     case FailureClass::out_of_mask: return "out-of-mask";
   }
   return "";
+}
+
+std::vector<Reading> direct_readings(const RunResult& run) {
+  std::vector<Reading> out;
+  out.reserve(run.points.size());
+  for (const PointResult& p : run.points) out.push_back({p.frequency_hz, p.raw_dbm});
+  return out;
+}
+
+std::vector<Reading> offset_readings(const RunResult& run) {
+  std::vector<Reading> out;
+  out.reserve(run.points.size());
+  for (const PointResult& p : run.points) {
+    if (!std::isfinite(p.offset_raw_dbm)) return {};
+    out.push_back({p.frequency_hz, p.offset_raw_dbm});
+  }
+  return out;
 }
 
 }  // namespace echoline::core

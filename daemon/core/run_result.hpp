@@ -2,6 +2,7 @@
 // Also the calibration record every run refers to. Data only; pure functions fill these in.
 #pragma once
 
+#include <limits>
 #include <map>
 #include <optional>
 #include <string>
@@ -25,6 +26,8 @@ struct PointResult {
   double return_loss_db = 0;
   double return_loss_worst_db = 0;
   double return_loss_best_db = 0;
+  // The same point read through the offset line (recipes with the offset pair); NaN otherwise.
+  double offset_raw_dbm = std::numeric_limits<double>::quiet_NaN();
 };
 
 enum class Verdict { pass, fail, inconclusive, aborted };
@@ -106,6 +109,11 @@ struct RunResult {
   Timings timings;
   std::string software;          // "echolined <version> (<commit>)" that judged it
 };
+
+// A stored run's raw readings, for judging it again: the direct sweep, and the sweep through
+// the offset line (empty when the run has no finite second reading at every point).
+std::vector<Reading> direct_readings(const RunResult& run);
+std::vector<Reading> offset_readings(const RunResult& run);
 
 struct CalibrationRecord {
   std::string id;

@@ -150,6 +150,7 @@ UncertaintyBudget build_budget(const Recipe& recipe, const std::map<std::string,
   for (const MismatchStandard& m : kit.mismatch) {
     if (traces.count(m.name) > 0) b.mismatch.push_back(m);
   }
+  if (recipe.offset_pair) b.offset_line = kit.offset_line;
   const std::vector<Reading>& open = traces.at("OPEN");
   const std::vector<Reading>& load = traces.at("LOAD");
   const bool with_short = traces.count("SHORT") > 0;

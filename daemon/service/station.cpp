@@ -15,6 +15,7 @@
 #include "daemon/core/cal_kit_loader.hpp"
 #include "daemon/core/decision.hpp"
 #include "daemon/core/judge.hpp"
+#include "daemon/core/offset_pair_check.hpp"
 #include "daemon/core/recipe_loader.hpp"
 #include "daemon/core/rf_math.hpp"
 #include "daemon/core/station_capability.hpp"
@@ -499,8 +500,35 @@ TestOutcome Station::run_test(const TestRequest& request, const CancelToken& can
                              s.error().message);
     return finish();
   }
-  SweepOutcome sweep = run_sweep(*instruments_, *recipe, config_.fixture, cancel.flag(), progress);
+  // The offset pair reads the unit twice: progress counts both sweeps as one.
+  const bool pair = recipe->offset_pair;
+  const auto sweep_progress = [&](int offset_points) -> ProgressFn {
+    if (!pair || !progress) return progress;
+    return [&progress, offset_points](int i, int n) { progress(offset_points + i, 2 * n); };
+  };
+  SweepOutcome sweep = run_sweep(*instruments_, *recipe, config_.fixture, cancel.flag(), sweep_progress(0));
   run.timings.sweep_s = sweep.sweep_s;
+  std::vector<core::Reading> offset;
+  if (pair && sweep.completed()) {
+    // The second reading: the same unit through the kit's offset line (MEASUREMENT.md §12).
+    auto* sw = instruments_->switch_();
+    if (Status s = sw ? sw->select(core::kOffsetArm)
+                      : Status(make_error(ErrorKind::config, "the offset pair needs a switch with a DUT-OFFSET arm"));
+        !s) {
+      if (sw) instruments_->invalidate(s.error().message);
+      run.reason = aborted_reason(s.error());
+      for (const auto& r : sweep.readings) {
+        const double nan = std::numeric_limits<double>::quiet_NaN();
+        run.points.push_back(core::PointResult{r.frequency_hz, r.raw_dbm, nan, nan, nan});
+      }
+      return finish();
+    }
+    const int n = static_cast<int>(sweep.readings.size());
+    SweepOutcome second = run_sweep(*instruments_, *recipe, config_.fixture, cancel.flag(), sweep_progress(n));
+    run.timings.sweep_s += second.sweep_s;
+    offset = std::move(second.readings);
+    if (!second.completed()) sweep.error = second.error;
+  }
   if (!sweep.completed()) {
     if (sweep.error->kind == ErrorKind::cancelled) {
       std::string why = cancel.reason();
@@ -509,20 +537,24 @@ TestOutcome Station::run_test(const TestRequest& request, const CancelToken& can
       instruments_->invalidate(sweep.error->message);
       run.reason = aborted_reason(*sweep.error);
     }
-    for (const auto& r : sweep.readings) {
+    for (std::size_t i = 0; i < sweep.readings.size(); ++i) {
       const double nan = std::numeric_limits<double>::quiet_NaN();
-      run.points.push_back(core::PointResult{r.frequency_hz, r.raw_dbm, nan, nan, nan});
+      const auto& r = sweep.readings[i];
+      run.points.push_back(core::PointResult{r.frequency_hz, r.raw_dbm, nan, nan, nan,
+                                             i < offset.size() ? offset[i].raw_dbm : nan});
     }
     return finish();
   }
   const auto ta = Clock::now();
-  core::Judgement j = core::judge(*recipe, *cal, sweep.readings);
+  core::Judgement j = core::judge(*recipe, *cal, sweep.readings, {}, offset);
   run.timings.analysis_s = seconds_since(ta);
   run.points = std::move(j.points);
   if (run.points.empty()) {
-    for (const auto& r : sweep.readings) {
+    for (std::size_t i = 0; i < sweep.readings.size(); ++i) {
       const double nan = std::numeric_limits<double>::quiet_NaN();
-      run.points.push_back(core::PointResult{r.frequency_hz, r.raw_dbm, nan, nan, nan});
+      const auto& r = sweep.readings[i];
+      run.points.push_back(core::PointResult{r.frequency_hz, r.raw_dbm, nan, nan, nan,
+                                             i < offset.size() ? offset[i].raw_dbm : nan});
     }
   }
   run.metrics = j.metrics;

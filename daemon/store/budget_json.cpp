@@ -89,6 +89,11 @@ std::string budget_to_json(const core::UncertaintyBudget& b) {
     if (!b.directivity_bound_from_load.empty()) j["directivity_bound_from_load"] = numbers(b.directivity_bound_from_load);
   }
   if (!mismatch.empty()) j["mismatch"] = mismatch;   // absent in budgets without mismatch standards
+  if (b.offset_line) {   // absent when the recipe reads each unit once
+    const core::OffsetLine& l = *b.offset_line;
+    j["offset_line"] = {{"delay_s", l.delay_s}, {"delay_tolerance_s", l.delay_tolerance_s}, {"loss_db", l.loss_db},
+                        {"loss_tolerance_db", l.loss_tolerance_db}, {"match", l.match}};
+  }
   return j.dump();
 }
 
@@ -131,6 +136,16 @@ std::optional<core::UncertaintyBudget> budget_from_json(const std::string& text)
         s.phase_tolerance_rad = m.at("phase_tolerance_rad").get<double>();
         b.mismatch.push_back(std::move(s));
       }
+    }
+    if (j.contains("offset_line")) {
+      const json& l = j.at("offset_line");
+      core::OffsetLine line;
+      line.delay_s = l.at("delay_s").get<double>();
+      line.delay_tolerance_s = l.at("delay_tolerance_s").get<double>();
+      line.loss_db = l.at("loss_db").get<double>();
+      line.loss_tolerance_db = l.at("loss_tolerance_db").get<double>();
+      line.match = l.at("match").get<double>();
+      b.offset_line = line;
     }
     b.frequency_hz = read_numbers(j.at("frequency_hz"));
     b.reference_error_low_db = read_numbers(j.at("reference_error_low_db"));

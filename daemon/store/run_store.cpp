@@ -272,8 +272,8 @@ Status RunStore::Impl::store_run(const core::RunResult& run, bool in_progress) {
     }
 
     auto pts = db.prepare(
-        "INSERT INTO readings(run_id, idx, frequency_hz, raw_dbm, rl_db, rl_worst_db, rl_best_db) "
-        "VALUES(?1, ?2, ?3, ?4, ?5, ?6, ?7)");
+        "INSERT INTO readings(run_id, idx, frequency_hz, raw_dbm, rl_db, rl_worst_db, rl_best_db, offset_raw_dbm) "
+        "VALUES(?1, ?2, ?3, ?4, ?5, ?6, ?7, ?8)");
     if (!pts.ok()) return pts.error();
     for (std::size_t i = 0; i < run.points.size(); ++i) {
       const auto& p = run.points[i];
@@ -283,6 +283,8 @@ Status RunStore::Impl::store_run(const core::RunResult& run, bool in_progress) {
       // +inf best-case return loss (|Γ_m| within the directivity error) is stored as NULL.
       if (std::isinf(p.return_loss_best_db) && p.return_loss_best_db > 0) pts->bind_null(7);
       else pts->bind(7, p.return_loss_best_db);
+      if (std::isfinite(p.offset_raw_dbm)) pts->bind(8, p.offset_raw_dbm);
+      else pts->bind_null(8);
       if (auto st = pts->run(); !st.ok()) return fail(st.error(), fmt::format("{}: reading {}", doing, i));
     }
     if (in_progress || replaced_seq) {
@@ -514,7 +516,8 @@ Status RunStore::invalidate_calibration(std::string_view id, std::string_view re
 
 Status RunStore::Impl::load_points(core::RunResult& run) {
   auto st = db.prepare(
-      "SELECT frequency_hz, raw_dbm, rl_db, rl_worst_db, rl_best_db FROM readings WHERE run_id = ?1 ORDER BY idx");
+      "SELECT frequency_hz, raw_dbm, rl_db, rl_worst_db, rl_best_db, offset_raw_dbm FROM readings WHERE run_id = ?1 "
+      "ORDER BY idx");
   if (!st.ok()) return st.error();
   st->bind(1, run.run_id);
   for (;;) {
@@ -527,6 +530,7 @@ Status RunStore::Impl::load_points(core::RunResult& run) {
     p.return_loss_db = st->real(2);
     p.return_loss_worst_db = st->real(3);
     p.return_loss_best_db = st->is_null(4) ? kInf : st->real(4);
+    if (!st->is_null(5)) p.offset_raw_dbm = st->real(5);
     run.points.push_back(p);
   }
   return Status::success();

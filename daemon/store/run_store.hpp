@@ -22,7 +22,7 @@ namespace echoline::store {
 
 // Schema version this code writes (PRAGMA user_version). Older files are migrated on open;
 // newer files are refused (ErrorKind::storage, message names both versions).
-inline constexpr int kSchemaVersion = 11;
+inline constexpr int kSchemaVersion = 12;
 
 // The reason a run carries while it is in progress, and the reason it gets when a starting daemon
 // finds it still in progress (the daemon that ran it was killed or crashed).

@@ -206,6 +206,10 @@ constexpr std::string_view kVersion11 = R"sql(
 ALTER TABLE calibrations ADD COLUMN units_since_check INTEGER NOT NULL DEFAULT 0;
 )sql";
 
+constexpr std::string_view kVersion12 = R"sql(
+ALTER TABLE readings ADD COLUMN offset_raw_dbm REAL;
+)sql";
+
 }  // namespace
 
 const std::vector<Migration>& migrations() {
@@ -224,6 +228,7 @@ const std::vector<Migration>& migrations() {
       {10, "runs not queued while no central database is configured, and since when", kVersion10},
       {11, "units judged since the last check-standard measurement, per calibration (kept across restarts)",
        kVersion11},
+      {12, "each point's second raw reading through the offset line (recipes with the offset pair)", kVersion12},
   };
   return steps;
 }

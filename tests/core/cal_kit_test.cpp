@@ -40,6 +40,11 @@ TEST(CalKit, ShippedKitsLoad) {
   EXPECT_EQ(find_mismatch(sim, "OPEN"), nullptr);
   EXPECT_TRUE(generic.mismatch.empty());
   EXPECT_TRUE(builtin.mismatch.empty());
+  // Only the simulator's kit has an offset line (its switch has the DUT-OFFSET arm).
+  ASSERT_TRUE(sim.offset_line.has_value());
+  EXPECT_NEAR(sim.offset_line->delay_s, 273.2e-12, 1e-18);
+  EXPECT_FALSE(generic.offset_line.has_value());
+  EXPECT_FALSE(builtin.offset_line.has_value());
 }
 
 std::string error_of(const std::string& text) {
@@ -106,6 +111,46 @@ TEST(CalKit, MismatchMistakesNameFileLineAndKey) {
   const std::string typo = error_of(kit(R"({"name": "MISMATCH-A", "magnitude": 0.1, "ofset_delay_ps": 137})"));
   EXPECT_NE(typo.find("ofset_delay_ps"), std::string::npos) << typo;
   EXPECT_NE(error_of(kit(R"({"magnitude": 0.1})")).find("/mismatch/0/name"), std::string::npos);
+}
+
+// A kit with an "offset_line": every figure is required, each mistake names file, line and key.
+// A quarter wave at 915 MHz is c/(4f) = 81.9 mm in air, 273.2 ps one way (c = 299 792 458 m/s,
+// SI definition); 39 dB return loss is |Γ| = 10^(−39/20) = 0.0112 (definition, common practice).
+TEST(CalKit, OffsetLineIsReadWithEveryFigureRequired) {
+  auto kit = [](const std::string& line) {
+    return R"({
+  "identity": "k", "serial": "1",
+  "open": {"min_magnitude": 0.99},
+  "short": {"min_magnitude": 0.99},
+  "load": {"worst_return_loss": [{"up_to_hz": "3 GHz", "return_loss_db": 30}]},
+  "offset_line":
+)" + line + "\n}";
+  };
+  const std::string ok = R"({"delay_ps": 273.2, "delay_tolerance_ps": 2, "loss_db": 0.08, "loss_tolerance_db": 0.04, "match_return_loss_db": 39})";
+  EXPECT_EQ(error_of(kit(ok)), "");
+  const CalKit k = parse_cal_kit(kit(ok), "kit.jsonc");
+  ASSERT_TRUE(k.offset_line.has_value());
+  EXPECT_NEAR(k.offset_line->delay_s, 273.2e-12, 1e-18);
+  EXPECT_NEAR(k.offset_line->delay_tolerance_s, 2e-12, 1e-18);
+  EXPECT_NEAR(k.offset_line->loss_db, 0.08, 1e-12);
+  EXPECT_NEAR(k.offset_line->match, 0.01122, 1e-5);
+  EXPECT_NEAR(1.0 / (4 * 915e6), 273.2e-12, 0.05e-12);
+  std::string missing = ok;
+  missing.replace(missing.find(R"("loss_tolerance_db": 0.04, )"), 27, "");
+  const std::string m = error_of(kit(missing));
+  EXPECT_NE(m.find("kit.jsonc:"), std::string::npos) << m;
+  EXPECT_NE(m.find("/offset_line/loss_tolerance_db"), std::string::npos) << m;
+  EXPECT_NE(m.find("required"), std::string::npos) << m;
+  std::string poor = ok;
+  poor.replace(poor.find("39"), 2, "6");
+  EXPECT_NE(error_of(kit(poor)).find("/offset_line/match_return_loss_db"), std::string::npos) << error_of(kit(poor));
+  std::string typo = ok;
+  typo.replace(typo.find("delay_ps"), 8, "dealy_ps");
+  EXPECT_NE(error_of(kit(typo)).find("dealy_ps"), std::string::npos) << error_of(kit(typo));
+  // No "offset_line": the kit has none.
+  const std::string plain = R"({"identity": "k", "serial": "1", "open": {}, "short": {},
+    "load": {"worst_return_loss": [{"up_to_hz": "3 GHz", "return_loss_db": 30}]}})";
+  EXPECT_FALSE(parse_cal_kit(plain, "kit.jsonc").offset_line.has_value());
 }
 
 // A 61.1 ohm termination: |Γ| = (61.1 − 50)/(61.1 + 50) = 0.0999, and 40.9 ohm the same at 180°

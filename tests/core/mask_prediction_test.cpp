@@ -4,6 +4,7 @@
 #include "daemon/core/mask_prediction.hpp"
 
 #include <cmath>
+#include <cstdio>
 
 #include <gtest/gtest.h>
 
@@ -118,6 +119,40 @@ TEST(MaskPrediction, DirectivityForFivePercentDeliversIt) {
   const auto p5 = predict_mask(r, st);
   ASSERT_TRUE(p5);
   EXPECT_LE(p5->inconclusive_fraction, 0.05);
+}
+
+// The offset pair moves the thresholds onto the unit's own return loss (MEASUREMENT.md §12): the
+// guard band behind a 25 dB coupler narrows from the leakage (about 2·|E_D| in |Γ|) to the
+// pair's second-order terms, and the predicted inconclusive share falls with it.
+TEST(MaskPrediction, TheOffsetPairNarrowsTheGuardBand) {
+  Recipe r = spread_recipe();
+  StationCapability st = clean_station();
+  st.source_match_db = 25;
+  st.directivity_db = 25;
+  const auto one = predict_mask(r, st);
+  OffsetLine line;
+  line.delay_s = 273.2e-12;
+  line.delay_tolerance_s = 2e-12;
+  line.loss_db = 0.08;
+  line.loss_tolerance_db = 0.04;
+  line.match = std::pow(10.0, -39.0 / 20);
+  st.kit.offset_line = line;
+  r.offset_pair = true;
+  const auto pair = predict_mask(r, st);
+  ASSERT_TRUE(one && pair && one->have_unit && pair->have_unit);
+  ASSERT_EQ(pair->guards.size(), one->guards.size());
+  const MaskGuard& g1 = one->guards.front();
+  const MaskGuard& g2 = pair->guards.front();
+  // 10 dB limit: one reading passes from about 12.4 dB behind 25 dB (|Γ| 0.316 − 0.056 − ...);
+  // the pair from within a dB of the limit.
+  EXPECT_LT(g2.pass_reading_db - g2.limit_db, 1.0) << pair->basis;
+  EXPECT_GT(g1.pass_reading_db - g1.limit_db, 1.5) << one->basis;
+  EXPECT_GT(g2.fail_reading_db, g1.fail_reading_db);
+  EXPECT_LT(pair->inconclusive_fraction, 0.5 * one->inconclusive_fraction);
+  EXPECT_NE(pair->basis.find("offset pair"), std::string::npos) << pair->basis;
+  std::printf("guard band behind 25 dB: one reading %.2f-%.2f dB, offset pair %.2f-%.2f dB; inconclusive %.1f %% -> %.1f %%\n",
+              g1.fail_reading_db, g1.pass_reading_db, g2.fail_reading_db, g2.pass_reading_db,
+              100 * one->inconclusive_fraction, 100 * pair->inconclusive_fraction);
 }
 
 // recipe check warns when the mask will leave more than a tenth of the units undecided, names

@@ -264,6 +264,53 @@ TEST(RecipeCheck, MismatchStandardsNeedAKitThatHasThem) {
 
 // Fast capture over unevenly spaced points interpolates between bins, which the budget does not
 // bound: the check says so (MEASUREMENT.md §11, derived there; no outside source).
+// The offset pair (MEASUREMENT.md §12) needs the kit's line, the switch's DUT-OFFSET arm and a
+// step sweep. A line of 273.2 ps is half a turn round trip at 915 MHz (1/(4f), definition of
+// delay, common practice): 10.8° off at 860 and 970 MHz, more than a quarter turn off below
+// 457.5 MHz (2·2π·f·τ = π/2), below 460.9 MHz at the tolerance's short end (271.2 ps).
+TEST(RecipeCheck, TheOffsetPairNeedsTheLineTheArmAndAStepSweep) {
+  Recipe r = whip_recipe();
+  r.segments = {Segment{860e6, 970e6, 221}};
+  r.limits.resonance_min_hz.reset();
+  r.limits.resonance_max_hz.reset();
+  r.offset_pair = true;
+  StationCapability st = station();
+  auto f = check_recipe(r, st);
+  EXPECT_NE(find(f, "error", "no switch"), nullptr) << dump(f);
+  EXPECT_NE(find(f, "error", "defines no \"offset_line\""), nullptr) << dump(f);
+  st.has_switch = true;
+  st.switch_positions = {"OPEN", "SHORT", "LOAD", "DUT"};
+  f = check_recipe(r, st);
+  const CheckFinding* arm = find(f, "error", "no DUT-OFFSET position");
+  ASSERT_NE(arm, nullptr) << dump(f);
+  EXPECT_EQ(arm->key, "/offset_pair");
+  st.switch_positions.insert("DUT-OFFSET");
+  OffsetLine line;
+  line.delay_s = 273.2e-12;
+  line.delay_tolerance_s = 2e-12;
+  line.loss_db = 0.08;
+  line.loss_tolerance_db = 0.04;
+  line.match = 0.011;
+  st.kit.offset_line = line;
+  f = check_recipe(r, st);
+  EXPECT_FALSE(has_errors(f)) << dump(f);
+  EXPECT_EQ(find(f, "warning", "offset line"), nullptr) << dump(f);
+  EXPECT_EQ(find(f, "warning", "DUT-OFFSET"), nullptr) << dump(f);   // a known position, not a misspelling
+  // Extended down to 400 MHz: the 61 points 400-460 MHz are judged on the direct reading alone.
+  r.segments = {Segment{400e6, 970e6, 571}};
+  f = check_recipe(r, st);
+  const CheckFinding* w = find(f, "warning", "more than a quarter turn from half a turn");
+  ASSERT_NE(w, nullptr) << dump(f);
+  EXPECT_NE(w->message.find("at 61 of 571 points"), std::string::npos) << w->message;
+  r.segments = {Segment{860e6, 970e6, 221}};
+  r.mode = SweepMode::fast_capture;
+  EXPECT_NE(find(check_recipe(r, st), "error", "needs a step sweep"), nullptr);
+  r.mode = SweepMode::step;
+  r.offset_pair = false;
+  st.kit.offset_line.reset();
+  EXPECT_EQ(find(check_recipe(r, st), "error", "offset"), nullptr);
+}
+
 TEST(RecipeCheck, FastCaptureOverUnevenPointsIsFlagged) {
   Recipe r = whip_recipe();
   r.limits.resonance_min_hz.reset();

@@ -344,7 +344,7 @@ TEST(SwitchDriver, UnknownPositionNamesTheAllowedOnesAndSendsNothing) {
   ASSERT_FALSE(s.ok());
   EXPECT_EQ(s.error().kind, ErrorKind::invalid_argument);
   EXPECT_EQ(s.error().message,
-            "calswitch: select: position \"THRU\" is not in profile sim-switch (allowed: DUT, LOAD, MISMATCH-A, MISMATCH-B, OPEN, SHORT); nothing sent");
+            "calswitch: select: position \"THRU\" is not in profile sim-switch (allowed: DUT, DUT-OFFSET, LOAD, MISMATCH-A, MISMATCH-B, OPEN, SHORT); nothing sent");
   EXPECT_TRUE(inst.lines().empty());
 }
 

@@ -95,6 +95,8 @@ ScoreResult run(const ScoreOptions& o, const Inputs& in, const fs::path& dir) {
   setup.recipe = o.recipe;
   setup.lot_name = "SCORE-" + o.lot_file.stem().string();
   setup.client_name = "echoline-score";
+  // The offset pair reads each unit through the switch's DUT-OFFSET arm.
+  setup.use_switch = in.recipe.offset_pair;
   // The station config states the coupler's datasheet directivity, as an engineer would.
   if (in.directivity_db) setup.nominal_directivity_db = *in.directivity_db;
   r.directivity_db = setup.nominal_directivity_db;

@@ -141,11 +141,10 @@ WindowFigures score_window(store::RunStore& store_copy, const std::vector<UnitRe
       it = cals.emplace(run.calibration_id, std::move(cal)).first;
     }
     if (!it->second) continue;
-    std::vector<core::Reading> readings;
-    readings.reserve(run.points.size());
-    for (const core::PointResult& p : run.points) readings.push_back({p.frequency_hz, p.raw_dbm});
-    const core::Judgement j = core::judge(window, *it->second, readings);
-    const core::Judgement plain = core::judge(window, *it->second, readings, core::JudgeOptions{false});
+    const std::vector<core::Reading> readings = core::direct_readings(run);
+    const std::vector<core::Reading> offset = core::offset_readings(run);
+    const core::Judgement j = core::judge(window, *it->second, readings, {}, offset);
+    const core::Judgement plain = core::judge(window, *it->second, readings, core::JudgeOptions{false}, offset);
     if (plain.verdict == core::Verdict::inconclusive) ++w.inconclusive_without_fit;
     ++w.judged;
     ++runs_per_cal[run.calibration_id];

@@ -140,6 +140,7 @@ void StationUnderTest::start_simulator() {
     if (f["role"] == "source") source_address_ = f["address"];
     if (f["role"] == "receiver") receiver_address_ = f["address"];
     if (f["role"] == "control") control_address_ = f["address"];
+    if (f["role"] == "switch") switch_address_ = f["address"];
   }
   if (source_address_.empty() || receiver_address_.empty() || control_address_.empty()) {
     throw std::runtime_error(setup_.bench_program.filename().string() +
@@ -149,8 +150,8 @@ void StationUnderTest::start_simulator() {
 
 void StationUnderTest::write_station_config() {
   unix_socket_ = (setup_.work_dir / "api.sock").string();
-  // No switch: the calibration prompts, and the harness connects each standard on the
-  // fixture control port as an operator would by hand.
+  // No switch (unless use_switch): the calibration prompts, and the harness connects each
+  // standard on the fixture control port as an operator would by hand.
   json station = {
       {"station", setup_.station_name},
       {"data_dir", (setup_.work_dir / "data").string()},
@@ -168,6 +169,11 @@ void StationUnderTest::write_station_config() {
                                         {"test_port_delay_ns", 2}}},
       {"api", {{"unix_socket", unix_socket_}}}};
   if (!setup_.central_settings.empty()) station["central"] = setup_.central_settings.string();
+  if (setup_.use_switch) {
+    if (switch_address_.empty()) throw std::runtime_error("use_switch: the bench program listed no switch endpoint");
+    station["instruments"].push_back({{"role", "switch"}, {"name", "calswitch"}, {"address", switch_address_},
+                                      {"profile", fs::absolute(setup_.switch_profile).string()}});
+  }
   write_file(setup_.work_dir / "station.jsonc", station.dump(2) + "\n");
 }
 

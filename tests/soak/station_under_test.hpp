@@ -51,6 +51,11 @@ struct StationSetup {
   std::string station_name = "soak-bench";     // the station config's "station"
   std::filesystem::path central_settings;      // the station config's "central" ("" = none)
   std::string operator_name = "soak";          // the operator the runs are stored under
+  // Use the simulator's switch (profile below) for the standards and the unit's arms (DUT and
+  // DUT-OFFSET) instead of the control port; needed by recipes with the offset pair. The
+  // harness still connects each unit to the socket on the control port.
+  bool use_switch = false;
+  std::filesystem::path switch_profile = testing::source_dir() / "config/instruments/sim-switch.jsonc";
 };
 
 // What one test of one unit came to, as the API reported it.
@@ -132,7 +137,7 @@ class StationUnderTest {
   StationSetup setup_;
   std::optional<testing::ChildProcess> sim_;
   std::optional<testing::ChildProcess> daemon_;
-  std::string source_address_, receiver_address_, control_address_;
+  std::string source_address_, receiver_address_, control_address_, switch_address_;
   std::unique_ptr<client::ApiClient> api_;
   std::unique_ptr<client::LineConnection> control_;
   std::string unix_socket_;

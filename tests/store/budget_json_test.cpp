@@ -1,6 +1,6 @@
 // The stored budget (calibrations.budget_json) keeps the directivity vector from known
-// mismatches, the mismatch standards' definitions and a fast capture's frequency offset when a
-// calibration has them, and budgets stored before they existed still load.
+// mismatches, the mismatch standards' definitions, a fast capture's frequency offset and the
+// offset pair's line when a calibration has them, and budgets stored before they existed load.
 #include <cmath>
 #include <limits>
 
@@ -130,6 +130,29 @@ TEST(BudgetJson, KeepsTheMismatchDefinitions) {
   EXPECT_EQ(back->mismatch[0].phase_tolerance_rad, 0.0175);
   EXPECT_EQ(budget_to_json(two_points()).find("mismatch"), std::string::npos);
   EXPECT_TRUE(budget_from_json(budget_to_json(two_points()))->mismatch.empty());
+}
+
+// A calibration for a recipe with the offset pair keeps the kit's line, so its runs are judged
+// again offline with the same figures; one without keeps none.
+TEST(BudgetJson, KeepsTheOffsetLine) {
+  core::UncertaintyBudget b = two_points();
+  core::OffsetLine l;
+  l.delay_s = 273.2e-12;
+  l.delay_tolerance_s = 2e-12;
+  l.loss_db = 0.08;
+  l.loss_tolerance_db = 0.04;
+  l.match = 0.0112;
+  b.offset_line = l;
+  const auto back = budget_from_json(budget_to_json(b));
+  ASSERT_TRUE(back);
+  ASSERT_TRUE(back->offset_line.has_value());
+  EXPECT_EQ(back->offset_line->delay_s, 273.2e-12);
+  EXPECT_EQ(back->offset_line->delay_tolerance_s, 2e-12);
+  EXPECT_EQ(back->offset_line->loss_db, 0.08);
+  EXPECT_EQ(back->offset_line->loss_tolerance_db, 0.04);
+  EXPECT_EQ(back->offset_line->match, 0.0112);
+  EXPECT_EQ(budget_to_json(two_points()).find("offset_line"), std::string::npos);
+  EXPECT_FALSE(budget_from_json(budget_to_json(two_points()))->offset_line.has_value());
 }
 
 // A fast capture's budget keeps its frequency offset (half a bin, MEASUREMENT.md §11), so a stored

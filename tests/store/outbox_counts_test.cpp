@@ -73,6 +73,7 @@ TEST(OutboxCounts, FollowQueueingForwardingFromAnotherConnectionAndRefusals) {
                            "DROP TRIGGER outbox_counts_update; DROP TABLE outbox_counts; "
                            "ALTER TABLE forwarding DROP COLUMN unqueued_from_seq; "
                            "ALTER TABLE forwarding DROP COLUMN unqueued_since_utc; ALTER TABLE calibrations DROP COLUMN units_since_check; "
+                           "ALTER TABLE readings DROP COLUMN offset_raw_dbm; "
                            "PRAGMA user_version = 8;",
                            nullptr, nullptr, nullptr),
               SQLITE_OK);

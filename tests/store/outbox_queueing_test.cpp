@@ -142,6 +142,7 @@ TEST(OutboxQueueing, UpgradedStationWithoutCentralDatabaseDropsItsStuckOutboxWit
     ASSERT_EQ(sqlite3_exec(db,
                            "ALTER TABLE forwarding DROP COLUMN unqueued_from_seq; "
                            "ALTER TABLE forwarding DROP COLUMN unqueued_since_utc; ALTER TABLE calibrations DROP COLUMN units_since_check; "
+                           "ALTER TABLE readings DROP COLUMN offset_raw_dbm; "
                            "PRAGMA user_version = 9;",
                            nullptr, nullptr, nullptr),
               SQLITE_OK);

@@ -83,6 +83,30 @@ TEST_F(RunStoreTest, RunRoundTripsWithEveryField) {
   EXPECT_NE(sql("SELECT count(*) FROM readings WHERE rl_best_db IS NULL"), "0");
 }
 
+// A run with the offset pair keeps each point's second raw reading (schema 12); a run without
+// one reads back NaN, and offset_readings() gives none.
+TEST_F(RunStoreTest, TheOffsetLineReadingsRoundTrip) {
+  auto run = make_run("WH915A-0002", "L1", 1, 915e6, core::Verdict::pass, core::FailureClass::none);
+  for (std::size_t i = 0; i < run.points.size(); ++i) run.points[i].offset_raw_dbm = -40.0 - 0.01 * static_cast<double>(i);
+  ASSERT_TRUE(store_->save_run(run).ok());
+  auto back = store_->load_run(run.run_id);
+  ASSERT_TRUE(back.ok()) << back.error().message;
+  ASSERT_EQ(back->points.size(), run.points.size());
+  for (std::size_t i = 0; i < run.points.size(); ++i) EXPECT_EQ(back->points[i].offset_raw_dbm, run.points[i].offset_raw_dbm);
+  const std::vector<core::Reading> offset = core::offset_readings(*back);
+  ASSERT_EQ(offset.size(), run.points.size());
+  EXPECT_EQ(offset[7].raw_dbm, -40.07);
+  EXPECT_EQ(offset[7].frequency_hz, run.points[7].frequency_hz);
+
+  auto plain = make_run("WH915A-0003", "L1", 2, 915e6, core::Verdict::pass, core::FailureClass::none);
+  ASSERT_TRUE(store_->save_run(plain).ok());
+  auto plain_back = store_->load_run(plain.run_id);
+  ASSERT_TRUE(plain_back.ok());
+  EXPECT_TRUE(std::isnan(plain_back->points[0].offset_raw_dbm));
+  EXPECT_TRUE(core::offset_readings(*plain_back).empty());
+  EXPECT_EQ(sql("SELECT count(*) FROM readings WHERE offset_raw_dbm IS NOT NULL"), std::to_string(run.points.size()));
+}
+
 TEST_F(RunStoreTest, HistoryIsOrderedByStartThenInsertion) {
   ASSERT_TRUE(store_->save_run(make_run("U1", "L1", 30, 915e6)).ok());
   ASSERT_TRUE(store_->save_run(make_run("U1", "L1", 10, 915e6)).ok());

@@ -1,0 +1,21 @@
+// The offset pair applied to a run: per plan point, the |Γ| interval from the direct and the
+// offset reading and the calibration's budget (its reference, directivity, noise, source match
+// and the kit's offset line). Pure; thread-safe. Derivation: MEASUREMENT.md §12.
+#pragma once
+
+#include <vector>
+
+#include "daemon/core/budget_types.hpp"
+#include "daemon/core/offset_pair.hpp"
+#include "daemon/core/run_result.hpp"
+
+namespace echoline::core {
+
+// REQUIRES: b.offset_line set; direct, offset and reference_dbm the budget's size, in plan
+// order. A point whose readings are not finite, or where the line is too far from half a turn,
+// has usable = false.
+std::vector<OffsetPairInterval> offset_pair_intervals(const UncertaintyBudget& b, const std::vector<double>& reference_dbm,
+                                                      const std::vector<Reading>& direct,
+                                                      const std::vector<Reading>& offset);
+
+}  // namespace echoline::core

@@ -1,0 +1,89 @@
+// The offset pair end to end: a station with the simulator's switch and a recipe that reads
+// each unit twice (whip915-pair). The daemon sweeps the unit on the DUT arm, then on the
+// DUT-OFFSET arm (behind the kit's quarter-wave line), stores both raw traces, and every
+// point's interval holds the simulator's ground truth. Real processes, SCPI on loopback TCP.
+#include <cmath>
+#include <fstream>
+
+#include <gtest/gtest.h>
+
+#include "daemon/core/judge.hpp"
+#include "daemon/core/recipe_loader.hpp"
+#include "daemon/store/run_store.hpp"
+#include "tests/core/e2e_station.hpp"
+
+namespace echoline::e2e {
+namespace {
+
+std::filesystem::path pair_station(const std::filesystem::path& dir, const Sim& sim) {
+  auto config = write_station_config(dir, sim, "whip915-pair.jsonc");
+  json cfg = json::parse(std::ifstream(config));
+  cfg["instruments"].push_back({{"role", "switch"}, {"name", "calswitch"}, {"address", sim.endpoint("switch")},
+                                {"profile", (testing::source_dir() / "config/instruments/sim-switch.jsonc").string()}});
+  std::ofstream(config) << cfg.dump(2) << "\n";
+  return config;
+}
+
+TEST(DaemonOffsetPair, EachUnitIsReadTwiceAndBothTracesAreStored) {
+  testing::TempDir dir("echoline-daemon-offset-pair");
+  Sim sim("tiny-lot.jsonc", "instant-d25.jsonc");
+  const auto config = pair_station(dir.path(), sim);
+  std::optional<Daemon> daemon;
+  daemon.emplace(config);
+  Api api = Api::connect(*daemon);
+  json cal = calibrate(api, sim);   // the switch selects every standard: no prompt
+  ASSERT_EQ(cal["event"], "result") << cal.dump().substr(0, 400);
+  ASSERT_TRUE(cal["calibration"]["valid"].get<bool>()) << cal.dump().substr(0, 400);
+  const std::vector<std::string> serials = {"TINY-01", "TINY-02", "TINY-03", "TINY-04"};
+  std::vector<std::string> run_ids;
+  for (const std::string& s : serials) {
+    int progress = 0;
+    json run = test_unit(api, sim, s, "TINY", &progress);
+    EXPECT_NE(run["verdict"], "aborted") << run.dump().substr(0, 400);
+    EXPECT_GT(progress, 0);
+    run_ids.push_back(run["run_id"]);
+  }
+  ASSERT_EQ(daemon->process().terminate(30s), 0);
+  daemon.reset();
+
+  auto store = store::RunStore::open_read_only(dir.path() / "data" / "e2e-bench.sqlite");
+  ASSERT_TRUE(store.ok()) << store.error().message;
+  auto stored_cal = (*store)->latest_calibration();
+  ASSERT_TRUE(stored_cal.ok() && stored_cal->has_value());
+  const core::CalibrationRecord& c = **stored_cal;
+  // The calibration keeps the kit's line (config/kits/sim-kit.jsonc: 273.2 ps).
+  ASSERT_TRUE(c.budget.offset_line.has_value());
+  EXPECT_NEAR(c.budget.offset_line->delay_s, 273.2e-12, 1e-18);
+  const core::Recipe recipe = core::load_recipe(testing::source_dir() / "config/recipes/whip915-pair.jsonc");
+  for (std::size_t u = 0; u < run_ids.size(); ++u) {
+    auto run = (*store)->load_run(run_ids[u]);
+    ASSERT_TRUE(run.ok()) << run.error().message;
+    const std::vector<core::Reading> offset = core::offset_readings(*run);
+    ASSERT_EQ(offset.size(), run->points.size()) << serials[u] << ": the second trace is not stored at every point";
+    // The line turns the unit's reflection by half a turn, so the two readings differ where
+    // the unit reflects about as much as the coupler leaks (the parallelogram law).
+    double largest = 0;
+    for (std::size_t i = 0; i < offset.size(); ++i) {
+      largest = std::max(largest, std::fabs(offset[i].raw_dbm - run->points[i].raw_dbm));
+    }
+    EXPECT_GT(largest, 1.0) << serials[u];
+    // Every point's interval holds the simulator's ground truth (the bounds are derived).
+    std::vector<double> freqs;
+    for (const auto& p : run->points) freqs.push_back(p.frequency_hz);
+    json truth = sim.control({{"cmd", "truth"}, {"unit", serials[u]}, {"frequencies_hz", freqs}});
+    ASSERT_TRUE(truth["ok"].get<bool>()) << truth.dump();
+    if (truth["defect"] == "intermittent") continue;   // its reflection changes from reading to reading
+    for (std::size_t i = 0; i < run->points.size(); ++i) {
+      if (truth["return_loss_db"][i].is_null()) continue;
+      const double rl = truth["return_loss_db"][i].get<double>();
+      EXPECT_LE(run->points[i].return_loss_worst_db, rl + 1e-6) << serials[u] << " at " << freqs[i];
+      EXPECT_GE(run->points[i].return_loss_best_db, rl - 1e-6) << serials[u] << " at " << freqs[i];
+    }
+    // Judged again offline from the stored traces: the same verdict.
+    const core::Judgement again = core::judge(recipe, c, core::direct_readings(*run), {}, offset);
+    EXPECT_EQ(core::to_string(again.verdict), core::to_string(run->verdict)) << serials[u];
+  }
+}
+
+}  // namespace
+}  // namespace echoline::e2e
