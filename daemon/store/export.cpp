@@ -57,12 +57,15 @@ std::string csv_field(std::string_view value) {
 
 std::string csv_points(const std::vector<core::RunResult>& runs) {
   std::string out;
+  // offset_raw_dbm: the point read through the offset line (recipes with the offset pair); empty
+  // otherwise.
   append_row(out, {"run_id", "serial", "lot", "recipe", "verdict", "frequency_hz", "raw_dbm", "return_loss_db",
-                   "return_loss_worst_db", "return_loss_best_db"});
+                   "return_loss_worst_db", "return_loss_best_db", "offset_raw_dbm"});
   for (const auto& r : runs) {
     for (const auto& p : r.points) {
       append_row(out, {r.run_id, r.serial, r.lot, r.recipe.name, core::to_string(r.verdict), num(p.frequency_hz),
-                       num(p.raw_dbm), num(p.return_loss_db), num(p.return_loss_worst_db), num(p.return_loss_best_db)});
+                       num(p.raw_dbm), num(p.return_loss_db), num(p.return_loss_worst_db), num(p.return_loss_best_db),
+                       std::isfinite(p.offset_raw_dbm) ? num(p.offset_raw_dbm) : std::string()});
     }
   }
   return out;
@@ -166,13 +169,18 @@ json run_to_json(const core::RunResult& r, bool with_points) {
                  {"text", r.trim->text}};
   }
   if (with_points) {
-    // Columns: frequency_hz, raw_dbm, return_loss_db, worst, best (null best = +inf, unbounded).
+    // Columns: frequency_hz, raw_dbm, return_loss_db, worst, best (null best = +inf, unbounded),
+    // and offset_raw_dbm for a run read twice with the offset pair.
+    const bool pair = !core::offset_readings(r).empty();
     json pts = json::array();
     for (const auto& p : r.points) {
-      pts.push_back(json::array({jnum(p.frequency_hz), jnum(p.raw_dbm), jnum(p.return_loss_db),
-                                 jnum(p.return_loss_worst_db), jnum(p.return_loss_best_db)}));
+      json row = json::array({jnum(p.frequency_hz), jnum(p.raw_dbm), jnum(p.return_loss_db),
+                              jnum(p.return_loss_worst_db), jnum(p.return_loss_best_db)});
+      if (pair) row.push_back(jnum(p.offset_raw_dbm));
+      pts.push_back(std::move(row));
     }
     j["point_columns"] = {"frequency_hz", "raw_dbm", "return_loss_db", "return_loss_worst_db", "return_loss_best_db"};
+    if (pair) j["point_columns"].push_back("offset_raw_dbm");
     j["points"] = std::move(pts);
   }
   return j;
@@ -247,6 +255,7 @@ Result<core::RunResult> run_from_json(const json& j) {
     if (j.contains("points")) {
       for (const auto& p : j.at("points")) {
         r.points.push_back(core::PointResult{cell(p.at(0)), cell(p.at(1)), cell(p.at(2)), cell(p.at(3)), cell(p.at(4), kInf)});
+        if (p.size() > 5) r.points.back().offset_raw_dbm = cell(p.at(5));   // the offset pair's second reading
       }
     }
     return r;

@@ -130,13 +130,7 @@ TEST(MaskPrediction, TheOffsetPairNarrowsTheGuardBand) {
   st.source_match_db = 25;
   st.directivity_db = 25;
   const auto one = predict_mask(r, st);
-  OffsetLine line;
-  line.delay_s = 273.2e-12;
-  line.delay_tolerance_s = 2e-12;
-  line.loss_db = 0.08;
-  line.loss_tolerance_db = 0.04;
-  line.match = std::pow(10.0, -39.0 / 20);
-  st.kit.offset_line = line;
+  st.kit.offset_line = quarter_wave_line(39);
   r.offset_pair = true;
   const auto pair = predict_mask(r, st);
   ASSERT_TRUE(one && pair && one->have_unit && pair->have_unit);

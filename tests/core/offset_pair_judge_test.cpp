@@ -23,16 +23,6 @@ using namespace testing_bench;
 constexpr double kTrueDelay = 274.0e-12;   // the line as built: 0.8 ps off its nominal 273.2 ps
 constexpr double kTrueLossDb = 0.09;
 
-OffsetLine kit_line() {
-  OffsetLine l;
-  l.delay_s = 273.2e-12;
-  l.delay_tolerance_s = 2e-12;
-  l.loss_db = 0.08;
-  l.loss_tolerance_db = 0.04;
-  l.match = std::pow(10.0, -45.0 / 20);
-  return l;
-}
-
 struct PairBench {
   Recipe recipe = whip_recipe();
   Bench bench;
@@ -44,7 +34,7 @@ struct PairBench {
     bench.directivity_db = 25;
     bench.source_match_db = 30;
     StationCapability st = station();
-    st.kit.offset_line = kit_line();
+    st.kit.offset_line = quarter_wave_line(45);
     cal = build_calibration(recipe, standards(recipe, bench), st, "cal-pair", "2026-12-04T08:00:00Z");
   }
   std::vector<Reading> offset(const std::function<cd(double)>& gamma) const {

@@ -285,13 +285,7 @@ TEST(RecipeCheck, TheOffsetPairNeedsTheLineTheArmAndAStepSweep) {
   ASSERT_NE(arm, nullptr) << dump(f);
   EXPECT_EQ(arm->key, "/offset_pair");
   st.switch_positions.insert("DUT-OFFSET");
-  OffsetLine line;
-  line.delay_s = 273.2e-12;
-  line.delay_tolerance_s = 2e-12;
-  line.loss_db = 0.08;
-  line.loss_tolerance_db = 0.04;
-  line.match = 0.011;
-  st.kit.offset_line = line;
+  st.kit.offset_line = quarter_wave_line(39);
   f = check_recipe(r, st);
   EXPECT_FALSE(has_errors(f)) << dump(f);
   EXPECT_EQ(find(f, "warning", "offset line"), nullptr) << dump(f);

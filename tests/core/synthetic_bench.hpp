@@ -61,6 +61,18 @@ inline StationCapability station() {
   return s;
 }
 
+// A kit's quarter-wave offset line at 915 MHz (1/(4f) = 273.2 ps, definition of delay) as a data
+// sheet would state it: ±2 ps, 0.08 ± 0.04 dB, both ends together no worse than `match_db`.
+inline OffsetLine quarter_wave_line(double match_db = 39) {
+  OffsetLine l;
+  l.delay_s = 273.2e-12;
+  l.delay_tolerance_s = 2e-12;
+  l.loss_db = 0.08;
+  l.loss_tolerance_db = 0.04;
+  l.match = std::pow(10.0, -match_db / 20);
+  return l;
+}
+
 // Full-reflection level of the synthetic bench: −10 − 20 − 0.5 − 2·0.3 dBm.
 inline constexpr double kReflectionDbm = -31.1;
 

@@ -6,26 +6,12 @@
 
 #include "simulator/control_port.hpp"
 #include "simulator/physics/dut_models.hpp"
-#include "tests/simulator/sim_fixture.hpp"
+#include "tests/simulator/control_service_fixture.hpp"
 
 namespace echoline::sim::testing {
 namespace {
 
-class ControlServiceTest : public ::testing::Test {
- protected:
-  ControlServiceTest()
-      : lot_(load_lot(repo_file("config/sim/lots/tiny-lot.jsonc"))),
-        clock_(*latency_profile("instant")),
-        control_(world_, &lot_, {}, clock_, "instant") {
-    world_.lot = &lot_;
-  }
-  json ask(const json& req) { return control_.handle(req.dump()); }
-
-  Lot lot_;
-  World world_;
-  SimClock clock_;
-  ControlService control_;
-};
+using ControlServiceTest = ControlServiceFixture;
 
 TEST_F(ControlServiceTest, ConnectsStandardsAndTheyReflectAsStandards) {
   json r = ask({{"cmd", "connect"}, {"standard", "SHORT"}});

@@ -13,7 +13,7 @@
 #include "simulator/physics/lot.hpp"
 #include "simulator/physics/offset_line.hpp"
 #include "simulator/sim_config.hpp"
-#include "tests/simulator/sim_fixture.hpp"
+#include "tests/simulator/control_service_fixture.hpp"
 
 namespace echoline::sim::testing {
 namespace {
@@ -26,14 +26,7 @@ std::string instant_with_line(const json& line) {
   return cfg.dump(2);
 }
 
-std::string config_error(const std::string& text) {
-  try {
-    parse_sim_config(text, "sim.jsonc");
-  } catch (const drivers::ConfigError& e) {
-    return e.what();
-  }
-  return "";
-}
+std::string config_error(const std::string& text) { return sim_config_error(text); }
 
 TEST(OffsetLineConfig, ReadWithDefaultsLimitsAndUnknownKeysRefused) {
   // The shipped benches state the defaults (the line as built, a little off 273.2 ps).
@@ -67,21 +60,7 @@ TEST(OffsetLineConfig, ReadWithDefaultsLimitsAndUnknownKeysRefused) {
   EXPECT_NE(config_error(instant_with_line(274)).find("/standards/offset_line"), std::string::npos);
 }
 
-class OffsetArm : public ::testing::Test {
- protected:
-  OffsetArm()
-      : lot_(load_lot(repo_file("config/sim/lots/tiny-lot.jsonc"))),
-        clock_(*latency_profile("instant")),
-        control_(world_, &lot_, {}, clock_, "instant") {
-    world_.lot = &lot_;
-  }
-  json ask(const json& req) { return control_.handle(req.dump()); }
-
-  Lot lot_;
-  World world_;
-  SimClock clock_;
-  ControlService control_;
-};
+using OffsetArm = ControlServiceFixture;
 
 TEST_F(OffsetArm, SwitchPositionPutsTheSocketsUnitBehindTheLine) {
   auto sw = make_switch_instrument(world_, json{{"positions", {{"1", "OPEN"}, {"4", "DUT"}, {"7", "DUT-OFFSET"}}}});

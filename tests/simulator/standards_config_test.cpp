@@ -11,7 +11,7 @@
 #include "simulator/instrument.hpp"
 #include "simulator/physics/standards.hpp"
 #include "simulator/sim_config.hpp"
-#include "tests/simulator/sim_fixture.hpp"
+#include "tests/simulator/control_service_fixture.hpp"
 
 namespace echoline::sim::testing {
 namespace {
@@ -30,14 +30,7 @@ std::string instant_with(const json& standards, const json& switch_load = nullpt
   return cfg.dump(2);
 }
 
-std::string config_error(const std::string& text) {
-  try {
-    parse_sim_config(text, "sim.jsonc");
-  } catch (const drivers::ConfigError& e) {
-    return e.what();
-  }
-  return "";
-}
+std::string config_error(const std::string& text) { return sim_config_error(text); }
 
 TEST(Standards, ConfiguredOpenShortAndLoadReflectAsConfigured) {
   StandardsParams s;

@@ -76,12 +76,13 @@ TEST_F(ExportTest, PointsCsvRoundTripsToStoredValues) {
   ASSERT_TRUE(rows.ok()) << rows.error().message;
   ASSERT_EQ(rows->size(), 1u + 2 * 201);
   EXPECT_EQ((*rows)[0], (std::vector<std::string>{"run_id", "serial", "lot", "recipe", "verdict", "frequency_hz", "raw_dbm",
-                                                  "return_loss_db", "return_loss_worst_db", "return_loss_best_db"}));
+                                                  "return_loss_db", "return_loss_worst_db", "return_loss_best_db",
+                                                  "offset_raw_dbm"}));
   std::size_t row = 1;
   for (const auto& r : runs_) {
     for (const auto& p : r.points) {
       const auto& f = (*rows)[row++];
-      ASSERT_EQ(f.size(), 10u);
+      ASSERT_EQ(f.size(), 11u);
       EXPECT_EQ(f[0], r.run_id);
       EXPECT_EQ(f[4], core::to_string(r.verdict));
       EXPECT_EQ(parse_double(f[5]), p.frequency_hz);   // exact: shortest round-trip formatting
@@ -89,6 +90,7 @@ TEST_F(ExportTest, PointsCsvRoundTripsToStoredValues) {
       EXPECT_EQ(parse_double(f[7]), p.return_loss_db);
       EXPECT_EQ(parse_double(f[8]), p.return_loss_worst_db);
       EXPECT_EQ(parse_double(f[9]), p.return_loss_best_db);
+      EXPECT_EQ(f[10], "");   // read once: no offset-line reading
     }
   }
 }
@@ -110,6 +112,26 @@ TEST_F(ExportTest, RunsCsvRoundTripsReasonAndMetrics) {
   EXPECT_EQ((*rows)[2][col("failure_class")], "tuned-high");
   EXPECT_EQ((*rows)[2][col("trim_text")], runs_[1].trim->text);
   EXPECT_EQ((*rows)[2][col("points")], "201");
+}
+
+// A run read twice (the offset pair) carries its second raw reading as a sixth point column in
+// JSON and the last CSV column; both read back exactly.
+TEST_F(ExportTest, TheOffsetLineReadingIsExportedAndReadBack) {
+  core::RunResult run = runs_[0];
+  for (std::size_t i = 0; i < run.points.size(); ++i) run.points[i].offset_raw_dbm = -41.5 + 0.001 * static_cast<double>(i);
+  const auto doc = nlohmann::json::parse(json_run(run));
+  const auto& j = doc.contains("run") ? doc.at("run") : doc.at("runs").at(0);
+  ASSERT_EQ(j.at("point_columns").size(), 6u);
+  EXPECT_EQ(j.at("point_columns").at(5), "offset_raw_dbm");
+  auto back = run_from_json(j);
+  ASSERT_TRUE(back.ok()) << back.error().message;
+  ASSERT_EQ(back->points.size(), run.points.size());
+  for (std::size_t i = 0; i < run.points.size(); ++i) EXPECT_EQ(back->points[i].offset_raw_dbm, run.points[i].offset_raw_dbm);
+  auto rows = parse_csv(csv_points({run}));
+  ASSERT_TRUE(rows.ok());
+  EXPECT_EQ(parse_double((*rows)[8][10]), run.points[7].offset_raw_dbm);
+  // A run read once keeps the five columns.
+  EXPECT_EQ(nlohmann::json::parse(json_run(runs_[1])).dump().find("offset_raw_dbm"), std::string::npos);
 }
 
 TEST_F(ExportTest, JsonLotDocumentRoundTripsEveryRun) {
