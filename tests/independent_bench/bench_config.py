@@ -1,5 +1,5 @@
 # The independent bench's files: JSON with // and /* */ comments, and the bench file's keys
-# (coupler, standards, receiver, seed). Errors name the file, the line or the key.
+# (coupler, standards, offset line, receiver, seed). Errors name the file, the line or the key.
 import json
 
 SCHEMA = {
@@ -13,6 +13,9 @@ SCHEMA = {
         'open': {k: float for k in ('magnitude', 'fringe_capacitance_ff', 'offset_delay_ps')},
         'short': {k: float for k in ('magnitude', 'inductance_ph', 'offset_delay_ps')},
         'load': {k: float for k in ('resistance_ohm', 'inductance_nh')}},
+    'offset_line': {k: float for k in (
+        'characteristic_impedance_ohm', 'delay_ps', 'conductor_loss_db_at_1ghz', 'loss_tangent',
+        'near_end_capacitance_pf', 'far_end_capacitance_pf')},
     'receiver': {k: float for k in ('reading_noise_db', 'noise_figure_db', 'trace_points')},
 }
 

@@ -1,6 +1,6 @@
 # The independent bench's fixture control port: one JSON object per line in, one per line out
-# (connect a standard or a unit, disconnect, list the units, ground truth, status). The request
-# and reply fields are the subset of echoline-sim's control port that echoline-score uses.
+# (put a standard or a unit in the socket, empty it, list the units, ground truth, status). The
+# request and reply fields are the subset of echoline-sim's control port that echoline-score uses.
 import json
 
 
@@ -43,7 +43,8 @@ class ControlPort:
             return dict(ok=True, unit=req['unit'], **w.lot.truth(w.lot.unit(req['unit']), freqs))
         if cmd == 'status':
             c = w.connected
-            return {'ok': True, 'connected': None if c is None else c[1], 'lot': w.lot.name, 'sweeps': w.sweeps,
+            return {'ok': True, 'connected': None if c is None else c[1], 'arm': w.arm, 'lot': w.lot.name,
+                    'sweeps': w.sweeps,
                     'source': {'on': w.source_on, 'frequency_hz': w.source_frequency_hz,
                                'power_dbm': w.source_power_dbm},
                     'instruments': {role: {'identity': i.identity, 'messages': i.messages}

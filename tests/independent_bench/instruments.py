@@ -1,35 +1,46 @@
-# The two instruments of the independent bench and what they share: the test-port world (what is
-# connected, the source's state), a CW signal generator and a swept spectrum analyzer in this
-# bench's own SCPI dialect (see README.md, "Dialect"). Pure apart from the seeded noise.
+# The instruments of the independent bench and what they share: the test-port world (what is in
+# the socket, which switch arm is closed, the source's state), a CW signal generator, a swept
+# spectrum analyzer and the arm switch, in this bench's own SCPI dialect (README.md, "Dialect").
 import math
 
 import numpy as np
 
 import fixture
+from coax_line import CoaxLine
 from scpi import (DB_UNITS, FREQUENCY_UNITS, POWER_UNITS, ErrorQueue, Pattern, ScpiError, boolean, nr3,
                   number)
 
 BOLTZMANN_DBM_PER_HZ = -174.0   # thermal noise at 290 K, dBm/Hz (kTB: common practice)
 GRID_HZ = np.arange(700e6, 1200e6 + 1, 100e3)   # frequencies computed at once on each connection
+ARMS = ('OPEN', 'SHORT', 'LOAD', 'SOCKET', 'LINE')
 
 
 class World:
-    """The test port and the signal generator's output, shared by both instruments."""
+    """The test port and the signal generator's output, shared by the instruments. The test port
+    is the switch's common port. Its SOCKET arm reaches the unit socket directly, its LINE arm
+    the same socket through the offset line, its OPEN, SHORT and LOAD arms the bench's own
+    standards; the arms themselves are ideal (identical, lossless, no leakage between arms).
+    The control port places a unit or a standard in the socket; the switch rests on SOCKET
+    after power-on and *RST, so a station that never drives the switch sees the socket as if it
+    were on the test port."""
 
     def __init__(self, config, lot):
         self.coupler = fixture.Coupler(config['coupler'])
         self.standards = fixture.Standards(config['standards'])
+        self.line = CoaxLine(config['offset_line'])
         self.lot = lot
         self.rng = np.random.default_rng(int(config['seed']))
-        self.connected = None          # None, ("standard", "OPEN") or ("unit", serial)
+        self.connected = None          # in the socket: None, ("standard", "OPEN") or ("unit", serial)
+        self.arm = 'SOCKET'            # the closed switch arm, one of ARMS
+        self.arm_changes = 0
         self.source_frequency_hz = 1e9
         self.source_power_dbm = -30.0
         self.source_on = False
         self.sweeps = 0
         self._grid = {}
-        self._connect(None)
+        self._update()
 
-    def _network(self, freq):
+    def _socket_network(self, freq):
         if self.connected is None:
             return self.standards.bare_port(freq)
         kind, name = self.connected
@@ -37,11 +48,22 @@ class World:
             return self.standards.by_name(name, freq)
         return self.lot.network(self.lot.unit(name), freq)
 
-    def _connect(self, what):
-        self.connected = what
+    def _network(self, freq):
+        """What the test port sees: the closed arm's standard, the socket, or the line into it."""
+        if self.arm in ('OPEN', 'SHORT', 'LOAD'):
+            return self.standards.by_name(self.arm, freq)
+        if self.arm == 'LINE':
+            return self.line.network(freq) ** self._socket_network(freq)
+        return self._socket_network(freq)
+
+    def _update(self):
         freq = fixture.frequency(GRID_HZ)
         ratio = self.coupler.reading_ratio(freq, self._network(freq))
         self._grid = {int(round(f)): r for f, r in zip(GRID_HZ, ratio)}
+
+    def _connect(self, what):
+        self.connected = what
+        self._update()
 
     def connect_standard(self, name):
         if name not in ('OPEN', 'SHORT', 'LOAD'):
@@ -55,8 +77,16 @@ class World:
     def disconnect(self):
         self._connect(None)
 
+    def select_arm(self, arm):
+        if arm not in ARMS:
+            raise ValueError(f'unknown arm "{arm}"')
+        if arm != self.arm:
+            self.arm = arm
+            self.arm_changes += 1
+            self._update()
+
     def ratio(self, f_hz):
-        """Analyzer wave / source wave at f_hz for what is connected (skrf's cascade)."""
+        """Analyzer wave / source wave at f_hz for what the test port sees (skrf's cascade)."""
         key = int(round(f_hz))
         if key in self._grid and abs(key - f_hz) < 1e-3:
             return self._grid[key]
@@ -273,3 +303,35 @@ class SpectrumAnalyzer(Instrument):
         if self.trace is None:
             raise ScpiError(-221, 'Settings conflict;no sweep taken since reset')
         return ','.join(nr3(x, 5) for x in self.trace[1])
+
+
+class ArmSwitch(Instrument):
+    """A five-arm coaxial switch: one arm closed at a time, chosen by name (character program
+    data, long or short form, any case: SCPI-1999 vol. 1, ch. 7, from memory). *RST closes
+    SOCKet. The relay settles before the command returns, so *OPC? answers 1 at once."""
+
+    identity = 'Independent Bench,IB-SW5,IB-SW-0001,1.0'
+    # (long form, short form, the world's arm); the short form is the upper-case part.
+    NAMES = (('OPEN', 'OPEN', 'OPEN'), ('SHORt', 'SHOR', 'SHORT'), ('LOAD', 'LOAD', 'LOAD'),
+             ('SOCKet', 'SOCK', 'SOCKET'), ('LINE', 'LINE', 'LINE'))
+
+    def __init__(self, world):
+        super().__init__(world)
+        self.add('ROUTe:ARM[:SELect]', self.select)
+        self.add('ROUTe:ARM[:SELect]?', lambda _: self._short(self.world.arm))
+        self.add('ROUTe:ARM:CATalog?', lambda _: ','.join(short for _, short, _ in self.NAMES))
+        self.add('ROUTe:ARM:COUNt?', lambda _: str(self.world.arm_changes))
+
+    def reset(self):
+        self.world.select_arm('SOCKET')
+
+    def _short(self, arm):
+        return next(short for _, short, a in self.NAMES if a == arm)
+
+    def select(self, params):
+        word = params.strip().upper()
+        for long, short, arm in self.NAMES:
+            if word in (long.upper(), short):
+                self.world.select_arm(arm)
+                return None
+        raise ScpiError(-224, f'Illegal parameter value;arm {params.strip()} is not OPEN, SHORt, LOAD, SOCKet or LINE')

@@ -1,7 +1,7 @@
 #!/usr/bin/python3
-# Checks that kit.jsonc truly holds the independent bench's standards: each standard as the
-# bench makes it (bench.jsonc, fixture.py, skrf) against the kit's model and tolerances over
-# 700-1200 MHz. Prints the worst margins; exit 0 when every standard holds, 1 when one does not.
+# Checks that kit.jsonc truly holds the independent bench's standards and offset line: each as the
+# bench makes it (bench.jsonc, fixture.py, coax_line.py, skrf) against the kit's figures, the
+# standards over 700-1200 MHz, the line over 860-970 MHz. Exit 0 when all hold, 1 when one does not.
 import contextlib
 import io
 import os
@@ -14,6 +14,9 @@ sys.path.insert(0, os.path.dirname(os.path.abspath(__file__)))
 with contextlib.redirect_stdout(io.StringIO()):   # skrf prints a note when matplotlib is absent
     import fixture
 from bench_config import load_bench_config, load_jsonc  # noqa: E402
+from coax_line import CoaxLine  # noqa: E402
+
+LINE_BAND_HZ = (860e6, 970e6)   # where kit.jsonc states the offset line (the pair recipes' sweep)
 
 Z0 = fixture.Z0
 
@@ -74,7 +77,34 @@ def main():
         low = top
     if low < f[-1]:
         print(f'LOAD   above {low / 1e6:.0f} MHz: unknown to the kit (the station takes |G| up to 1)')
+    ok &= check_offset_line(bench['offset_line'], kit['offset_line'])
     return 0 if ok else 1
+
+
+def check_offset_line(line_params, entry):
+    """The line's delay, loss and match at every frequency of LINE_BAND_HZ on a 10 kHz grid (it
+    holds every plan point of the pair recipes, 0.5 MHz apart) against the kit's figures."""
+    f = np.arange(LINE_BAND_HZ[0], LINE_BAND_HZ[1] + 1, 10e3)
+    g = CoaxLine(line_params).figures(f)
+    band = f'{LINE_BAND_HZ[0] / 1e6:.0f}-{LINE_BAND_HZ[1] / 1e6:.0f} MHz'
+    ok = True
+    delay_ps = g['delay_s'] * 1e12
+    off = np.abs(delay_ps - entry['delay_ps'])
+    holds = off.max() <= entry['delay_tolerance_ps']
+    ok &= bool(holds)
+    print(f'LINE   {band}: delay {delay_ps.min():.3f} to {delay_ps.max():.3f} ps, at most {off.max():.3f} ps off '
+          f'{entry["delay_ps"]} ps (kit: +- {entry["delay_tolerance_ps"]} ps)  {"holds" if holds else "DOES NOT HOLD"}')
+    off = np.abs(g['loss_db'] - entry['loss_db'])
+    holds = off.max() <= entry['loss_tolerance_db']
+    ok &= bool(holds)
+    print(f'LINE   {band}: loss {g["loss_db"].min():.4f} to {g["loss_db"].max():.4f} dB, at most {off.max():.4f} dB '
+          f'off {entry["loss_db"]} dB (kit: +- {entry["loss_tolerance_db"]} dB)  {"holds" if holds else "DOES NOT HOLD"}')
+    rl = g['match_return_loss_db']
+    holds = rl.min() >= entry['match_return_loss_db']
+    ok &= bool(holds)
+    print(f'LINE   {band}: worst return loss of either end {rl.min():.2f} dB at {f[np.argmin(rl)] / 1e6:.2f} MHz '
+          f'(kit: at least {entry["match_return_loss_db"]} dB)  {"holds" if holds else "DOES NOT HOLD"}')
+    return ok
 
 
 if __name__ == '__main__':

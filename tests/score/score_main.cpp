@@ -97,6 +97,7 @@ ScoreResult run(const ScoreOptions& o, const Inputs& in, const fs::path& dir) {
   setup.client_name = "echoline-score";
   // The offset pair reads each unit through the switch's DUT-OFFSET arm.
   setup.use_switch = in.recipe.offset_pair;
+  setup.switch_profile = o.switch_profile;
   // The station config states the coupler's datasheet directivity, as an engineer would.
   if (in.directivity_db) setup.nominal_directivity_db = *in.directivity_db;
   r.directivity_db = setup.nominal_directivity_db;

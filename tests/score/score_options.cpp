@@ -27,6 +27,8 @@ then scores every unit's final run against the bench's ground truth and prints t
   --source-profile FILE, --receiver-profile FILE
                          instrument profiles in the station config (default config/instruments/
                          sim-source.jsonc and sim-receiver.jsonc)
+  --switch-profile FILE  switch profile in the station config when the recipe has the offset pair
+                         (default config/instruments/sim-switch.jsonc)
   --kit FILE             calibration kit in the station config (default config/kits/sim-kit.jsonc)
   --fixture FILE         JSONC file with the station config's "fixture" object (default: echoline-sim's
                          coupler, with the directivity of the --sim config's /bench/directivity_db)
@@ -64,6 +66,7 @@ ScoreOptions parse_score_options(int argc, char** argv) {
   o.window_recipe = src / "config/recipes/whip915-window.jsonc";
   o.source_profile = src / "config/instruments/sim-source.jsonc";
   o.receiver_profile = src / "config/instruments/sim-receiver.jsonc";
+  o.switch_profile = src / "config/instruments/sim-switch.jsonc";
   o.kit = src / "config/kits/sim-kit.jsonc";
   for (int i = 1; i < argc; ++i) {
     const std::string a = argv[i];
@@ -76,7 +79,8 @@ ScoreOptions parse_score_options(int argc, char** argv) {
       std::exit(0);
     }
     static const std::set<std::string> kValued = {"--bench", "--sim", "--lot", "--recipe", "--window-recipe",
-                                                  "--source-profile", "--receiver-profile", "--kit", "--fixture",
+                                                  "--source-profile", "--receiver-profile", "--switch-profile",
+                                                  "--kit", "--fixture",
                                                   "--label", "--unit-model", "--work-dir", "--json", "--require",
                                                   "--units"};
     if (!kValued.count(a)) usage(a.rfind("-", 0) == 0 ? "unknown option " + a : "unexpected argument " + a);
@@ -89,6 +93,7 @@ ScoreOptions parse_score_options(int argc, char** argv) {
     else if (a == "--window-recipe") o.window_recipe = existing_file(a, v);
     else if (a == "--source-profile") o.source_profile = existing_file(a, v);
     else if (a == "--receiver-profile") o.receiver_profile = existing_file(a, v);
+    else if (a == "--switch-profile") o.switch_profile = existing_file(a, v);
     else if (a == "--kit") o.kit = existing_file(a, v);
     else if (a == "--fixture") o.fixture = existing_file(a, v);
     else if (a == "--label") o.label = v;

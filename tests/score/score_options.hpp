@@ -19,6 +19,8 @@ struct ScoreOptions {
   // The station config's instrument profiles, kit and fixture (defaults: echoline-sim's).
   std::filesystem::path source_profile;    // --source-profile (default config/instruments/sim-source.jsonc)
   std::filesystem::path receiver_profile;  // --receiver-profile (default config/instruments/sim-receiver.jsonc)
+  std::filesystem::path switch_profile;    // --switch-profile: used when the recipe has the offset pair
+                                           // (default config/instruments/sim-switch.jsonc)
   std::filesystem::path kit;               // --kit (default config/kits/sim-kit.jsonc)
   std::filesystem::path fixture;           // --fixture: a JSONC file holding the station config's
                                            // "fixture" object; default none (the harness's own)
