@@ -53,8 +53,8 @@ CalibratedTrace calibrate_points(const CalibrationRecord& cal, const std::vector
     p.return_loss_db = rl;
     p.return_loss_worst_db = std::min(b.worst_db, rl);
     p.return_loss_best_db = std::max(b.best_db, rl);
-    double error_radius = gamma_error_radius(cal.budget, i, cal.reference_dbm[i], dut[i].raw_dbm, offset_db[i], offset_u[i]);
     if (offset) p.offset_raw_dbm = (*offset)[i].raw_dbm;
+    if (!pair.empty()) out.direct.push_back(p);
     if (i < pair.size() && pair[i].usable) {
       // |Γ| from the direct reading alone, then intersected with the pair's.
       const double g_hi1 = b.worst_db <= 0 ? 1.0 : std::pow(10.0, -b.worst_db / 20);
@@ -69,14 +69,13 @@ CalibratedTrace calibrate_points(const CalibrationRecord& cal, const std::vector
         const double g_est = std::clamp(pair[i].gamma_estimate, g_lo, g_hi);
         p.return_loss_db = g_est >= 1 ? 0.0 : g_est > 0 ? -20 * std::log10(g_est) : p.return_loss_best_db;
         if (!std::isfinite(p.return_loss_db)) p.return_loss_db = std::clamp(rl, p.return_loss_worst_db, 200.0);
-        const double g_m = std::pow(10.0, -p.return_loss_db / 20);
-        error_radius = std::max(g_hi - g_m, g_m - g_lo);
       } else {
         ++out.pair_disagreements;
       }
     }
     out.points.push_back(p);
-    out.shift.gamma_error.push_back(error_radius);
+    out.shift.gamma_error.push_back(
+        gamma_error_radius(cal.budget, i, cal.reference_dbm[i], dut[i].raw_dbm, offset_db[i], offset_u[i]));
     const double s_d = reading_sigma_db(cal.budget, i, dut[i].raw_dbm);
     const double s_r = cal.budget.reference_noise_db[i];
     out.shift.sigma_db.push_back(std::sqrt(s_d * s_d + s_r * s_r));
@@ -291,7 +290,8 @@ bool another_dip_qualifies(const std::vector<PointResult>& points, std::size_t p
   return false;
 }
 
-std::optional<Resonance> find_resonance(const std::vector<PointResult>& points, const ShiftContext* context) {
+std::optional<Resonance> find_resonance(const std::vector<PointResult>& points, const ShiftContext* context,
+                                        const std::vector<PointResult>* shift_points) {
   if (points.empty()) return std::nullopt;
   std::size_t best = 0;
   for (std::size_t i = 1; i < points.size(); ++i) {
@@ -328,9 +328,17 @@ std::optional<Resonance> find_resonance(const std::vector<PointResult>& points, 
   // bound's assumptions that interval is the tighter honest one (both hold: the intersection).
   // A second dip whose best case reaches the peak's worst case may hold the true maximum: the
   // shift bound, which follows one dip, does not apply, and the rigorous interval spans both.
-  const ShiftContext own = context ? ShiftContext{} : context_from_bounds(points);
-  if (auto sb = another_dip_qualifies(points, best) ? std::nullopt
-                                                     : resonance_shift_bound(points, best, context ? *context : own)) {
+  const std::vector<PointResult>& fitted = shift_points && shift_points->size() == n ? *shift_points : points;
+  std::size_t fitted_peak = best;
+  if (&fitted != &points) {
+    for (std::size_t i = 0; i < n; ++i) {
+      if (fitted[i].return_loss_db > fitted[fitted_peak].return_loss_db) fitted_peak = i;
+    }
+  }
+  const ShiftContext own = context ? ShiftContext{} : context_from_bounds(fitted);
+  if (auto sb = another_dip_qualifies(points, best)
+                    ? std::nullopt
+                    : resonance_shift_bound(fitted, fitted_peak, context ? *context : own)) {
     const double low = sb->center_hz - sb->half_width_hz;
     const double high = sb->center_hz + sb->half_width_hz;
     if (low > r.low_hz) {
@@ -474,9 +482,13 @@ Analysis analyze(const Recipe& recipe, const CalibratedTrace& trace) {
     if (std::fabs(pts[i].return_loss_db - pts[i - 1].return_loss_db) > 6.0) ++a.erratic_jumps;
   }
   const bool have_context = trace.shift.gamma_error.size() == pts.size();
-  a.resonance = find_resonance(pts, have_context ? &trace.shift : nullptr);
+  // With the offset pair the shift bound and the dip fit work on the direct reading (their
+  // derivations take one reading through a smooth error vector); the pair's points give the rest.
+  const std::vector<PointResult>* direct = trace.direct.size() == pts.size() ? &trace.direct : nullptr;
+  a.resonance = find_resonance(pts, have_context ? &trace.shift : nullptr, direct);
   if (a.resonance && have_context && trace.shift.fit && trace.shift.error_vector.size() == pts.size()) {
-    apply_fit(*a.resonance, pts, trace.shift, recipe.limits.bandwidth_threshold_db, a.erratic_jumps, a.fit);
+    apply_fit(*a.resonance, direct ? *direct : pts, trace.shift, recipe.limits.bandwidth_threshold_db, a.erratic_jumps,
+              a.fit);
   }
   if (a.resonance && have_context && trace.shift.frequency_offset_hz > 0) {
     // A fast capture reads the unit at f + δ, |δ| up to the offset, the same δ at every point:

@@ -39,11 +39,15 @@ struct ShiftContext {
 // With `offset` (the same plan read through the kit's offset line; the budget must hold the
 // line) each point's interval is also bounded by the offset pair (offset_pair_points.hpp) and
 // the two intervals intersected; the return loss shown is then the pair's own estimate (no
-// leakage cross term), inside the interval. A point whose two intervals do not overlap keeps the direct
-// reading's alone and is counted: the line or the unit's connection is not what the kit states.
+// leakage cross term), inside the interval. A point whose two intervals do not overlap keeps
+// the direct reading's alone and is counted: the line or the unit's connection is not what the
+// kit states. The shift bound and the dip fit are derived for one reading through a smooth
+// error vector (MEASUREMENT.md 6.2, 6.4), so they keep working on the direct reading's points
+// (`direct`) and `shift`; the pair narrows the points, hence the rigorous interval.
 struct CalibratedTrace {
   std::vector<PointResult> points;
-  ShiftContext shift;
+  std::vector<PointResult> direct;      // with the offset pair: the direct reading's points; else empty
+  ShiftContext shift;                   // of the direct reading
   std::size_t clamped_points = 0;
   std::size_t pair_points = 0;          // points the offset pair narrowed or confirmed
   std::size_t pair_disagreements = 0;   // points whose two intervals did not overlap
@@ -84,7 +88,10 @@ struct Resonance {
 };
 // Empty when there are no points. Without a context the error radius is read from the points'
 // worst-case bounds and the error delay is 5 ns, with no statistical term.
-std::optional<Resonance> find_resonance(const std::vector<PointResult>& points, const ShiftContext* context = nullptr);
+// `shift_points`: the points the shift bound fits (the direct reading's, with the offset pair),
+// at their own peak; default `points`.
+std::optional<Resonance> find_resonance(const std::vector<PointResult>& points, const ShiftContext* context = nullptr,
+                                        const std::vector<PointResult>* shift_points = nullptr);
 
 // From the first to the last sample where the best-case RL reaches the worst-case RL of sample
 // `peak` (a second dip that qualifies is inside), outer edges linearly interpolated and widened

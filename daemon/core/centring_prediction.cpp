@@ -80,26 +80,40 @@ std::optional<CentringPrediction> predict_centring(const Recipe& recipe, const S
   // Noise is taken as 0.05 dB per reading until a calibration has measured it (the typical
   // figure of a swept analyzer well above its floor; common practice, from memory).
   const double src = rho_from_db(station.source_match_db);
-  // With the offset pair (MEASUREMENT.md §12) each point's radius is what the pair leaves, at
-  // most one reading's: the leakage bound e enters only at second order.
-  const std::optional<OffsetLine> pair_line =
-      recipe.offset_pair && station.kit.offset_line ? station.kit.offset_line : std::nullopt;
   auto radius_at_edge = [&](double e) {
     const double g_edge = 2 * (g0_given >= 0 ? g0_given : e);
     const double u = recipe.coverage_factor * 0.05 * std::sqrt(2.0);
-    const double one = e + g_edge * (std::pow(10.0, u / 20) - 1) + src * g_edge * g_edge;
+    return e + g_edge * (std::pow(10.0, u / 20) - 1) + src * g_edge * g_edge;
+  };
+  // With the offset pair (MEASUREMENT.md §12) the points' bounds, hence the rigorous interval,
+  // take what the pair leaves of a unit, the most over the dip (|Γ₀| to 2|Γ₀|: near the bottom
+  // |Γ|² is small beside the leakage's own uncertainty); the shift bound still works on the
+  // direct reading. Never more than one reading's radius.
+  const std::optional<OffsetLine> pair_line =
+      recipe.offset_pair && station.kit.offset_line ? station.kit.offset_line : std::nullopt;
+  auto pair_radius = [&](double e) {
+    const double one = radius_at_edge(e);
     if (!pair_line) return one;
     // e = |d| + L + k·u_conn from the LOAD reading |d| (MEASUREMENT.md §3.1): |d| is then at
     // least e − 2(L + k·u_conn).
     const double spread = load_gamma_bound(station.kit, f0) + recipe.coverage_factor * station.kit.connection_repeatability;
-    return offset_pair_error_radius(std::min(g_edge, 1.0), f0, std::max(0.0, e - 2 * spread), e, src, 0, 0.05,
-                                    recipe.coverage_factor, *pair_line, one);
+    const double g_edge = 2 * (g0_given >= 0 ? g0_given : e);
+    double worst = 0;
+    for (int i = 0; i <= 8; ++i) {
+      const double g = std::min(1.0, g_edge / 2 + (g_edge / 2) * i / 8.0);
+      worst = std::max(worst, offset_pair_error_radius(g, f0, std::max(0.0, e - 2 * spread), e, src, 0, 0.05,
+                                                       recipe.coverage_factor, *pair_line, one));
+    }
+    return worst;
   };
   auto half_width = [&](double e_dir) {
     const double e = radius_at_edge(e_dir);
     const double g0 = g0_given >= 0 ? g0_given : e;
-    if (p.rigorous) return std::sqrt((g0 + 2 * e) * (g0 + 2 * e) - g0 * g0) / s + step / 2;
-    return e / s + (g0 + e) * 2 * std::numbers::pi * tau * e / (s * s) + step / 2;
+    auto rigorous = [&](double r) { return std::sqrt((g0 + 2 * r) * (g0 + 2 * r) - g0 * g0) / s + step / 2; };
+    const double shift = e / s + (g0 + e) * 2 * std::numbers::pi * tau * e / (s * s) + step / 2;
+    if (!pair_line) return p.rigorous ? rigorous(e) : shift;
+    const double rig = rigorous(pair_radius(e_dir));
+    return p.rigorous ? rig : std::min(rig, shift);
   };
   p.half_width_hz = half_width(error_radius);
   p.inconclusive_fraction = fraction(p.half_width_hz, lo, hi, p.center_hz, p.spread_hz);
@@ -116,8 +130,8 @@ std::optional<CentringPrediction> predict_centring(const Recipe& recipe, const S
   p.basis = fmt::format("Q {:.1f} at {:.3f} MHz, {}, error radius {:.4f} (|\u0393|{}), {} interval, {}", p.q, f0 / 1e6,
                         recipe.nominal.depth_db ? fmt::format("depth {:.1f} dB", *recipe.nominal.depth_db)
                                                 : std::string("a deep dip"),
-                        error_radius, pair_line ? fmt::format("; {:.4f} at the dip's edge with the offset pair",
-                                                              radius_at_edge(error_radius))
+                        error_radius, pair_line ? fmt::format("; {:.4f} over the dip with the offset pair",
+                                                              pair_radius(error_radius))
                                                 : std::string(),
                         p.rigorous ? "rigorous" : "shift-bound",
                         p.spread_hz ? fmt::format("production spread {:.2f} MHz (s.d.)", *p.spread_hz / 1e6)

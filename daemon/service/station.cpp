@@ -75,6 +75,20 @@ std::string not_valid_text(const core::CalibrationRecord& c) {
                      c.errors.empty() ? std::string("sanity checks failed") : c.errors.front());
 }
 
+// The raw readings of a run that was not judged (aborted, or refused by the judge), kept with
+// the offset line's where there are any: the store loses nothing that was measured.
+std::vector<core::PointResult> unjudged_points(const std::vector<core::Reading>& direct,
+                                               const std::vector<core::Reading>& offset) {
+  const double nan = std::numeric_limits<double>::quiet_NaN();
+  std::vector<core::PointResult> out;
+  out.reserve(direct.size());
+  for (std::size_t i = 0; i < direct.size(); ++i) {
+    out.push_back(core::PointResult{direct[i].frequency_hz, direct[i].raw_dbm, nan, nan, nan,
+                                    i < offset.size() ? offset[i].raw_dbm : nan});
+  }
+  return out;
+}
+
 std::string random_hex4() {
   static thread_local std::mt19937 rng{std::random_device{}()};
   return fmt::format("{:04x}", rng() & 0xffffu);
@@ -517,10 +531,7 @@ TestOutcome Station::run_test(const TestRequest& request, const CancelToken& can
         !s) {
       if (sw) instruments_->invalidate(s.error().message);
       run.reason = aborted_reason(s.error());
-      for (const auto& r : sweep.readings) {
-        const double nan = std::numeric_limits<double>::quiet_NaN();
-        run.points.push_back(core::PointResult{r.frequency_hz, r.raw_dbm, nan, nan, nan});
-      }
+      run.points = unjudged_points(sweep.readings, {});
       return finish();
     }
     const int n = static_cast<int>(sweep.readings.size());
@@ -537,26 +548,14 @@ TestOutcome Station::run_test(const TestRequest& request, const CancelToken& can
       instruments_->invalidate(sweep.error->message);
       run.reason = aborted_reason(*sweep.error);
     }
-    for (std::size_t i = 0; i < sweep.readings.size(); ++i) {
-      const double nan = std::numeric_limits<double>::quiet_NaN();
-      const auto& r = sweep.readings[i];
-      run.points.push_back(core::PointResult{r.frequency_hz, r.raw_dbm, nan, nan, nan,
-                                             i < offset.size() ? offset[i].raw_dbm : nan});
-    }
+    run.points = unjudged_points(sweep.readings, offset);
     return finish();
   }
   const auto ta = Clock::now();
   core::Judgement j = core::judge(*recipe, *cal, sweep.readings, {}, offset);
   run.timings.analysis_s = seconds_since(ta);
   run.points = std::move(j.points);
-  if (run.points.empty()) {
-    for (std::size_t i = 0; i < sweep.readings.size(); ++i) {
-      const double nan = std::numeric_limits<double>::quiet_NaN();
-      const auto& r = sweep.readings[i];
-      run.points.push_back(core::PointResult{r.frequency_hz, r.raw_dbm, nan, nan, nan,
-                                             i < offset.size() ? offset[i].raw_dbm : nan});
-    }
-  }
+  if (run.points.empty()) run.points = unjudged_points(sweep.readings, offset);
   run.metrics = j.metrics;
   run.verdict = j.verdict;
   run.failure_class = j.failure_class;

@@ -1,7 +1,10 @@
 // Recipe against station capability (daemon/core/recipe_check.hpp).
 #include "daemon/core/recipe_check.hpp"
 
+#include "daemon/core/centring_prediction.hpp"
+
 #include <cmath>
+#include <cstdio>
 
 #include <gtest/gtest.h>
 
@@ -75,6 +78,42 @@ TEST(RecipeCheck, NarrowWindowIsWarnedWithThePredictedInconclusiveShare) {
   EXPECT_NE(w->message.find("a coupler of at least"), std::string::npos) << w->message;
   r.nominal = {};
   EXPECT_TRUE(find(check_recipe(r, st), "warning", "without nominal_unit")) << dump(check_recipe(r, st));
+}
+
+// With the offset pair the window prediction's rigorous half-width takes the most the pair
+// leaves over the dip, and the shift bound (one reading's) applies where narrower (MEASUREMENT.md
+// §7, §12): never wider than one reading's. At the bottom of a deep dip |Γ|² is small beside the
+// leakage's own uncertainty, which the LOAD's residual sets, so the pair narrows a broad,
+// shallow dip's interval far more than a deep one's, and more with a better LOAD.
+TEST(RecipeCheck, TheWindowPredictionWithTheOffsetPair) {
+  Recipe r = whip_recipe();
+  r.segments = {Segment{860e6, 970e6, 221}};
+  r.nominal.resonance_sd_hz = 5.9e6;
+  StationCapability st = station();
+  st.directivity_db = 25;
+  st.kit.offset_line = quarter_wave_line(39);
+  auto half_widths = [&](double q, double depth_db) {
+    r.nominal.q = q;
+    r.nominal.depth_db = depth_db;
+    r.offset_pair = false;
+    const double one = predict_centring(r, st)->half_width_hz;
+    r.offset_pair = true;
+    const auto pair = predict_centring(r, st);
+    EXPECT_NE(pair->basis.find("offset pair"), std::string::npos) << pair->basis;
+    return std::pair<double, double>{one, pair->half_width_hz};
+  };
+  const auto [fine_one, fine_pair] = half_widths(9, 25);   // the synthetic kit's 60 dB LOAD
+  st.kit.load = {LoadStep{6e9, 40}};
+  const auto [deep_one, deep_pair] = half_widths(9, 25);
+  const auto [broad_one, broad_pair] = half_widths(4, 11);
+  std::printf("window half-width behind 25 dB: Q 9, 25 dB deep, 60 dB LOAD %.2f -> %.2f MHz; 40 dB LOAD %.2f -> %.2f "
+              "MHz; Q 4, 11 dB deep %.2f -> %.2f MHz\n",
+              fine_one / 1e6, fine_pair / 1e6, deep_one / 1e6, deep_pair / 1e6, broad_one / 1e6, broad_pair / 1e6);
+  EXPECT_LE(fine_pair, fine_one);
+  EXPECT_LE(deep_pair, deep_one);
+  EXPECT_LT(broad_pair, 0.6 * broad_one);
+  EXPECT_GT(deep_pair / deep_one, broad_pair / broad_one);
+  EXPECT_GT(deep_pair / deep_one, fine_pair / fine_one);
 }
 
 // Worst case at the receiver: P_src − coupling + 20·log10(1 + 10^(−D/20)). With D = 30 dB the
