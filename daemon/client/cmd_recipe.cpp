@@ -113,8 +113,10 @@ void print_mask(const core::Recipe& r, const core::StationCapability& cap, const
   auto p = core::predict_mask(r, cap);
   if (!p) return;
   for (const core::MaskGuard& g : p->guards) {
-    std::cout << indent << fmt::format("mask {} ≥ {:.1f} dB: passes when the reading is at least {}, fails below {:.1f} dB\n",
+    // With the offset pair the thresholds are on the pair's estimate of the return loss.
+    std::cout << indent << fmt::format("mask {} ≥ {:.1f} dB: passes when the {} is at least {}, fails below {:.1f} dB\n",
                                        core::format_frequency_range(g.start_hz, g.stop_hz), g.limit_db,
+                                       r.offset_pair && cap.kit.offset_line ? "offset pair's return loss" : "reading",
                                        std::isfinite(g.pass_reading_db) ? fmt::format("{:.2f} dB", g.pass_reading_db)
                                                                         : std::string("(none can pass)"),
                                        g.fail_reading_db);

@@ -160,6 +160,19 @@ TEST(ClientCli, DryRunPrintsThePlanWithoutADaemon) {
   EXPECT_NE(o.output.find("inconclusive ("), std::string::npos) << o.output;
 }
 
+// The offset pair on the shipped station (its switch has the DUT-OFFSET arm, its kit the line):
+// two sweeps a unit, the kit's line in words, and the mask's thresholds on the pair's estimate.
+TEST(ClientCli, DryRunOfTheOffsetPairNamesTheLineAndTheSecondSweep) {
+  const Outcome o = run_client({"dry-run", "config/recipes/whip915-pair.jsonc", "--station", "config/station.jsonc"});
+  EXPECT_EQ(o.code, 0) << o.output;
+  EXPECT_NE(o.output.find("two sweeps with the offset pair"), std::string::npos) << o.output;
+  // config/kits/sim-kit.jsonc: 273.2 ± 2 ps, 0.08 ± 0.04 dB, 39 dB.
+  EXPECT_NE(o.output.find("DUT-OFFSET arm, through the kit's line (273.2 ± 2.0 ps, 0.08 ± 0.04 dB, match 39 dB)"),
+            std::string::npos)
+      << o.output;
+  EXPECT_NE(o.output.find("passes when the offset pair's return loss is at least"), std::string::npos) << o.output;
+}
+
 // A fast-capture recipe: the plan the station chooses on the simulator's profiles, why, and the
 // expected time. 1 MHz RBW: the LOAD at 0 - 20 - 0.5 - 0.6 - 30 = -51.1 dBm must stay 35 dB over
 // kTB + NF 24 dB (-174 + 60 + 24 = -90 dBm at 1 MHz, 38.9 dB under; 3 MHz gives only 34.1 dB).
