@@ -18,11 +18,12 @@ constexpr double kEdgeToleranceHz = kLimitEdgeToleranceHz;
 }  // namespace
 
 CalibratedTrace calibrate_points(const CalibrationRecord& cal, const std::vector<Reading>& dut,
-                                 const std::vector<Reading>* offset) {
+                                 const std::vector<Reading>* offset, const UncertaintyBudget* leakage) {
   CalibratedTrace out;
   std::vector<OffsetPairInterval> pair;
-  if (offset && cal.budget.offset_line && offset->size() == dut.size()) {
-    pair = offset_pair_intervals(cal.budget, cal.reference_dbm, dut, *offset);
+  if (offset && offset->size() != dut.size()) offset = nullptr;
+  if (offset && cal.budget.offset_line) {
+    pair = offset_pair_intervals(cal.budget, cal.reference_dbm, dut, *offset, leakage);
   }
   out.points.reserve(dut.size());
   out.shift.coverage_factor = cal.budget.coverage_factor;
@@ -341,19 +342,25 @@ std::optional<Resonance> find_resonance(const std::vector<PointResult>& points, 
                     : resonance_shift_bound(fitted, fitted_peak, context ? *context : own)) {
     const double low = sb->center_hz - sb->half_width_hz;
     const double high = sb->center_hz + sb->half_width_hz;
-    if (low > r.low_hz) {
+    // Both intervals hold, so they overlap; when they do not (the direct reading's dip is not
+    // the one the points' bounds single out, or a model failed) the shift bound is not used.
+    const double f_fitted = fitted[fitted_peak].frequency_hz;
+    const bool usable = f_fitted >= r.low_hz && f_fitted <= r.high_hz && std::max(low, r.low_hz) <= std::min(high, r.high_hz);
+    if (usable && low > r.low_hz) {
       r.low_hz = low;
       r.low_open = false;
       r.shift_bound_used = true;
     }
-    if (high < r.high_hz) {
+    if (usable && high < r.high_hz) {
       r.high_hz = high;
       r.high_open = false;
       r.shift_bound_used = true;
     }
   }
   // The refined vertex stays within the interval (it lies within half a step of the peak sample
-  // for equal spacing; unequal spacing at a segment joint could take it slightly further).
+  // for equal spacing; unequal spacing at a segment joint could take it slightly further; with
+  // the offset pair the shift bound follows the direct reading's vertex, and the interval is
+  // widened to the points' own, which only adds frequencies).
   r.low_hz = std::min(r.low_hz, r.frequency_hz);
   r.high_hz = std::max(r.high_hz, r.frequency_hz);
   return r;
@@ -444,15 +451,15 @@ namespace {
 // The dip fit (dip_fit.hpp) on a trace whose resonance was found: when a model passes, the
 // resonance interval becomes its intersection with the fitted interval (both hold), and the
 // resonance the unit's own, from the fit. An empty intersection refuses the fit.
-void apply_fit(Resonance& r, const std::vector<PointResult>& pts, const ShiftContext& ctx, double threshold_db,
-               int erratic_jumps, std::optional<DipFit>& out) {
+void apply_fit(Resonance& r, const std::vector<PointResult>& pts, std::size_t peak, const ShiftContext& ctx,
+               double threshold_db, int erratic_jumps, std::optional<DipFit>& out) {
   DipFitContext fc;
   fc.sigma_db = ctx.reading_sigma_db;
   fc.error_vector = ctx.error_vector;
   fc.source_match = ctx.source_match;
   fc.error_delay_s = ctx.error_delay_s;
   fc.coverage_factor = ctx.coverage_factor;
-  out = fit_dip(pts, r.index, fc, threshold_db, erratic_jumps);
+  out = fit_dip(pts, peak, fc, threshold_db, erratic_jumps);
   DipFit& f = *out;
   if (!f.used) return;
   const double low = std::max(r.low_hz, f.resonance_low_hz);
@@ -487,8 +494,15 @@ Analysis analyze(const Recipe& recipe, const CalibratedTrace& trace) {
   const std::vector<PointResult>* direct = trace.direct.size() == pts.size() ? &trace.direct : nullptr;
   a.resonance = find_resonance(pts, have_context ? &trace.shift : nullptr, direct);
   if (a.resonance && have_context && trace.shift.fit && trace.shift.error_vector.size() == pts.size()) {
-    apply_fit(*a.resonance, direct ? *direct : pts, trace.shift, recipe.limits.bandwidth_threshold_db, a.erratic_jumps,
-              a.fit);
+    // The fit starts at the peak of the trace it fits.
+    std::size_t peak = a.resonance->index;
+    if (direct) {
+      for (std::size_t i = 0; i < direct->size(); ++i) {
+        if ((*direct)[i].return_loss_db > (*direct)[peak].return_loss_db) peak = i;
+      }
+    }
+    apply_fit(*a.resonance, direct ? *direct : pts, peak, trace.shift, recipe.limits.bandwidth_threshold_db,
+              a.erratic_jumps, a.fit);
   }
   if (a.resonance && have_context && trace.shift.frequency_offset_hz > 0) {
     // A fast capture reads the unit at f + δ, |δ| up to the offset, the same δ at every point:

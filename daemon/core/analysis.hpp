@@ -52,8 +52,10 @@ struct CalibratedTrace {
   std::size_t pair_points = 0;          // points the offset pair narrowed or confirmed
   std::size_t pair_disagreements = 0;   // points whose two intervals did not overlap
 };
+// `leakage`: the budget the pair takes the leakage's bounds from (default the calibration's).
 CalibratedTrace calibrate_points(const CalibrationRecord& cal, const std::vector<Reading>& dut,
-                                 const std::vector<Reading>* offset = nullptr);
+                                 const std::vector<Reading>* offset = nullptr,
+                                 const UncertaintyBudget* leakage = nullptr);
 
 // A frequency interval around the resonance; an edge that reaches the end of the sweep without
 // crossing its level is "open" (the true interval is at least that wide there).

@@ -21,6 +21,7 @@
 #include "daemon/core/cal_kit.hpp"
 #include "daemon/core/offset_pair.hpp"
 #include "daemon/core/rf_math.hpp"
+#include "daemon/core/uncertainty.hpp"
 
 namespace echoline::core {
 namespace {
@@ -96,13 +97,16 @@ std::optional<CentringPrediction> predict_centring(const Recipe& recipe, const S
     if (!pair_line) return one;
     // e = |d| + L + k·u_conn from the LOAD reading |d| (MEASUREMENT.md §3.1): |d| is then at
     // least e − 2(L + k·u_conn).
-    const double spread = load_gamma_bound(station.kit, f0) + recipe.coverage_factor * station.kit.connection_repeatability;
+    const double conn = recipe.coverage_factor * station.kit.connection_repeatability;
+    const double spread = load_gamma_bound(station.kit, f0) + conn;
+    const ReferenceErrorBounds re = reference_error_bounds(station.kit, f0, recipe.calibration.use_short, e, src);
     const double g_edge = 2 * (g0_given >= 0 ? g0_given : e);
     double worst = 0;
     for (int i = 0; i <= 8; ++i) {
       const double g = std::min(1.0, g_edge / 2 + (g_edge / 2) * i / 8.0);
-      worst = std::max(worst, offset_pair_error_radius(g, f0, std::max(0.0, e - 2 * spread), e, src, 0, 0.05,
-                                                       recipe.coverage_factor, *pair_line, one));
+      worst = std::max(worst, offset_pair_error_radius(g, f0, std::max(0.0, e - 2 * spread), e, src, conn, 0.05,
+                                                       recipe.coverage_factor, *pair_line, one, re.low_db, re.high_db,
+                                                       0.05 / std::sqrt(2.0)));
     }
     return worst;
   };

@@ -71,6 +71,14 @@ Judgement judge(const Recipe& recipe, const CalibrationRecord& cal, const std::v
     pair = &offset;
   }
   CalibratedTrace trace = calibrate_points(cal, dut, pair);
+  // Where the two readings disagree beyond both bounds the pair's model failed (the line is not
+  // what the kit states, or the unit changed between the readings): the unit is judged on the
+  // direct reading alone, and may not pass (below).
+  const std::size_t disagreements = trace.pair_disagreements;
+  if (disagreements > 0) {
+    pair = nullptr;
+    trace = calibrate_points(cal, dut);
+  }
   trace.shift.fit = options.fit;
   const Analysis analysis = analyze(recipe, trace);
   Decision decision = decide(recipe, trace.points, analysis);
@@ -88,7 +96,8 @@ Judgement judge(const Recipe& recipe, const CalibrationRecord& cal, const std::v
     // The unit's own connection is statistical too (a retest reconnects it); the LOAD's stays in
     // the calibration's directivity bound, fixed for this calibration.
     quiet.budget.connection = 0;
-    const std::vector<PointResult> noise_free = calibrate_points(quiet, dut, pair).points;
+    // The pair keeps the leakage's bounds of the real budget, as the directivity bound is kept.
+    const std::vector<PointResult> noise_free = calibrate_points(quiet, dut, pair, &cal.budget).points;
     decision = decide(recipe, trace.points, analysis, &noise_free);
   }
 
@@ -97,13 +106,14 @@ Judgement judge(const Recipe& recipe, const CalibrationRecord& cal, const std::v
   j.verdict = decision.verdict;
   j.failure_class = decision.failure_class;
   j.reason = decision.reason;
-  if (trace.pair_disagreements > 0) {
-    // The pair's model failed somewhere: the line is not what the kit states, or the unit
-    // changed between the readings (an intermittent feed, a connection that moved).
+  if (recipe.offset_pair) {
+    for (std::size_t i = 0; i < j.points.size() && i < offset.size(); ++i) j.points[i].offset_raw_dbm = offset[i].raw_dbm;
+  }
+  if (disagreements > 0) {
     const std::string note = fmt::format(
-        "the reading through the offset line disagrees with the direct one beyond both bounds at {} point(s): check "
-        "the line against the kit and the unit's connection",
-        trace.pair_disagreements);
+        "the reading through the offset line disagrees with the direct one beyond both bounds at {} point(s), so the "
+        "unit was judged on the direct reading alone: check the line against the kit and the unit's connection",
+        disagreements);
     if (j.verdict == Verdict::pass) {
       j.verdict = Verdict::inconclusive;
       j.reason = note + "; hold the unit for review";

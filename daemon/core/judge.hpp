@@ -30,7 +30,8 @@ struct JudgeOptions {
 // `offset`: the unit read again through the kit's offset line (recipe.offset_pair), in plan
 // order. A recipe with the offset pair and no usable second reading (missing, the wrong size or
 // frequencies, a calibration without the line) gives aborted; a recipe without it ignores them.
-// Where the two readings disagree beyond both bounds a pass becomes inconclusive.
+// Where the two readings disagree beyond both bounds the unit is judged on the direct reading
+// alone and a pass becomes inconclusive.
 Judgement judge(const Recipe& recipe, const CalibrationRecord& cal, const std::vector<Reading>& dut,
                 const JudgeOptions& options = {}, const std::vector<Reading>& offset = {});
 

@@ -60,9 +60,10 @@ bool pair_thresholds(const Recipe& r, const StationCapability& st, double error_
   const double d_lo = std::max(0.0, d_hi - 2 * (load_gamma_bound(st.kit, f) + conn));
   const double src = rho_from_db(st.source_match_db);
   const double limit = gamma_from_return_loss(limit_db);
+  const ReferenceErrorBounds re = reference_error_bounds(st.kit, f, r.calibration.use_short, d_hi, src);
   auto radius = [&](double g) {
     return offset_pair_error_radius(g, f, d_lo, d_hi, src, conn, kAssumedNoiseDb, r.coverage_factor,
-                                    *st.kit.offset_line, 1.0);
+                                    *st.kit.offset_line, 1.0, re.low_db, re.high_db, kAssumedNoiseDb / std::sqrt(2.0));
   };
   // Pass: the largest |Γ| with |Γ| + r ≤ limit; fail: the smallest with |Γ| − r > limit.
   double lo = 0, hi = limit;
@@ -240,12 +241,11 @@ double reading_rl(double f, double f_r, const UnitModel& u, double theta) {
 
 // 0 pass, 1 inconclusive, 2 fail: the unit's readings against every point's thresholds.
 int outcome(const std::vector<MaskPoint>& pts, double f_r, const UnitModel& u, double theta) {
+  UnitModel without_leakage = u;   // the pair's estimate holds no leakage term
+  without_leakage.leakage = 0;
   int worst = 0;
   for (const MaskPoint& p : pts) {
-    const double rl = p.pair ? reading_rl(p.f, f_r, UnitModel{u.q, u.g0, 0.0, 0.0, u.center_hz, u.monopole, u.shape,
-                                                               u.min_at_1ghz},
-                                          0)
-                             : reading_rl(p.f, f_r, u, theta);
+    const double rl = p.pair ? reading_rl(p.f, f_r, without_leakage, 0) : reading_rl(p.f, f_r, u, theta);
     if (rl < p.fail) return 2;
     if (rl < p.pass) worst = 1;
   }

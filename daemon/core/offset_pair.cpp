@@ -116,14 +116,17 @@ OffsetPairInterval combine_offset_pair(const OffsetPairPoint& p, const OffsetLin
   const double c_mid = from_db_power((p.reference_low_db + p.reference_high_db) / 2);
   const double x_mid = 1.0 / std::min(1.0, from_db_power(-line.loss_db));
   const double g2_mid = pair_g2(x_mid, c_mid * p.p_direct, c_mid * p.p_offset, (d_lo * d_lo + d_hi * d_hi) / 2);
-  out.gamma_estimate = std::clamp(std::sqrt(std::clamp(g2_mid, 0.0, 1.0)), out.gamma_low, out.gamma_high);
+  const double g_mid = std::sqrt(std::clamp(g2_mid, 0.0, 1.0));
+  // An empty interval (the readings disagree beyond the bounds) has no inside to clamp into.
+  out.gamma_estimate = out.gamma_low <= out.gamma_high ? std::clamp(g_mid, out.gamma_low, out.gamma_high) : g_mid;
   out.usable = true;
   return out;
 }
 
 double offset_pair_error_radius(double g, double frequency_hz, double directivity_low, double directivity_high,
                                 double source_match, double connection, double sigma_db, double coverage_factor,
-                                const OffsetLine& line, double fallback) {
+                                const OffsetLine& line, double fallback, double reference_low_db,
+                                double reference_high_db, double reference_sigma_db) {
   const double directivity = directivity_high;
   // The readings of a unit whose reflection is a quarter turn from the leakage (no cross term
   // in either reading): p_A = D² + g², p_B = D² + a²g²; any other phase gives the same sum.
@@ -134,6 +137,9 @@ double offset_pair_error_radius(double g, double frequency_hz, double directivit
   p.p_direct = d2 + g * g;
   p.p_offset = d2 + a * a * g * g;
   p.sigma_direct_db = p.sigma_offset_db = sigma_db;
+  p.reference_low_db = reference_low_db;
+  p.reference_high_db = reference_high_db;
+  p.reference_sigma_db = reference_sigma_db;
   p.coverage_factor = coverage_factor;
   p.directivity_high = directivity;
   p.directivity_low = std::clamp(directivity_low, 0.0, directivity);

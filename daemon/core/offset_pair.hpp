@@ -47,12 +47,13 @@ OffsetPairInterval combine_offset_pair(const OffsetPairPoint& point, const Offse
 // What the pair leaves of a unit's |Γ| interval, for predictions before any unit is read: half
 // the interval's width around |Γ| = g at `frequency_hz`, for a leakage known to lie in
 // [directivity_low, directivity_high] (its phase then does not matter), readings of σ
-// `sigma_db`, a source match and the unit's connection (k·u_conn) as in OffsetPairPoint, and no
-// reference error. At most `fallback` (one reading's radius), and `fallback` where the line is
-// too far from half a turn.
+// `sigma_db`, a source match, the unit's connection (k·u_conn) and the reference's error (R − T
+// in [low, high], σ) as in OffsetPairPoint. At most `fallback` (one reading's radius), and
+// `fallback` where the line is too far from half a turn.
 double offset_pair_error_radius(double g, double frequency_hz, double directivity_low, double directivity_high,
                                 double source_match, double connection, double sigma_db, double coverage_factor,
-                                const OffsetLine& line, double fallback);
+                                const OffsetLine& line, double fallback, double reference_low_db = 0,
+                                double reference_high_db = 0, double reference_sigma_db = 0);
 
 // The largest |arg(t²) − π| over the line's delay tolerance at `frequency_hz` (t: the line's
 // one-way transmission), radians in [0, π].

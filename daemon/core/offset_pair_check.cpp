@@ -59,7 +59,8 @@ void check_offset_pair(const Recipe& r, const StationCapability& st, std::vector
   }
   if (unusable < plan.size() && worst_turn > std::numbers::pi / 6) {
     add("warning", fmt::format("the offset line turns up to {:.0f}° away from half a turn over the plan: the pair "
-                               "cancels less of the leakage there (MEASUREMENT.md §12, term R1)",
+                               "cancels less of the leakage there (MEASUREMENT.md §12, term R1); narrow the plan "
+                               "around the line's quarter-wave frequency, or use a line with a tighter delay tolerance",
                                worst_turn * 180 / std::numbers::pi));
   }
 }

@@ -14,8 +14,11 @@ namespace echoline::core {
 // REQUIRES: b.offset_line set; direct, offset and reference_dbm the budget's size, in plan
 // order. A point whose readings are not finite, or where the line is too far from half a turn,
 // has usable = false.
+// `leakage`: the budget the leakage's bounds come from (default `b`); the judge's noise-free
+// variant of a budget keeps the real one's, as it keeps its directivity bound.
 std::vector<OffsetPairInterval> offset_pair_intervals(const UncertaintyBudget& b, const std::vector<double>& reference_dbm,
                                                       const std::vector<Reading>& direct,
-                                                      const std::vector<Reading>& offset);
+                                                      const std::vector<Reading>& offset,
+                                                      const UncertaintyBudget* leakage = nullptr);
 
 }  // namespace echoline::core

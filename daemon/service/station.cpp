@@ -538,7 +538,7 @@ TestOutcome Station::run_test(const TestRequest& request, const CancelToken& can
     SweepOutcome second = run_sweep(*instruments_, *recipe, config_.fixture, cancel.flag(), sweep_progress(n));
     run.timings.sweep_s += second.sweep_s;
     offset = std::move(second.readings);
-    if (!second.completed()) sweep.error = second.error;
+    if (!second.completed()) sweep.error = second.error->with_context("sweep on the DUT-OFFSET arm");
   }
   if (!sweep.completed()) {
     if (sweep.error->kind == ErrorKind::cancelled) {

@@ -7,6 +7,7 @@
 #include <unistd.h>
 
 #include <cerrno>
+#include <algorithm>
 #include <cmath>
 #include <cstring>
 #include <limits>
@@ -171,7 +172,9 @@ json run_to_json(const core::RunResult& r, bool with_points) {
   if (with_points) {
     // Columns: frequency_hz, raw_dbm, return_loss_db, worst, best (null best = +inf, unbounded),
     // and offset_raw_dbm for a run read twice with the offset pair.
-    const bool pair = !core::offset_readings(r).empty();
+    // Any finite second reading (an aborted run keeps a partial one).
+    const bool pair = std::any_of(r.points.begin(), r.points.end(),
+                                  [](const core::PointResult& p) { return std::isfinite(p.offset_raw_dbm); });
     json pts = json::array();
     for (const auto& p : r.points) {
       json row = json::array({jnum(p.frequency_hz), jnum(p.raw_dbm), jnum(p.return_loss_db),
