@@ -108,6 +108,34 @@ TEST(OffsetPairJudge, AUnitOneReadingLeavesUndecidedIsPassedByThePair) {
   EXPECT_EQ(pair.verdict, Verdict::pass) << pair.reason;
 }
 
+// With a resonance window the pair narrows the points, the shift bound still follows the direct
+// reading, and the interval holds the true resonance (the series RLC's |Γ| minimum is at f0,
+// Balanis [from memory]) for units spread over the window and beyond it.
+TEST(OffsetPairJudge, TheResonanceIntervalHoldsTheTrueResonance) {
+  PairBench b;
+  b.recipe.limits.resonance_min_hz = 905e6;
+  b.recipe.limits.resonance_max_hz = 925e6;
+  int narrower = 0, units = 0;
+  for (double f0 = 895e6; f0 <= 940e6; f0 += 2.5e6) {
+    for (double q : {5.0, 9.0}) {
+      const auto unit = [&](double f) { return antenna(f, f0, q, 40); };
+      const std::vector<Reading> direct = measure(b.recipe, b.bench, unit);
+      Recipe one = b.recipe;
+      one.offset_pair = false;
+      const Judgement s = judge(one, b.cal, direct);
+      const Judgement p = judge(b.recipe, b.cal, direct, {}, b.offset(unit));
+      ASSERT_TRUE(p.metrics.resonance_hz.has_value());
+      const double low = p.metrics.resonance_low_hz.value_or(0), high = p.metrics.resonance_high_hz.value_or(1e12);
+      EXPECT_LE(low, f0) << f0 << " Q " << q;
+      EXPECT_GE(high, f0) << f0 << " Q " << q;
+      const double s_width = s.metrics.resonance_high_hz.value_or(1e12) - s.metrics.resonance_low_hz.value_or(0);
+      if (high - low <= s_width) ++narrower;
+      ++units;
+    }
+  }
+  EXPECT_EQ(narrower, units);   // never wider than one reading's (both hold: the intersection)
+}
+
 TEST(OffsetPairJudge, ASecondReadingOfAnotherUnitIsNotAPass) {
   PairBench b;
   const auto unit = [](double f) { return antenna(f, 915e6, 20, 38); };
