@@ -63,7 +63,6 @@ CalibratedTrace calibrate_points(const CalibrationRecord& cal, const std::vector
       const double g_lo = std::max(g_lo1, pair[i].gamma_low);
       const double g_hi = std::min(g_hi1, pair[i].gamma_high);
       if (g_lo <= g_hi) {
-        ++out.pair_points;
         p.return_loss_worst_db = g_hi >= 1 ? 0.0 : -20 * std::log10(g_hi);
         p.return_loss_best_db = g_lo > 0 ? -20 * std::log10(g_lo) : std::numeric_limits<double>::infinity();
         // The value shown is the pair's own estimate (no leakage cross term), inside both.

@@ -49,7 +49,6 @@ struct CalibratedTrace {
   std::vector<PointResult> direct;      // with the offset pair: the direct reading's points; else empty
   ShiftContext shift;                   // of the direct reading
   std::size_t clamped_points = 0;
-  std::size_t pair_points = 0;          // points the offset pair narrowed or confirmed
   std::size_t pair_disagreements = 0;   // points whose two intervals did not overlap
 };
 // `leakage`: the budget the pair takes the leakage's bounds from (default the calibration's).

@@ -1,6 +1,7 @@
 // Recipe check of the offset pair (offset_pair_check.hpp).
 #include "daemon/core/offset_pair_check.hpp"
 
+#include <algorithm>
 #include <cmath>
 #include <numbers>
 
