@@ -7,6 +7,7 @@
 #include <numbers>
 
 #include "daemon/core/offset_pair_points.hpp"
+#include "daemon/core/poly_fit.hpp"
 #include "daemon/core/rf_math.hpp"
 #include "daemon/core/uncertainty.hpp"
 
@@ -24,6 +25,7 @@ CalibratedTrace calibrate_points(const CalibrationRecord& cal, const std::vector
   if (offset && offset->size() != dut.size()) offset = nullptr;
   if (offset && cal.budget.offset_line) {
     pair = offset_pair_intervals(cal.budget, cal.reference_dbm, dut, *offset, leakage);
+    out.pair_sum = offset_pair_sum(cal.budget, cal.reference_dbm, dut, *offset, pair, leakage);
   }
   out.points.reserve(dut.size());
   out.shift.coverage_factor = cal.budget.coverage_factor;
@@ -71,7 +73,12 @@ CalibratedTrace calibrate_points(const CalibrationRecord& cal, const std::vector
         if (!std::isfinite(p.return_loss_db)) p.return_loss_db = std::clamp(rl, p.return_loss_worst_db, 200.0);
       } else {
         ++out.pair_disagreements;
+        if (i < out.pair_sum.usable.size()) out.pair_sum.usable[i] = false;
       }
+    }
+    if (i < out.pair_sum.y.size()) {
+      out.pair_sum.gamma_high.push_back(std::isfinite(p.return_loss_worst_db) ? std::pow(10.0, -p.return_loss_worst_db / 20) : 1.0);
+      out.pair_sum.return_loss_db.push_back(p.return_loss_db);
     }
     out.points.push_back(p);
     out.shift.gamma_error.push_back(
@@ -144,50 +151,6 @@ Band resonance_interval(const std::vector<PointResult>& points, std::size_t peak
   return b;
 }
 
-namespace {
-
-// Least squares of y on 1, x, …, x^(m−1) (m = 3 or 4) by the normal equations, Gaussian
-// elimination with partial pivoting. x in MHz from the peak keeps them well conditioned.
-// Returns false when singular. `inverse` (optional) gets (XᵀX)⁻¹ for the covariance.
-bool least_squares(const std::vector<double>& x, const std::vector<double>& y, int m, double* coef,
-                   double (*inverse)[4] = nullptr) {
-  double a[4][9] = {};
-  for (std::size_t i = 0; i < x.size(); ++i) {
-    double p[4] = {1, x[i], x[i] * x[i], x[i] * x[i] * x[i]};
-    for (int r = 0; r < m; ++r) {
-      for (int c = 0; c < m; ++c) a[r][c] += p[r] * p[c];
-      a[r][m] += p[r] * y[i];
-    }
-  }
-  // Augment with the identity for the inverse: columns m+1 .. 2m.
-  for (int r = 0; r < m; ++r) a[r][m + 1 + r] = 1;
-  const int cols = 2 * m + 1;
-  for (int c = 0; c < m; ++c) {
-    int piv = c;
-    for (int r = c + 1; r < m; ++r) {
-      if (std::fabs(a[r][c]) > std::fabs(a[piv][c])) piv = r;
-    }
-    if (std::fabs(a[piv][c]) < 1e-300) return false;
-    if (piv != c) {
-      for (int k = 0; k < cols; ++k) std::swap(a[c][k], a[piv][k]);
-    }
-    for (int r = 0; r < m; ++r) {
-      if (r == c) continue;
-      const double f = a[r][c] / a[c][c];
-      for (int k = 0; k < cols; ++k) a[r][k] -= f * a[c][k];
-    }
-  }
-  for (int r = 0; r < m; ++r) {
-    coef[r] = a[r][m] / a[r][r];
-    if (inverse) {
-      for (int k = 0; k < m; ++k) inverse[r][k] = a[r][m + 1 + k] / a[r][r];
-    }
-  }
-  return true;
-}
-
-}  // namespace
-
 ShiftContext context_from_bounds(const std::vector<PointResult>& points, double error_delay_s) {
   ShiftContext c;
   c.error_delay_s = error_delay_s;
@@ -228,50 +191,19 @@ std::optional<ShiftBound> resonance_shift_bound(const std::vector<PointResult>& 
   const std::size_t m = x.size();
   double q[4], inv[4][4];
   if (!least_squares(x, y, 3, q, inv)) return std::nullopt;
-  const double a = q[0], b = q[1], c = q[2];
+  const double b = q[1], c = q[2];
   if (!(c > 0)) return std::nullopt;
   const double xv = -b / (2 * c);
   if (xv < x.front() || xv > x.back()) return std::nullopt;
   // Lopsided dip: the cubic's minimum near the vertex moves away from the quadratic's.
   const double slope = std::sqrt(c);  // |dΓ_m/df| per MHz
   const double step = 0.5 * std::max(points[peak + 1].frequency_hz - f_pk, f_pk - points[peak - 1].frequency_hz) / 1e6;
-  double model_gap = 0;
-  if (m >= 5) {
-    double cu[4];
-    if (least_squares(x, y, 4, cu)) {
-      // Roots of cu1 + 2cu2·x + 3cu3·x² = 0; the one with positive curvature nearest xv.
-      const double A = 3 * cu[3], B = 2 * cu[2], C = cu[1];
-      double xc = xv;
-      if (std::fabs(A) < 1e-300) {
-        xc = B > 0 ? -C / B : 1e300;
-      } else {
-        const double disc = B * B - 4 * A * C;
-        if (disc < 0) {
-          xc = 1e300;
-        } else {
-          // Stable form (no cancellation when the cubic term is small): q = −(B ± √disc)/2.
-          const double qq = -0.5 * (B + std::copysign(std::sqrt(disc), B));
-          const double r1 = qq / A, r2 = qq != 0 ? C / qq : r1;
-          const bool min1 = B + 2 * A * r1 > 0, min2 = B + 2 * A * r2 > 0;
-          xc = min1 ? r1 : (min2 ? r2 : 1e300);
-        }
-      }
-      // The quadratic's vertex stands for the measured curve's minimum; a cubic that places it
-      // elsewhere says how far off that is (added below). Far off: the dip is lopsided.
-      model_gap = std::fabs(xc - xv);
-      if (model_gap > std::max(2 * step, e_max / slope)) return std::nullopt;
-    }
-  }
+  // The quadratic's vertex stands for the measured curve's minimum; a cubic that places it
+  // elsewhere says how far off that is (added below). Far off: the dip is lopsided.
+  const double model_gap = std::fabs(cubic_minimum_near(x, y, xv) - xv);
+  if (model_gap > std::max(2 * step, e_max / slope)) return std::nullopt;
   // Vertex uncertainty: residual scatter or the measured noise, whichever is larger.
-  double rss = 0;
-  for (std::size_t i = 0; i < m; ++i) {
-    const double r = y[i] - (a + b * x[i] + c * x[i] * x[i]);
-    rss += r * r;
-  }
-  const double s2 = std::max(m > 3 ? rss / static_cast<double>(m - 3) : rss, var_y / static_cast<double>(m));
-  const double gb = -1 / (2 * c), gc = b / (2 * c * c);  // ∂xv/∂b, ∂xv/∂c
-  const double var_xv = s2 * (gb * gb * inv[1][1] + 2 * gb * gc * inv[1][2] + gc * gc * inv[2][2]);
-  const double sigma_xv = std::sqrt(std::max(0.0, var_xv));
+  const double sigma_xv = vertex_sigma(x, y, q, inv, var_y / static_cast<double>(m));
   const double gamma_min = std::sqrt(std::max(0.0, y[peak - lo]));
   const double rotation = 2 * std::numbers::pi * ctx.error_delay_s * 1e6 * e_max;  // |dE/df| per MHz
   const double hw = e_max / slope + (gamma_min + e_max) * rotation / (slope * slope) +
@@ -291,7 +223,7 @@ bool another_dip_qualifies(const std::vector<PointResult>& points, std::size_t p
 }
 
 std::optional<Resonance> find_resonance(const std::vector<PointResult>& points, const ShiftContext* context,
-                                        const std::vector<PointResult>* shift_points) {
+                                        const std::vector<PointResult>* shift_points, const PairSumTrace* pair_sum) {
   if (points.empty()) return std::nullopt;
   std::size_t best = 0;
   for (std::size_t i = 1; i < points.size(); ++i) {
@@ -354,6 +286,29 @@ std::optional<Resonance> find_resonance(const std::vector<PointResult>& points, 
       r.high_hz = high;
       r.high_open = false;
       r.shift_bound_used = true;
+    }
+  }
+  // The offset pair's sum: its vertex is the unit's own resonance to within the terms the sum
+  // leaves (MEASUREMENT.md §12.1); it follows one dip, like the shift bound.
+  if (pair_sum && pair_sum->y.size() == n && !another_dip_qualifies(points, best)) {
+    if (auto pb = pair_shift_bound(*pair_sum, best)) {
+      const double low = pb->center_hz - pb->half_width_hz;
+      const double high = pb->center_hz + pb->half_width_hz;
+      const bool usable = pb->center_hz >= r.rigorous_low_hz && pb->center_hz <= r.rigorous_high_hz &&
+                          std::max(low, r.low_hz) <= std::min(high, r.high_hz);
+      if (usable) {
+        if (low > r.low_hz) {
+          r.low_hz = low;
+          r.low_open = false;
+          r.pair_bound_used = true;
+        }
+        if (high < r.high_hz) {
+          r.high_hz = high;
+          r.high_open = false;
+          r.pair_bound_used = true;
+        }
+        if (r.pair_bound_used) r.frequency_hz = std::clamp(pb->center_hz, r.low_hz, r.high_hz);
+      }
     }
   }
   // The refined vertex stays within the interval (it lies within half a step of the peak sample
@@ -491,7 +446,8 @@ Analysis analyze(const Recipe& recipe, const CalibratedTrace& trace) {
   // With the offset pair the shift bound and the dip fit work on the direct reading (their
   // derivations take one reading through a smooth error vector); the pair's points give the rest.
   const std::vector<PointResult>* direct = trace.direct.size() == pts.size() ? &trace.direct : nullptr;
-  a.resonance = find_resonance(pts, have_context ? &trace.shift : nullptr, direct);
+  a.resonance = find_resonance(pts, have_context ? &trace.shift : nullptr, direct,
+                               trace.pair_sum.y.size() == pts.size() ? &trace.pair_sum : nullptr);
   if (a.resonance && have_context && trace.shift.fit && trace.shift.error_vector.size() == pts.size()) {
     // The fit starts at the peak of the trace it fits.
     std::size_t peak = a.resonance->index;

@@ -9,6 +9,7 @@
 #include <vector>
 
 #include "daemon/core/dip_fit.hpp"
+#include "daemon/core/pair_shift_bound.hpp"
 #include "daemon/core/recipe.hpp"
 #include "daemon/core/run_result.hpp"
 
@@ -50,6 +51,7 @@ struct CalibratedTrace {
   ShiftContext shift;                   // of the direct reading
   std::size_t clamped_points = 0;
   std::size_t pair_disagreements = 0;   // points whose two intervals did not overlap
+  PairSumTrace pair_sum;                // with the offset pair: its sum, for the resonance bound (§12.1)
 };
 // `leakage`: the budget the pair takes the leakage's bounds from (default the calibration's).
 CalibratedTrace calibrate_points(const CalibrationRecord& cal, const std::vector<Reading>& dut,
@@ -83,6 +85,7 @@ struct Resonance {
   bool high_open = false;
   bool shift_bound_used = false;   // the smooth-error bound tightened the rigorous interval
   bool fit_used = false;           // the dip fit's interval decided (analyze(); MEASUREMENT.md)
+  bool pair_bound_used = false;    // the offset pair's sum bound tightened it (MEASUREMENT.md §12.1)
   // The rigorous interval alone (before the shift bound and the fit), for comparison.
   double rigorous_low_hz = 0, rigorous_high_hz = 0;
   bool rigorous_low_open = false, rigorous_high_open = false;
@@ -91,8 +94,10 @@ struct Resonance {
 // worst-case bounds and the error delay is 5 ns, with no statistical term.
 // `shift_points`: the points the shift bound fits (the direct reading's, with the offset pair),
 // at their own peak; default `points`.
+// `pair_sum`: with the offset pair, its sum (MEASUREMENT.md §12.1) bounds the resonance too.
 std::optional<Resonance> find_resonance(const std::vector<PointResult>& points, const ShiftContext* context = nullptr,
-                                        const std::vector<PointResult>* shift_points = nullptr);
+                                        const std::vector<PointResult>* shift_points = nullptr,
+                                        const PairSumTrace* pair_sum = nullptr);
 
 // From the first to the last sample where the best-case RL reaches the worst-case RL of sample
 // `peak` (a second dip that qualifies is inside), outer edges linearly interpolated and widened

@@ -20,6 +20,7 @@
 
 #include "daemon/core/cal_kit.hpp"
 #include "daemon/core/offset_pair.hpp"
+#include "daemon/core/pair_shift_bound.hpp"
 #include "daemon/core/rf_math.hpp"
 #include "daemon/core/uncertainty.hpp"
 
@@ -110,6 +111,25 @@ std::optional<CentringPrediction> predict_centring(const Recipe& recipe, const S
     }
     return worst;
   };
+  // The pair's sum (MEASUREMENT.md §12.1): what the terms it leaves can move the vertex over the
+  // 6 dB window (the station also tries 3 dB and intersects; the prediction stays on the wider,
+  // which every dip of 12 dB or more has).
+  auto pair_sum_half_width = [&](double e_dir, double g0) {
+    const double conn = recipe.coverage_factor * station.kit.connection_repeatability;
+    PairNuisance n;
+    n.leakage = std::max(0.0, e_dir - conn);
+    n.load_residual = load_gamma_bound(station.kit, f0) + conn;
+    n.source_match = src;
+    n.connection = conn;
+    n.error_delay_s = tau;
+    n.line = *pair_line;
+    // The fit window reaches beyond the window's edges by the dip's 6 dB half-span, √3·|Γ₀|/s.
+    const double span = std::sqrt(3.0) * std::max(g0, 0.01) / s;
+    for (double f : {lo - span, hi + span, f0}) n.turn_error_rad = std::max(n.turn_error_rad, offset_turn_error(f, *pair_line));
+    const ReferenceErrorBounds re = reference_error_bounds(station.kit, f0, recipe.calibration.use_short, e_dir, src);
+    n.reference_ratio = std::max(std::pow(10.0, re.high_db / 10) - 1, 1 - std::pow(10.0, re.low_db / 10));
+    return pair_shift_half_width(n, 2 * g0, s, step);
+  };
   auto half_width = [&](double e_dir) {
     const double e = radius_at_edge(e_dir);
     const double g0 = g0_given >= 0 ? g0_given : e;
@@ -117,7 +137,7 @@ std::optional<CentringPrediction> predict_centring(const Recipe& recipe, const S
     const double shift = e / s + (g0 + e) * 2 * std::numbers::pi * tau * e / (s * s) + step / 2;
     if (!pair_line) return p.rigorous ? rigorous(e) : shift;
     const double rig = rigorous(pair_radius(e_dir));
-    return p.rigorous ? rig : std::min(rig, shift);
+    return p.rigorous ? rig : std::min({rig, shift, pair_sum_half_width(e_dir, g0)});
   };
   p.half_width_hz = half_width(error_radius);
   p.inconclusive_fraction = fraction(p.half_width_hz, lo, hi, p.center_hz, p.spread_hz);

@@ -136,7 +136,10 @@ Judgement judge(const Recipe& recipe, const CalibrationRecord& cal, const std::v
     if (!analysis.resonance->low_open) m.resonance_low_hz = analysis.resonance->low_hz;
     if (!analysis.resonance->high_open) m.resonance_high_hz = analysis.resonance->high_hz;
     const Resonance& r = *analysis.resonance;
-    m.resonance_interval_kind = r.fit_used ? "fit" : r.shift_bound_used ? "shift-bound" : "rigorous";
+    m.resonance_interval_kind = r.fit_used          ? "fit"
+                                : r.pair_bound_used ? "offset-pair"
+                                : r.shift_bound_used ? "shift-bound"
+                                                     : "rigorous";
     if (!r.rigorous_low_open) m.rigorous_low_hz = r.rigorous_low_hz;
     if (!r.rigorous_high_open) m.rigorous_high_hz = r.rigorous_high_hz;
   }

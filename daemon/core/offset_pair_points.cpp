@@ -52,4 +52,52 @@ std::vector<OffsetPairInterval> offset_pair_intervals(const UncertaintyBudget& b
   return out;
 }
 
+PairSumTrace offset_pair_sum(const UncertaintyBudget& b, const std::vector<double>& reference_dbm,
+                             const std::vector<Reading>& direct, const std::vector<Reading>& offset,
+                             const std::vector<OffsetPairInterval>& pair, const UncertaintyBudget* leakage) {
+  PairSumTrace t;
+  if (!b.offset_line) return t;
+  const UncertaintyBudget& lb = leakage ? *leakage : b;
+  const OffsetLine& line = *b.offset_line;
+  const double x_hat = 1 / std::min(1.0, std::pow(10.0, -line.loss_db / 10));
+  const double w = x_hat / (1 + x_hat);
+  const double to_rel = std::log(10.0) / 10;   // σ in dB to relative σ of a power
+  const std::size_t n = direct.size();
+  const bool have_load = lb.frequency_offset_hz == 0 && lb.directivity_measured.size() >= n && lb.load_residual.size() >= n;
+  t.nuisance.line = line;
+  t.nuisance.source_match = b.source_match;
+  t.nuisance.connection = b.coverage_factor * b.connection;
+  t.nuisance.error_delay_s = b.error_delay_s;
+  t.nuisance.load_subtracted = have_load;
+  t.coverage_factor = b.coverage_factor;
+  for (std::size_t i = 0; i < n && i < offset.size() && i < reference_dbm.size() && i < pair.size(); ++i) {
+    const double p_a = std::pow(10.0, (direct[i].raw_dbm - reference_dbm[i]) / 10);
+    const double p_b = std::pow(10.0, (offset[i].raw_dbm - reference_dbm[i]) / 10);
+    double l = 0, e_l = 0, r_l = 0;
+    if (have_load) {
+      l = lb.directivity_measured[i] * lb.directivity_measured[i];
+      e_l = l > 0 ? reading_sigma_db(lb, i, reference_dbm[i] + 10 * std::log10(l)) * to_rel : 0;
+      const double lr = lb.load_residual[i] + lb.coverage_factor * lb.connection;
+      r_l = lb.source_match * lr < 1 ? lr / (1 - lb.source_match * lr) : 1.0;
+    }
+    const double y = w * ((p_a - l) + x_hat * (p_b - l));
+    const double e_a = reading_sigma_db(b, i, direct[i].raw_dbm) * to_rel;
+    const double e_b = reading_sigma_db(b, i, offset[i].raw_dbm) * to_rel;
+    const double e_r = b.reference_noise_db[i] * to_rel;   // the reference scales all three alike
+    t.frequency_hz.push_back(direct[i].frequency_hz);
+    t.y.push_back(y);
+    t.sigma_y.push_back(w * std::sqrt(std::pow(p_a * e_a, 2) + std::pow(x_hat * p_b * e_b, 2) +
+                                      std::pow((1 + x_hat) * l * e_l, 2)) +
+                        std::fabs(y) * e_r);
+    t.leakage.push_back(lb.directivity_bound[i]);
+    t.load_residual.push_back(r_l);
+    t.turn_error_rad.push_back(pair[i].turn_error_rad);
+    t.usable.push_back(pair[i].usable && std::isfinite(y));
+    const double hi = std::pow(10.0, b.reference_error_high_db[i] / 10) - 1;
+    const double lo = 1 - std::pow(10.0, b.reference_error_low_db[i] / 10);
+    t.nuisance.reference_ratio = std::max({t.nuisance.reference_ratio, std::fabs(hi), std::fabs(lo)});
+  }
+  return t;
+}
+
 }  // namespace echoline::core

@@ -7,6 +7,7 @@
 
 #include "daemon/core/budget_types.hpp"
 #include "daemon/core/offset_pair.hpp"
+#include "daemon/core/pair_shift_bound.hpp"
 #include "daemon/core/run_result.hpp"
 
 namespace echoline::core {
@@ -20,5 +21,13 @@ std::vector<OffsetPairInterval> offset_pair_intervals(const UncertaintyBudget& b
                                                       const std::vector<Reading>& direct,
                                                       const std::vector<Reading>& offset,
                                                       const UncertaintyBudget* leakage = nullptr);
+
+// The pair's sum per plan point for the resonance bound (pair_shift_bound.hpp): y, its noise,
+// the leakage, LOAD residual and turn error per point, and the bench's figures. gamma_high and
+// return_loss_db are left for the caller (they come from the intersected points).
+// REQUIRES: as offset_pair_intervals; `pair` its result.
+PairSumTrace offset_pair_sum(const UncertaintyBudget& b, const std::vector<double>& reference_dbm,
+                             const std::vector<Reading>& direct, const std::vector<Reading>& offset,
+                             const std::vector<OffsetPairInterval>& pair, const UncertaintyBudget* leakage = nullptr);
 
 }  // namespace echoline::core

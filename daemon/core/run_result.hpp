@@ -52,7 +52,8 @@ struct Metrics {
   std::optional<double> resonance_low_hz;
   std::optional<double> resonance_high_hz;
   // Which interval decided the resonance: "rigorous" (every point's bounds, any error phase),
-  // "shift-bound" (smooth error terms over the dip; its assumptions checked), "fit" (the dip
+  // "shift-bound" (smooth error terms over the dip; its assumptions checked), "offset-pair" (the
+  // offset pair's sum, MEASUREMENT.md §12.1), "fit" (the dip
   // fit passed its goodness-of-fit test and narrowed the interval), or "" (none).
   std::string resonance_interval_kind;
   // The dip fit (daemon/core/dip_fit.hpp), when it was tried: the model that fitted best ("" when

@@ -112,8 +112,12 @@ TEST(RecipeCheck, TheWindowPredictionWithTheOffsetPair) {
   EXPECT_LE(fine_pair, fine_one);
   EXPECT_LE(deep_pair, deep_one);
   EXPECT_LT(broad_pair, 0.6 * broad_one);
-  EXPECT_GT(deep_pair / deep_one, broad_pair / broad_one);
-  EXPECT_GT(deep_pair / deep_one, fine_pair / fine_one);
+  // A deep, well-sampled dip is placed by the pair's sum (MEASUREMENT.md §12.1), whose terms do
+  // not carry the leakage at first order; a dip under 12 dB keeps the rigorous interval of the
+  // pair's points, and a better LOAD never widens it.
+  EXPECT_LT(deep_pair, 0.3 * deep_one);
+  EXPECT_LT(deep_pair / deep_one, broad_pair / broad_one);
+  EXPECT_LE(fine_pair, deep_pair);
 }
 
 // Worst case at the receiver: P_src − coupling + 20·log10(1 + 10^(−D/20)). With D = 30 dB the

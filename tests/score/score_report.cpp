@@ -167,9 +167,9 @@ void print_report(std::FILE* out, const ScoreResult& r) {
                  w.calibrations_used, w.basis.c_str());
   }
   if (w.intervals_closed > 0) {
-    std::fprintf(out, "    observed resonance intervals: median half-width %.2f MHz over %d closed intervals (%d shift-bound, %d rigorous); "
+    std::fprintf(out, "    observed resonance intervals: median half-width %.2f MHz over %d closed intervals (%d offset-pair, %d shift-bound, %d rigorous); "
                  "median error radius at the dip %.4f\n",
-                 w.observed_half_width_median_hz / 1e6, w.intervals_closed, w.intervals_shift_bound, w.intervals_rigorous,
+                 w.observed_half_width_median_hz / 1e6, w.intervals_closed, w.intervals_pair, w.intervals_shift_bound, w.intervals_rigorous,
                  w.observed_error_radius_median);
   }
   std::fprintf(out, "    dip fit: decided %d of %d runs; where it decided, median half-width %.2f MHz against %.2f MHz "
@@ -256,6 +256,7 @@ json report_json(const ScoreResult& r) {
         {"intervals_closed", w.intervals_closed},
         {"intervals_shift_bound", w.intervals_shift_bound},
         {"intervals_rigorous", w.intervals_rigorous},
+        {"intervals_pair", w.intervals_pair},
         {"observed_error_radius_median", w.observed_error_radius_median},
         {"fit_used", w.fit_used},
         {"fit_refused", w.fit_refused},

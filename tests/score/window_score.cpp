@@ -156,6 +156,7 @@ WindowFigures score_window(store::RunStore& store_copy, const std::vector<UnitRe
       if (auto e = dip_error_radius(*it->second, j.points)) dip_radii.push_back(*e);
     }
     if (m.resonance_interval_kind == "rigorous") ++w.intervals_rigorous;
+    if (m.resonance_interval_kind == "offset-pair") ++w.intervals_pair;
     if (m.resonance_low_hz && m.resonance_high_hz) half_widths.push_back((*m.resonance_high_hz - *m.resonance_low_hz) / 2);
     const bool rig_closed = m.rigorous_low_hz && m.rigorous_high_hz;
     if (rig_closed) rig_hw.push_back((*m.rigorous_high_hz - *m.rigorous_low_hz) / 2);

@@ -59,6 +59,7 @@ struct WindowFigures {
   int intervals_closed = 0;
   int intervals_shift_bound = 0;
   int intervals_rigorous = 0;
+  int intervals_pair = 0;          // decided by the offset pair's sum (MEASUREMENT.md §12.1)
   // The error radius the daemon's shift bound works with on a run: the largest per-point radius
   // (uncertainty.hpp, gamma_error_radius) over the points within 6 dB of the dip; median over
   // the runs whose interval the shift bound decided.

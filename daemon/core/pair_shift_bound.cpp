@@ -1,0 +1,279 @@
+// The offset pair's resonance bound (pair_shift_bound.hpp). Derivation and the terms, one by
+// one: MEASUREMENT.md §12.1. Notation there: y = w·((p_A − L) + x̂·(p_B − L)) with p_A = |d + Γ'|²,
+// p_B = |d + μ + τ·Γ''|², τ = −a·e^{jδ}, L = |d + Γ_L|², so
+//   y = g_c·|Γ|² + N,   g_c = w·(1 + x̂·a²),
+// and every term of N is a product of the bench's slowly turning error phasors with at least one
+// small factor (the line's turn error, its loss error, its mismatch, the LOAD's residual, the
+// source match, the connection).
+#include "daemon/core/pair_shift_bound.hpp"
+
+#include <algorithm>
+#include <cmath>
+#include <numbers>
+
+#include "daemon/core/poly_fit.hpp"
+
+namespace echoline::core {
+namespace {
+
+constexpr double kTwoPi = 2 * std::numbers::pi;
+
+struct Line {
+  double a_lo, a_hi, x_hat, w;
+  double kappa;    // bound of |1 − x̂·a·e^{jδ}|: what the half turn leaves of the leakage cross term
+  double kappa3;   // bound of |1 − x̂·a³·e^{jδ}|: the same for the source match's first order
+};
+
+Line line_terms(const PairNuisance& n) {
+  Line l;
+  l.a_hi = std::min(1.0, std::pow(10.0, -(n.line.loss_db - n.line.loss_tolerance_db) / 10));
+  l.a_lo = std::pow(10.0, -(n.line.loss_db + n.line.loss_tolerance_db) / 10);
+  l.x_hat = 1 / std::min(1.0, std::pow(10.0, -n.line.loss_db / 10));
+  l.w = l.x_hat / (1 + l.x_hat);
+  const double turn = 2 * std::sin(0.5 * std::min(n.turn_error_rad, std::numbers::pi));   // |1 − e^{jδ}|
+  const double dev = std::max(std::fabs(1 - l.x_hat * l.a_lo), std::fabs(1 - l.x_hat * l.a_hi));
+  const double dev3 = std::max(std::fabs(1 - l.x_hat * std::pow(l.a_lo, 3)), std::fabs(1 - l.x_hat * std::pow(l.a_hi, 3)));
+  l.kappa = dev + l.x_hat * l.a_hi * turn;
+  l.kappa3 = dev3 + l.x_hat * std::pow(l.a_hi, 3) * turn;
+  return l;
+}
+
+// Turn rates (rad/Hz) of the phasors in N.
+struct Rates {
+  double e, line, match, conn, load;
+};
+
+Rates rates(const PairNuisance& n) {
+  const double tl = n.line.delay_s + n.line.delay_tolerance_s;
+  return Rates{kTwoPi * n.error_delay_s, 2 * kTwoPi * tl, kTwoPi * (2 * tl + kLineMatchExtraDelayS),
+               kTwoPi * kConnectionTurnDelayS, kTwoPi * kLoadTurnDelayS};
+}
+
+// A term of N as A(f)·Γ^m with |A| ≤ a0, |A'| ≤ a1, |A''| ≤ a2: on a straight trajectory
+// (Γ'' = 0, |Γ'| ≤ s, |Γ| ≤ g), |(A·Γ^m)''| ≤ a2·g^m + 2·a1·m·g^(m−1)·s + a0·m(m−1)·g^(m−2)·s².
+double term_curvature(double a0, double a1, double a2, int m, double g, double s) {
+  const double gm = std::pow(g, m);
+  const double gm1 = m >= 1 ? std::pow(g, m - 1) : 0;
+  const double gm2 = m >= 2 ? std::pow(g, m - 2) : 0;
+  return a2 * gm + 2 * a1 * m * gm1 * s + a0 * m * (m - 1) * gm2 * s * s;
+}
+
+// The same for A = amp·(a phasor turning at up to `rate`).
+double phasor_curvature(double amp, double rate, int m, double g, double s) {
+  return term_curvature(amp, amp * rate, amp * rate * rate, m, g, s);
+}
+
+// A = amp·(κ − x̂a³·e^{jδ})-like: a part of size amp·k_fixed turning at r1, less a part of size
+// amp·k_turn turning at r1 + r2 that the half turn nearly cancels; |A| ≤ amp·k_abs.
+double split_curvature(double amp, double k_abs, double r1, double k_turn, double r2, int m, double g, double s) {
+  const double a1 = amp * (r1 * k_abs + k_turn * r2);
+  const double a2 = amp * (r1 * r1 * k_abs + 2 * r1 * r2 * k_turn + r2 * r2 * k_turn);
+  return term_curvature(amp * k_abs, a1, a2, m, g, s);
+}
+
+}  // namespace
+
+double pair_nuisance_slope(const PairNuisance& n, double g, double s) {
+  const Line l = line_terms(n);
+  const Rates r = rates(n);
+  const double E = n.leakage, rl = n.load_residual, M = n.line.match, S = n.source_match, C = n.connection;
+  const double w = l.w, xh = l.x_hat, a = l.a_hi;
+  // T1: the leakage's own power less the LOAD reading: −(2·Re(d̄Γ_L) + |Γ_L|²), weight w(1 + x̂);
+  // without a LOAD reading |d|² itself, turning at the error delay.
+  const double t1 = n.load_subtracted ? 2 * w * (1 + xh) * (r.e * E * rl + (E + rl) * r.load * rl)
+                                      : 2 * w * (1 + xh) * r.e * E * E;
+  // T2: the offset arm's leakage with the line's mismatch, 2·Re(d̄μ) + |μ|², weight w·x̂.
+  const double t2 = 2 * w * xh * M * (r.e * E + r.match * (E + M));
+  // T3: the leakage cross term the half turn leaves, 2w·Re(d̄Γ(1 − x̂a·e^{jδ})).
+  const double t3 = 2 * w * (r.e * E * g * l.kappa + E * s * l.kappa + E * g * xh * a * r.line);
+  // T4: the line's mismatch against the unit, 2·Re(μ̄·τΓ), and its far end's second order
+  // (τ·S22·Γ² against d + τΓ), weight w·x̂.
+  const double t4 = 2 * w * xh * a * (r.match * M * g + M * s + M * g * r.line) +
+                    2 * w * xh * ((r.e * E + a * s + a * g * r.line) * a * M * g * g +
+                                  (E + a * g) * a * M * (2 * g * s + g * g * (r.match + r.line)));
+  // T5: the source match's first order, 2w·|Γ|²·Re(sΓ(1 − x̂a³e^{jδ})).
+  const double t5 = 2 * w * (S * l.kappa3 * (3 * g * g * s + g * g * g * r.e) + S * g * g * g * xh * a * a * a * r.line);
+  // T6: leakage times source match, 2·Re(d̄sΓ²) in each reading.
+  const double t6 = 2 * w * (1 + xh * a * a) * E * S * (2 * r.e * g * g + 2 * g * s + r.line * g * g);
+  // T7: the unit's connection, a vector c of up to C in each reading (made anew, not cancelled):
+  // against the leakage and against the unit.
+  const double t7 = 2 * w * (1 + xh * a) * (r.e * E * C + E * r.conn * C) +
+                    2 * w * (1 + xh * a * a) * (C * s + (g + C) * r.conn * C);
+  // T8: the source match beyond first order (|Γ|⁴·|s|² terms).
+  const double t8 = 2 * w * (1 + xh) * S * S * (4 * g * g * g * s + g * g * g * g * r.e);
+  // T9: the reference error R/T turning over the dip scales the sum, (g + E)²·ρ'.
+  const double rho = std::min(n.reference_ratio, 0.5);
+  const double t9 = (g + E) * (g + E) * r.e * rho / ((1 - rho) * (1 - rho));
+  return t1 + t2 + t3 + t4 + t5 + t6 + t7 + t8 + t9;
+}
+
+double pair_nuisance_magnitude(const PairNuisance& n, double g) {
+  const Line l = line_terms(n);
+  const double E = n.leakage, rl = n.load_residual, M = n.line.match, S = n.source_match, C = n.connection;
+  const double w = l.w, xh = l.x_hat, a = l.a_hi;
+  const double mg = M * g < 1 ? 1 / (1 - M * g) : 1e9;
+  return w * (1 + xh) * (2 * E * rl + rl * rl) +                                         // T1
+         w * xh * (2 * E * M + M * M) +                                                  // T2
+         2 * w * E * g * l.kappa +                                                       // T3
+         2 * w * xh * a * M * g + 2 * w * xh * (E + a * g) * a * M * g * g * mg +        // T4
+         2 * w * S * l.kappa3 * g * g * g +                                              // T5
+         2 * w * (1 + xh * a * a) * E * S * g * g +                                      // T6
+         2 * w * (1 + xh * a) * E * C + 2 * w * (1 + xh * a * a) * (2 * C * g + C * C) +  // T7
+         2 * w * (1 + xh) * S * S * g * g * g * g;                                       // T8
+}
+
+double pair_nuisance_curvature(const PairNuisance& n, double g, double s) {
+  const Line l = line_terms(n);
+  const Rates r = rates(n);
+  const double E = n.leakage, rl = n.load_residual, M = n.line.match, S = n.source_match, C = n.connection;
+  const double w = l.w, xh = l.x_hat, a = l.a_hi;
+  double b = 0;
+  // The terms of pair_nuisance_slope, each with the rates its phasors turn at.
+  b += n.load_subtracted ? phasor_curvature(2 * w * (1 + xh) * (E * rl + rl * rl), r.e + r.load, 0, g, s)
+                         : phasor_curvature(w * (1 + xh) * E * E, 2 * r.e, 0, g, s);
+  b += phasor_curvature(2 * w * xh * M * (E + M), r.e + r.match, 0, g, s);
+  b += split_curvature(2 * w * E, l.kappa, r.e, xh * a, r.line, 1, g, s);                       // T3
+  b += phasor_curvature(2 * w * xh * a * M, r.match + r.line, 1, g, s) +
+       phasor_curvature(2 * w * xh * a * M * (E + a), r.e + r.line + r.match, 2, g, s);         // T4
+  b += split_curvature(2 * w * S, l.kappa3, r.e, xh * a * a * a, r.line, 3, g, s);              // T5
+  b += phasor_curvature(2 * w * (1 + xh * a * a) * E * S, 2 * (r.e + r.line), 2, g, s);         // T6
+  b += phasor_curvature(2 * w * (1 + xh * a) * E * C, r.e + r.conn, 0, g, s) +
+       phasor_curvature(2 * w * (1 + xh * a * a) * C, r.conn, 1, g, s) + phasor_curvature(C * C, 2 * r.conn, 0, g, s);
+  b += phasor_curvature(2 * w * (1 + xh) * S * S, 2 * r.e, 4, g, s);                            // T8
+  return b;
+}
+
+namespace {
+
+// The bound from the points within `below_db` of the peak.
+std::optional<PairShiftBound> bound_over(const PairSumTrace& t, std::size_t peak, double below_db) {
+  const std::size_t n = t.y.size();
+  const double peak_rl = t.return_loss_db[peak];
+  auto window = [&](double below_db, std::size_t& lo, std::size_t& hi) {
+    lo = hi = peak;
+    while (lo > 0 && t.return_loss_db[lo - 1] >= peak_rl - below_db) --lo;
+    while (hi + 1 < n && t.return_loss_db[hi + 1] >= peak_rl - below_db) ++hi;
+  };
+  std::size_t lo = 0, hi = 0;
+  window(below_db, lo, hi);
+  if (peak - lo < 2 || hi - peak < 2) return std::nullopt;   // too sparse to fit
+  if (lo == 0 || hi + 1 == n) return std::nullopt;           // broad: the dip runs off the sweep
+  const double f_pk = t.frequency_hz[peak];
+  PairNuisance nu = t.nuisance;
+  nu.leakage = nu.load_residual = nu.turn_error_rad = 0;
+  double g_w = 0;
+  auto fit = [&](std::size_t a, std::size_t b, std::vector<double>& x, std::vector<double>& y, double* q,
+                 double (*inv)[4], double& var) {
+    x.clear();
+    y.clear();
+    var = 0;
+    for (std::size_t i = a; i <= b; ++i) {
+      x.push_back((t.frequency_hz[i] - f_pk) / 1e6);
+      y.push_back(t.y[i]);
+      var += t.sigma_y[i] * t.sigma_y[i];
+    }
+    var /= static_cast<double>(x.size());
+    return least_squares(x, y, 3, q, inv);
+  };
+  for (std::size_t i = lo; i <= hi; ++i) {
+    if (!t.usable[i]) return std::nullopt;
+    nu.leakage = std::max(nu.leakage, t.leakage[i]);
+    nu.load_residual = std::max(nu.load_residual, t.load_residual[i]);
+    nu.turn_error_rad = std::max(nu.turn_error_rad, t.turn_error_rad[i]);
+  }
+  // The unit's |Γ| over the window from the sum itself: g_c·|Γ|² ≤ y·(1 + ρ) + k·σ_y + |N|, |N|
+  // bounded at the point's own |Γ| bound (twice, each pass a valid bound); never above the
+  // point's interval. Tighter than the points' bounds where the leakage's size is poorly known.
+  {
+    const Line lt = line_terms(nu);
+    const double g_lo = lt.w * (1 + lt.x_hat * lt.a_lo * lt.a_lo);
+    const double rho_hi = 1 + std::min(nu.reference_ratio, 0.5);
+    for (std::size_t i = lo; i <= hi; ++i) {
+      double g = std::min(1.0, t.gamma_high[i]);
+      for (int pass = 0; pass < 2; ++pass) {
+        const double g2 = (std::max(0.0, t.y[i]) * rho_hi + t.coverage_factor * t.sigma_y[i] + pair_nuisance_magnitude(nu, g)) / g_lo;
+        g = std::min(g, std::sqrt(g2));
+      }
+      g_w = std::max(g_w, g);
+    }
+  }
+  std::vector<double> x, y;
+  double q[4], inv[4][4], var = 0;
+  if (!fit(lo, hi, x, y, q, inv, var)) return std::nullopt;
+  double c = q[2];   // per MHz²
+  if (!(c > 0)) return std::nullopt;
+  const double xv = -q[1] / (2 * c);
+  if (xv < x.front() || xv > x.back()) return std::nullopt;
+  const double sigma_xv = vertex_sigma(x, y, q, inv, var);
+  const double gap = std::fabs(cubic_minimum_near(x, y, xv) - xv);
+  // A flat-bottomed dip curves less near its bottom than over the whole window: the curvature
+  // over the inner half (in dB), where that has points enough, when smaller.
+  {
+    std::size_t lo3 = 0, hi3 = 0;
+    window(below_db / 2, lo3, hi3);
+    std::vector<double> x3, y3;
+    double q3[4], inv3[4][4], var3 = 0;
+    if (peak - lo3 >= 2 && hi3 - peak >= 2 && fit(lo3, hi3, x3, y3, q3, inv3, var3) && q3[2] > 0) c = std::min(c, q3[2]);
+  }
+  // The unit's slope |k| from the measured curvature: c·(R/T) = g_c·|k|² + N₂, |N₂| ≤ B₂(|k|).
+  const Line l = line_terms(nu);
+  const double rho = std::min(nu.reference_ratio, 0.5);
+  const double c_hz = c / 1e12 * (1 + rho);               // per Hz², the reference at its high end
+  const double g_lo = l.w * (1 + l.x_hat * l.a_lo * l.a_lo);
+  double s = std::sqrt(c_hz / g_lo);
+  for (int it = 0; it < 20; ++it) s = std::sqrt((c_hz + pair_nuisance_curvature(nu, g_w, s)) / g_lo);
+  // The vertex of (g_c·|k|²+N₂)x² + N₁x lies at −N₁/(2c): |N₁| ≤ B₁ (the slope bound over the window).
+  const double b1 = pair_nuisance_slope(nu, g_w, s);
+  const double nuisance_hz = b1 / (2 * (c / 1e12) * (1 - rho));
+  const double half_step_hz =
+      0.5 * std::max(t.frequency_hz[peak + 1] - f_pk, f_pk - t.frequency_hz[peak - 1]);
+  // Lopsided: the cubic places the measured minimum far from the quadratic's vertex.
+  if (gap * 1e6 > std::max(4 * half_step_hz, nuisance_hz)) return std::nullopt;
+  PairShiftBound out;
+  out.center_hz = f_pk + xv * 1e6;
+  out.nuisance_hz = nuisance_hz;
+  out.statistical_hz = t.coverage_factor * sigma_xv * 1e6;
+  out.gap_hz = gap * 1e6;
+  out.half_width_hz = out.nuisance_hz + out.statistical_hz + out.gap_hz + half_step_hz;
+  return out;
+}
+
+}  // namespace
+
+std::optional<PairShiftBound> pair_shift_bound(const PairSumTrace& t, std::size_t peak) {
+  const std::size_t n = t.y.size();
+  if (n < 5 || peak >= n || t.frequency_hz.size() != n || t.sigma_y.size() != n || t.gamma_high.size() != n ||
+      t.return_loss_db.size() != n || t.leakage.size() != n || t.load_residual.size() != n ||
+      t.turn_error_rad.size() != n || t.usable.size() != n) {
+    return std::nullopt;
+  }
+  const double peak_rl = t.return_loss_db[peak];
+  if (!std::isfinite(peak_rl) || peak_rl < 12.0) return std::nullopt;   // shallow: a curved trajectory
+  // Over 6 dB the vertex is well determined but the unit's |Γ| at the window's edges (where the
+  // terms the sum leaves are largest) is twice its bottom; over 3 dB the reverse. Each bound
+  // holds, so the intersection does.
+  const auto wide = bound_over(t, peak, 6.0);
+  const auto narrow = bound_over(t, peak, 3.0);
+  if (!wide || !narrow) return wide ? wide : narrow;
+  const double low = std::max(wide->center_hz - wide->half_width_hz, narrow->center_hz - narrow->half_width_hz);
+  const double high = std::min(wide->center_hz + wide->half_width_hz, narrow->center_hz + narrow->half_width_hz);
+  if (!(low <= high)) return std::nullopt;   // both cannot hold: an assumption failed
+  PairShiftBound out = wide->half_width_hz <= narrow->half_width_hz ? *wide : *narrow;
+  out.center_hz = 0.5 * (low + high);
+  out.half_width_hz = 0.5 * (high - low);
+  return out;
+}
+
+double pair_shift_half_width(const PairNuisance& n, double g_edge, double s, double step_hz) {
+  const Line l = line_terms(n);
+  const double g_lo = l.w * (1 + l.x_hat * l.a_lo * l.a_lo);
+  // The unit's |Γ| at the window's edge as the station bounds it, and its slope as the station
+  // takes it from the curvature it measures (pair_shift_bound).
+  const double g = std::min(1.0, std::sqrt(g_edge * g_edge + pair_nuisance_magnitude(n, g_edge) / g_lo));
+  const double c = g_lo * s * s;
+  double s_up = s;
+  for (int it = 0; it < 20; ++it) s_up = std::sqrt((c + pair_nuisance_curvature(n, g, s_up)) / g_lo);
+  return pair_nuisance_slope(n, g, s_up) / (2 * c) + step_hz / 2;
+}
+
+}  // namespace echoline::core

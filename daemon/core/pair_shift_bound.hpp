@@ -1,0 +1,78 @@
+// Where the unit's own resonance lies, from the offset pair's sum: the two readings, weighted by
+// the line's loss, less the LOAD reading, leave |Γ|² plus terms that are second order or that the
+// half turn cancels, so the sum's vertex is the resonance to within a bound derived term by term
+// (MEASUREMENT.md §12.1). Pure; thread-safe.
+#pragma once
+
+#include <cstddef>
+#include <optional>
+#include <vector>
+
+#include "daemon/core/cal_kit.hpp"
+
+namespace echoline::core {
+
+// What bounds the terms the sum leaves; all magnitudes linear (|Γ| units), delays in seconds.
+struct PairNuisance {
+  double leakage = 0;            // E: bound of |E_D| over the dip
+  double load_residual = 0;      // r_L: the LOAD's reflection with its connection, through the source match
+  bool load_subtracted = true;   // false: no LOAD reading, |E_D|² itself must be bounded in slope
+  double source_match = 0;       // |E_S|
+  double connection = 0;         // k·u_conn of the unit's connection, each reading
+  double error_delay_s = 5e-9;   // how fast the bench's error terms turn (MEASUREMENT.md §6.2)
+  OffsetLine line;               // the kit's line (delay, loss, match, tolerances)
+  double turn_error_rad = 0;     // the largest |arg(t²) − π| over the dip
+  double reference_ratio = 0;    // largest |R/T − 1| the reference error allows (bounded part)
+};
+
+// Allowances the kit does not state, taken generously (MEASUREMENT.md §12.1).
+inline constexpr double kLoadTurnDelayS = 0.5e-9;        // the LOAD's own reflection turns no faster
+inline constexpr double kConnectionTurnDelayS = 1.0e-9;  // the unit's connection error turns no faster
+inline constexpr double kLineMatchExtraDelayS = 0.5e-9;  // beyond the line's round trip, for its ends
+
+// Bound of the slope (per Hz) of everything in the sum besides the unit's own |Γ|², over a region
+// where the unit's |Γ| ≤ g and |dΓ/df| ≤ s (per Hz).
+double pair_nuisance_slope(const PairNuisance& n, double g, double s);
+
+// Bound of the same terms' size (|Γ|² units) where the unit's |Γ| ≤ g.
+double pair_nuisance_magnitude(const PairNuisance& n, double g);
+
+// Bound of the same terms' second derivative (per Hz²), for the straight trajectory of §6.2.
+double pair_nuisance_curvature(const PairNuisance& n, double g, double s);
+
+// The sum at each plan point, as calibrate_points builds it.
+struct PairSumTrace {
+  std::vector<double> frequency_hz;
+  std::vector<double> y;            // w·((p_A − L) + x̂·(p_B − L)), x̂ = 1/a nominal, w = x̂/(1 + x̂): ≈ |Γ|²
+  std::vector<double> sigma_y;      // its standard uncertainty from the readings' noise
+  std::vector<double> gamma_high;   // the point's upper |Γ| bound (the pair's, intersected)
+  std::vector<double> return_loss_db;   // the return loss shown (the pair's estimate): the windows
+  std::vector<double> leakage;      // E per point
+  std::vector<double> load_residual;
+  std::vector<double> turn_error_rad;
+  std::vector<bool> usable;         // the pair was usable at the point
+  PairNuisance nuisance;            // leakage, load_residual and turn_error_rad are set per window
+  double coverage_factor = 3;
+  bool empty() const { return y.empty(); }
+};
+
+struct PairShiftBound {
+  double center_hz = 0;       // the sum's vertex
+  double half_width_hz = 0;   // nuisance + k·σ + model gap + half a step
+  double nuisance_hz = 0;     // B1/(2c): what the terms the sum leaves can move the vertex
+  double statistical_hz = 0;  // k·σ of the vertex
+  double gap_hz = 0;          // the cubic's minimum against the quadratic's
+};
+
+// The bound at the dip around `peak` (the sample with the smallest sum, or the pair's largest
+// RL), or nothing where its assumptions fail: the peak under 12 dB, fewer than 2 points within
+// 6 dB on either side, the 6 dB region reaching the sweep's end, a point there where the pair
+// was not usable, a quadratic that does not open upward or whose vertex lies outside the points,
+// or a lopsided dip (the cubic's minimum far from the quadratic's).
+std::optional<PairShiftBound> pair_shift_bound(const PairSumTrace& t, std::size_t peak);
+
+// The predicted half-width for a nominal dip of slope s (per Hz) whose |Γ| reaches g_edge at the
+// fit window's edges, sampled every `step_hz`, before any unit is read (centring_prediction.cpp).
+double pair_shift_half_width(const PairNuisance& n, double g_edge, double s, double step_hz);
+
+}  // namespace echoline::core
