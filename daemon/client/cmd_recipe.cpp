@@ -103,6 +103,10 @@ void print_centring(const core::Recipe& r, const core::StationCapability& cap, c
   if (p->directivity_for_5_percent_db) {
     std::cout << fmt::format("; 5 % needs a coupler of {:.1f} dB directivity", *p->directivity_for_5_percent_db);
   }
+  if (p->kit_gain_for_5_percent_db) {
+    std::cout << fmt::format("; with the offset pair, 5 % needs the kit's line match, connection and LOAD each {:.1f} dB better",
+                             *p->kit_gain_for_5_percent_db);
+  }
   std::cout << "\n";
 }
 

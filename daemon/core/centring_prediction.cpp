@@ -114,21 +114,26 @@ std::optional<CentringPrediction> predict_centring(const Recipe& recipe, const S
   // The pair's sum (MEASUREMENT.md §12.1): what the terms it leaves can move the vertex over the
   // 6 dB window (the station also tries 3 dB and intersects; the prediction stays on the wider,
   // which every dip of 12 dB or more has).
+  double kit_factor = 1;   // the kit's small figures scaled together (the advice below)
   auto pair_sum_half_width = [&](double e_dir, double g0) {
     const double conn = recipe.coverage_factor * station.kit.connection_repeatability;
     PairNuisance n;
     n.leakage = std::max(0.0, e_dir - conn);
-    n.load_residual = load_gamma_bound(station.kit, f0) + conn;
+    n.load_residual = (load_gamma_bound(station.kit, f0) + conn) * kit_factor;
+    n.connection = conn * kit_factor;
     n.source_match = src;
-    n.connection = conn;
     n.error_delay_s = tau;
     n.line = *pair_line;
+    n.line.match *= kit_factor;
     // The fit window reaches beyond the window's edges by the dip's 6 dB half-span, √3·|Γ₀|/s.
     const double span = std::sqrt(3.0) * std::max(g0, 0.01) / s;
     for (double f : {lo - span, hi + span, f0}) n.turn_error_rad = std::max(n.turn_error_rad, offset_turn_error(f, *pair_line));
     const ReferenceErrorBounds re = reference_error_bounds(station.kit, f0, recipe.calibration.use_short, e_dir, src);
     n.reference_ratio = std::max(std::pow(10.0, re.high_db / 10) - 1, 1 - std::pow(10.0, re.low_db / 10));
-    return pair_shift_half_width(n, 2 * g0, s, step);
+    // At the window's edge the points' upper bound is the unit's |Γ| plus the pair's radius there.
+    const double g_bound = 2 * g0 + pair_radius(e_dir);
+    const double noise_rel = std::pow(10.0, recipe.coverage_factor * 0.05 / 10) - 1;
+    return pair_shift_half_width(n, 2 * g0, g_bound, s, step, noise_rel);
   };
   auto half_width = [&](double e_dir) {
     const double e = radius_at_edge(e_dir);
@@ -150,6 +155,24 @@ std::optional<CentringPrediction> predict_centring(const Recipe& recipe, const S
       (fraction(half_width(fixed + m), lo, hi, p.center_hz, p.spread_hz) <= 0.05 ? a : b) = m;
     }
     if (a > 0) p.directivity_for_5_percent_db = -20 * std::log10(a);
+  }
+  // With the pair: how many dB better the kit's line match, connection and LOAD would all have
+  // to be (the terms that set the sum's bound) for 5 %.
+  if (pair_line && p.inconclusive_fraction > 0.05 && !p.rigorous) {
+    auto at = [&](double gain_db) {
+      kit_factor = std::pow(10.0, -gain_db / 20);
+      const double f = fraction(half_width(error_radius), lo, hi, p.center_hz, p.spread_hz);
+      kit_factor = 1;
+      return f;
+    };
+    if (at(40) <= 0.05) {
+      double a = 0, b = 40;
+      for (int i = 0; i < 40; ++i) {
+        const double m = (a + b) / 2;
+        (at(m) <= 0.05 ? b : a) = m;
+      }
+      p.kit_gain_for_5_percent_db = b;
+    }
   }
   p.basis = fmt::format("Q {:.1f} at {:.3f} MHz, {}, error radius {:.4f} (|\u0393|{}), {} interval, {}", p.q, f0 / 1e6,
                         recipe.nominal.depth_db ? fmt::format("depth {:.1f} dB", *recipe.nominal.depth_db)

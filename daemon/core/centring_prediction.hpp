@@ -27,6 +27,9 @@ struct CentringPrediction {
   // Directivity (dB, the coupler's own) that would bring the fraction to 5 %; empty when even a
   // perfect coupler would not (the kit's LOAD and the connection alone are too much).
   std::optional<double> directivity_for_5_percent_db;
+  // With the offset pair: how many dB better the kit's line match, connection repeatability and
+  // LOAD would each have to be for 5 % (empty when even 40 dB would not, or it is already met).
+  std::optional<double> kit_gain_for_5_percent_db;
   std::string basis;              // one line: what the prediction assumed
 };
 

@@ -264,12 +264,18 @@ std::optional<PairShiftBound> pair_shift_bound(const PairSumTrace& t, std::size_
   return out;
 }
 
-double pair_shift_half_width(const PairNuisance& n, double g_edge, double s, double step_hz) {
+double pair_shift_half_width(const PairNuisance& n, double g_edge, double g_bound, double s, double step_hz,
+                             double noise_rel) {
   const Line l = line_terms(n);
   const double g_lo = l.w * (1 + l.x_hat * l.a_lo * l.a_lo);
-  // The unit's |Γ| at the window's edge as the station bounds it, and its slope as the station
-  // takes it from the curvature it measures (pair_shift_bound).
-  const double g = std::min(1.0, std::sqrt(g_edge * g_edge + pair_nuisance_magnitude(n, g_edge) / g_lo));
+  // The unit's |Γ| at the window's edge as the station bounds it (pair_shift_bound: from the
+  // points' upper bound, two passes of the sum's own bound), and its slope as the station takes
+  // it from the curvature it measures.
+  const double rho = std::min(n.reference_ratio, 0.5);
+  double g = std::min(1.0, g_bound);
+  for (int pass = 0; pass < 2; ++pass) {
+    g = std::min(g, std::sqrt((g_edge * g_edge * (1 + rho + noise_rel) + pair_nuisance_magnitude(n, g)) / g_lo));
+  }
   const double c = g_lo * s * s;
   double s_up = s;
   for (int it = 0; it < 20; ++it) s_up = std::sqrt((c + pair_nuisance_curvature(n, g, s_up)) / g_lo);

@@ -72,7 +72,10 @@ struct PairShiftBound {
 std::optional<PairShiftBound> pair_shift_bound(const PairSumTrace& t, std::size_t peak);
 
 // The predicted half-width for a nominal dip of slope s (per Hz) whose |Γ| reaches g_edge at the
-// fit window's edges, sampled every `step_hz`, before any unit is read (centring_prediction.cpp).
-double pair_shift_half_width(const PairNuisance& n, double g_edge, double s, double step_hz);
+// fit window's edges, where the points' own upper bound is g_bound and the readings' noise at the
+// coverage factor is noise_rel of the power; sampled every `step_hz`; before any unit is read
+// (centring_prediction.cpp).
+double pair_shift_half_width(const PairNuisance& n, double g_edge, double g_bound, double s, double step_hz,
+                             double noise_rel);
 
 }  // namespace echoline::core

@@ -273,6 +273,12 @@ std::vector<CheckFinding> check_recipe(const Recipe& r, const StationCapability&
                                ? fmt::format("a coupler of at least {:.1f} dB directivity would bring it to 5 %",
                                              *p->directivity_for_5_percent_db)
                                : std::string("no coupler would bring it to 5 % with this kit's LOAD");
+        if (p->kit_gain_for_5_percent_db) {
+          help += fmt::format(
+              "; with the offset pair, a kit whose line match, connection repeatability and LOAD are each {:.1f} dB "
+              "better would",
+              *p->kit_gain_for_5_percent_db);
+        }
         add(out, "warning", "/limits/resonance_min_hz",
             fmt::format("this station places the resonance only to about \u00b1{:.1f} MHz, so about {:.0f} % of {} "
                         "will come out inconclusive for the {} window; {}, or express centring as return-loss mask "

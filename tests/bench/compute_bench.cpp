@@ -2,6 +2,7 @@
 // (201 and 1601 points; with and without the dip fit, and the fit alone), one synchronous store
 // commit per 201-point run, and the lot report over 10 000 runs. Prints numbers only (Google Benchmark); asserts nothing about time.
 // Single-threaded. Store files live in a temp folder removed at exit.
+#include <cmath>
 #include <cstdlib>
 #include <filesystem>
 #include <memory>
@@ -88,6 +89,39 @@ void BM_DipFit(benchmark::State& state) {
   if (fit.models.empty()) state.SkipWithError(("the fit stopped before fitting: " + fit.refused).c_str());
 }
 BENCHMARK(BM_DipFit)->Arg(201)->Unit(benchmark::kMicrosecond);
+
+// The offset pair's resonance bound alone (pair_shift_bound.hpp) on a 201-point trace: the two
+// windows' quadratic and cubic fits and the terms' bounds. It runs on every unit read with the pair.
+void BM_PairShiftBound(benchmark::State& state) {
+  const core::Recipe recipe = bench::whip_recipe(static_cast<int>(state.range(0)));
+  const auto cal = calibrate(recipe);
+  const core::CalibratedTrace trace = core::calibrate_points(cal, bench::dut_readings(recipe, 912e6));
+  core::PairSumTrace t;
+  t.nuisance.line = core::OffsetLine{273.2e-12, 2e-12, 0.08, 0.04, 0.0112};
+  t.nuisance.source_match = 0.056;
+  t.nuisance.connection = 0.003;
+  std::size_t peak = 0;
+  for (std::size_t i = 0; i < trace.points.size(); ++i) {
+    const core::PointResult& p = trace.points[i];
+    const double g2 = std::pow(10.0, -p.return_loss_db / 10);
+    t.frequency_hz.push_back(p.frequency_hz);
+    t.y.push_back(g2);
+    t.sigma_y.push_back(0.007 * g2);
+    t.gamma_high.push_back(std::sqrt(g2) + 0.04);
+    t.return_loss_db.push_back(p.return_loss_db);
+    t.leakage.push_back(0.03);
+    t.load_residual.push_back(0.01);
+    t.turn_error_rad.push_back(0.1);
+    t.usable.push_back(true);
+    if (p.return_loss_db > trace.points[peak].return_loss_db) peak = i;
+  }
+  for (auto _ : state) {
+    auto b = core::pair_shift_bound(t, peak);
+    benchmark::DoNotOptimize(b);
+  }
+  if (!core::pair_shift_bound(t, peak)) state.SkipWithError("no bound on the benchmark's dip");
+}
+BENCHMARK(BM_PairShiftBound)->Arg(201)->Unit(benchmark::kMicrosecond);
 
 // One synchronous commit (WAL, synchronous=FULL as shipped) of a 201-point run with its points.
 void BM_StoreCommitRun(benchmark::State& state) {

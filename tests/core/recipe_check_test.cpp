@@ -118,6 +118,27 @@ TEST(RecipeCheck, TheWindowPredictionWithTheOffsetPair) {
   EXPECT_LT(deep_pair, 0.3 * deep_one);
   EXPECT_LT(deep_pair / deep_one, broad_pair / broad_one);
   EXPECT_LE(fine_pair, deep_pair);
+  // The advice: how much better the kit's line match, connection and LOAD must be for 5 %; a kit
+  // that much better then predicts 5 % or less (a quarter of a dB more, for the bisection).
+  // Behind a 35 dB coupler (behind 25 dB the leakage's own terms leave more than 5 % whatever the
+  // kit: no advice is given).
+  r.nominal.q = 9;
+  r.nominal.depth_db = 25;
+  r.offset_pair = true;
+  EXPECT_FALSE(predict_centring(r, st)->kit_gain_for_5_percent_db.has_value());
+  st.directivity_db = 35;
+  const auto p = predict_centring(r, st);
+  ASSERT_TRUE(p.has_value());
+  ASSERT_GT(p->inconclusive_fraction, 0.05);
+  ASSERT_TRUE(p->kit_gain_for_5_percent_db.has_value());
+  const double gain = *p->kit_gain_for_5_percent_db + 0.25;
+  std::printf("window with the pair: %.1f %% inconclusive; a kit %.1f dB better gives 5 %%\n",
+              100 * p->inconclusive_fraction, *p->kit_gain_for_5_percent_db);
+  StationCapability better = st;
+  better.kit.offset_line->match *= std::pow(10.0, -gain / 20);
+  better.kit.connection_repeatability *= std::pow(10.0, -gain / 20);
+  for (LoadStep& l : better.kit.load) l.min_return_loss_db += gain;
+  EXPECT_LE(predict_centring(r, better)->inconclusive_fraction, 0.05);
 }
 
 // Worst case at the receiver: P_src − coupling + 20·log10(1 + 10^(−D/20)). With D = 30 dB the
