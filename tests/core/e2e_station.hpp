@@ -276,8 +276,9 @@ inline json check_standard(Api& api, Sim& sim) {
 
 // Connects the unit on the sim and tests it; returns the "run" object of the result event.
 // Calibrates / measures the check standard first when the daemon asks for it.
+// `last_progress` (optional) gets the last progress event.
 inline json test_unit(Api& api, Sim& sim, const std::string& serial, const std::string& lot = "",
-                      int* progress_events = nullptr) {
+                      int* progress_events = nullptr, json* last_progress = nullptr) {
   for (int attempt = 0; attempt < 3; ++attempt) {
     sim.connect_unit(serial);
     json r = api.call("test.start", {{"serial", serial}, {"lot", lot}, {"operator", "e2e"}});
@@ -299,6 +300,7 @@ inline json test_unit(Api& api, Sim& sim, const std::string& serial, const std::
       json e = api.next_event();
       if (e["event"] == "progress") {
         if (progress_events) ++*progress_events;
+        if (last_progress) *last_progress = e;
         continue;
       }
       if (e["event"] == "result") return e["run"];

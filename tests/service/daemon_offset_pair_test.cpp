@@ -36,11 +36,17 @@ TEST(DaemonOffsetPair, EachUnitIsReadTwiceAndBothTracesAreStored) {
   ASSERT_TRUE(cal["calibration"]["valid"].get<bool>()) << cal.dump().substr(0, 400);
   const std::vector<std::string> serials = {"TINY-01", "TINY-02", "TINY-03", "TINY-04"};
   std::vector<std::string> run_ids;
+  std::vector<int> progress_of;
   for (const std::string& s : serials) {
     int progress = 0;
-    json run = test_unit(api, sim, s, "TINY", &progress);
+    json last;
+    json run = test_unit(api, sim, s, "TINY", &progress, &last);
     EXPECT_NE(run["verdict"], "aborted") << run.dump().substr(0, 400);
     EXPECT_GT(progress, 0);
+    // Progress counts both sweeps and reaches its end (checked against the stored points below).
+    ASSERT_TRUE(last.contains("of")) << last.dump();
+    EXPECT_EQ(last["point"].get<int>(), last["of"].get<int>()) << last.dump();
+    progress_of.push_back(last["of"].get<int>());
     run_ids.push_back(run["run_id"]);
   }
   ASSERT_EQ(daemon->process().terminate(30s), 0);
@@ -60,6 +66,7 @@ TEST(DaemonOffsetPair, EachUnitIsReadTwiceAndBothTracesAreStored) {
     ASSERT_TRUE(run.ok()) << run.error().message;
     const std::vector<core::Reading> offset = core::offset_readings(*run);
     ASSERT_EQ(offset.size(), run->points.size()) << serials[u] << ": the second trace is not stored at every point";
+    EXPECT_EQ(progress_of[u], 2 * static_cast<int>(run->points.size())) << serials[u] << ": progress of both sweeps";
     // The line turns the unit's reflection by half a turn, so the two readings differ where
     // the unit reflects about as much as the coupler leaks (the parallelogram law).
     double largest = 0;
