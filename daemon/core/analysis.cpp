@@ -294,9 +294,16 @@ std::optional<Resonance> find_resonance(const std::vector<PointResult>& points, 
     if (auto pb = pair_shift_bound(*pair_sum, best)) {
       const double low = pb->center_hz - pb->half_width_hz;
       const double high = pb->center_hz + pb->half_width_hz;
-      const bool usable = pb->center_hz >= r.rigorous_low_hz && pb->center_hz <= r.rigorous_high_hz &&
-                          std::max(low, r.low_hz) <= std::min(high, r.high_hz);
-      if (usable) {
+      const bool inside = pb->center_hz >= r.rigorous_low_hz && pb->center_hz <= r.rigorous_high_hz;
+      if (inside && !(std::max(low, r.low_hz) <= std::min(high, r.high_hz))) {
+        // Both would hold, so they overlap; where they do not, one of their models failed:
+        // the rigorous interval alone decides.
+        r.low_hz = r.rigorous_low_hz;
+        r.high_hz = r.rigorous_high_hz;
+        r.low_open = r.rigorous_low_open;
+        r.high_open = r.rigorous_high_open;
+        r.shift_bound_used = false;
+      } else if (inside) {
         if (low > r.low_hz) {
           r.low_hz = low;
           r.low_open = false;

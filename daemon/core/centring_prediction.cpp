@@ -118,8 +118,10 @@ std::optional<CentringPrediction> predict_centring(const Recipe& recipe, const S
   auto pair_sum_half_width = [&](double e_dir, double g0) {
     const double conn = recipe.coverage_factor * station.kit.connection_repeatability;
     PairNuisance n;
-    n.leakage = std::max(0.0, e_dir - conn);
-    n.load_residual = (load_gamma_bound(station.kit, f0) + conn) * kit_factor;
+    const double load = load_gamma_bound(station.kit, f0);
+    n.leakage = std::max(0.0, e_dir - conn - load) + load * kit_factor;
+    const double lr = (load + conn) * kit_factor;
+    n.load_residual = src * lr < 1 ? lr / (1 - src * lr) : 1.0;
     n.connection = conn * kit_factor;
     n.source_match = src;
     n.error_delay_s = tau;

@@ -92,7 +92,7 @@ PairSumTrace offset_pair_sum(const UncertaintyBudget& b, const std::vector<doubl
     t.leakage.push_back(lb.directivity_bound[i]);
     t.load_residual.push_back(r_l);
     t.turn_error_rad.push_back(pair[i].turn_error_rad);
-    t.usable.push_back(pair[i].usable && std::isfinite(y));
+    t.usable.push_back(pair[i].usable && std::isfinite(y) && std::isfinite(t.sigma_y.back()));
     const double hi = std::pow(10.0, b.reference_error_high_db[i] / 10) - 1;
     const double lo = 1 - std::pow(10.0, b.reference_error_low_db[i] / 10);
     t.nuisance.reference_ratio = std::max({t.nuisance.reference_ratio, std::fabs(hi), std::fabs(lo)});

@@ -9,6 +9,7 @@
 
 #include <algorithm>
 #include <cmath>
+#include <limits>
 #include <numbers>
 
 #include "daemon/core/poly_fit.hpp"
@@ -97,14 +98,19 @@ double pair_nuisance_slope(const PairNuisance& n, double g, double s) {
   const double t6 = 2 * w * (1 + xh * a * a) * E * S * (2 * r.e * g * g + 2 * g * s + r.line * g * g);
   // T7: the unit's connection, a vector c of up to C in each reading (made anew, not cancelled):
   // against the leakage and against the unit.
-  const double t7 = 2 * w * (1 + xh * a) * (r.e * E * C + E * r.conn * C) +
+  const double t7 = 2 * w * (1 + xh * a) * (r.e * E * C + E * r.conn * C) + 2 * w * xh * a * E * C * r.line +
                     2 * w * (1 + xh * a * a) * (C * s + (g + C) * r.conn * C);
-  // T8: the source match beyond first order (|Γ|⁴·|s|² terms).
-  const double t8 = 2 * w * (1 + xh) * S * S * (4 * g * g * g * s + g * g * g * g * r.e);
+  // T8: the source match beyond first order: 1/|1 − sΓ|² − 1 − 2Re(sΓ) reaches 3|s|²|Γ|², the same
+  // sign in both readings.
+  const double t8 = w * (1 + xh) * S * S * (12 * g * g * g * s + 6 * g * g * g * g * r.e);
+  // T10: the source match against the offset arm's S11, |Γ_in|²·2Re(sΓ_in) and d̄·s·Γ_in² with
+  // Γ_in = S11 + τΓ: up to 6a²·S·M·|Γ|² and 4E·S·M·a·|Γ|, not cancelled by the half turn.
+  const double om10 = r.e + r.match + r.line;
+  const double t10 = w * xh * (6 * a * a * S * M * (2 * g * s + g * g * om10) + 4 * E * S * M * a * (s + g * om10));
   // T9: the reference error R/T turning over the dip scales the sum, (g + E)²·ρ'.
   const double rho = std::min(n.reference_ratio, 0.5);
   const double t9 = (g + E) * (g + E) * r.e * rho / ((1 - rho) * (1 - rho));
-  return t1 + t2 + t3 + t4 + t5 + t6 + t7 + t8 + t9;
+  return t1 + t2 + t3 + t4 + t5 + t6 + t7 + t8 + t9 + t10;
 }
 
 double pair_nuisance_magnitude(const PairNuisance& n, double g) {
@@ -119,7 +125,8 @@ double pair_nuisance_magnitude(const PairNuisance& n, double g) {
          2 * w * S * l.kappa3 * g * g * g +                                              // T5
          2 * w * (1 + xh * a * a) * E * S * g * g +                                      // T6
          2 * w * (1 + xh * a) * E * C + 2 * w * (1 + xh * a * a) * (2 * C * g + C * C) +  // T7
-         2 * w * (1 + xh) * S * S * g * g * g * g;                                       // T8
+         w * (1 + xh) * 3 * S * S * g * g * g * g +                                      // T8
+         w * xh * (6 * a * a * S * M * g * g + 4 * E * S * M * a * g);                   // T10
 }
 
 double pair_nuisance_curvature(const PairNuisance& n, double g, double s) {
@@ -138,8 +145,18 @@ double pair_nuisance_curvature(const PairNuisance& n, double g, double s) {
   b += split_curvature(2 * w * S, l.kappa3, r.e, xh * a * a * a, r.line, 3, g, s);              // T5
   b += phasor_curvature(2 * w * (1 + xh * a * a) * E * S, 2 * (r.e + r.line), 2, g, s);         // T6
   b += phasor_curvature(2 * w * (1 + xh * a) * E * C, r.e + r.conn, 0, g, s) +
-       phasor_curvature(2 * w * (1 + xh * a * a) * C, r.conn, 1, g, s) + phasor_curvature(C * C, 2 * r.conn, 0, g, s);
-  b += phasor_curvature(2 * w * (1 + xh) * S * S, 2 * r.e, 4, g, s);                            // T8
+       phasor_curvature(2 * w * xh * a * E * C, r.e + r.conn + r.line, 0, g, s) +
+       phasor_curvature(2 * w * (1 + xh * a * a) * C, r.conn, 1, g, s) +
+       phasor_curvature(w * (1 + xh * a * a) * C * C, 2 * r.conn, 0, g, s);
+  b += phasor_curvature(w * (1 + xh) * 3 * S * S, 2 * r.e, 4, g, s);                            // T8
+  b += phasor_curvature(w * xh * 6 * a * a * S * M, r.e + r.match + r.line, 2, g, s) +
+       phasor_curvature(w * xh * 4 * E * S * M * a, r.e + r.match + r.line, 1, g, s);             // T10
+  // T9: the reference's ripple scales y: |(y·ε)''| ≤ |y''|·ε + 2|y'|·|ε'| + y·|ε''|.
+  {
+    const double rho = std::min(n.reference_ratio, 0.5), yy = (g + E) * (g + E);
+    // y''·ε is the curvature's own scale error, taken by c at (1 − ρ); the rest here.
+    b += (2 * (2 * (g + E) * s) * r.e * rho + yy * r.e * r.e * rho) / ((1 - rho) * (1 - rho));
+  }
   return b;
 }
 
@@ -207,24 +224,33 @@ std::optional<PairShiftBound> bound_over(const PairSumTrace& t, std::size_t peak
   const double sigma_xv = vertex_sigma(x, y, q, inv, var);
   const double gap = std::fabs(cubic_minimum_near(x, y, xv) - xv);
   // A flat-bottomed dip curves less near its bottom than over the whole window: the curvature
-  // over the inner half (in dB), where that has points enough, when smaller.
+  // over the inner half (in dB), where that has points enough, when smaller, for the denominator;
+  // the larger for the unit's slope, which must bound it over the whole window.
+  double c_den = c, c_slope = c;
   {
     std::size_t lo3 = 0, hi3 = 0;
     window(below_db / 2, lo3, hi3);
     std::vector<double> x3, y3;
     double q3[4], inv3[4][4], var3 = 0;
-    if (peak - lo3 >= 2 && hi3 - peak >= 2 && fit(lo3, hi3, x3, y3, q3, inv3, var3) && q3[2] > 0) c = std::min(c, q3[2]);
+    if (peak - lo3 >= 2 && hi3 - peak >= 2 && fit(lo3, hi3, x3, y3, q3, inv3, var3) && q3[2] > 0) {
+      c_den = std::min(c, q3[2]);
+      c_slope = std::max(c, q3[2]);
+    }
   }
-  // The unit's slope |k| from the measured curvature: c·(R/T) = g_c·|k|² + N₂, |N₂| ≤ B₂(|k|).
+  // The unit's slope |k| from the measured curvature: c·(R/T) = g_c·|k|² + N₂, |N₂| ≤ B₂(|k|)/2.
   const Line l = line_terms(nu);
   const double rho = std::min(nu.reference_ratio, 0.5);
-  const double c_hz = c / 1e12 * (1 + rho);               // per Hz², the reference at its high end
+  const double c_hz = c_slope / 1e12 * (1 + rho);         // per Hz², the reference at its high end
   const double g_lo = l.w * (1 + l.x_hat * l.a_lo * l.a_lo);
   double s = std::sqrt(c_hz / g_lo);
   for (int it = 0; it < 20; ++it) s = std::sqrt((c_hz + pair_nuisance_curvature(nu, g_w, s)) / g_lo);
-  // The vertex of (g_c·|k|²+N₂)x² + N₁x lies at −N₁/(2c): |N₁| ≤ B₁ (the slope bound over the window).
+  // The unit's part g_c(|Γ₀|² + |k|²(x − x₀)²) is fitted exactly, so the vertex x_v = x₀ −
+  // (N₁ + 2N₂x₀)/(2c): |x_v − x₀| ≤ (B₁ + B₂·|x_v|)/(2c − B₂), c at the reference's low end.
   const double b1 = pair_nuisance_slope(nu, g_w, s);
-  const double nuisance_hz = b1 / (2 * (c / 1e12) * (1 - rho));
+  const double b2 = pair_nuisance_curvature(nu, g_w, s);
+  const double den = 2 * (c_den / 1e12) * (1 - rho) - b2;
+  if (!(den > 0)) return std::nullopt;   // the terms could curve as much as the unit: no bound
+  const double nuisance_hz = (b1 + b2 * std::fabs(xv) * 1e6) / den;
   const double half_step_hz =
       0.5 * std::max(t.frequency_hz[peak + 1] - f_pk, f_pk - t.frequency_hz[peak - 1]);
   // Lopsided: the cubic places the measured minimum far from the quadratic's vertex.
@@ -269,17 +295,19 @@ double pair_shift_half_width(const PairNuisance& n, double g_edge, double g_boun
   const Line l = line_terms(n);
   const double g_lo = l.w * (1 + l.x_hat * l.a_lo * l.a_lo);
   // The unit's |Γ| at the window's edge as the station bounds it (pair_shift_bound: from the
-  // points' upper bound, two passes of the sum's own bound), and its slope as the station takes
-  // it from the curvature it measures.
+  // points' upper bound, two passes of the sum's own bound), its slope raised as the station
+  // raises it, and the denominator 2c − B₂ as the station takes it (the vertex near the peak).
   const double rho = std::min(n.reference_ratio, 0.5);
   double g = std::min(1.0, g_bound);
   for (int pass = 0; pass < 2; ++pass) {
     g = std::min(g, std::sqrt((g_edge * g_edge * (1 + rho + noise_rel) + pair_nuisance_magnitude(n, g)) / g_lo));
   }
-  const double c = g_lo * s * s;
+  const double c = g_lo * s * s;   // what the station would measure, at the reference's middle
   double s_up = s;
-  for (int it = 0; it < 20; ++it) s_up = std::sqrt((c + pair_nuisance_curvature(n, g, s_up)) / g_lo);
-  return pair_nuisance_slope(n, g, s_up) / (2 * c) + step_hz / 2;
+  for (int it = 0; it < 20; ++it) s_up = std::sqrt((c * (1 + rho) + pair_nuisance_curvature(n, g, s_up)) / g_lo);
+  const double den = 2 * c * (1 - rho) - pair_nuisance_curvature(n, g, s_up);
+  if (!(den > 0)) return std::numeric_limits<double>::infinity();
+  return pair_nuisance_slope(n, g, s_up) / den + step_hz / 2;
 }
 
 }  // namespace echoline::core

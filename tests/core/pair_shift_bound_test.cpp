@@ -184,29 +184,31 @@ void report(const char* what, const Figures& f) {
               what, f.benches, f.bounded, f.outside, median(f.half_width_hz) / 1e6, median(f.rigorous_half_width_hz) / 1e6);
 }
 
-// The bound holds the true resonance on every bench, and is a small part of the points' rigorous
+// The bound holds the true resonance on every bench and is a part of the points' rigorous
 // interval: the half turn cancels the leakage's cross term, so what is left is the line's own
-// mismatch, the connection and second-order terms (MEASUREMENT.md §12.1; measured 2026-12-05:
-// median 2.9 / 11.5 MHz at 35 dB and 4.2 / 14.4 MHz at 25 dB).
+// mismatch, the connection and second-order terms, over a curvature the terms may bend by B₂
+// (MEASUREMENT.md §12.1; measured 2026-12-05: median 3.8 / 11.5 MHz behind 35 dB and
+// 6.5 / 14.2 MHz behind 25 dB).
 TEST(PairShiftBound, TheSumHoldsTheTrueResonanceOfASeriesRlc) {
   for (double dir : {35.0, 25.0}) {
     const Figures f = run(Model::rlc, dir, 300, dir == 35 ? 21 : 22);
     report(dir == 35 ? "series RLC, 35 dB coupler" : "series RLC, 25 dB coupler", f);
     EXPECT_EQ(f.outside, 0);
     EXPECT_GT(f.bounded, 240);
-    EXPECT_LT(median(f.half_width_hz), 0.35 * median(f.rigorous_half_width_hz));
+    EXPECT_LT(median(f.half_width_hz), (dir == 35 ? 0.4 : 0.5) * median(f.rigorous_half_width_hz));
   }
 }
 
-// Broad monopole dips (Q down to 2.5) have a small slope, and every term divides by it
-// (measured 2026-12-05: median 5.1 / 16.9 MHz at 35 dB, 9.2 / 22.5 MHz at 25 dB).
+// Broad monopole dips (Q down to 2.5) have a small slope, and every term divides by it; behind
+// 25 dB the sum is about as wide as the points' rigorous interval (measured 2026-12-05: median
+// 7.7 / 16.9 MHz behind 35 dB, 20.0 / 21.1 MHz behind 25 dB).
 TEST(PairShiftBound, TheSumHoldsTheTrueResonanceOfALineMonopole) {
   for (double dir : {35.0, 25.0}) {
     const Figures f = run(Model::monopole, dir, 300, dir == 35 ? 31 : 32);
     report(dir == 35 ? "line monopole, 35 dB coupler" : "line monopole, 25 dB coupler", f);
     EXPECT_EQ(f.outside, 0);
-    EXPECT_GT(f.bounded, 180);
-    EXPECT_LT(median(f.half_width_hz), 0.5 * median(f.rigorous_half_width_hz));
+    EXPECT_GT(f.bounded, 140);
+    EXPECT_LT(median(f.half_width_hz), (dir == 35 ? 0.55 : 1.0) * median(f.rigorous_half_width_hz));
   }
 }
 

@@ -115,7 +115,7 @@ TEST(RecipeCheck, TheWindowPredictionWithTheOffsetPair) {
   // A deep, well-sampled dip is placed by the pair's sum (MEASUREMENT.md §12.1), whose terms do
   // not carry the leakage at first order; a dip under 12 dB keeps the rigorous interval of the
   // pair's points, and a better LOAD never widens it.
-  EXPECT_LT(deep_pair, 0.3 * deep_one);
+  EXPECT_LT(deep_pair, 0.5 * deep_one);
   EXPECT_LT(deep_pair / deep_one, broad_pair / broad_one);
   EXPECT_LE(fine_pair, deep_pair);
   // The advice: how much better the kit's line match, connection and LOAD must be for 5 %; a kit
