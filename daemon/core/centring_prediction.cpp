@@ -15,6 +15,7 @@
 #include <algorithm>
 #include <cmath>
 #include <numbers>
+#include <string>
 
 #include <fmt/format.h>
 
@@ -137,16 +138,23 @@ std::optional<CentringPrediction> predict_centring(const Recipe& recipe, const S
     const double noise_rel = std::pow(10.0, recipe.coverage_factor * 0.05 / 10) - 1;
     return pair_shift_half_width(n, 2 * g0, g_bound, s, step, noise_rel);
   };
+  std::string kind;   // which interval the last half_width() took
   auto half_width = [&](double e_dir) {
     const double e = radius_at_edge(e_dir);
     const double g0 = g0_given >= 0 ? g0_given : e;
     auto rigorous = [&](double r) { return std::sqrt((g0 + 2 * r) * (g0 + 2 * r) - g0 * g0) / s + step / 2; };
     const double shift = e / s + (g0 + e) * 2 * std::numbers::pi * tau * e / (s * s) + step / 2;
+    kind = p.rigorous ? "rigorous" : "shift-bound";
     if (!pair_line) return p.rigorous ? rigorous(e) : shift;
     const double rig = rigorous(pair_radius(e_dir));
-    return p.rigorous ? rig : std::min({rig, shift, pair_sum_half_width(e_dir, g0)});
+    if (p.rigorous) return rig;
+    const double sum = pair_sum_half_width(e_dir, g0);
+    const double hw = std::min({rig, shift, sum});
+    kind = hw == sum ? "offset pair's sum" : hw == rig ? "rigorous" : "shift-bound";
+    return hw;
   };
   p.half_width_hz = half_width(error_radius);
+  const std::string interval_kind = kind;
   p.inconclusive_fraction = fraction(p.half_width_hz, lo, hi, p.center_hz, p.spread_hz);
   // The coupler directivity that would reach 5 %: E = ρ_D + (E − ρ_D_now); bisect on ρ_D.
   const double fixed = std::max(0.0, error_radius - rho_from_db(station.directivity_db));
@@ -182,7 +190,7 @@ std::optional<CentringPrediction> predict_centring(const Recipe& recipe, const S
                         error_radius, pair_line ? fmt::format("; {:.4f} over the dip with the offset pair",
                                                               pair_radius(error_radius))
                                                 : std::string(),
-                        p.rigorous ? "rigorous" : "shift-bound",
+                        interval_kind,
                         p.spread_hz ? fmt::format("production spread {:.2f} MHz (s.d.)", *p.spread_hz / 1e6)
                                     : std::string("units spread evenly across the window"));
   return p;

@@ -14,6 +14,7 @@
 #include <cstdio>
 #include <numbers>
 #include <random>
+#include <string>
 #include <vector>
 
 #include <gtest/gtest.h>
@@ -184,32 +185,34 @@ void report(const char* what, const Figures& f) {
               what, f.benches, f.bounded, f.outside, median(f.half_width_hz) / 1e6, median(f.rigorous_half_width_hz) / 1e6);
 }
 
+// One model behind both couplers: every truth inside, the bound given for at least
+// `min_bounded` of 300 benches, and its median half-width under `ratio_35` / `ratio_25` of the
+// points' rigorous interval's.
+void check_model(Model model, const char* name, unsigned seed, int min_bounded, double ratio_35, double ratio_25) {
+  for (double dir : {35.0, 25.0}) {
+    const Figures f = run(model, dir, 300, seed + (dir == 35 ? 0 : 1));
+    report((std::string(name) + (dir == 35 ? ", 35 dB coupler" : ", 25 dB coupler")).c_str(), f);
+    EXPECT_EQ(f.outside, 0) << name << " " << dir;
+    EXPECT_GT(f.bounded, min_bounded) << name << " " << dir;
+    EXPECT_LT(median(f.half_width_hz), (dir == 35 ? ratio_35 : ratio_25) * median(f.rigorous_half_width_hz))
+        << name << " " << dir;
+  }
+}
+
 // The bound holds the true resonance on every bench and is a part of the points' rigorous
 // interval: the half turn cancels the leakage's cross term, so what is left is the line's own
 // mismatch, the connection and second-order terms, over a curvature the terms may bend by B₂
 // (MEASUREMENT.md §12.1; measured 2026-12-05: median 3.8 / 11.5 MHz behind 35 dB and
 // 6.5 / 14.2 MHz behind 25 dB).
 TEST(PairShiftBound, TheSumHoldsTheTrueResonanceOfASeriesRlc) {
-  for (double dir : {35.0, 25.0}) {
-    const Figures f = run(Model::rlc, dir, 300, dir == 35 ? 21 : 22);
-    report(dir == 35 ? "series RLC, 35 dB coupler" : "series RLC, 25 dB coupler", f);
-    EXPECT_EQ(f.outside, 0);
-    EXPECT_GT(f.bounded, 240);
-    EXPECT_LT(median(f.half_width_hz), (dir == 35 ? 0.4 : 0.5) * median(f.rigorous_half_width_hz));
-  }
+  check_model(Model::rlc, "series RLC", 21, 240, 0.4, 0.5);
 }
 
 // Broad monopole dips (Q down to 2.5) have a small slope, and every term divides by it; behind
 // 25 dB the sum is about as wide as the points' rigorous interval (measured 2026-12-05: median
 // 7.7 / 16.9 MHz behind 35 dB, 20.0 / 21.1 MHz behind 25 dB).
 TEST(PairShiftBound, TheSumHoldsTheTrueResonanceOfALineMonopole) {
-  for (double dir : {35.0, 25.0}) {
-    const Figures f = run(Model::monopole, dir, 300, dir == 35 ? 31 : 32);
-    report(dir == 35 ? "line monopole, 35 dB coupler" : "line monopole, 25 dB coupler", f);
-    EXPECT_EQ(f.outside, 0);
-    EXPECT_GT(f.bounded, 140);
-    EXPECT_LT(median(f.half_width_hz), (dir == 35 ? 0.55 : 1.0) * median(f.rigorous_half_width_hz));
-  }
+  check_model(Model::monopole, "line monopole", 31, 140, 0.55, 1.0);
 }
 
 // Where its assumptions fail the bound is not given, and the rigorous interval decides: a dip
