@@ -113,8 +113,7 @@ std::optional<CentringPrediction> predict_centring(const Recipe& recipe, const S
     return worst;
   };
   // The pair's sum (MEASUREMENT.md §12.1): what the terms it leaves can move the vertex over the
-  // 6 dB window (the station also tries 3 dB and intersects; the prediction stays on the wider,
-  // which every dip of 12 dB or more has).
+  // 6 dB and the 3 dB window, the smaller (the station intersects the two).
   double kit_factor = 1;   // the kit's small figures scaled together (the advice below)
   auto pair_sum_half_width = [&](double e_dir, double g0) {
     const double conn = recipe.coverage_factor * station.kit.connection_repeatability;
@@ -133,10 +132,9 @@ std::optional<CentringPrediction> predict_centring(const Recipe& recipe, const S
     for (double f : {lo - span, hi + span, f0}) n.turn_error_rad = std::max(n.turn_error_rad, offset_turn_error(f, *pair_line));
     const ReferenceErrorBounds re = reference_error_bounds(station.kit, f0, recipe.calibration.use_short, e_dir, src);
     n.reference_ratio = std::max(std::pow(10.0, re.high_db / 10) - 1, 1 - std::pow(10.0, re.low_db / 10));
-    // At the window's edge the points' upper bound is the unit's |Γ| plus the pair's radius there.
-    const double g_bound = 2 * g0 + pair_radius(e_dir);
+    // The points' upper bound is the unit's |Γ| plus the pair's radius.
     const double noise_rel = std::pow(10.0, recipe.coverage_factor * 0.05 / 10) - 1;
-    return pair_shift_half_width(n, 2 * g0, g_bound, s, step, noise_rel);
+    return pair_shift_half_width(n, g0, pair_radius(e_dir), s, step, noise_rel);
   };
   std::string kind;   // which interval the last half_width() took
   auto half_width = [&](double e_dir) {

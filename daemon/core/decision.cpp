@@ -128,20 +128,20 @@ LimitCheck check_window(DecisionRule rule, const Recipe& recipe, const Analysis&
   const std::string where = interval_text(r);
   if (c.verdict == Verdict::pass) {
     c.detail = fmt::format("resonance at {} is inside the {} window", at, window);
-    if (guarded) c.detail += fmt::format(" (with the coupler's directivity it lies {})", where);
+    if (guarded) c.detail += fmt::format(" (within the measurement's uncertainty it lies {})", where);
   } else if (c.verdict == Verdict::inconclusive) {
     const bool crosses_low = low < lo;
     const bool crosses_high = high > hi;
     const char* edge = crosses_low && crosses_high ? "both edges" : "the edge";
-    c.detail = fmt::format("resonance {}, but with the coupler's directivity it may lie {}, which crosses {} of the {} "
+    c.detail = fmt::format("resonance {}, but within the measurement's uncertainty it may lie {}, which crosses {} of the {} "
                            "window",
                            at, where, edge, window);
   } else if (r.frequency_hz < lo) {
     c.detail = fmt::format("resonance at {} is below the {} window (element too long)", at, window);
-    if (guarded) c.detail += fmt::format("; with the coupler's directivity it lies {}", where);
+    if (guarded) c.detail += fmt::format("; within the measurement's uncertainty it lies {}", where);
   } else {
     c.detail = fmt::format("resonance at {} is above the {} window (element too short)", at, window);
-    if (guarded) c.detail += fmt::format("; with the coupler's directivity it lies {}", where);
+    if (guarded) c.detail += fmt::format("; within the measurement's uncertainty it lies {}", where);
   }
   if (r.at_edge) c.detail += "; the maximum is on the sweep edge, so the resonance may lie outside the sweep";
   return c;

@@ -11,6 +11,8 @@
 #include <cmath>
 #include <limits>
 #include <numbers>
+#include <optional>
+#include <utility>
 
 #include "daemon/core/poly_fit.hpp"
 
@@ -162,6 +164,100 @@ double pair_nuisance_curvature(const PairNuisance& n, double g, double s) {
 
 namespace {
 
+// The bounds between each two neighbouring samples of a fit window, from the two ends' own: the
+// unit's |Γ| and the line's turn error at the larger end (both convex along a straight
+// trajectory: a distance from a point, the largest of two straight lines' sizes), the LOAD's
+// residual too (a step function of the kit's bands; a band narrower than a step between two
+// samples is not looked for), the leakage at the larger end raised for its own turning,
+// |E_D(f)| ≤ |E_D(f_j)|·(1 + ω_τ·|f − f_j|), so by (1 − ω_τΔf/2) at the middle. dist_hz: the
+// interval's farthest reach from the vertex.
+struct IntervalTerms {
+  std::vector<PairNuisance> nu;
+  std::vector<double> g;
+  std::vector<double> dist_hz;
+};
+
+IntervalTerms between_samples(const std::vector<PairNuisance>& nu_pt, const std::vector<double>& g_pt,
+                              const std::vector<double>& f_hz, double vertex_hz) {
+  IntervalTerms iv;
+  for (std::size_t j = 0; j + 1 < nu_pt.size(); ++j) {
+    PairNuisance nu = nu_pt[j];
+    const double half_turn = 0.5 * kTwoPi * nu.error_delay_s * (f_hz[j + 1] - f_hz[j]);
+    nu.leakage = std::max(nu.leakage, nu_pt[j + 1].leakage) / std::max(1e-9, 1 - half_turn);
+    nu.load_residual = std::max(nu.load_residual, nu_pt[j + 1].load_residual);
+    nu.turn_error_rad = std::max(nu.turn_error_rad, nu_pt[j + 1].turn_error_rad);
+    iv.nu.push_back(nu);
+    iv.g.push_back(std::max(g_pt[j], g_pt[j + 1]));
+    iv.dist_hz.push_back(std::max(std::fabs(f_hz[j] - vertex_hz), std::fabs(f_hz[j + 1] - vertex_hz)));
+  }
+  return iv;
+}
+
+// How far the terms N can move the fitted vertex from the unit's resonance (Hz), or +inf where
+// they could curve the parabola as much as the unit does. `k` are the window's kernels at the
+// vertex, `k3` (optional) those of its inner half, whose intervals start at `off3` in `iv`;
+// c_den and c_slope the curvatures (per Hz², as fitted, less and plus their noise at the
+// coverage factor) for the denominator and for |k|.
+//   The unit's part g_c·(|Γ₀|² + |k|²(x − x₀)²) is fitted exactly, so at the vertex
+//   0 = 2g_c|k|²(x_v − x₀) + N̂′(x_v): |x_v − x₀| = |N̂′(x_v)|/(2g_c|k|²), 2g_c|k|² = 2c − N̂″
+//   ≥ 2c(1 − ρ) − B₂ =: den, |N̂′(x_v)| ≤ Σ∫|K₁|·|N′| and |N̂″| ≤ 2Σ∫|K₂|·|N″| (poly_fit.hpp).
+//   B₁ = A + B·|k| (every term of N′ at most linear in |Γ′|): A/den + B·|k|/(2g_c|k|²), the
+//   second part at most B·s/den (s ≥ |k|) and at most B/√(2g_c,lo·den) (|k|² ≥ den/(2g_c)).
+//   The reference's ripple ε(x) scales y; about the vertex (1 + ε)y = (1 + ε(x_v))y + (ε − ε(x_v))y,
+//   the first a scale that moves no vertex, the second's slope ε′y (T9) and (ε − ε(x_v))·y′,
+//   at most ω_τρ·|x − x_v|·|y′|, added here interval by interval.
+double vertex_nuisance(const IntervalTerms& iv, const FitKernels& k, const FitKernels* k3, std::size_t off3,
+                       double c_den, double c_slope, const PairNuisance& base) {
+  const Line l = line_terms(base);
+  const double rho = std::min(base.reference_ratio, 0.5);
+  const double g_lo = l.w * (1 + l.x_hat * l.a_lo * l.a_lo), g_hi = l.w * (1 + l.x_hat * l.a_hi * l.a_hi);
+  if (!(c_den > 0) || !(c_slope > 0)) return std::numeric_limits<double>::infinity();
+  auto curvature_bound = [&](const FitKernels& kk, std::size_t first, double s) {
+    double b = 0;
+    for (std::size_t j = 0; j < kk.curvature.size(); ++j) {
+      b += kk.curvature[j] * pair_nuisance_curvature(iv.nu[first + j], iv.g[first + j], s);
+    }
+    return 2 * b;   // per Hz²: the kernels are dimensionless
+  };
+  auto b2_of = [&](double s) {
+    double b = curvature_bound(k, 0, s);
+    if (k3) b = std::max(b, curvature_bound(*k3, off3, s));
+    return b;
+  };
+  const double ripple_rate = kTwoPi * base.error_delay_s * rho / ((1 - rho) * (1 - rho));
+  auto b1_of = [&](double s) {
+    double b = 0;
+    for (std::size_t j = 0; j < k.slope.size(); ++j) {
+      const double n1 = pair_nuisance_slope(iv.nu[j], iv.g[j], s);
+      const double y1 = 2 * g_hi * iv.g[j] * s + n1;   // |y′| there
+      b += k.slope[j] * (n1 + ripple_rate * iv.dist_hz[j] * y1);
+    }
+    return b;   // per Hz
+  };
+  // The unit's slope |k| from the measured curvature: c·(R/T) = g_c·|k|² + N̂″/2, so
+  // |k|² ≤ (c(1 + ρ) + B₂(|k|)/2)/g_c,lo, by iteration.
+  const double c_hz = c_slope * (1 + rho);
+  double s = std::sqrt(c_hz / g_lo);
+  // From below, each step a little past the map's value, until s is at or above its image: then
+  // s is at or above the map's one fixed point, which bounds |k|.
+  double b2 = b2_of(s);
+  bool above = false;
+  for (int it = 0; it < 60 && !above; ++it) {
+    const double next = std::sqrt((c_hz + 0.5 * b2) / g_lo);
+    if (next <= s) {
+      above = true;
+    } else {
+      s = next * 1.001;
+      b2 = b2_of(s);
+    }
+  }
+  if (!above) return std::numeric_limits<double>::infinity();   // no fixed point in reach: no bound
+  const double den = 2 * c_den * (1 - rho) - b2;
+  if (!(den > 0)) return std::numeric_limits<double>::infinity();
+  const double a = b1_of(0), b = (b1_of(s) - a) / s;
+  return a / den + b * std::min(s / den, 1 / std::sqrt(2 * g_lo * den));
+}
+
 // The bound from the points within `below_db` of the peak.
 std::optional<PairShiftBound> bound_over(const PairSumTrace& t, std::size_t peak, double below_db) {
   const std::size_t n = t.y.size();
@@ -176,9 +272,9 @@ std::optional<PairShiftBound> bound_over(const PairSumTrace& t, std::size_t peak
   if (peak - lo < 2 || hi - peak < 2) return std::nullopt;   // too sparse to fit
   if (lo == 0 || hi + 1 == n) return std::nullopt;           // broad: the dip runs off the sweep
   const double f_pk = t.frequency_hz[peak];
-  PairNuisance nu = t.nuisance;
-  nu.leakage = nu.load_residual = nu.turn_error_rad = 0;
-  double g_w = 0;
+  for (std::size_t i = lo; i <= hi; ++i) {
+    if (!t.usable[i]) return std::nullopt;
+  }
   auto fit = [&](std::size_t a, std::size_t b, std::vector<double>& x, std::vector<double>& y, double* q,
                  double (*inv)[4], double& var) {
     x.clear();
@@ -192,27 +288,27 @@ std::optional<PairShiftBound> bound_over(const PairSumTrace& t, std::size_t peak
     var /= static_cast<double>(x.size());
     return least_squares(x, y, 3, q, inv);
   };
+  // Each point's own bounds: its leakage, LOAD residual and turn error, and the unit's |Γ| from
+  // the sum itself, g_c·|Γ|² ≤ y·(1 + ρ) + k·σ_y + |N|, |N| bounded at the point's own |Γ| bound
+  // (twice, each pass a valid bound); never above the point's interval. Tighter than the points'
+  // bounds where the leakage's size is poorly known.
+  const Line l = line_terms(t.nuisance);
+  const double rho = std::min(t.nuisance.reference_ratio, 0.5);
+  const double g_lo = l.w * (1 + l.x_hat * l.a_lo * l.a_lo);
+  std::vector<PairNuisance> nu_pt;
+  std::vector<double> g_pt;
   for (std::size_t i = lo; i <= hi; ++i) {
-    if (!t.usable[i]) return std::nullopt;
-    nu.leakage = std::max(nu.leakage, t.leakage[i]);
-    nu.load_residual = std::max(nu.load_residual, t.load_residual[i]);
-    nu.turn_error_rad = std::max(nu.turn_error_rad, t.turn_error_rad[i]);
-  }
-  // The unit's |Γ| over the window from the sum itself: g_c·|Γ|² ≤ y·(1 + ρ) + k·σ_y + |N|, |N|
-  // bounded at the point's own |Γ| bound (twice, each pass a valid bound); never above the
-  // point's interval. Tighter than the points' bounds where the leakage's size is poorly known.
-  {
-    const Line lt = line_terms(nu);
-    const double g_lo = lt.w * (1 + lt.x_hat * lt.a_lo * lt.a_lo);
-    const double rho_hi = 1 + std::min(nu.reference_ratio, 0.5);
-    for (std::size_t i = lo; i <= hi; ++i) {
-      double g = std::min(1.0, t.gamma_high[i]);
-      for (int pass = 0; pass < 2; ++pass) {
-        const double g2 = (std::max(0.0, t.y[i]) * rho_hi + t.coverage_factor * t.sigma_y[i] + pair_nuisance_magnitude(nu, g)) / g_lo;
-        g = std::min(g, std::sqrt(g2));
-      }
-      g_w = std::max(g_w, g);
+    PairNuisance nu = t.nuisance;
+    nu.leakage = t.leakage[i];
+    nu.load_residual = t.load_residual[i];
+    nu.turn_error_rad = t.turn_error_rad[i];
+    double g = std::min(1.0, t.gamma_high[i]);
+    for (int pass = 0; pass < 2; ++pass) {
+      const double g2 = (std::max(0.0, t.y[i]) * (1 + rho) + t.coverage_factor * t.sigma_y[i] + pair_nuisance_magnitude(nu, g)) / g_lo;
+      g = std::min(g, std::sqrt(g2));
     }
+    nu_pt.push_back(nu);
+    g_pt.push_back(g);
   }
   std::vector<double> x, y;
   double q[4], inv[4][4], var = 0;
@@ -222,35 +318,35 @@ std::optional<PairShiftBound> bound_over(const PairSumTrace& t, std::size_t peak
   const double xv = -q[1] / (2 * c);
   if (xv < x.front() || xv > x.back()) return std::nullopt;
   const double sigma_xv = vertex_sigma(x, y, q, inv, var);
+  // The curvature's own noise, at the coverage factor: lower for the denominator, higher for |k|.
+  const double c_noise = t.coverage_factor * std::sqrt(fit_variance(x, y, q, var) * inv[2][2]);
   const double gap = std::fabs(cubic_minimum_near(x, y, xv) - xv);
   // A flat-bottomed dip curves less near its bottom than over the whole window: the curvature
   // over the inner half (in dB), where that has points enough, when smaller, for the denominator;
   // the larger for the unit's slope, which must bound it over the whole window.
-  double c_den = c, c_slope = c;
+  double c_den = c - c_noise, c_slope = c + c_noise;
+  std::optional<FitKernels> kern3;
+  std::size_t lo3 = 0, hi3 = 0;
   {
-    std::size_t lo3 = 0, hi3 = 0;
     window(below_db / 2, lo3, hi3);
     std::vector<double> x3, y3;
     double q3[4], inv3[4][4], var3 = 0;
     if (peak - lo3 >= 2 && hi3 - peak >= 2 && fit(lo3, hi3, x3, y3, q3, inv3, var3) && q3[2] > 0) {
-      c_den = std::min(c, q3[2]);
-      c_slope = std::max(c, q3[2]);
+      const double c3_noise = t.coverage_factor * std::sqrt(fit_variance(x3, y3, q3, var3) * inv3[2][2]);
+      c_den = std::min(c_den, q3[2] - c3_noise);
+      c_slope = std::max(c_slope, q3[2] + c3_noise);
+      kern3 = quadratic_fit_kernels(x3, inv3, -q3[1] / (2 * q3[2]));
     }
   }
-  // The unit's slope |k| from the measured curvature: c·(R/T) = g_c·|k|² + N₂, |N₂| ≤ B₂(|k|)/2.
-  const Line l = line_terms(nu);
-  const double rho = std::min(nu.reference_ratio, 0.5);
-  const double c_hz = c_slope / 1e12 * (1 + rho);         // per Hz², the reference at its high end
-  const double g_lo = l.w * (1 + l.x_hat * l.a_lo * l.a_lo);
-  double s = std::sqrt(c_hz / g_lo);
-  for (int it = 0; it < 20; ++it) s = std::sqrt((c_hz + pair_nuisance_curvature(nu, g_w, s)) / g_lo);
-  // The unit's part g_c(|Γ₀|² + |k|²(x − x₀)²) is fitted exactly, so the vertex x_v = x₀ −
-  // (N₁ + 2N₂x₀)/(2c): |x_v − x₀| ≤ (B₁ + B₂·|x_v|)/(2c − B₂), c at the reference's low end.
-  const double b1 = pair_nuisance_slope(nu, g_w, s);
-  const double b2 = pair_nuisance_curvature(nu, g_w, s);
-  const double den = 2 * (c_den / 1e12) * (1 - rho) - b2;
-  if (!(den > 0)) return std::nullopt;   // the terms could curve as much as the unit: no bound
-  const double nuisance_hz = (b1 + b2 * std::fabs(xv) * 1e6) / den;
+  // The reference's scale enters c as a mean only where K₂ keeps its sign (T9 below).
+  const FitKernels kern = quadratic_fit_kernels(x, inv, xv);
+  if (!kern.curvature_one_sign || (kern3 && !kern3->curvature_one_sign)) return std::nullopt;
+  const std::vector<double> f_win(t.frequency_hz.begin() + static_cast<long>(lo),
+                                  t.frequency_hz.begin() + static_cast<long>(hi) + 1);
+  const double nuisance_hz =
+      vertex_nuisance(between_samples(nu_pt, g_pt, f_win, f_pk + xv * 1e6), kern,
+                      kern3 ? &*kern3 : nullptr, lo3 - lo, c_den / 1e12, c_slope / 1e12, t.nuisance);
+  if (!std::isfinite(nuisance_hz)) return std::nullopt;   // the terms could curve as much as the unit
   const double half_step_hz =
       0.5 * std::max(t.frequency_hz[peak + 1] - f_pk, f_pk - t.frequency_hz[peak - 1]);
   // Lopsided: the cubic places the measured minimum far from the quadratic's vertex.
@@ -290,24 +386,52 @@ std::optional<PairShiftBound> pair_shift_bound(const PairSumTrace& t, std::size_
   return out;
 }
 
-double pair_shift_half_width(const PairNuisance& n, double g_edge, double g_bound, double s, double step_hz,
+double pair_shift_half_width(const PairNuisance& n, double g0, double radius, double s, double step_hz,
                              double noise_rel) {
   const Line l = line_terms(n);
   const double g_lo = l.w * (1 + l.x_hat * l.a_lo * l.a_lo);
-  // The unit's |Γ| at the window's edge as the station bounds it (pair_shift_bound: from the
-  // points' upper bound, two passes of the sum's own bound), its slope raised as the station
-  // raises it, and the denominator 2c − B₂ as the station takes it (the vertex near the peak).
   const double rho = std::min(n.reference_ratio, 0.5);
-  double g = std::min(1.0, g_bound);
-  for (int pass = 0; pass < 2; ++pass) {
-    g = std::min(g, std::sqrt((g_edge * g_edge * (1 + rho + noise_rel) + pair_nuisance_magnitude(n, g)) / g_lo));
+  // The nominal dip |Γ|² = g0² + s²x², sampled every step with a sample on its resonance, fitted
+  // as the station fits it (pair_shift_bound: each point's |Γ| bounded by the points' interval
+  // and twice by the sum itself, the window's kernels, its inner half's).
+  auto points = [&](double below_db) {
+    const double span = std::sqrt(std::pow(10.0, below_db / 10) - 1) * g0 / s;
+    const int m = static_cast<int>(std::floor(span / step_hz + 1e-9));
+    std::vector<double> x;
+    for (int i = -m; i <= m; ++i) x.push_back(i * step_hz / 1e6);
+    return x;
+  };
+  auto kernels = [&](const std::vector<double>& x) -> std::optional<FitKernels> {
+    if (x.size() < 5) return std::nullopt;   // fewer than 2 points each side: the station refuses
+    std::vector<double> y;
+    for (double xi : x) y.push_back(xi * xi);
+    double q[4], inv[4][4];
+    if (!least_squares(x, y, 3, q, inv)) return std::nullopt;
+    return quadratic_fit_kernels(x, inv, 0.0);
+  };
+  double best = std::numeric_limits<double>::infinity();
+  for (double below_db : {6.0, 3.0}) {
+    const std::vector<double> x = points(below_db), x3 = points(below_db / 2);
+    const auto k = kernels(x);
+    if (!k) continue;
+    const auto k3 = kernels(x3);
+    std::vector<PairNuisance> nu_pt(x.size(), n);
+    std::vector<double> g_pt;
+    for (double xi : x) {
+      const double gt = std::sqrt(g0 * g0 + s * s * xi * xi * 1e12);
+      double g = std::min(1.0, gt + radius);
+      for (int pass = 0; pass < 2; ++pass) {
+        g = std::min(g, std::sqrt((gt * gt * (1 + rho + noise_rel) + pair_nuisance_magnitude(n, g)) / g_lo));
+      }
+      g_pt.push_back(g);
+    }
+    const double c = g_lo * s * s;   // what the station would measure, at the reference's middle
+    std::vector<double> f_hz;
+    for (double xi : x) f_hz.push_back(xi * 1e6);
+    best = std::min(best, vertex_nuisance(between_samples(nu_pt, g_pt, f_hz, 0.0), *k, k3 ? &*k3 : nullptr,
+                                          (x.size() - x3.size()) / 2, c, c, n));
   }
-  const double c = g_lo * s * s;   // what the station would measure, at the reference's middle
-  double s_up = s;
-  for (int it = 0; it < 20; ++it) s_up = std::sqrt((c * (1 + rho) + pair_nuisance_curvature(n, g, s_up)) / g_lo);
-  const double den = 2 * c * (1 - rho) - pair_nuisance_curvature(n, g, s_up);
-  if (!(den > 0)) return std::numeric_limits<double>::infinity();
-  return pair_nuisance_slope(n, g, s_up) / den + step_hz / 2;
+  return best + step_hz / 2;
 }
 
 }  // namespace echoline::core

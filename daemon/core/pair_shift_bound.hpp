@@ -51,7 +51,7 @@ struct PairSumTrace {
   std::vector<double> load_residual;
   std::vector<double> turn_error_rad;
   std::vector<bool> usable;         // the pair was usable at the point
-  PairNuisance nuisance;            // leakage, load_residual and turn_error_rad are set per window
+  PairNuisance nuisance;            // the bench; its leakage, load_residual and turn_error_rad are ignored (per point above)
   double coverage_factor = 3;
   bool empty() const { return y.empty(); }
 };
@@ -59,7 +59,7 @@ struct PairSumTrace {
 struct PairShiftBound {
   double center_hz = 0;       // the sum's vertex
   double half_width_hz = 0;   // nuisance + k·σ + model gap + half a step
-  double nuisance_hz = 0;     // B1/(2c): what the terms the sum leaves can move the vertex
+  double nuisance_hz = 0;     // what the terms the sum leaves can move the vertex, B₁/(2c(1 − ρ) − B₂)
   double statistical_hz = 0;  // k·σ of the vertex
   double gap_hz = 0;          // the cubic's minimum against the quadratic's
 };
@@ -71,11 +71,11 @@ struct PairShiftBound {
 // or a lopsided dip (the cubic's minimum far from the quadratic's).
 std::optional<PairShiftBound> pair_shift_bound(const PairSumTrace& t, std::size_t peak);
 
-// The predicted half-width for a nominal dip of slope s (per Hz) whose |Γ| reaches g_edge at the
-// fit window's edges, where the points' own upper bound is g_bound and the readings' noise at the
-// coverage factor is noise_rel of the power; sampled every `step_hz`; before any unit is read
-// (centring_prediction.cpp).
-double pair_shift_half_width(const PairNuisance& n, double g_edge, double g_bound, double s, double step_hz,
+// The predicted half-width for a nominal dip |Γ|² = g0² + s²(f − f₀)² (s per Hz) whose points'
+// own upper bound is |Γ| + `radius`, the readings' noise at the coverage factor `noise_rel` of
+// the power, sampled every `step_hz`: the station's bound over its 6 dB and 3 dB windows, the
+// smaller; +inf where neither is given; before any unit is read (centring_prediction.cpp).
+double pair_shift_half_width(const PairNuisance& n, double g0, double radius, double s, double step_hz,
                              double noise_rel);
 
 }  // namespace echoline::core

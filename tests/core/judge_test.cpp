@@ -193,7 +193,7 @@ TEST(Judge, WindowIntervalCrossingTheEdgeIsInconclusiveGuardedAndPassSimple) {
     EXPECT_GT(*j.metrics.resonance_high_hz, 925e6);   // crosses the upper window edge
     if (rule == DecisionRule::guarded) {
       EXPECT_EQ(j.verdict, Verdict::inconclusive) << j.reason;
-      EXPECT_TRUE(has(j.reason, "resonance 923.5 MHz, but with the coupler's directivity it may lie anywhere in "))
+      EXPECT_TRUE(has(j.reason, "resonance 923.5 MHz, but within the measurement's uncertainty it may lie anywhere in "))
           << j.reason;
       EXPECT_TRUE(has(j.reason, "which crosses the edge of the 905\u2013925 MHz window")) << j.reason;
       // Trim advice only when the whole interval lies outside the window: here it does not.
@@ -214,8 +214,8 @@ TEST(Judge, WindowIntervalWhollyOutsideFailsAndWhollyInsidePassesGuarded) {
   EXPECT_GT(*high.metrics.resonance_low_hz, 925e6);
   EXPECT_EQ(high.verdict, Verdict::fail) << high.reason;
   EXPECT_EQ(high.failure_class, FailureClass::tuned_high);
-  EXPECT_TRUE(has(high.reason, "above the 905\u2013925 MHz window (element too short); with the coupler's "
-                               "directivity it lies anywhere in "))
+  EXPECT_TRUE(has(high.reason, "above the 905\u2013925 MHz window (element too short); within the "
+                               "measurement's uncertainty it lies anywhere in "))
       << high.reason;
 
   Judgement mid = judge(r, cal, tilted_dip(r, cal, 917.5e6));   // measured peak 915 MHz
