@@ -107,6 +107,13 @@ void print_centring(const core::Recipe& r, const core::StationCapability& cap, c
     std::cout << fmt::format("; with the offset pair, 5 % needs the kit's line match, connection and LOAD each {:.1f} dB better",
                              *p->kit_gain_for_5_percent_db);
   }
+  if (p->kit_gain_at_coupler_db) {
+    std::cout << (*p->kit_gain_at_coupler_db == 0
+                      ? std::string("; with the offset pair and the test port at the coupler (no test-port cable), 5 %")
+                      : fmt::format("; with the offset pair and the test port at the coupler (no test-port cable), 5 % "
+                                    "needs the kit {:.1f} dB better",
+                                    *p->kit_gain_at_coupler_db));
+  }
   std::cout << "\n";
 }
 

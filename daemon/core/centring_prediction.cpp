@@ -70,7 +70,7 @@ std::optional<CentringPrediction> predict_centring(const Recipe& recipe, const S
   }
   p.slope_per_hz = p.q / f0;
   p.error_radius = error_radius;
-  const double tau = 2 * station.test_port_delay_s + 1e-9;
+  double tau = 2 * station.test_port_delay_s + 1e-9;   // the error delay (MEASUREMENT.md §6.2)
   const double step = step_near(recipe, f0);
   const auto plan = plan_frequencies(recipe);
   const double g0_given = recipe.nominal.depth_db ? gamma_from_return_loss(*recipe.nominal.depth_db) : -1;
@@ -173,13 +173,24 @@ std::optional<CentringPrediction> predict_centring(const Recipe& recipe, const S
       kit_factor = 1;
       return f;
     };
-    if (at(40) <= 0.05) {
+    auto gain_for_5_percent = [&]() -> std::optional<double> {
+      if (at(0) <= 0.05) return 0.0;
+      if (at(40) > 0.05) return std::nullopt;
       double a = 0, b = 40;
       for (int i = 0; i < 40; ++i) {
         const double m = (a + b) / 2;
         (at(m) <= 0.05 ? b : a) = m;
       }
-      p.kit_gain_for_5_percent_db = b;
+      return b;
+    };
+    p.kit_gain_for_5_percent_db = gain_for_5_percent();
+    // The same with the test port at the coupler (no cable: the error terms turn over the
+    // coupler's own 1 ns), which slows every turning term of the sum's bound.
+    if (station.test_port_delay_s > 0) {
+      const double keep = tau;
+      tau = 1e-9;
+      p.kit_gain_at_coupler_db = gain_for_5_percent();
+      tau = keep;
     }
   }
   p.basis = fmt::format("Q {:.1f} at {:.3f} MHz, {}, error radius {:.4f} (|\u0393|{}), {} interval, {}", p.q, f0 / 1e6,

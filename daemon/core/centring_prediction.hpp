@@ -30,6 +30,9 @@ struct CentringPrediction {
   // With the offset pair: how many dB better the kit's line match, connection repeatability and
   // LOAD would each have to be for 5 % (empty when even 40 dB would not, or it is already met).
   std::optional<double> kit_gain_for_5_percent_db;
+  // The same with the test port moved to the coupler (no test-port cable; 0 when that alone would
+  // do; empty when even 40 dB would not, or no advice is given).
+  std::optional<double> kit_gain_at_coupler_db;
   std::string basis;              // one line: what the prediction assumed
 };
 

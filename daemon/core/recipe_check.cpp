@@ -15,6 +15,28 @@
 #include "daemon/core/offset_pair_check.hpp"
 
 namespace echoline::core {
+
+namespace {
+// What the offset pair's kit and fixture would need for 5 % of units inconclusive (empty when no
+// advice is given).
+std::string pair_kit_advice(const CentringPrediction& p) {
+  const auto kit = [](double db) {
+    return fmt::format("a kit whose line match, connection repeatability and LOAD are each {:.1f} dB better", db);
+  };
+  std::string at_coupler;
+  if (p.kit_gain_at_coupler_db) {
+    at_coupler = *p.kit_gain_at_coupler_db == 0
+                     ? std::string("the test port moved to the coupler (no test-port cable) would")
+                     : fmt::format("with the test port at the coupler (no test-port cable), {} would",
+                                   kit(*p.kit_gain_at_coupler_db));
+  }
+  if (p.kit_gain_for_5_percent_db) {
+    return fmt::format("; with the offset pair, {} would{}", kit(*p.kit_gain_for_5_percent_db),
+                       at_coupler.empty() ? std::string() : "; " + at_coupler);
+  }
+  return at_coupler.empty() ? std::string() : "; with the offset pair, " + at_coupler;
+}
+}  // namespace
 namespace {
 
 // Rule of thumb (common practice, no source): directivity should exceed the RL to be
@@ -273,12 +295,7 @@ std::vector<CheckFinding> check_recipe(const Recipe& r, const StationCapability&
                                ? fmt::format("a coupler of at least {:.1f} dB directivity would bring it to 5 %",
                                              *p->directivity_for_5_percent_db)
                                : std::string("no coupler would bring it to 5 % with this kit's LOAD");
-        if (p->kit_gain_for_5_percent_db) {
-          help += fmt::format(
-              "; with the offset pair, a kit whose line match, connection repeatability and LOAD are each {:.1f} dB "
-              "better would",
-              *p->kit_gain_for_5_percent_db);
-        }
+        help += pair_kit_advice(*p);
         add(out, "warning", "/limits/resonance_min_hz",
             fmt::format("this station places the resonance only to about \u00b1{:.1f} MHz, so about {:.0f} % of {} "
                         "will come out inconclusive for the {} window; {}, or express centring as return-loss mask "
