@@ -132,6 +132,7 @@ std::optional<CentringPrediction> predict_centring(const Recipe& recipe, const S
     for (double f : {lo - span, hi + span, f0}) n.turn_error_rad = std::max(n.turn_error_rad, offset_turn_error(f, *pair_line));
     const ReferenceErrorBounds re = reference_error_bounds(station.kit, f0, recipe.calibration.use_short, e_dir, src);
     n.reference_ratio = std::max(std::pow(10.0, re.high_db / 10) - 1, 1 - std::pow(10.0, re.low_db / 10));
+    cover_reference_turning(n, re.low_db, re.high_db, e_dir, src);
     // The points' upper bound is the unit's |Γ| plus the pair's radius.
     const double noise_rel = std::pow(10.0, recipe.coverage_factor * 0.05 / 10) - 1;
     return pair_shift_half_width(n, g0, pair_radius(e_dir), s, step, noise_rel);

@@ -96,6 +96,8 @@ PairSumTrace offset_pair_sum(const UncertaintyBudget& b, const std::vector<doubl
     const double hi = std::pow(10.0, b.reference_error_high_db[i] / 10) - 1;
     const double lo = 1 - std::pow(10.0, b.reference_error_low_db[i] / 10);
     t.nuisance.reference_ratio = std::max({t.nuisance.reference_ratio, std::fabs(hi), std::fabs(lo)});
+    cover_reference_turning(t.nuisance, b.reference_error_low_db[i], b.reference_error_high_db[i],
+                            lb.directivity_bound[i], b.source_match);
   }
   return t;
 }

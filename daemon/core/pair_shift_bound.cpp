@@ -52,6 +52,14 @@ Rates rates(const PairNuisance& n) {
                kTwoPi * kConnectionTurnDelayS, kTwoPi * kLoadTurnDelayS};
 }
 
+// The reference error's size as it turns, for the slope and for the curvature.
+double reference_slope_ratio(const PairNuisance& n) {
+  return n.reference_slope_ratio >= 0 ? n.reference_slope_ratio : std::min(n.reference_ratio, 0.5);
+}
+double reference_curvature_ratio(const PairNuisance& n) {
+  return n.reference_curvature_ratio >= 0 ? n.reference_curvature_ratio : std::min(n.reference_ratio, 0.5);
+}
+
 // A term of N as A(f)·Γ^m with |A| ≤ a0, |A'| ≤ a1, |A''| ≤ a2: on a straight trajectory
 // (Γ'' = 0, |Γ'| ≤ s, |Γ| ≤ g), |(A·Γ^m)''| ≤ a2·g^m + 2·a1·m·g^(m−1)·s + a0·m(m−1)·g^(m−2)·s².
 double term_curvature(double a0, double a1, double a2, int m, double g, double s) {
@@ -75,6 +83,28 @@ double split_curvature(double amp, double k_abs, double r1, double k_turn, doubl
 }
 
 }  // namespace
+
+void cover_reference_turning(PairNuisance& n, double reference_low_db, double reference_high_db, double leakage,
+                             double source_match) {
+  // uncertainty.cpp: high = 8.686·(first + second) dB, first ½·|ε(1/Γ_o + 1/Γ_s) + E_S(…)| (turning
+  // with the leakage and the source match), second at most w²/(2(1 − w)), w = ε/ρ_min +
+  // σ_S/(1 − σ_S) (their squares: twice the rate); low = loss − high, the loss ½(20log ρ_o +
+  // 20log ρ_s) ≥ 20log ρ_min. The second order as large as it can be, the rest first order.
+  const double ripple_np = std::max(0.0, reference_high_db) / (20 / std::log(10.0));
+  const double loss_db = std::min(0.0, reference_low_db + reference_high_db);
+  const double rho_min = std::pow(10.0, loss_db / 10);
+  const double w = leakage / rho_min + source_match / (1 - std::min(source_match, 0.5));
+  const double second = std::min(ripple_np, w < 1 ? w * w / (2 * (1 - w)) : ripple_np);
+  const double first = ripple_np - second;
+  const double ripple = std::pow(10.0, std::max(0.0, reference_high_db) / 10) - 1;   // as a power ratio
+  const double loss = 1 - std::pow(10.0, loss_db / 10);
+  const double share1 = ripple_np > 0 ? first / ripple_np : 0, share2 = ripple_np > 0 ? second / ripple_np : 0;
+  const double slow = kStandardLossTurnDelayS / std::max(n.error_delay_s, 1e-12);
+  n.reference_slope_ratio =
+      std::max(n.reference_slope_ratio, ripple * (share1 + 2 * share2) + loss * slow);
+  n.reference_curvature_ratio =
+      std::max(n.reference_curvature_ratio, ripple * (share1 + 4 * share2) + loss * slow * slow);
+}
 
 double pair_nuisance_slope(const PairNuisance& n, double g, double s) {
   const Line l = line_terms(n);
@@ -111,7 +141,7 @@ double pair_nuisance_slope(const PairNuisance& n, double g, double s) {
   const double t10 = w * xh * (6 * a * a * S * M * (2 * g * s + g * g * om10) + 4 * E * S * M * a * (s + g * om10));
   // T9: the reference error R/T turning over the dip scales the sum, (g + E)²·ρ'.
   const double rho = std::min(n.reference_ratio, 0.5);
-  const double t9 = (g + E) * (g + E) * r.e * rho / ((1 - rho) * (1 - rho));
+  const double t9 = (g + E) * (g + E) * r.e * reference_slope_ratio(n) / ((1 - rho) * (1 - rho));
   return t1 + t2 + t3 + t4 + t5 + t6 + t7 + t8 + t9 + t10;
 }
 
@@ -156,8 +186,9 @@ double pair_nuisance_curvature(const PairNuisance& n, double g, double s) {
   // T9: the reference's ripple scales y: |(y·ε)''| ≤ |y''|·ε + 2|y'|·|ε'| + y·|ε''|.
   {
     const double rho = std::min(n.reference_ratio, 0.5), yy = (g + E) * (g + E);
+    const double rho1 = reference_slope_ratio(n), rho2 = reference_curvature_ratio(n);
     // y''·ε is the curvature's own scale error, taken by c at (1 − ρ); the rest here.
-    b += (2 * (2 * (g + E) * s) * r.e * rho + yy * r.e * r.e * rho) / ((1 - rho) * (1 - rho));
+    b += (2 * (2 * (g + E) * s) * r.e * rho1 + yy * r.e * r.e * rho2) / ((1 - rho) * (1 - rho));
   }
   return b;
 }
@@ -224,7 +255,7 @@ double vertex_nuisance(const IntervalTerms& iv, const FitKernels& k, const FitKe
     if (k3) b = std::max(b, curvature_bound(*k3, off3, s));
     return b;
   };
-  const double ripple_rate = kTwoPi * base.error_delay_s * rho / ((1 - rho) * (1 - rho));
+  const double ripple_rate = kTwoPi * base.error_delay_s * reference_slope_ratio(base) / ((1 - rho) * (1 - rho));
   auto b1_of = [&](double s) {
     double b = 0;
     for (std::size_t j = 0; j < k.slope.size(); ++j) {

@@ -23,12 +23,25 @@ struct PairNuisance {
   OffsetLine line;               // the kit's line (delay, loss, match, tolerances)
   double turn_error_rad = 0;     // the largest |arg(t²) − π| over the dip
   double reference_ratio = 0;    // largest |R/T − 1| the reference error allows (bounded part)
+  // The same weighted by how fast its parts turn, as ratios at the error delay's rate: for the
+  // slope (ω) and for the curvature (ω²). Negative: all of reference_ratio turns at that rate.
+  double reference_slope_ratio = -1;
+  double reference_curvature_ratio = -1;
 };
+
+// The reference error R/T − 1 (uncertainty.cpp: a ripple of first and second order in the
+// leakage and source match over the standards, and the standards' own loss) by parts: the first
+// order turns at the error delay's rate, the second at twice it, the loss no faster than
+// kStandardLossTurnDelayS. Raises `n`'s ratios to cover this point's; from the point's bounds
+// (dB, as the budget states them), its leakage bound and the source match.
+void cover_reference_turning(PairNuisance& n, double reference_low_db, double reference_high_db, double leakage,
+                             double source_match);
 
 // Allowances the kit does not state, taken generously (MEASUREMENT.md §12.1).
 inline constexpr double kLoadTurnDelayS = 0.5e-9;        // the LOAD's own reflection turns no faster
 inline constexpr double kConnectionTurnDelayS = 1.0e-9;  // the unit's connection error turns no faster
 inline constexpr double kLineMatchExtraDelayS = 0.5e-9;  // beyond the line's round trip, for its ends
+inline constexpr double kStandardLossTurnDelayS = 0.5e-9;  // the OPEN's and SHORT's own loss turns no faster
 
 // Bound of the slope (per Hz) of everything in the sum besides the unit's own |Γ|², over a region
 // where the unit's |Γ| ≤ g and |dΓ/df| ≤ s (per Hz).
