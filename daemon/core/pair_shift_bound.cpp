@@ -292,11 +292,26 @@ double vertex_nuisance(const IntervalTerms& iv, const FitKernels& k, const FitKe
 // The bound from the points within `below_db` of the peak.
 std::optional<PairShiftBound> bound_over(const PairSumTrace& t, std::size_t peak, double below_db) {
   const std::size_t n = t.y.size();
-  const double peak_rl = t.return_loss_db[peak];
+  const Line l = line_terms(t.nuisance);
+  const double g_lo = l.w * (1 + l.x_hat * l.a_lo * l.a_lo);
+  // The windows' levels are set under the dip's bottom, taken as at least what the terms N and
+  // the noise could make of it there: where N is as large as the unit's |Γ₀|² (a 25 dB coupler)
+  // the bottom's estimate can read 45 dB on a 26 dB unit, and a window under that estimate would
+  // shrink to a few points. Any window bounds (12.1); this one spans the unit's own dip.
+  double bottom_rl = t.return_loss_db[peak];
+  {
+    PairNuisance nu = t.nuisance;
+    nu.leakage = t.leakage[peak];
+    nu.load_residual = t.load_residual[peak];
+    nu.turn_error_rad = t.turn_error_rad[peak];
+    const double floor_y =
+        (pair_nuisance_magnitude(nu, std::min(1.0, t.gamma_high[peak])) + t.coverage_factor * t.sigma_y[peak]) / g_lo;
+    if (floor_y > 0) bottom_rl = std::min(bottom_rl, -10 * std::log10(floor_y));
+  }
   auto window = [&](double below_db, std::size_t& lo, std::size_t& hi) {
     lo = hi = peak;
-    while (lo > 0 && t.return_loss_db[lo - 1] >= peak_rl - below_db) --lo;
-    while (hi + 1 < n && t.return_loss_db[hi + 1] >= peak_rl - below_db) ++hi;
+    while (lo > 0 && t.return_loss_db[lo - 1] >= bottom_rl - below_db) --lo;
+    while (hi + 1 < n && t.return_loss_db[hi + 1] >= bottom_rl - below_db) ++hi;
   };
   std::size_t lo = 0, hi = 0;
   window(below_db, lo, hi);
@@ -323,9 +338,7 @@ std::optional<PairShiftBound> bound_over(const PairSumTrace& t, std::size_t peak
   // the sum itself, g_c·|Γ|² ≤ y·(1 + ρ) + k·σ_y + |N|, |N| bounded at the point's own |Γ| bound
   // (twice, each pass a valid bound); never above the point's interval. Tighter than the points'
   // bounds where the leakage's size is poorly known.
-  const Line l = line_terms(t.nuisance);
   const double rho = std::min(t.nuisance.reference_ratio, 0.5);
-  const double g_lo = l.w * (1 + l.x_hat * l.a_lo * l.a_lo);
   std::vector<PairNuisance> nu_pt;
   std::vector<double> g_pt;
   for (std::size_t i = lo; i <= hi; ++i) {
@@ -425,8 +438,12 @@ double pair_shift_half_width(const PairNuisance& n, double g0, double radius, do
   // The nominal dip |Γ|² = g0² + s²x², sampled every step with a sample on its resonance, fitted
   // as the station fits it (pair_shift_bound: each point's |Γ| bounded by the points' interval
   // and twice by the sum itself, the window's kernels, its inner half's).
+  // The windows' levels under the bottom taken at least at what N and the noise could make of it
+  // (bound_over).
+  const double bottom2 =
+      std::max(g0 * g0, (pair_nuisance_magnitude(n, std::min(1.0, g0 + radius)) + noise_rel * g0 * g0) / g_lo);
   auto points = [&](double below_db) {
-    const double span = std::sqrt(std::pow(10.0, below_db / 10) - 1) * g0 / s;
+    const double span = std::sqrt(std::max(0.0, std::pow(10.0, below_db / 10) * bottom2 - g0 * g0)) / s;
     const int m = static_cast<int>(std::floor(span / step_hz + 1e-9));
     std::vector<double> x;
     for (int i = -m; i <= m; ++i) x.push_back(i * step_hz / 1e6);

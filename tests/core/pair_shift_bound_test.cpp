@@ -261,5 +261,31 @@ TEST(PairShiftBound, IsRefusedWhereItsAssumptionsFail) {
   EXPECT_FALSE(pair_shift_bound(off_sweep, peak).has_value());
 }
 
+// Where what the sum leaves is as large as the unit's bottom, the bottom's estimate can read far
+// deeper than the unit (here 40 dB on a 20 dB dip: N = −0.0099 there, a constant that moves no
+// vertex). The windows are set under what N and the noise could make of the bottom, so they span
+// the unit's dip and the bound is given (a window 6 dB under 40 dB would hold one point a side).
+TEST(PairShiftBound, AWindowSpansTheUnitsDipWhenItsBottomReadsDeep) {
+  PairSumTrace t;
+  t.nuisance.line = kit_line();
+  for (int i = 0; i < 101; ++i) {
+    const double f = 880e6 + 0.5e6 * i, x = (f - 905e6) / 1e6;
+    const double y = 0.01 + 0.0004 * x * x - 0.0099;
+    t.frequency_hz.push_back(f);
+    t.y.push_back(y);
+    t.sigma_y.push_back(1e-5);
+    t.gamma_high.push_back(std::sqrt(y + 0.0099) + 0.01);
+    t.return_loss_db.push_back(-10 * std::log10(y));
+    t.leakage.push_back(0.03);
+    t.load_residual.push_back(0.01);
+    t.turn_error_rad.push_back(0.05);
+    t.usable.push_back(true);
+  }
+  const auto b = pair_shift_bound(t, 50);
+  ASSERT_TRUE(b.has_value());
+  EXPECT_LE(std::fabs(b->center_hz - 905e6), b->half_width_hz);
+  EXPECT_NEAR(b->center_hz, 905e6, 0.05e6);
+}
+
 }  // namespace
 }  // namespace echoline::core

@@ -167,14 +167,17 @@ void print_report(std::FILE* out, const ScoreResult& r) {
                  w.calibrations_used, w.basis.c_str());
   }
   if (w.intervals_closed > 0) {
+    // The error radius is a median over the runs the shift bound decided: none, no figure.
     std::fprintf(out, "    observed resonance intervals: median half-width %.2f MHz over %d closed intervals (%d offset-pair, %d shift-bound, %d rigorous); "
-                 "median error radius at the dip %.4f\n",
+                 "median error radius at the dip where the shift bound decided %s\n",
                  w.observed_half_width_median_hz / 1e6, w.intervals_closed, w.intervals_pair, w.intervals_shift_bound, w.intervals_rigorous,
-                 w.observed_error_radius_median);
+                 w.intervals_shift_bound > 0 ? fmt::format("{:.4f}", w.observed_error_radius_median).c_str() : "-");
   }
-  std::fprintf(out, "    dip fit: decided %d of %d runs; where it decided, median half-width %.2f MHz against %.2f MHz "
+  std::fprintf(out, "    dip fit: decided %d of %d runs; where it decided, median half-width %s against %s "
                "rigorous; rigorous median over all closed intervals %.2f MHz; inconclusive without the fit %d\n",
-               w.fit_used, w.judged, w.fit_half_width_median_hz / 1e6, w.rigorous_half_width_median_hz / 1e6,
+               w.fit_used, w.judged,
+               w.fit_used > 0 ? fmt::format("{:.2f} MHz", w.fit_half_width_median_hz / 1e6).c_str() : "-",
+               w.fit_used > 0 ? fmt::format("{:.2f} MHz", w.rigorous_half_width_median_hz / 1e6).c_str() : "-",
                w.rigorous_half_width_all_median_hz / 1e6, w.inconclusive_without_fit);
   print_reasons(out, "dip fit refused", w.fit_refused);
   print_list(out, "true resonance outside the reported interval", w.truth_outside);
