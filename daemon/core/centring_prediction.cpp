@@ -130,6 +130,7 @@ std::optional<CentringPrediction> predict_centring(const Recipe& recipe, const S
     // The fit window reaches beyond the window's edges by the dip's 6 dB half-span, √3·|Γ₀|/s.
     const double span = std::sqrt(3.0) * std::max(g0, 0.01) / s;
     for (double f : {lo - span, hi + span, f0}) n.turn_error_rad = std::max(n.turn_error_rad, offset_turn_error(f, *pair_line));
+    n.frequency_hz = std::max(lo - span, 1e6);   // the line's loss changes fastest at the lowest
     const ReferenceErrorBounds re = reference_error_bounds(station.kit, f0, recipe.calibration.use_short, e_dir, src);
     n.reference_ratio = std::max(std::pow(10.0, re.high_db / 10) - 1, 1 - std::pow(10.0, re.low_db / 10));
     cover_reference_turning(n, re.low_db, re.high_db, e_dir, src);

@@ -41,15 +41,23 @@ Line line_terms(const PairNuisance& n) {
   return l;
 }
 
-// Turn rates (rad/Hz) of the phasors in N.
+// How fast the line's round-trip power factor a² changes, relative, per Hz: the one-way loss L
+// (dB) of a coax line grows as √f to f, so |L′| ≤ L/f and |(ln a²)′| = (ln 10/5)·|L′|.
+double line_scale_rate(const PairNuisance& n) {
+  const double f = n.frequency_hz > 0 ? n.frequency_hz : 1e6;
+  return std::log(10.0) / 5 * (n.line.loss_db + n.line.loss_tolerance_db) / f;
+}
+
+// Turn rates (rad/Hz) of the phasors in N. The line's phasor a·e^{jδ} (up to its cube) also
+// changes size with the loss: 3·|a′|/a = 1.5 × line_scale_rate is added to its turn.
 struct Rates {
   double e, line, match, conn, load;
 };
 
 Rates rates(const PairNuisance& n) {
   const double tl = n.line.delay_s + n.line.delay_tolerance_s;
-  return Rates{kTwoPi * n.error_delay_s, 2 * kTwoPi * tl, kTwoPi * (2 * tl + kLineMatchExtraDelayS),
-               kTwoPi * kConnectionTurnDelayS, kTwoPi * kLoadTurnDelayS};
+  return Rates{kTwoPi * n.error_delay_s, 2 * kTwoPi * tl + 1.5 * line_scale_rate(n),
+               kTwoPi * (2 * tl + kLineMatchExtraDelayS), kTwoPi * kConnectionTurnDelayS, kTwoPi * kLoadTurnDelayS};
 }
 
 // The reference error's size as it turns, for the slope and for the curvature.
@@ -139,9 +147,11 @@ double pair_nuisance_slope(const PairNuisance& n, double g, double s) {
   // Γ_in = S11 + τΓ: up to 6a²·S·M·|Γ|² and 4E·S·M·a·|Γ|, not cancelled by the half turn.
   const double om10 = r.e + r.match + r.line;
   const double t10 = w * xh * (6 * a * a * S * M * (2 * g * s + g * g * om10) + 4 * E * S * M * a * (s + g * om10));
-  // T9: the reference error R/T turning over the dip scales the sum, (g + E)²·ρ'.
+  // T9: the reference error R/T turning over the dip scales the sum, (g + E)²·ρ'; so does the
+  // line's loss changing with frequency (the offset reading's a²), taken on the whole sum.
   const double rho = std::min(n.reference_ratio, 0.5);
-  const double t9 = (g + E) * (g + E) * r.e * reference_slope_ratio(n) / ((1 - rho) * (1 - rho));
+  const double t9 =
+      (g + E) * (g + E) * (r.e * reference_slope_ratio(n) + line_scale_rate(n)) / ((1 - rho) * (1 - rho));
   return t1 + t2 + t3 + t4 + t5 + t6 + t7 + t8 + t9 + t10;
 }
 
@@ -187,8 +197,11 @@ double pair_nuisance_curvature(const PairNuisance& n, double g, double s) {
   {
     const double rho = std::min(n.reference_ratio, 0.5), yy = (g + E) * (g + E);
     const double rho1 = reference_slope_ratio(n), rho2 = reference_curvature_ratio(n);
+    // The line's scale: |(a²)″|/a² ≤ ls² + (ln 10/5)|L″| ≤ ls² + ls/(4f) (L ∝ √f at most bends).
+    const double ls = line_scale_rate(n), f = n.frequency_hz > 0 ? n.frequency_hz : 1e6;
     // y''·ε is the curvature's own scale error, taken by c at (1 − ρ); the rest here.
-    b += (2 * (2 * (g + E) * s) * r.e * rho1 + yy * r.e * r.e * rho2) / ((1 - rho) * (1 - rho));
+    b += (2 * (2 * (g + E) * s) * (r.e * rho1 + ls) + yy * (r.e * r.e * rho2 + ls * ls + ls / (4 * f))) /
+         ((1 - rho) * (1 - rho));
   }
   return b;
 }
@@ -217,6 +230,7 @@ IntervalTerms between_samples(const std::vector<PairNuisance>& nu_pt, const std:
     nu.leakage = std::max(nu.leakage, nu_pt[j + 1].leakage) / std::max(1e-9, 1 - half_turn);
     nu.load_residual = std::max(nu.load_residual, nu_pt[j + 1].load_residual);
     nu.turn_error_rad = std::max(nu.turn_error_rad, nu_pt[j + 1].turn_error_rad);
+    nu.frequency_hz = std::min(nu.frequency_hz, nu_pt[j + 1].frequency_hz);
     iv.nu.push_back(nu);
     iv.g.push_back(std::max(g_pt[j], g_pt[j + 1]));
     iv.dist_hz.push_back(std::max(std::fabs(f_hz[j] - vertex_hz), std::fabs(f_hz[j + 1] - vertex_hz)));
@@ -255,7 +269,8 @@ double vertex_nuisance(const IntervalTerms& iv, const FitKernels& k, const FitKe
     if (k3) b = std::max(b, curvature_bound(*k3, off3, s));
     return b;
   };
-  const double ripple_rate = kTwoPi * base.error_delay_s * reference_slope_ratio(base) / ((1 - rho) * (1 - rho));
+  const double ripple_rate =
+      (kTwoPi * base.error_delay_s * reference_slope_ratio(base) + line_scale_rate(base)) / ((1 - rho) * (1 - rho));
   auto b1_of = [&](double s) {
     double b = 0;
     for (std::size_t j = 0; j < k.slope.size(); ++j) {
@@ -304,6 +319,7 @@ std::optional<PairShiftBound> bound_over(const PairSumTrace& t, std::size_t peak
     nu.leakage = t.leakage[peak];
     nu.load_residual = t.load_residual[peak];
     nu.turn_error_rad = t.turn_error_rad[peak];
+    nu.frequency_hz = t.frequency_hz[peak];
     const double floor_y =
         (pair_nuisance_magnitude(nu, std::min(1.0, t.gamma_high[peak])) + t.coverage_factor * t.sigma_y[peak]) / g_lo;
     if (floor_y > 0) bottom_rl = std::min(bottom_rl, -10 * std::log10(floor_y));
@@ -346,6 +362,7 @@ std::optional<PairShiftBound> bound_over(const PairSumTrace& t, std::size_t peak
     nu.leakage = t.leakage[i];
     nu.load_residual = t.load_residual[i];
     nu.turn_error_rad = t.turn_error_rad[i];
+    nu.frequency_hz = t.frequency_hz[i];
     double g = std::min(1.0, t.gamma_high[i]);
     for (int pass = 0; pass < 2; ++pass) {
       const double g2 = (std::max(0.0, t.y[i]) * (1 + rho) + t.coverage_factor * t.sigma_y[i] + pair_nuisance_magnitude(nu, g)) / g_lo;
@@ -387,9 +404,11 @@ std::optional<PairShiftBound> bound_over(const PairSumTrace& t, std::size_t peak
   if (!kern.curvature_one_sign || (kern3 && !kern3->curvature_one_sign)) return std::nullopt;
   const std::vector<double> f_win(t.frequency_hz.begin() + static_cast<long>(lo),
                                   t.frequency_hz.begin() + static_cast<long>(hi) + 1);
+  PairNuisance base = t.nuisance;
+  base.frequency_hz = t.frequency_hz[lo];
   const double nuisance_hz =
       vertex_nuisance(between_samples(nu_pt, g_pt, f_win, f_pk + xv * 1e6), kern,
-                      kern3 ? &*kern3 : nullptr, lo3 - lo, c_den / 1e12, c_slope / 1e12, t.nuisance);
+                      kern3 ? &*kern3 : nullptr, lo3 - lo, c_den / 1e12, c_slope / 1e12, base);
   if (!std::isfinite(nuisance_hz)) return std::nullopt;   // the terms could curve as much as the unit
   const double half_step_hz =
       0.5 * std::max(t.frequency_hz[peak + 1] - f_pk, f_pk - t.frequency_hz[peak - 1]);

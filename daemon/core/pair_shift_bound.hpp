@@ -27,6 +27,9 @@ struct PairNuisance {
   // slope (ω) and for the curvature (ω²). Negative: all of reference_ratio turns at that rate.
   double reference_slope_ratio = -1;
   double reference_curvature_ratio = -1;
+  // The lowest frequency the terms cover: the line's loss (coax: ∝ √f to ∝ f) changes by at most
+  // (loss + tolerance)/f per Hz there. 0: unknown, taken as 1 MHz (wide bounds, never narrow).
+  double frequency_hz = 0;
 };
 
 // The reference error R/T − 1 (uncertainty.cpp: a ripple of first and second order in the
