@@ -304,6 +304,16 @@ double vertex_nuisance(const IntervalTerms& iv, const FitKernels& k, const FitKe
   return a / den + b * std::min(s / den, 1 / std::sqrt(2 * g_lo * den));
 }
 
+// The trace's nuisance with sample i's own bounds.
+PairNuisance point_nuisance(const PairSumTrace& t, std::size_t i) {
+  PairNuisance nu = t.nuisance;
+  nu.leakage = t.leakage[i];
+  nu.load_residual = t.load_residual[i];
+  nu.turn_error_rad = t.turn_error_rad[i];
+  nu.frequency_hz = t.frequency_hz[i];
+  return nu;
+}
+
 // The bound from the points within `below_db` of the peak.
 std::optional<PairShiftBound> bound_over(const PairSumTrace& t, std::size_t peak, double below_db) {
   const std::size_t n = t.y.size();
@@ -314,16 +324,9 @@ std::optional<PairShiftBound> bound_over(const PairSumTrace& t, std::size_t peak
   // the bottom's estimate can read 45 dB on a 26 dB unit, and a window under that estimate would
   // shrink to a few points. Any window bounds (12.1); this one spans the unit's own dip.
   double bottom_rl = t.return_loss_db[peak];
-  {
-    PairNuisance nu = t.nuisance;
-    nu.leakage = t.leakage[peak];
-    nu.load_residual = t.load_residual[peak];
-    nu.turn_error_rad = t.turn_error_rad[peak];
-    nu.frequency_hz = t.frequency_hz[peak];
-    const double floor_y =
-        (pair_nuisance_magnitude(nu, std::min(1.0, t.gamma_high[peak])) + t.coverage_factor * t.sigma_y[peak]) / g_lo;
-    if (floor_y > 0) bottom_rl = std::min(bottom_rl, -10 * std::log10(floor_y));
-  }
+  const double floor_y = (pair_nuisance_magnitude(point_nuisance(t, peak), std::min(1.0, t.gamma_high[peak])) +
+                          t.coverage_factor * t.sigma_y[peak]) / g_lo;
+  if (floor_y > 0) bottom_rl = std::min(bottom_rl, -10 * std::log10(floor_y));
   auto window = [&](double below_db, std::size_t& lo, std::size_t& hi) {
     lo = hi = peak;
     while (lo > 0 && t.return_loss_db[lo - 1] >= bottom_rl - below_db) --lo;
@@ -358,11 +361,7 @@ std::optional<PairShiftBound> bound_over(const PairSumTrace& t, std::size_t peak
   std::vector<PairNuisance> nu_pt;
   std::vector<double> g_pt;
   for (std::size_t i = lo; i <= hi; ++i) {
-    PairNuisance nu = t.nuisance;
-    nu.leakage = t.leakage[i];
-    nu.load_residual = t.load_residual[i];
-    nu.turn_error_rad = t.turn_error_rad[i];
-    nu.frequency_hz = t.frequency_hz[i];
+    const PairNuisance nu = point_nuisance(t, i);
     double g = std::min(1.0, t.gamma_high[i]);
     for (int pass = 0; pass < 2; ++pass) {
       const double g2 = (std::max(0.0, t.y[i]) * (1 + rho) + t.coverage_factor * t.sigma_y[i] + pair_nuisance_magnitude(nu, g)) / g_lo;
