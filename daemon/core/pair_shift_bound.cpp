@@ -21,6 +21,10 @@ namespace {
 
 constexpr double kTwoPi = 2 * std::numbers::pi;
 
+// The fit windows, dB under the dip's bottom: a wide one places the vertex better, a narrow one
+// has the unit's |Γ|, hence most terms and the reference's turning, smaller at its edges.
+constexpr double kPairWindowsDb[] = {6.0, 3.0, 1.5};
+
 struct Line {
   double a_lo, a_hi, x_hat, w;
   double kappa;    // bound of |1 − x̂·a·e^{jδ}|: what the half turn leaves of the leakage cross term
@@ -147,12 +151,9 @@ double pair_nuisance_slope(const PairNuisance& n, double g, double s) {
   // Γ_in = S11 + τΓ: up to 6a²·S·M·|Γ|² and 4E·S·M·a·|Γ|, not cancelled by the half turn.
   const double om10 = r.e + r.match + r.line;
   const double t10 = w * xh * (6 * a * a * S * M * (2 * g * s + g * g * om10) + 4 * E * S * M * a * (s + g * om10));
-  // T9: the reference error R/T turning over the dip scales the sum, (g + E)²·ρ'; so does the
-  // line's loss changing with frequency (the offset reading's a²), taken on the whole sum.
-  const double rho = std::min(n.reference_ratio, 0.5);
-  const double t9 =
-      (g + E) * (g + E) * (r.e * reference_slope_ratio(n) + line_scale_rate(n)) / ((1 - rho) * (1 - rho));
-  return t1 + t2 + t3 + t4 + t5 + t6 + t7 + t8 + t9 + t10;
+  // T9, the reference error and the line's loss scaling the whole sum, is not a term here: it is
+  // bounded on the window's samples themselves (scale_terms).
+  return t1 + t2 + t3 + t4 + t5 + t6 + t7 + t8 + t10;
 }
 
 double pair_nuisance_magnitude(const PairNuisance& n, double g) {
@@ -193,16 +194,6 @@ double pair_nuisance_curvature(const PairNuisance& n, double g, double s) {
   b += phasor_curvature(w * (1 + xh) * 3 * S * S, 2 * r.e, 4, g, s);                            // T8
   b += phasor_curvature(w * xh * 6 * a * a * S * M, r.e + r.match + r.line, 2, g, s) +
        phasor_curvature(w * xh * 4 * E * S * M * a, r.e + r.match + r.line, 1, g, s);             // T10
-  // T9: the reference's ripple scales y: |(y·ε)''| ≤ |y''|·ε + 2|y'|·|ε'| + y·|ε''|.
-  {
-    const double rho = std::min(n.reference_ratio, 0.5), yy = (g + E) * (g + E);
-    const double rho1 = reference_slope_ratio(n), rho2 = reference_curvature_ratio(n);
-    // The line's scale: |(a²)″|/a² ≤ ls² + (ln 10/5)|L″| ≤ ls² + ls/(4f) (L ∝ √f at most bends).
-    const double ls = line_scale_rate(n), f = n.frequency_hz > 0 ? n.frequency_hz : 1e6;
-    // y''·ε is the curvature's own scale error, taken by c at (1 − ρ); the rest here.
-    b += (2 * (2 * (g + E) * s) * (r.e * rho1 + ls) + yy * (r.e * r.e * rho2 + ls * ls + ls / (4 * f))) /
-         ((1 - rho) * (1 - rho));
-  }
   return b;
 }
 
@@ -213,16 +204,14 @@ namespace {
 // trajectory: a distance from a point, the largest of two straight lines' sizes), the LOAD's
 // residual too (a step function of the kit's bands; a band narrower than a step between two
 // samples is not looked for), the leakage at the larger end raised for its own turning,
-// |E_D(f)| ≤ |E_D(f_j)|·(1 + ω_τ·|f − f_j|), so by (1 − ω_τΔf/2) at the middle. dist_hz: the
-// interval's farthest reach from the vertex.
+// |E_D(f)| ≤ |E_D(f_j)|·(1 + ω_τ·|f − f_j|), so by (1 − ω_τΔf/2) at the middle.
 struct IntervalTerms {
   std::vector<PairNuisance> nu;
   std::vector<double> g;
-  std::vector<double> dist_hz;
 };
 
 IntervalTerms between_samples(const std::vector<PairNuisance>& nu_pt, const std::vector<double>& g_pt,
-                              const std::vector<double>& f_hz, double vertex_hz) {
+                              const std::vector<double>& f_hz) {
   IntervalTerms iv;
   for (std::size_t j = 0; j + 1 < nu_pt.size(); ++j) {
     PairNuisance nu = nu_pt[j];
@@ -233,29 +222,81 @@ IntervalTerms between_samples(const std::vector<PairNuisance>& nu_pt, const std:
     nu.frequency_hz = std::min(nu.frequency_hz, nu_pt[j + 1].frequency_hz);
     iv.nu.push_back(nu);
     iv.g.push_back(std::max(g_pt[j], g_pt[j + 1]));
-    iv.dist_hz.push_back(std::max(std::fabs(f_hz[j] - vertex_hz), std::fabs(f_hz[j + 1] - vertex_hz)));
   }
   return iv;
+}
+
+// T9: what scales the whole sum, bounded on the window's own samples. The reference error
+// (1 + ε = T/R, |R/T − 1| ≤ ρ, turning at the error delay's rate) scales y exactly, and the line's
+// loss changing with frequency scales the offset reading's part by λ (relative to the vertex,
+// |λ| ≤ ℓ|x − x_v|(1 + ℓ|x − x_v|)): y = (1 + ε)(Y + λP) + e, with Y the sum at the vertex's
+// scale and |P| ≤ |Y|. About the vertex, (1 + ε)Y = (1 + ε_v)Y + (ε − ε_v)Y: the first a scale
+// (c is taken at 1 ∓ ρ), the second, with ε − ε_v = ε₁·(x − x_v) + r, |ε₁| ≤ e₁, |r| ≤ ½e₂(x − x_v)²,
+// answers to a linear output L of the fit (weights l_i on the samples) as
+//   |L[(ε − ε_v)Y]| ≤ e₁·|L[(x − x_v)Y]| + ½e₂·Σ|l_i|(x_i − x_v)²U_i,
+//   |L[(x − x_v)Y]| ≤ (1 + ρ)·(|L[(x − x_v)y]| + Σ|l_i||x_i − x_v|·((Δ_i + (1 + ε_max)λ_i)U_i + kσ_i)),
+// U_i = (|y_i| + kσ_i)(1 + ρ)/(1 − λ_i) ≥ |Y_i|, Δ_i ≥ |ε_i − ε_v|; the line's part adds
+// Σ|l_i|(1 + ε_max)λ_i U_i. On a window symmetric about the vertex (x − x_v)·y is odd and its
+// x² coefficient nearly vanishes, which a bound of |ε′|·|y′| interval by interval did not see.
+struct ScaleTerms {
+  double slope = 0;       // bound of |L₁[…]|, the fitted slope at the vertex, per MHz
+  double curvature = 0;   // bound of |L₂[…]|, the fitted x² coefficient, per MHz²
+};
+
+ScaleTerms scale_terms(const std::vector<double>& x, const std::vector<double>& y, const std::vector<double>& ks,
+                       const double (*inv)[4], double xv, const PairNuisance& n) {
+  const double rho = std::min(n.reference_ratio, 0.5);
+  const double eps_max = rho / (1 - rho);
+  const double om = kTwoPi * n.error_delay_s;
+  const double u1 = om * reference_slope_ratio(n), u2 = om * om * reference_curvature_ratio(n);   // of R/T, per Hz
+  // ε = 1/(1 + u) − 1: |ε′| ≤ |u′|/(1 − ρ)², |ε″| ≤ |u″|/(1 − ρ)² + 2u′²/(1 − ρ)³; per MHz.
+  const double e1 = u1 / ((1 - rho) * (1 - rho)) * 1e6;
+  const double e2 = (u2 / ((1 - rho) * (1 - rho)) + 2 * u1 * u1 / std::pow(1 - rho, 3)) * 1e12;
+  const double ell = line_scale_rate(n) * 1e6;
+  double dy1 = 0, dy2 = 0, rest1 = 0, rest2 = 0, quad1 = 0, quad2 = 0, line1 = 0, line2 = 0;
+  for (std::size_t i = 0; i < x.size(); ++i) {
+    const double p[3] = {1, x[i], x[i] * x[i]};
+    double l1 = 0, l2 = 0;
+    for (int j = 0; j < 3; ++j) {
+      l1 += (inv[1][j] + 2 * xv * inv[2][j]) * p[j];
+      l2 += inv[2][j] * p[j];
+    }
+    const double d = x[i] - xv, ad = std::fabs(d);
+    const double lam = std::min(0.5, ell * ad * (1 + ell * ad));
+    const double u = (std::fabs(y[i]) + ks[i]) * (1 + rho) / (1 - lam);
+    const double delta = std::min(2 * eps_max, e1 * ad + 0.5 * e2 * d * d);
+    const double err = ad * ((delta + (1 + eps_max) * lam) * u + ks[i]);
+    dy1 += l1 * d * y[i];
+    dy2 += l2 * d * y[i];
+    rest1 += std::fabs(l1) * err;
+    rest2 += std::fabs(l2) * err;
+    quad1 += std::fabs(l1) * d * d * u;
+    quad2 += std::fabs(l2) * d * d * u;
+    line1 += std::fabs(l1) * (1 + eps_max) * lam * u;
+    line2 += std::fabs(l2) * (1 + eps_max) * lam * u;
+  }
+  ScaleTerms st;
+  st.slope = e1 * (1 + rho) * (std::fabs(dy1) + rest1) + 0.5 * e2 * quad1 + line1;
+  st.curvature = e1 * (1 + rho) * (std::fabs(dy2) + rest2) + 0.5 * e2 * quad2 + line2;
+  return st;
 }
 
 // How far the terms N can move the fitted vertex from the unit's resonance (Hz), or +inf where
 // they could curve the parabola as much as the unit does. `k` are the window's kernels at the
 // vertex, `k3` (optional) those of its inner half, whose intervals start at `off3` in `iv`;
 // c_den and c_slope the curvatures (per Hz², as fitted, less and plus their noise at the
-// coverage factor) for the denominator and for |k|.
+// coverage factor and T9's share) for the denominator and for |k|; scale_slope T9's share of the
+// fitted slope (per Hz, scale_terms, already over 1 + ε_v).
 //   The unit's part g_c·(|Γ₀|² + |k|²(x − x₀)²) is fitted exactly, so at the vertex
 //   0 = 2g_c|k|²(x_v − x₀) + N̂′(x_v): |x_v − x₀| = |N̂′(x_v)|/(2g_c|k|²), 2g_c|k|² = 2c − N̂″
 //   ≥ 2c(1 − ρ) − B₂ =: den, |N̂′(x_v)| ≤ Σ∫|K₁|·|N′| and |N̂″| ≤ 2Σ∫|K₂|·|N″| (poly_fit.hpp).
 //   B₁ = A + B·|k| (every term of N′ at most linear in |Γ′|): A/den + B·|k|/(2g_c|k|²), the
 //   second part at most B·s/den (s ≥ |k|) and at most B/√(2g_c,lo·den) (|k|² ≥ den/(2g_c)).
-//   The reference's ripple ε(x) scales y; about the vertex (1 + ε)y = (1 + ε(x_v))y + (ε − ε(x_v))y,
-//   the first a scale that moves no vertex, the second's slope ε′y (T9) and (ε − ε(x_v))·y′,
-//   at most ω_τρ·|x − x_v|·|y′|, added here interval by interval.
 double vertex_nuisance(const IntervalTerms& iv, const FitKernels& k, const FitKernels* k3, std::size_t off3,
-                       double c_den, double c_slope, const PairNuisance& base) {
+                       double c_den, double c_slope, double scale_slope, const PairNuisance& base) {
   const Line l = line_terms(base);
   const double rho = std::min(base.reference_ratio, 0.5);
-  const double g_lo = l.w * (1 + l.x_hat * l.a_lo * l.a_lo), g_hi = l.w * (1 + l.x_hat * l.a_hi * l.a_hi);
+  const double g_lo = l.w * (1 + l.x_hat * l.a_lo * l.a_lo);
   if (!(c_den > 0) || !(c_slope > 0)) return std::numeric_limits<double>::infinity();
   auto curvature_bound = [&](const FitKernels& kk, std::size_t first, double s) {
     double b = 0;
@@ -269,15 +310,9 @@ double vertex_nuisance(const IntervalTerms& iv, const FitKernels& k, const FitKe
     if (k3) b = std::max(b, curvature_bound(*k3, off3, s));
     return b;
   };
-  const double ripple_rate =
-      (kTwoPi * base.error_delay_s * reference_slope_ratio(base) + line_scale_rate(base)) / ((1 - rho) * (1 - rho));
   auto b1_of = [&](double s) {
-    double b = 0;
-    for (std::size_t j = 0; j < k.slope.size(); ++j) {
-      const double n1 = pair_nuisance_slope(iv.nu[j], iv.g[j], s);
-      const double y1 = 2 * g_hi * iv.g[j] * s + n1;   // |y′| there
-      b += k.slope[j] * (n1 + ripple_rate * iv.dist_hz[j] * y1);
-    }
+    double b = scale_slope;
+    for (std::size_t j = 0; j < k.slope.size(); ++j) b += k.slope[j] * pair_nuisance_slope(iv.nu[j], iv.g[j], s);
     return b;   // per Hz
   };
   // The unit's slope |k| from the measured curvature: c·(R/T) = g_c·|k|² + N̂″/2, so
@@ -381,10 +416,19 @@ std::optional<PairShiftBound> bound_over(const PairSumTrace& t, std::size_t peak
   // The curvature's own noise, at the coverage factor: lower for the denominator, higher for |k|.
   const double c_noise = t.coverage_factor * std::sqrt(fit_variance(x, y, q, var) * inv[2][2]);
   const double gap = std::fabs(cubic_minimum_near(x, y, xv) - xv);
+  PairNuisance base = t.nuisance;
+  base.frequency_hz = t.frequency_hz[lo];
+  auto noise_of = [&](std::size_t a, std::size_t b) {
+    std::vector<double> ks;
+    for (std::size_t i = a; i <= b; ++i) ks.push_back(t.coverage_factor * t.sigma_y[i]);
+    return ks;
+  };
+  // What scales the whole sum (T9), on the samples: its share of the fitted slope and curvature.
+  const ScaleTerms scale = scale_terms(x, y, noise_of(lo, hi), inv, xv, base);
   // A flat-bottomed dip curves less near its bottom than over the whole window: the curvature
   // over the inner half (in dB), where that has points enough, when smaller, for the denominator;
   // the larger for the unit's slope, which must bound it over the whole window.
-  double c_den = c - c_noise, c_slope = c + c_noise;
+  double c_den = c - c_noise - scale.curvature, c_slope = c + c_noise + scale.curvature;
   std::optional<FitKernels> kern3;
   std::size_t lo3 = 0, hi3 = 0;
   {
@@ -392,22 +436,20 @@ std::optional<PairShiftBound> bound_over(const PairSumTrace& t, std::size_t peak
     std::vector<double> x3, y3;
     double q3[4], inv3[4][4], var3 = 0;
     if (peak - lo3 >= 2 && hi3 - peak >= 2 && fit(lo3, hi3, x3, y3, q3, inv3, var3) && q3[2] > 0) {
-      const double c3_noise = t.coverage_factor * std::sqrt(fit_variance(x3, y3, q3, var3) * inv3[2][2]);
+      const double xv3 = -q3[1] / (2 * q3[2]);
+      const double c3_noise = t.coverage_factor * std::sqrt(fit_variance(x3, y3, q3, var3) * inv3[2][2]) +
+                              scale_terms(x3, y3, noise_of(lo3, hi3), inv3, xv3, base).curvature;
       c_den = std::min(c_den, q3[2] - c3_noise);
       c_slope = std::max(c_slope, q3[2] + c3_noise);
-      kern3 = quadratic_fit_kernels(x3, inv3, -q3[1] / (2 * q3[2]));
+      kern3 = quadratic_fit_kernels(x3, inv3, xv3);
     }
   }
-  // The reference's scale enters c as a mean only where K₂ keeps its sign (T9 below).
   const FitKernels kern = quadratic_fit_kernels(x, inv, xv);
-  if (!kern.curvature_one_sign || (kern3 && !kern3->curvature_one_sign)) return std::nullopt;
   const std::vector<double> f_win(t.frequency_hz.begin() + static_cast<long>(lo),
                                   t.frequency_hz.begin() + static_cast<long>(hi) + 1);
-  PairNuisance base = t.nuisance;
-  base.frequency_hz = t.frequency_hz[lo];
   const double nuisance_hz =
-      vertex_nuisance(between_samples(nu_pt, g_pt, f_win, f_pk + xv * 1e6), kern,
-                      kern3 ? &*kern3 : nullptr, lo3 - lo, c_den / 1e12, c_slope / 1e12, base);
+      vertex_nuisance(between_samples(nu_pt, g_pt, f_win), kern, kern3 ? &*kern3 : nullptr, lo3 - lo,
+                      c_den / 1e12, c_slope / 1e12, (1 + rho) * scale.slope / 1e6, base);
   if (!std::isfinite(nuisance_hz)) return std::nullopt;   // the terms could curve as much as the unit
   const double half_step_hz =
       0.5 * std::max(t.frequency_hz[peak + 1] - f_pk, f_pk - t.frequency_hz[peak - 1]);
@@ -434,17 +476,21 @@ std::optional<PairShiftBound> pair_shift_bound(const PairSumTrace& t, std::size_
   const double peak_rl = t.return_loss_db[peak];
   if (!std::isfinite(peak_rl) || peak_rl < 12.0) return std::nullopt;   // shallow: a curved trajectory
   // Over 6 dB the vertex is well determined but the unit's |Γ| at the window's edges (where the
-  // terms the sum leaves are largest) is twice its bottom; over 3 dB the reverse. Each bound
-  // holds, so the intersection does.
-  const auto wide = bound_over(t, peak, 6.0);
-  const auto narrow = bound_over(t, peak, 3.0);
-  if (!wide || !narrow) return wide ? wide : narrow;
-  const double low = std::max(wide->center_hz - wide->half_width_hz, narrow->center_hz - narrow->half_width_hz);
-  const double high = std::min(wide->center_hz + wide->half_width_hz, narrow->center_hz + narrow->half_width_hz);
-  if (!(low <= high)) return std::nullopt;   // both cannot hold: an assumption failed
-  PairShiftBound out = wide->half_width_hz <= narrow->half_width_hz ? *wide : *narrow;
-  out.center_hz = 0.5 * (low + high);
-  out.half_width_hz = 0.5 * (high - low);
+  // terms the sum leaves are largest) is twice its bottom; over 3 dB and 1.5 dB the reverse, and
+  // the reference's ripple turns less across them. Each bound holds, so the intersection does.
+  std::optional<PairShiftBound> out;
+  double low = -std::numeric_limits<double>::infinity(), high = std::numeric_limits<double>::infinity();
+  for (double below_db : kPairWindowsDb) {
+    const auto b = bound_over(t, peak, below_db);
+    if (!b) continue;
+    low = std::max(low, b->center_hz - b->half_width_hz);
+    high = std::min(high, b->center_hz + b->half_width_hz);
+    if (!out || b->half_width_hz < out->half_width_hz) out = b;
+  }
+  if (!out) return std::nullopt;
+  if (!(low <= high)) return std::nullopt;   // all cannot hold: an assumption failed
+  out->center_hz = 0.5 * (low + high);
+  out->half_width_hz = 0.5 * (high - low);
   return out;
 }
 
@@ -467,20 +513,25 @@ double pair_shift_half_width(const PairNuisance& n, double g0, double radius, do
     for (int i = -m; i <= m; ++i) x.push_back(i * step_hz / 1e6);
     return x;
   };
-  auto kernels = [&](const std::vector<double>& x) -> std::optional<FitKernels> {
+  // The window's kernels and T9's share, on the sum the station would read there.
+  auto kernels = [&](const std::vector<double>& x) -> std::optional<std::pair<FitKernels, ScaleTerms>> {
     if (x.size() < 5) return std::nullopt;   // fewer than 2 points each side: the station refuses
-    std::vector<double> y;
-    for (double xi : x) y.push_back(xi * xi);
+    std::vector<double> y, ks;
+    for (double xi : x) {
+      y.push_back(g_lo * (g0 * g0 + s * s * xi * xi * 1e12));
+      ks.push_back(noise_rel * y.back());
+    }
     double q[4], inv[4][4];
     if (!least_squares(x, y, 3, q, inv)) return std::nullopt;
-    return quadratic_fit_kernels(x, inv, 0.0);
+    return std::make_pair(quadratic_fit_kernels(x, inv, 0.0), scale_terms(x, y, ks, inv, 0.0, n));
   };
   double best = std::numeric_limits<double>::infinity();
-  for (double below_db : {6.0, 3.0}) {
+  for (double below_db : kPairWindowsDb) {
     const std::vector<double> x = points(below_db), x3 = points(below_db / 2);
     const auto k = kernels(x);
     if (!k) continue;
     const auto k3 = kernels(x3);
+    const double scale_c = std::max(k->second.curvature, k3 ? k3->second.curvature : 0.0) / 1e12;
     std::vector<PairNuisance> nu_pt(x.size(), n);
     std::vector<double> g_pt;
     for (double xi : x) {
@@ -494,8 +545,9 @@ double pair_shift_half_width(const PairNuisance& n, double g0, double radius, do
     const double c = g_lo * s * s;   // what the station would measure, at the reference's middle
     std::vector<double> f_hz;
     for (double xi : x) f_hz.push_back(xi * 1e6);
-    best = std::min(best, vertex_nuisance(between_samples(nu_pt, g_pt, f_hz, 0.0), *k, k3 ? &*k3 : nullptr,
-                                          (x.size() - x3.size()) / 2, c, c, n));
+    best = std::min(best, vertex_nuisance(between_samples(nu_pt, g_pt, f_hz), k->first, k3 ? &k3->first : nullptr,
+                                          (x.size() - x3.size()) / 2, c - scale_c, c + scale_c,
+                                          (1 + rho) * k->second.slope / 1e6, n));
   }
   return best + step_hz / 2;
 }

@@ -81,16 +81,17 @@ struct PairShiftBound {
 };
 
 // The bound at the dip around `peak` (the sample with the smallest sum, or the pair's largest
-// RL), or nothing where its assumptions fail: the peak under 12 dB, fewer than 2 points within
-// 6 dB on either side, the 6 dB region reaching the sweep's end, a point there where the pair
+// RL): the intersection of those over the points within 6, 3 and 1.5 dB of the bottom, or
+// nothing where the assumptions fail for all three: the peak under 12 dB, fewer than 2 points in
+// the window on either side, the window reaching the sweep's end, a point there where the pair
 // was not usable, a quadratic that does not open upward or whose vertex lies outside the points,
 // or a lopsided dip (the cubic's minimum far from the quadratic's).
 std::optional<PairShiftBound> pair_shift_bound(const PairSumTrace& t, std::size_t peak);
 
 // The predicted half-width for a nominal dip |Γ|² = g0² + s²(f − f₀)² (s per Hz) whose points'
 // own upper bound is |Γ| + `radius`, the readings' noise at the coverage factor `noise_rel` of
-// the power, sampled every `step_hz`: the station's bound over its 6 dB and 3 dB windows, the
-// smaller; +inf where neither is given; before any unit is read (centring_prediction.cpp).
+// the power, sampled every `step_hz`: the station's bound over its 6, 3 and 1.5 dB windows, the
+// smallest; +inf where none is given; before any unit is read (centring_prediction.cpp).
 double pair_shift_half_width(const PairNuisance& n, double g0, double radius, double s, double step_hz,
                              double noise_rel);
 
