@@ -228,23 +228,24 @@ IntervalTerms between_samples(const std::vector<PairNuisance>& nu_pt, const std:
 
 // T9: what scales the whole sum, bounded on the window's own samples. The reference error
 // (1 + ε = T/R, |R/T − 1| ≤ ρ, turning at the error delay's rate) scales y exactly, and the line's
-// loss changing with frequency scales the offset reading's part by λ (relative to the vertex,
-// |λ| ≤ ℓ|x − x_v|(1 + ℓ|x − x_v|)): y = (1 + ε)(Y + λP) + e, with Y the sum at the vertex's
-// scale and |P| ≤ |Y|. About the vertex, (1 + ε)Y = (1 + ε_v)Y + (ε − ε_v)Y: the first a scale
-// (c is taken at 1 ∓ ρ), the second, with ε − ε_v = ε₁·(x − x_v) + r, |ε₁| ≤ e₁, |r| ≤ ½e₂(x − x_v)²,
-// answers to a linear output L of the fit (weights l_i on the samples) as
-//   |L[(ε − ε_v)Y]| ≤ e₁·|L[(x − x_v)Y]| + ½e₂·Σ|l_i|(x_i − x_v)²U_i,
-//   |L[(x − x_v)Y]| ≤ (1 + ρ)·(|L[(x − x_v)y]| + Σ|l_i||x_i − x_v|·((Δ_i + (1 + ε_max)λ_i)U_i + kσ_i)),
-// U_i = (|y_i| + kσ_i)(1 + ρ)/(1 − λ_i) ≥ |Y_i|, Δ_i ≥ |ε_i − ε_v|; the line's part adds
-// Σ|l_i|(1 + ε_max)λ_i U_i. On a window symmetric about the vertex (x − x_v)·y is odd and its
-// x² coefficient nearly vanishes, which a bound of |ε′|·|y′| interval by interval did not see.
+// loss changing with frequency scales the offset reading's unit part P = w·x̂·a²|Γ|² (at most
+// P_i = w·x̂·a_hi²·g_i² at a sample) by λ relative to the vertex, |λ| ≤ ℓ|x − x_v|(1 + ℓ|x − x_v|):
+// y = (1 + ε)(Y + λP) + e, Y the sum at the vertex's scale. About the vertex
+// y = (1 + ε_v)Y + (ε − ε_v)Y + (1 + ε)λP + e: the first a scale (c is taken at 1 ∓ ρ), the last
+// the fit's noise; the others, with ε − ε_v = ε₁·(x − x_v) + r, |ε₁| ≤ e₁, |r| ≤ ½e₂(x − x_v)²,
+// answer to a linear output L of the fit (weights l_i on the samples) as
+//   |L[(ε − ε_v)Y]| ≤ e₁·|L[(x − x_v)Y]| + ½e₂·Σ|l_i|(x_i − x_v)²U_i,   |L[(1 + ε)λP]| ≤ Σ|l_i|(1 + ε_max)λ_i P_i,
+//   |L[(x − x_v)Y]| ≤ (1 + ρ)·|L[(x − x_v)y]| + Σ|l_i||x_i − x_v|·((1 + ρ)(Δ_i(U_i + λ_i P_i) + kσ_i) + λ_i P_i)
+// (Y − y/(1 + ε_v) = −((ε − ε_v)(Y + λP) + e)/(1 + ε_v) − λP), U_i = (|y_i| + kσ_i)(1 + ρ) + λ_i P_i ≥ |Y_i|,
+// Δ_i ≥ |ε_i − ε_v|. On a window symmetric about the vertex (x − x_v)·y is odd and its x²
+// coefficient nearly vanishes, which a bound of |ε′|·|y′| interval by interval did not see.
 struct ScaleTerms {
-  double slope = 0;       // bound of |L₁[…]|, the fitted slope at the vertex, per MHz
-  double curvature = 0;   // bound of |L₂[…]|, the fitted x² coefficient, per MHz²
+  double slope = 0;       // bound of the fitted slope at the vertex, per MHz (before 1/(1 + ε_v))
+  double curvature = 0;   // bound of the fitted x² coefficient, per MHz²
 };
 
 ScaleTerms scale_terms(const std::vector<double>& x, const std::vector<double>& y, const std::vector<double>& ks,
-                       const double (*inv)[4], double xv, const PairNuisance& n) {
+                       const std::vector<double>& p_high, const double (*inv)[4], double xv, const PairNuisance& n) {
   const double rho = std::min(n.reference_ratio, 0.5);
   const double eps_max = rho / (1 - rho);
   const double om = kTwoPi * n.error_delay_s;
@@ -262,22 +263,23 @@ ScaleTerms scale_terms(const std::vector<double>& x, const std::vector<double>& 
       l2 += inv[2][j] * p[j];
     }
     const double d = x[i] - xv, ad = std::fabs(d);
-    const double lam = std::min(0.5, ell * ad * (1 + ell * ad));
-    const double u = (std::fabs(y[i]) + ks[i]) * (1 + rho) / (1 - lam);
+    const double t = std::min(1.0, ell * ad);
+    const double lam_p = t * (1 + t) * p_high[i];   // |λ·P| (e^t − 1 ≤ t + t² for t ≤ 1)
+    const double u = (std::fabs(y[i]) + ks[i]) * (1 + rho) + lam_p;
     const double delta = std::min(2 * eps_max, e1 * ad + 0.5 * e2 * d * d);
-    const double err = ad * ((delta + (1 + eps_max) * lam) * u + ks[i]);
+    const double err = ad * ((1 + rho) * (delta * (u + lam_p) + ks[i]) + lam_p);
     dy1 += l1 * d * y[i];
     dy2 += l2 * d * y[i];
     rest1 += std::fabs(l1) * err;
     rest2 += std::fabs(l2) * err;
     quad1 += std::fabs(l1) * d * d * u;
     quad2 += std::fabs(l2) * d * d * u;
-    line1 += std::fabs(l1) * (1 + eps_max) * lam * u;
-    line2 += std::fabs(l2) * (1 + eps_max) * lam * u;
+    line1 += std::fabs(l1) * (1 + eps_max) * lam_p;
+    line2 += std::fabs(l2) * (1 + eps_max) * lam_p;
   }
   ScaleTerms st;
-  st.slope = e1 * (1 + rho) * (std::fabs(dy1) + rest1) + 0.5 * e2 * quad1 + line1;
-  st.curvature = e1 * (1 + rho) * (std::fabs(dy2) + rest2) + 0.5 * e2 * quad2 + line2;
+  st.slope = e1 * ((1 + rho) * std::fabs(dy1) + rest1) + 0.5 * e2 * quad1 + line1;
+  st.curvature = e1 * ((1 + rho) * std::fabs(dy2) + rest2) + 0.5 * e2 * quad2 + line2;
   return st;
 }
 
@@ -423,8 +425,13 @@ std::optional<PairShiftBound> bound_over(const PairSumTrace& t, std::size_t peak
     for (std::size_t i = a; i <= b; ++i) ks.push_back(t.coverage_factor * t.sigma_y[i]);
     return ks;
   };
+  auto offset_part_of = [&](std::size_t a, std::size_t b) {   // the offset reading's unit part, at most
+    std::vector<double> p;
+    for (std::size_t i = a; i <= b; ++i) p.push_back(l.w * l.x_hat * l.a_hi * l.a_hi * g_pt[i - lo] * g_pt[i - lo]);
+    return p;
+  };
   // What scales the whole sum (T9), on the samples: its share of the fitted slope and curvature.
-  const ScaleTerms scale = scale_terms(x, y, noise_of(lo, hi), inv, xv, base);
+  const ScaleTerms scale = scale_terms(x, y, noise_of(lo, hi), offset_part_of(lo, hi), inv, xv, base);
   // A flat-bottomed dip curves less near its bottom than over the whole window: the curvature
   // over the inner half (in dB), where that has points enough, when smaller, for the denominator;
   // the larger for the unit's slope, which must bound it over the whole window.
@@ -438,7 +445,7 @@ std::optional<PairShiftBound> bound_over(const PairSumTrace& t, std::size_t peak
     if (peak - lo3 >= 2 && hi3 - peak >= 2 && fit(lo3, hi3, x3, y3, q3, inv3, var3) && q3[2] > 0) {
       const double xv3 = -q3[1] / (2 * q3[2]);
       const double c3_noise = t.coverage_factor * std::sqrt(fit_variance(x3, y3, q3, var3) * inv3[2][2]) +
-                              scale_terms(x3, y3, noise_of(lo3, hi3), inv3, xv3, base).curvature;
+                              scale_terms(x3, y3, noise_of(lo3, hi3), offset_part_of(lo3, hi3), inv3, xv3, base).curvature;
       c_den = std::min(c_den, q3[2] - c3_noise);
       c_slope = std::max(c_slope, q3[2] + c3_noise);
       kern3 = quadratic_fit_kernels(x3, inv3, xv3);
@@ -513,26 +520,8 @@ double pair_shift_half_width(const PairNuisance& n, double g0, double radius, do
     for (int i = -m; i <= m; ++i) x.push_back(i * step_hz / 1e6);
     return x;
   };
-  // The window's kernels and T9's share, on the sum the station would read there.
-  auto kernels = [&](const std::vector<double>& x) -> std::optional<std::pair<FitKernels, ScaleTerms>> {
-    if (x.size() < 5) return std::nullopt;   // fewer than 2 points each side: the station refuses
-    std::vector<double> y, ks;
-    for (double xi : x) {
-      y.push_back(g_lo * (g0 * g0 + s * s * xi * xi * 1e12));
-      ks.push_back(noise_rel * y.back());
-    }
-    double q[4], inv[4][4];
-    if (!least_squares(x, y, 3, q, inv)) return std::nullopt;
-    return std::make_pair(quadratic_fit_kernels(x, inv, 0.0), scale_terms(x, y, ks, inv, 0.0, n));
-  };
-  double best = std::numeric_limits<double>::infinity();
-  for (double below_db : kPairWindowsDb) {
-    const std::vector<double> x = points(below_db), x3 = points(below_db / 2);
-    const auto k = kernels(x);
-    if (!k) continue;
-    const auto k3 = kernels(x3);
-    const double scale_c = std::max(k->second.curvature, k3 ? k3->second.curvature : 0.0) / 1e12;
-    std::vector<PairNuisance> nu_pt(x.size(), n);
+  // Each sample's |Γ| bound, as the station would bound it from the sum.
+  auto gamma_bounds = [&](const std::vector<double>& x) {
     std::vector<double> g_pt;
     for (double xi : x) {
       const double gt = std::sqrt(g0 * g0 + s * s * xi * xi * 1e12);
@@ -542,6 +531,31 @@ double pair_shift_half_width(const PairNuisance& n, double g0, double radius, do
       }
       g_pt.push_back(g);
     }
+    return g_pt;
+  };
+  // The window's kernels and T9's share, on the sum the station would read there.
+  auto kernels = [&](const std::vector<double>& x) -> std::optional<std::pair<FitKernels, ScaleTerms>> {
+    if (x.size() < 5) return std::nullopt;   // fewer than 2 points each side: the station refuses
+    std::vector<double> y, ks, p_high;
+    const std::vector<double> g_pt = gamma_bounds(x);
+    for (std::size_t i = 0; i < x.size(); ++i) {
+      y.push_back(g_lo * (g0 * g0 + s * s * x[i] * x[i] * 1e12));
+      ks.push_back(noise_rel * y.back());
+      p_high.push_back(l.w * l.x_hat * l.a_hi * l.a_hi * g_pt[i] * g_pt[i]);
+    }
+    double q[4], inv[4][4];
+    if (!least_squares(x, y, 3, q, inv)) return std::nullopt;
+    return std::make_pair(quadratic_fit_kernels(x, inv, 0.0), scale_terms(x, y, ks, p_high, inv, 0.0, n));
+  };
+  double best = std::numeric_limits<double>::infinity();
+  for (double below_db : kPairWindowsDb) {
+    const std::vector<double> x = points(below_db), x3 = points(below_db / 2);
+    const auto k = kernels(x);
+    if (!k) continue;
+    const auto k3 = kernels(x3);
+    const double scale_c = std::max(k->second.curvature, k3 ? k3->second.curvature : 0.0) / 1e12;
+    const std::vector<PairNuisance> nu_pt(x.size(), n);
+    const std::vector<double> g_pt = gamma_bounds(x);
     const double c = g_lo * s * s;   // what the station would measure, at the reference's middle
     std::vector<double> f_hz;
     for (double xi : x) f_hz.push_back(xi * 1e6);
