@@ -113,7 +113,7 @@ std::optional<CentringPrediction> predict_centring(const Recipe& recipe, const S
     return worst;
   };
   // The pair's sum (MEASUREMENT.md §12.1): what the terms it leaves can move the vertex over the
-  // 6 dB and the 3 dB window, the smaller (the station intersects the two).
+  // 6, 3 and 1.5 dB windows, the smallest (the station intersects them).
   double kit_factor = 1;   // the kit's small figures scaled together (the advice below)
   auto pair_sum_half_width = [&](double e_dir, double g0) {
     const double conn = recipe.coverage_factor * station.kit.connection_repeatability;

@@ -46,14 +46,16 @@ inline constexpr double kConnectionTurnDelayS = 1.0e-9;  // the unit's connectio
 inline constexpr double kLineMatchExtraDelayS = 0.5e-9;  // beyond the line's round trip, for its ends
 inline constexpr double kStandardLossTurnDelayS = 0.5e-9;  // the OPEN's and SHORT's own loss turns no faster
 
-// Bound of the slope (per Hz) of everything in the sum besides the unit's own |Γ|², over a region
-// where the unit's |Γ| ≤ g and |dΓ/df| ≤ s (per Hz).
+// Bound of the slope (per Hz) of everything in the sum besides the unit's own |Γ|² and what
+// scales the whole sum (the reference error and the line's loss changing, T9, which the fit
+// bounds on its window's samples), over a region where the unit's |Γ| ≤ g and |dΓ/df| ≤ s (per Hz).
 double pair_nuisance_slope(const PairNuisance& n, double g, double s);
 
 // Bound of the same terms' size (|Γ|² units) where the unit's |Γ| ≤ g.
 double pair_nuisance_magnitude(const PairNuisance& n, double g);
 
-// Bound of the same terms' second derivative (per Hz²), for the straight trajectory of §6.2.
+// Bound of the same terms' second derivative (per Hz², T9 likewise apart), for the straight
+// trajectory of §6.2.
 double pair_nuisance_curvature(const PairNuisance& n, double g, double s);
 
 // The sum at each plan point, as calibrate_points builds it.
