@@ -36,7 +36,8 @@ constexpr const char* kRejudgeHelp =
     "points is listed as not re-judged, and a recipe that fits none of the lot's runs is refused\n"
     "(exit 2). Prints the verdicts stored and re-judged, the units\n"
     "whose verdict the fit changes (up to --list N, default 20), the median resonance-interval\n"
-    "half-widths and why the fit was refused. The store is opened read-only; nothing is written.\n\n"
+    "half-widths, which interval decided each unit's (rigorous, shift-bound, offset-pair or fit)\n"
+    "and why the fit was refused. The store is opened read-only; nothing is written.\n\n"
     "Compare the two columns on a whole lot before switching a line over to the fit.\n\n"
     "exit: 0 compared, 1 no runs for the lot, 2 usage or recipe error, 5 the store could not be read\n";
 
@@ -118,6 +119,7 @@ std::string plan_difference(const std::vector<double>& plan, const core::RunResu
 struct Column {
   std::map<std::string, int> verdicts;
   std::vector<double> half_widths;
+  std::map<std::string, int> decided_by;   // which resonance interval decided: rigorous, shift-bound, offset-pair, fit
 };
 
 void count(Column& c, const core::Judgement& j) {
@@ -125,6 +127,17 @@ void count(Column& c, const core::Judgement& j) {
   if (j.metrics.resonance_low_hz && j.metrics.resonance_high_hz) {
     c.half_widths.push_back((*j.metrics.resonance_high_hz - *j.metrics.resonance_low_hz) / 2);
   }
+  if (!j.metrics.resonance_interval_kind.empty()) ++c.decided_by[j.metrics.resonance_interval_kind];
+}
+
+// "offset-pair 564, rigorous 36": the kinds by count, largest first.
+std::string decided_text(const Column& c) {
+  std::vector<std::pair<int, std::string>> sorted;
+  for (const auto& [kind, n] : c.decided_by) sorted.push_back({-n, kind});
+  std::sort(sorted.begin(), sorted.end());
+  std::string out;
+  for (const auto& [n, kind] : sorted) out += fmt::format("{}{} {}", out.empty() ? "" : ", ", kind, -n);
+  return out.empty() ? "none" : out;
 }
 
 }  // namespace
@@ -257,6 +270,8 @@ int cmd_rejudge(const Argv& argv) {
                            "{:.2f} MHz ({} closed)\n",
                            median(plain.half_widths) / 1e6, plain.half_widths.size(), median(fitted.half_widths) / 1e6,
                            fitted.half_widths.size());
+  std::cout << fmt::format("  the interval that decided: points alone {}; with the fit {}\n", decided_text(plain),
+                           decided_text(fitted));
   std::cout << fmt::format("  the fit decided the resonance interval of {} units\n", fit_decided);
   if (!refused.empty()) {
     std::vector<std::pair<int, std::string>> sorted;

@@ -106,6 +106,22 @@ TEST(ClientRejudge, ComparesTheLotWithAndWithoutTheFit) {
   EXPECT_NE(own.output.find("6 units (final runs), each under its own stored recipe"), std::string::npos) << own.output;
   EXPECT_NE(own.output.find("points alone"), std::string::npos) << own.output;
   EXPECT_NE(own.output.find("with the fit"), std::string::npos) << own.output;
+  // Which interval decided, counted per column: every closed interval has one, and no unit two.
+  {
+    const auto at = own.output.find("the interval that decided: points alone ");
+    ASSERT_NE(at, std::string::npos) << own.output;
+    const std::string line = own.output.substr(at, own.output.find('\n', at) - at);
+    const std::string plain = line.substr(0, line.find(';'));
+    int sum = 0;
+    for (const char* kind : {"rigorous ", "shift-bound ", "offset-pair ", "fit "}) {
+      const auto k = plain.find(kind);
+      if (k != std::string::npos) sum += std::stoi(plain.substr(k + std::string(kind).size()));
+    }
+    const auto closed_at = own.output.find("points alone ", own.output.find("median half-width"));
+    const auto paren = own.output.find('(', closed_at);
+    EXPECT_GE(sum, std::stoi(own.output.substr(paren + 1))) << own.output;
+    EXPECT_LE(sum, 6) << own.output;
+  }
   // The broken and the intermittent feed are refused by the fit, each for its own reason.
   EXPECT_NE(own.output.find("no dip of 10 dB to fit"), std::string::npos) << own.output;
   EXPECT_NE(own.output.find("the trace is erratic"), std::string::npos) << own.output;
