@@ -534,10 +534,10 @@ double pair_shift_half_width(const PairNuisance& n, double g0, double radius, do
     return g_pt;
   };
   // The window's kernels and T9's share, on the sum the station would read there.
-  auto kernels = [&](const std::vector<double>& x) -> std::optional<std::pair<FitKernels, ScaleTerms>> {
+  auto kernels = [&](const std::vector<double>& x,
+                     const std::vector<double>& g_pt) -> std::optional<std::pair<FitKernels, ScaleTerms>> {
     if (x.size() < 5) return std::nullopt;   // fewer than 2 points each side: the station refuses
     std::vector<double> y, ks, p_high;
-    const std::vector<double> g_pt = gamma_bounds(x);
     for (std::size_t i = 0; i < x.size(); ++i) {
       y.push_back(g_lo * (g0 * g0 + s * s * x[i] * x[i] * 1e12));
       ks.push_back(noise_rel * y.back());
@@ -550,12 +550,12 @@ double pair_shift_half_width(const PairNuisance& n, double g0, double radius, do
   double best = std::numeric_limits<double>::infinity();
   for (double below_db : kPairWindowsDb) {
     const std::vector<double> x = points(below_db), x3 = points(below_db / 2);
-    const auto k = kernels(x);
+    const std::vector<double> g_pt = gamma_bounds(x);
+    const auto k = kernels(x, g_pt);
     if (!k) continue;
-    const auto k3 = kernels(x3);
+    const auto k3 = kernels(x3, gamma_bounds(x3));
     const double scale_c = std::max(k->second.curvature, k3 ? k3->second.curvature : 0.0) / 1e12;
     const std::vector<PairNuisance> nu_pt(x.size(), n);
-    const std::vector<double> g_pt = gamma_bounds(x);
     const double c = g_lo * s * s;   // what the station would measure, at the reference's middle
     std::vector<double> f_hz;
     for (double xi : x) f_hz.push_back(xi * 1e6);
