@@ -71,6 +71,9 @@ double reference_slope_ratio(const PairNuisance& n) {
 double reference_curvature_ratio(const PairNuisance& n) {
   return n.reference_curvature_ratio >= 0 ? n.reference_curvature_ratio : std::min(n.reference_ratio, 0.5);
 }
+double reference_third_ratio(const PairNuisance& n) {
+  return n.reference_third_ratio >= 0 ? n.reference_third_ratio : std::min(n.reference_ratio, 0.5);
+}
 
 // A term of N as A(f)·Γ^m with |A| ≤ a0, |A'| ≤ a1, |A''| ≤ a2: on a straight trajectory
 // (Γ'' = 0, |Γ'| ≤ s, |Γ| ≤ g), |(A·Γ^m)''| ≤ a2·g^m + 2·a1·m·g^(m−1)·s + a0·m(m−1)·g^(m−2)·s².
@@ -116,6 +119,8 @@ void cover_reference_turning(PairNuisance& n, double reference_low_db, double re
       std::max(n.reference_slope_ratio, ripple * (share1 + 2 * share2) + loss * slow);
   n.reference_curvature_ratio =
       std::max(n.reference_curvature_ratio, ripple * (share1 + 4 * share2) + loss * slow * slow);
+  n.reference_third_ratio =
+      std::max(n.reference_third_ratio, ripple * (share1 + 8 * share2) + loss * slow * slow * slow);
 }
 
 double pair_nuisance_slope(const PairNuisance& n, double g, double s) {
@@ -239,6 +244,8 @@ IntervalTerms between_samples(const std::vector<PairNuisance>& nu_pt, const std:
 // (Y − y/(1 + ε_v) = −((ε − ε_v)(Y + λP) + e)/(1 + ε_v) − λP), U_i = (|y_i| + kσ_i)(1 + ρ) + λ_i P_i ≥ |Y_i|,
 // Δ_i ≥ |ε_i − ε_v|. On a window symmetric about the vertex (x − x_v)·y is odd and its x²
 // coefficient nearly vanishes, which a bound of |ε′|·|y′| interval by interval did not see.
+// One order further, r = ½ε₂(x − x_v)² + r₃, |ε₂| ≤ e₂, |r₃| ≤ e₃|x − x_v|³/6: the even part's
+// fitted slope nearly vanishes likewise, and the smaller of the two bounds is used.
 struct ScaleTerms {
   double slope = 0;       // bound of the fitted slope at the vertex, per MHz (before 1/(1 + ε_v))
   double curvature = 0;   // bound of the fitted x² coefficient, per MHz²
@@ -253,8 +260,13 @@ ScaleTerms scale_terms(const std::vector<double>& x, const std::vector<double>& 
   // ε = 1/(1 + u) − 1: |ε′| ≤ |u′|/(1 − ρ)², |ε″| ≤ |u″|/(1 − ρ)² + 2u′²/(1 − ρ)³; per MHz.
   const double e1 = u1 / ((1 - rho) * (1 - rho)) * 1e6;
   const double e2 = (u2 / ((1 - rho) * (1 - rho)) + 2 * u1 * u1 / std::pow(1 - rho, 3)) * 1e12;
+  // |ε‴| ≤ |u‴|/(1 − ρ)² + 6|u′||u″|/(1 − ρ)³ + 6|u′|³/(1 − ρ)⁴ (ε = h(u), h = 1/(1 + u) − 1).
+  const double u3 = om * om * om * reference_third_ratio(n);
+  const double e3 = (u3 / ((1 - rho) * (1 - rho)) + 6 * u1 * u2 / std::pow(1 - rho, 3) +
+                     6 * u1 * u1 * u1 / std::pow(1 - rho, 4)) * 1e18;
   const double ell = line_scale_rate(n) * 1e6;
   double dy1 = 0, dy2 = 0, rest1 = 0, rest2 = 0, quad1 = 0, quad2 = 0, line1 = 0, line2 = 0;
+  double dq1 = 0, dq2 = 0, restq1 = 0, restq2 = 0, cube1 = 0, cube2 = 0;
   for (std::size_t i = 0; i < x.size(); ++i) {
     const double p[3] = {1, x[i], x[i] * x[i]};
     double l1 = 0, l2 = 0;
@@ -274,12 +286,23 @@ ScaleTerms scale_terms(const std::vector<double>& x, const std::vector<double>& 
     rest2 += std::fabs(l2) * err;
     quad1 += std::fabs(l1) * d * d * u;
     quad2 += std::fabs(l2) * d * d * u;
+    dq1 += l1 * d * d * y[i];
+    dq2 += l2 * d * d * y[i];
+    restq1 += std::fabs(l1) * ad * err;
+    restq2 += std::fabs(l2) * ad * err;
+    cube1 += std::fabs(l1) * ad * d * d * u;
+    cube2 += std::fabs(l2) * ad * d * d * u;
     line1 += std::fabs(l1) * (1 + eps_max) * lam_p;
     line2 += std::fabs(l2) * (1 + eps_max) * lam_p;
   }
+  // Two expansions of ε − ε_v, each a bound: to the first order with the second as remainder,
+  // and to the second with the third as remainder, where ½ε″(x_v)·(x − x_v)²·Y, even about the
+  // vertex, leaves the fitted slope nearly alone on a symmetric window. The smaller holds.
+  const double first1 = e1 * ((1 + rho) * std::fabs(dy1) + rest1), first2 = e1 * ((1 + rho) * std::fabs(dy2) + rest2);
   ScaleTerms st;
-  st.slope = e1 * ((1 + rho) * std::fabs(dy1) + rest1) + 0.5 * e2 * quad1 + line1;
-  st.curvature = e1 * ((1 + rho) * std::fabs(dy2) + rest2) + 0.5 * e2 * quad2 + line2;
+  st.slope = first1 + std::min(0.5 * e2 * quad1, 0.5 * e2 * ((1 + rho) * std::fabs(dq1) + restq1) + e3 / 6 * cube1) + line1;
+  st.curvature =
+      first2 + std::min(0.5 * e2 * quad2, 0.5 * e2 * ((1 + rho) * std::fabs(dq2) + restq2) + e3 / 6 * cube2) + line2;
   return st;
 }
 

@@ -24,9 +24,10 @@ struct PairNuisance {
   double turn_error_rad = 0;     // the largest |arg(t²) − π| over the dip
   double reference_ratio = 0;    // largest |R/T − 1| the reference error allows (bounded part)
   // The same weighted by how fast its parts turn, as ratios at the error delay's rate: for the
-  // slope (ω) and for the curvature (ω²). Negative: all of reference_ratio turns at that rate.
+  // slope (ω), the curvature (ω²) and the third derivative (ω³). Negative: all of reference_ratio turns at that rate.
   double reference_slope_ratio = -1;
   double reference_curvature_ratio = -1;
+  double reference_third_ratio = -1;   // the same for the third derivative (ω³)
   // The lowest frequency the terms cover: the line's loss (coax: ∝ √f to ∝ f) changes by at most
   // (loss + tolerance)/f per Hz there. 0: unknown, taken as 1 MHz (wide bounds, never narrow).
   double frequency_hz = 0;
