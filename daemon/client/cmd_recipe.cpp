@@ -172,7 +172,7 @@ void print_step_estimate(const core::Recipe& r, std::size_t points) {
   }
   const double per_point = r.source.settle_s + per_reading * std::max(r.receiver.averages, 1);
   const double sweep = per_point * static_cast<double>(points);
-  // The offset pair sweeps each unit twice (on the DUT arm, then on the DUT-OFFSET arm).
+  // The offset pair sweeps each unit twice (on the DUT arm, then through the offset line).
   const int sweeps = r.offset_pair ? 2 : 1;
   std::cout << fmt::format("  estimated sweep time {:.2f} s per unit ({}{:.4f} s per point, command overhead not included)\n",
                            sweep * sweeps, sweeps == 2 ? "two sweeps with the offset pair, " : "", per_point);
@@ -287,10 +287,13 @@ int cmd_dry_run(const Argv& argv) {
             << " (OPEN and LOAD swept twice: the repeat measures the reading noise)\n";
   if (r.offset_pair && c.capability.kit.offset_line) {
     const core::OffsetLine& l = *c.capability.kit.offset_line;
-    std::cout << fmt::format("  offset pair: each unit swept again on the switch's DUT-OFFSET arm, through the kit's line "
-                             "({:.1f} ± {:.1f} ps, {:.2f} ± {:.2f} dB, match {:.0f} dB)\n",
+    std::cout << fmt::format("  offset pair: each unit swept again {}, through the kit's line "
+                             "({:.1f} ± {:.1f} ps, {:.2f} ± {:.2f} dB, match {:.1f} dB{})\n",
+                             c.capability.offset_line_by_hand ? "with the line fitted by the operator when prompted"
+                                                              : "on the switch's DUT-OFFSET arm",
                              l.delay_s * 1e12, l.delay_tolerance_s * 1e12, l.loss_db, l.loss_tolerance_db,
-                             -20 * std::log10(l.match));
+                             -20 * std::log10(l.match),
+                             c.capability.offset_line_by_hand ? " with its connection made anew each time" : "");
   }
   std::cout << fmt::format("  calibration kit: {} serial {}\n", c.capability.kit.identity, c.capability.kit.serial);
   print_centring(r, c.capability, "  ");

@@ -11,6 +11,7 @@
 #include "daemon/client/progress_bar.hpp"
 #include "daemon/client/unit_advice.hpp"
 #include "daemon/client/verdict_banner.hpp"
+#include "daemon/core/offset_pair_check.hpp"
 #include "daemon/store/serial.hpp"
 
 namespace echoline::client {
@@ -250,18 +251,26 @@ Result<json> Console::job_events(long id, const std::string& label) {
       if (progress) progress->finish();
       progress.reset();
       const std::string standard = str(j, "standard");
+      // A test's prompt is its second connection, the unit behind the offset line.
+      const bool second = standard == core::kOffsetArm;
       bool connected = true;
       if (fixture_) {
-        if (Status s = fixture_->connect_standard(standard); !s) {
+        if (Status s = second ? fixture_->connect_unit_via_line(testing_serial_) : fixture_->connect_standard(standard); !s) {
           out_ << "Simulator fixture could not connect " << standard << ": " << s.error().message << "\n";
           connected = false;
         }
       }
       if (connected) {
         const std::string what = str(j, "description");
-        connected = confirm(what.empty()
-                                ? fmt::format("\n>>> Connect the {} standard to the test port, then press Enter:", standard)
-                                : fmt::format("\n>>> Connect {} ({}) to the test port, then press Enter:", standard, what));
+        if (second) {
+          connected = confirm(fmt::format("\n>>> SECOND READING of {}: fit the offset line to the test port and the unit to "
+                                          "its far end, then press Enter (take the line off again afterwards):",
+                                          testing_serial_));
+        } else {
+          connected = confirm(what.empty()
+                                  ? fmt::format("\n>>> Connect the {} standard to the test port, then press Enter:", standard)
+                                  : fmt::format("\n>>> Connect {} ({}) to the test port, then press Enter:", standard, what));
+        }
       }
       json args = {{"standard", standard}};
       if (!connected) args["connected"] = false;
@@ -416,6 +425,7 @@ Console::Outcome Console::test_unit(const std::string& serial, bool again) {
       return Outcome::done;
     }
     const long id = api_.last_id();
+    testing_serial_ = serial;
     auto end = job_events(id, "measuring " + serial);
     if (!end) return lost(end.error());
     const json& e = *end;

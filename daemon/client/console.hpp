@@ -101,6 +101,7 @@ class Console {
   std::map<std::string, int> inconclusive_count_;
   bool plot_warned_ = false;
   bool calibration_instrument_trouble_ = false;   // the last calibrate() ended on instrument trouble
+  std::string testing_serial_;                     // the unit of the test in progress (its second connection)
   std::set<std::string> untested_by_instruments_;  // serials left untested because of the instruments
   // A unit not tested because of instrument trouble: said on screen, counted for the exit code.
   void not_tested_by_instruments(const std::string& serial);

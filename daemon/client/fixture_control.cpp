@@ -39,6 +39,10 @@ Status FixtureControl::connect_unit(std::string_view serial) {
   return request(json{{"cmd", "connect"}, {"unit", serial}}.dump());
 }
 
+Status FixtureControl::connect_unit_via_line(std::string_view serial) {
+  return request(json{{"cmd", "connect"}, {"unit", serial}, {"via", "offset-line"}}.dump());
+}
+
 Status FixtureControl::connect_standard(std::string_view standard) {
   return request(json{{"cmd", "connect"}, {"standard", standard}}.dump());
 }

@@ -1,6 +1,6 @@
 // SIMULATOR ONLY: the console's hand on echoline-sim's fixture control port (JSON lines), used
-// with `echoline station --sim-fixture` in demos and CI to connect the scanned unit or the
-// prompted standard, as an operator does by hand. One user thread at a time; owns its socket.
+// with `echoline station --sim-fixture` in demos and CI to connect the scanned unit, the prompted
+// standard or the unit behind the offset line, as an operator does by hand. One user thread at a time; owns its socket.
 #pragma once
 
 #include <memory>
@@ -20,6 +20,7 @@ class FixtureControl {
   FixtureControl& operator=(const FixtureControl&) = delete;
 
   Status connect_unit(std::string_view serial);        // {"cmd":"connect","unit":...}
+  Status connect_unit_via_line(std::string_view serial);   // the same behind the kit's offset line
   Status connect_standard(std::string_view standard);  // {"cmd":"connect","standard":...}
   const std::string& address() const { return address_; }
 

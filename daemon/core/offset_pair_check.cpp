@@ -22,15 +22,20 @@ void check_offset_pair(const Recipe& r, const StationCapability& st, std::vector
     add("error", "the offset pair needs a step sweep: both readings of a point must be at the same frequency, and a "
                  "fast capture's frequency offset differs from one capture to the next; set \"mode\": \"step\"");
   }
-  if (!st.has_switch) {
-    add("error", fmt::format("the offset pair needs a switch with a {} arm (the unit behind the kit's offset line); "
-                             "this station has no switch, and a second manual connection is not supported; set "
-                             "offset_pair to false",
-                             kOffsetArm));
-  } else if (st.switch_positions.count(kOffsetArm) == 0) {
-    add("error", fmt::format("the switch (profile {}) has no {} position; add it to the profile's switch.positions, "
-                             "wired to the unit's socket through the kit's offset line",
-                             st.switch_profile, kOffsetArm));
+  if (st.has_switch && st.switch_positions.count(kOffsetArm) == 0) {
+    add("warning", fmt::format("the switch (profile {}) has no {} position: the operator will be asked to fit the kit's "
+                               "offset line between the DUT socket and each unit for its second reading; to read both "
+                               "without handling, add the position to the profile's switch.positions, wired to the "
+                               "unit's socket through the line",
+                               st.switch_profile, kOffsetArm));
+  }
+  if (st.offset_line_by_hand && st.kit.offset_line) {
+    const double k_conn = st.kit.offset_line->match - st.kit_line_match;
+    add("warning", fmt::format("the offset line is fitted by hand for each unit: each unit is connected twice, the "
+                               "station prompts for the second connection, and the line's own connection is made anew "
+                               "each time, so its repeatability (k·u_conn = {:.4f}) joins the kit's line match: "
+                               "{:.1f} dB becomes {:.1f} dB in every bound the pair gives",
+                               k_conn, -20 * std::log10(st.kit_line_match), -20 * std::log10(st.kit.offset_line->match)));
   }
   if (!st.kit.offset_line) {
     add("error", fmt::format("kit {} defines no \"offset_line\"; add the line's delay, loss and match to the kit file "

@@ -1,6 +1,7 @@
 // What `recipe check` says about a recipe that reads each unit twice (the offset pair,
-// MEASUREMENT.md §12): the kit must define the line, the switch must have its arm, the sweep
-// must be a step sweep, and the line must be near half a turn over the plan. Pure; thread-safe.
+// MEASUREMENT.md §12): the kit must define the line, the sweep must be a step sweep, and the
+// line must be near half a turn over the plan; without a switch arm through the line the
+// operator fits it for each unit (said as a warning). Pure; thread-safe.
 #pragma once
 
 #include <vector>

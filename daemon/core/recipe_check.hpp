@@ -44,6 +44,11 @@ struct StationCapability {
   bool has_switch = false;
   std::set<std::string> switch_positions;
   std::string switch_profile = "switch";
+  // The offset pair without a switch arm for it: the operator fits the kit's offset line for
+  // each unit's second reading. kit.offset_line->match then holds the kit's figure plus the
+  // line's connection, made anew each time (k·u_conn), and kit_line_match the kit's own figure.
+  bool offset_line_by_hand = false;
+  double kit_line_match = 0;
 };
 
 // Findings in recipe order; any "error" means the recipe must not run on this station.

@@ -7,6 +7,7 @@
 
 #include <fmt/format.h>
 
+#include "daemon/core/offset_pair_check.hpp"
 #include "daemon/core/rf_math.hpp"
 
 namespace echoline::core {
@@ -114,6 +115,15 @@ StationCapability station_capability(const drivers::FixtureConfig& fixture, cons
     c.has_switch = true;
     for (const auto& [name, token] : switch_profile->positions) c.switch_positions.insert(name);
     c.switch_profile = switch_profile->name;
+  }
+  // No switch arm reaches the unit through the line: the operator fits it for each unit. Its
+  // near-end connection is then made anew each time, so its repeatability at the coverage factor
+  // joins the line's match (MEASUREMENT.md §12): everything downstream, the calibration's copy of
+  // the line too, uses the widened figure.
+  if (recipe.offset_pair && c.kit.offset_line && c.switch_positions.count(kOffsetArm) == 0) {
+    c.offset_line_by_hand = true;
+    c.kit_line_match = c.kit.offset_line->match;
+    c.kit.offset_line->match += recipe.coverage_factor * c.kit.connection_repeatability;
   }
   return c;
 }

@@ -9,6 +9,7 @@
 #include <fmt/format.h>
 #include <spdlog/spdlog.h>
 
+#include "daemon/core/offset_pair_check.hpp"
 #include "daemon/store/documents.hpp"
 #include "daemon/store/export.hpp"
 #include "daemon/service/clock.hpp"
@@ -68,22 +69,32 @@ bool constant_time_equal(std::string_view a, std::string_view b) {
   return diff == 0;
 }
 
-// Sends the prompt event and waits for cal.answer (or cancellation, or the requester leaving).
-class ApiHandler::CalPrompter : public Prompter {
+// Sends the prompt event and waits for cal.answer (or cancellation, or the requester leaving, or
+// the daemon stopping): a calibration's standards, and a test's second connection through the
+// offset line where no switch arm makes it.
+class ApiHandler::ConnectPrompter : public Prompter {
  public:
-  CalPrompter(ApiHandler& h, std::shared_ptr<ClientLink> link, json id) : h_(h), link_(std::move(link)), id_(std::move(id)) {}
+  ConnectPrompter(ApiHandler& h, std::shared_ptr<ClientLink> link, json id) : h_(h), link_(std::move(link)), id_(std::move(id)) {}
   bool wait_connected(const std::string& standard) override {
     std::unique_lock lock(h_.mu_);
+    if (h_.stopping_) {
+      h_.cancel_.cancel("daemon stopping");
+      return false;
+    }
     h_.awaiting_standard_ = standard;
     h_.answered_ = false;
     h_.busy_info_["standard"] = standard;
     h_.busy_info_["waiting"] = true;
     const std::string description = h_.station_.standard_description(standard);
-    json prompt = {{"standard", standard},
-                   {"message", description.empty()
-                                   ? fmt::format("connect the {} standard to the test port, then answer", standard)
-                                   : fmt::format("connect the {} standard ({}) to the test port, then answer", standard,
-                                                 description)}};
+    std::string message;
+    if (standard == core::kOffsetArm) {
+      message = fmt::format("second reading, {}: {}, then answer", standard, description);
+    } else if (description.empty()) {
+      message = fmt::format("connect the {} standard to the test port, then answer", standard);
+    } else {
+      message = fmt::format("connect the {} standard ({}) to the test port, then answer", standard, description);
+    }
+    json prompt = {{"standard", standard}, {"message", message}};
     if (!description.empty()) prompt["description"] = description;
     link_->send(event_line(id_, "prompt", prompt));
     prompt["event"] = "prompt";
@@ -127,7 +138,8 @@ void ApiHandler::finish_and_stop() {
   {
     std::lock_guard lock(mu_);
     stopping_ = true;
-    if (busy_ && busy_info_.value("kind", "") != "test") cancel_.cancel("daemon stopping");
+    // A test waiting for the operator's second connection would wait for nobody: cancelled too.
+    if (busy_ && (busy_info_.value("kind", "") != "test" || !awaiting_standard_.empty())) cancel_.cancel("daemon stopping");
   }
   cv_.notify_all();
   if (worker_.joinable()) worker_.join();
@@ -302,13 +314,14 @@ void ApiHandler::call_test_start(const std::shared_ptr<ClientLink>& link, const 
   bool started = start_job("test", {{"serial", t.serial}, {"point", 0}, {"of", points}}, link,
                            reply_ok(req.id, {{"serial", t.serial}, {"points", points}}), [this, link, id, t] {
     ProgressGate gate;
+    ConnectPrompter prompter(*this, link, id);
     TestOutcome out = station_.run_test(t, cancel_, [&](int i, int n) {
       set_progress(i, n, "");
       if (gate.due(i, n)) {
         link->send(event_line(id, "progress", {{"point", i}, {"of", n}}));
         tap({{"event", "progress"}, {"job", "test"}, {"serial", t.serial}, {"point", i}, {"of", n}});
       }
-    });
+    }, &prompter);
     json run = run_json(out.run);
     run["stored"] = static_cast<bool>(out.stored);
     if (!out.stored) run["store_error"] = out.stored.error().message;
@@ -333,7 +346,7 @@ void ApiHandler::call_cal_start(const std::shared_ptr<ClientLink>& link, const R
   const std::string kind = check_only ? "check" : "calibration";
   bool started = start_job(kind, {{"standard", standards.front()}, {"waiting", false}}, link,
                            reply_ok(req.id, {{"standards", standards}, {"points", points}}), [this, link, id, check_only] {
-    CalPrompter prompter(*this, link, id);
+    ConnectPrompter prompter(*this, link, id);
     ProgressGate gate;
     auto progress = [&](const std::string& standard, int i, int n) {
       set_progress(i, n, standard);
@@ -367,7 +380,7 @@ void ApiHandler::call_cal_answer(const std::shared_ptr<ClientLink>& link, const 
   {
     std::lock_guard lock(mu_);
     if (awaiting_standard_.empty()) {
-      return fail(link, req.id, "idle", "cal.answer: no calibration is waiting for a standard");
+      return fail(link, req.id, "idle", "cal.answer: nothing is waiting for a connection (no standard, no second reading)");
     }
     if (standard != awaiting_standard_) {
       return fail(link, req.id, "wrong_standard",

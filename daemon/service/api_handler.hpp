@@ -65,8 +65,9 @@ class ApiHandler {
   // Refuses new jobs, cancels the running one with `reason`, waits for it to end (its run is
   // stored as aborted). Idempotent.
   void stop(const std::string& reason);
-  // Refuses new jobs and lets a running test finish (a calibration is cancelled: nobody will
-  // answer its prompts); returns when the worker is idle.
+  // Refuses new jobs and lets a running test finish (a calibration, or a test waiting for its
+  // second connection, is cancelled: nobody will answer its prompts); returns when the worker
+  // is idle.
   void finish_and_stop();
 
   // Runs `work` on the calling thread with the station busy as `kind` (no job may start; status
@@ -76,7 +77,7 @@ class ApiHandler {
   void run_busy(const std::string& kind, const std::function<void()>& work);
 
  private:
-  class CalPrompter;
+  class ConnectPrompter;
   using Json = nlohmann::json;
   void dispatch(const std::shared_ptr<ClientLink>& link, ConnectionState& state, const Request& req);
   void reply(const std::shared_ptr<ClientLink>& link, const Json& id, Json result);

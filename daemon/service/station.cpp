@@ -320,6 +320,10 @@ std::vector<std::string> Station::standards_of(const core::Recipe& r) const {
 }
 
 std::string Station::standard_description(const std::string& standard) const {
+  if (standard == core::kOffsetArm) {
+    return "the unit behind the kit's offset line (fit the line to the test port and the unit to its far end; take "
+           "the line off again before the next unit)";
+  }
   const core::MismatchStandard* m = core::find_mismatch(kit_, standard);
   return m ? core::describe_mismatch(*m) : std::string();
 }
@@ -439,7 +443,8 @@ std::string Station::next_run_id(double now_s) {
   return fmt::format("{}-{}-{}-{:06}", compact_utc(now_s), config_.station, instance_id_.substr(0, 8), run_counter_);
 }
 
-TestOutcome Station::run_test(const TestRequest& request, const CancelToken& cancel, const ProgressFn& progress) {
+TestOutcome Station::run_test(const TestRequest& request, const CancelToken& cancel, const ProgressFn& progress,
+                              Prompter* prompter) {
   const auto t0 = Clock::now();
   const double start_s = unix_now_s();
   std::shared_ptr<const core::Recipe> recipe;
@@ -524,13 +529,30 @@ TestOutcome Station::run_test(const TestRequest& request, const CancelToken& can
   run.timings.sweep_s = sweep.sweep_s;
   std::vector<core::Reading> offset;
   if (pair && sweep.completed()) {
-    // The second reading: the same unit through the kit's offset line (MEASUREMENT.md §12).
+    // The second reading: the same unit through the kit's offset line (MEASUREMENT.md §12), on
+    // the switch's arm, or fitted by the operator when asked (the source's output is off between
+    // sweeps, so nothing radiates while the unit is handled).
     auto* sw = instruments_->switch_();
-    if (Status s = sw ? sw->select(core::kOffsetArm)
-                      : Status(make_error(ErrorKind::config, "the offset pair needs a switch with a DUT-OFFSET arm"));
-        !s) {
-      if (sw) instruments_->invalidate(s.error().message);
-      run.reason = aborted_reason(s.error());
+    const bool by_arm = sw && sw->profile().positions.count(core::kOffsetArm) > 0;
+    Status s;
+    if (by_arm) {
+      s = sw->select(core::kOffsetArm);
+      if (!s) instruments_->invalidate(s.error().message);
+    } else if (!prompter) {
+      s = make_error(ErrorKind::config, "the offset pair without a DUT-OFFSET switch arm needs an operator to fit the "
+                                        "line, and this test was started without one");
+    } else if (!prompter->wait_connected(core::kOffsetArm)) {
+      const std::string why = cancel.reason();
+      s = make_error(ErrorKind::cancelled, why.empty() ? "cancelled" : why);
+    } else if (cancel.cancelled()) {
+      s = make_error(ErrorKind::cancelled, cancel.reason());
+    } else {
+      s = instruments_->ensure_ready();
+    }
+    if (!s) {
+      run.reason = s.error().kind == ErrorKind::cancelled
+                       ? fmt::format("second reading not taken: {}", s.error().message)
+                       : aborted_reason(s.error());
       run.points = unjudged_points(sweep.readings, {});
       return finish();
     }
@@ -538,7 +560,9 @@ TestOutcome Station::run_test(const TestRequest& request, const CancelToken& can
     SweepOutcome second = run_sweep(*instruments_, *recipe, config_.fixture, cancel.flag(), sweep_progress(n));
     run.timings.sweep_s += second.sweep_s;
     offset = std::move(second.readings);
-    if (!second.completed()) sweep.error = second.error->with_context("sweep on the DUT-OFFSET arm");
+    if (!second.completed()) {
+      sweep.error = second.error->with_context(by_arm ? "sweep on the DUT-OFFSET arm" : "sweep through the offset line");
+    }
   }
   if (!sweep.completed()) {
     if (sweep.error->kind == ErrorKind::cancelled) {

@@ -105,7 +105,8 @@ class Station {
   std::optional<Refusal> precheck_test(const TestRequest& request) const;
   std::vector<std::string> standards() const;        // calibration order
   // What the operator connects, in plain words, for standards that need saying ("61.1 ohm
-  // termination, no offset" for a kit's mismatch standard); "" for OPEN, SHORT and LOAD.
+  // termination, no offset" for a kit's mismatch standard, the unit behind the offset line for
+  // DUT-OFFSET); "" for OPEN, SHORT and LOAD.
   std::string standard_description(const std::string& standard) const;
   int plan_points() const;
   const drivers::StationConfig& config() const { return config_; }
@@ -113,7 +114,10 @@ class Station {
   std::shared_ptr<const core::Recipe> recipe() const;
 
   // --- the worker thread ---
-  TestOutcome run_test(const TestRequest& request, const CancelToken& cancel, const ProgressFn& progress);
+  // `prompter`: asks the operator to fit the offset line for the second reading of the offset
+  // pair when no switch arm reaches the unit through it (nullptr: such a run is aborted).
+  TestOutcome run_test(const TestRequest& request, const CancelToken& cancel, const ProgressFn& progress,
+                       Prompter* prompter = nullptr);
   CalibrationOutcome run_calibration(Prompter& prompter, const CancelToken& cancel, const StandardProgressFn& progress);
   CheckOutcome run_check(Prompter& prompter, const CancelToken& cancel, const StandardProgressFn& progress);
   // Loads and checks another recipe; the calibration stays only when made for the same plan.

@@ -62,6 +62,32 @@ TEST(StationCapability, CarriesFixtureAndProfileFiguresAndComputesTheNoiseFloor)
   EXPECT_NE(station_capability(fx, src, rcv, recipe).fast_capture_problem.find("max_capture_s"), std::string::npos);
 }
 
+// The offset pair without a switch arm through the line: the operator fits the line for each
+// unit, its connection is made anew each time, and its repeatability at the coverage factor
+// joins the line's match (MEASUREMENT.md §12; a bound of a sum of two reflections is the sum of
+// their bounds, the triangle inequality). With the arm the kit's figure stands.
+TEST(StationCapability, AnOffsetLineFittedByHandCarriesItsConnection) {
+  drivers::FixtureConfig fx;
+  drivers::Profile src, rcv;
+  Recipe recipe;
+  recipe.offset_pair = true;
+  recipe.coverage_factor = 3;
+  CalKit kit;
+  kit.connection_repeatability = 0.001;   // 60 dB
+  kit.offset_line = OffsetLine{273.2e-12, 2e-12, 0.08, 0.04, 0.0112};
+  const StationCapability hand = station_capability(fx, src, rcv, recipe, &kit);
+  EXPECT_TRUE(hand.offset_line_by_hand);
+  EXPECT_DOUBLE_EQ(hand.kit_line_match, 0.0112);
+  EXPECT_NEAR(hand.kit.offset_line->match, 0.0142, 1e-12);
+  drivers::Profile sw;
+  sw.positions = {{"OPEN", "1"}, {"SHORT", "2"}, {"LOAD", "3"}, {"DUT", "4"}, {"DUT-OFFSET", "5"}};
+  const StationCapability switched = station_capability(fx, src, rcv, recipe, &kit, &sw);
+  EXPECT_FALSE(switched.offset_line_by_hand);
+  EXPECT_DOUBLE_EQ(switched.kit.offset_line->match, 0.0112);
+  recipe.offset_pair = false;
+  EXPECT_FALSE(station_capability(fx, src, rcv, recipe, &kit).offset_line_by_hand);
+}
+
 TEST(StationCapability, FastCaptureInstrumentsComeFromTheProfiles) {
   drivers::Profile src, rcv;
   rcv.noise_figure_db = 22;

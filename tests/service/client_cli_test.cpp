@@ -167,10 +167,38 @@ TEST(ClientCli, DryRunOfTheOffsetPairNamesTheLineAndTheSecondSweep) {
   EXPECT_EQ(o.code, 0) << o.output;
   EXPECT_NE(o.output.find("two sweeps with the offset pair"), std::string::npos) << o.output;
   // config/kits/sim-kit.jsonc: 273.2 ± 2 ps, 0.08 ± 0.04 dB, 39 dB.
-  EXPECT_NE(o.output.find("DUT-OFFSET arm, through the kit's line (273.2 ± 2.0 ps, 0.08 ± 0.04 dB, match 39 dB)"),
+  EXPECT_NE(o.output.find("DUT-OFFSET arm, through the kit's line (273.2 ± 2.0 ps, 0.08 ± 0.04 dB, match 39.0 dB)"),
             std::string::npos)
       << o.output;
   EXPECT_NE(o.output.find("passes when the offset pair's return loss is at least"), std::string::npos) << o.output;
+}
+
+// The same on a station without the switch: the recipe is accepted, the operator fits the line
+// when prompted, and the line's connection, made anew for every unit, joins its match (sim-kit:
+// 39 dB is 0.011220; + 3 × 0.001 (60 dB repeatability at k = 3) = 0.014220, 36.9 dB; the
+// definition of return loss, 20·log10).
+TEST(ClientCli, TheOffsetPairWithoutASwitchIsFittedByHand) {
+  TempDir dir;
+  std::ifstream in(source_dir() / "config/station.jsonc");
+  std::string text((std::istreambuf_iterator<char>(in)), std::istreambuf_iterator<char>());
+  const std::string config = (source_dir() / "config").string() + "/";
+  for (const std::string from : {"\"recipes/", "\"instruments/", "\"kits/"}) {
+    for (auto at = text.find(from); at != std::string::npos; at = text.find(from, at + 1)) text.insert(at + 1, config);
+  }
+  const auto sw = text.find("{ \"role\": \"switch\"");
+  ASSERT_NE(sw, std::string::npos);
+  const auto before = text.rfind(',', sw);
+  text.erase(before, text.find('}', sw) + 1 - before);
+  std::ofstream(dir / "station.jsonc") << text;
+  const std::string station = (dir / "station.jsonc").string();
+  const Outcome check = run_client({"recipe", "check", "config/recipes/whip915-pair.jsonc", "--station", station});
+  EXPECT_EQ(check.code, 0) << check.output;
+  EXPECT_NE(check.output.find("fitted by hand for each unit"), std::string::npos) << check.output;
+  EXPECT_NE(check.output.find("39.0 dB becomes 36.9 dB"), std::string::npos) << check.output;
+  const Outcome dry = run_client({"dry-run", "config/recipes/whip915-pair.jsonc", "--station", station});
+  EXPECT_EQ(dry.code, 0) << dry.output;
+  EXPECT_NE(dry.output.find("with the line fitted by the operator when prompted"), std::string::npos) << dry.output;
+  EXPECT_NE(dry.output.find("match 36.9 dB with its connection made anew each time"), std::string::npos) << dry.output;
 }
 
 // A fast-capture recipe: the plan the station chooses on the simulator's profiles, why, and the

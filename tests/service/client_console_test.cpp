@@ -49,7 +49,7 @@ class ConsoleBench : public ::testing::Test {
     std::ofstream(config_) << json{
         {"station", "test-bench"},
         {"data_dir", (*dir_ / "data").string()},
-        {"recipe", (src / "config/recipes/whip915.jsonc").string()},
+        {"recipe", (src / "config/recipes" / recipe_).string()},
         {"instruments",
          json::array({{{"role", "source"}, {"name", "siggen"}, {"address", addr["source"]},
                        {"profile", (src / "config/instruments/sim-source.jsonc").string()}},
@@ -57,6 +57,11 @@ class ConsoleBench : public ::testing::Test {
                        {"profile", (src / "config/instruments/sim-receiver.jsonc").string()}}})},
         {"api", {{"unix_socket", (*dir_ / "d.sock").string()}}}}
                                   .dump(2);
+    if (!kit_.empty()) {
+      json cfg = json::parse(std::ifstream(config_));
+      cfg["calibration_kit"] = (src / "config/kits" / kit_).string();
+      std::ofstream(config_) << cfg.dump(2);
+    }
     daemon_ = std::make_unique<ChildProcess>(
         ChildProcess::start({daemon_binary().string(), "--config", config_, "--log-level", "warn"}, ChildProcess::Options{}));
     ASSERT_TRUE(daemon_->wait_for_line("listening", 30s).has_value()) << "echolined did not start";
@@ -125,6 +130,17 @@ class ConsoleBench : public ::testing::Test {
   std::unique_ptr<TempDir> dir_;
   std::unique_ptr<ChildProcess> sim_, daemon_;
   std::string control_, config_;
+  std::string recipe_ = "whip915.jsonc";
+  std::string kit_;   // "" = the built-in kit
+};
+
+// The same bench (no switch) with the offset pair's recipe: the operator fits the line by hand.
+class PairConsoleBench : public ConsoleBench {
+ protected:
+  PairConsoleBench() {
+    recipe_ = "whip915-pair.jsonc";
+    kit_ = "sim-kit.jsonc";   // the kit states the line
+  }
 };
 
 TEST_F(ConsoleBench, PipedLotIsCalibratedJudgedAndSummarised) {
@@ -172,6 +188,23 @@ TEST_F(ConsoleBench, PipedLotIsCalibratedJudgedAndSummarised) {
   EXPECT_NE(s.text.find(">>> Put it in the"), std::string::npos);
   // A plot with the limit line for judged units.
   EXPECT_NE(s.text.find("limit line (minimum return loss)"), std::string::npos) << s.text;
+}
+
+// After each unit's direct sweep the console asks for its second connection, through the kit's
+// offset line; the simulator fixture fits it (as the operator would) and the unit is judged on
+// both readings: none aborted, and the daemon's log of the run names no missing reading.
+TEST_F(PairConsoleBench, TheSecondReadingThroughTheLineIsPromptedAndTaken) {
+  const Session s = console("\n\n\nTINY-01\nTINY-02\n");
+  EXPECT_EQ(s.code, 0) << s.text;
+  for (const char* serial : {"TINY-01", "TINY-02"}) {
+    EXPECT_NE(s.text.find(fmt::format(">>> SECOND READING of {}: fit the offset line to the test port", serial)),
+              std::string::npos)
+        << s.text;
+  }
+  const auto v = verdicts(s);
+  ASSERT_EQ(v.size(), 2u) << s.text;
+  for (const auto& [serial, verdict] : v) EXPECT_NE(verdict, "aborted") << serial << "\n" << s.text;
+  EXPECT_EQ(s.text.find("could not connect"), std::string::npos) << s.text;
 }
 
 TEST_F(ConsoleBench, RetestQuestionIsAskedAndAnswered) {

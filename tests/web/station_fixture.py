@@ -59,8 +59,9 @@ def wait_line(proc, prefix, timeout_s, what):
 
 class Station:
     def __init__(self, lot="config/sim/lots/whip915-lot-a.jsonc", sim_config="config/sim/instant.jsonc",
-                 web_host="127.0.0.1"):
+                 web_host="127.0.0.1", recipe="config/recipes/whip915.jsonc"):
         self.web_host = web_host
+        self.recipe = os.path.join(SRC, recipe)
         self.work = tempfile.mkdtemp(prefix="echoline-web-")
         self.lot = os.path.join(SRC, lot)
         self.sim_config = os.path.join(SRC, sim_config)
@@ -93,7 +94,7 @@ class Station:
             "station": "web-bench",
             "data_dir": os.path.join(self.work, "data"),
             "log_dir": os.path.join(self.work, "log"),
-            "recipe": os.path.join(SRC, "config/recipes/whip915.jsonc"),
+            "recipe": self.recipe,
             "instruments": [
                 {"role": "source", "name": "siggen", "address": self.endpoints["source"],
                  "profile": os.path.join(SRC, "config/instruments/sim-source.jsonc")},
@@ -147,6 +148,10 @@ class Station:
 
     def connect_unit(self, serial):
         return self.control({"cmd": "connect", "unit": serial})
+
+    def connect_unit_via_line(self, serial):
+        """The unit behind the kit's offset line, as an operator fits it for a second reading."""
+        return self.control({"cmd": "connect", "unit": serial, "via": "offset-line"})
 
     def connect_standard(self, standard):
         return self.control({"cmd": "connect", "standard": standard})

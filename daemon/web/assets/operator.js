@@ -124,12 +124,19 @@ function renderCalibration(message) {
   bar.style.width = job && job.of ? `${(100 * job.point) / job.of}%` : "0%";
 }
 
+// A test of the offset pair on a bench without the switch arm stops between its two sweeps for
+// the operator to fit the kit's offset line (the daemon's prompt for DUT-OFFSET); RF is off then.
 function renderRun() {
   const j = state.job;
   show("run-panel");
   byId("run-serial").textContent = j.serial || "";
   byId("run-bar").style.width = j.of ? `${(100 * j.point) / j.of}%` : "0%";
-  byId("run-count").textContent = j.of ? `point ${j.point} of ${j.of}` : "starting…";
+  byId("run-count").textContent = j.waiting ? "waiting for the second connection" : j.of ? `point ${j.point} of ${j.of}` : "starting…";
+  byId("run-prompt").hidden = !j.waiting;
+  byId("run-prompt-text").textContent =
+    j.waiting ? j.prompt || "Second reading: fit the offset line between the test port and the unit. Then press F2." : "";
+  byId("run-rf").textContent = j.waiting ? "RF is off: fit the offset line now."
+                                         : "RF is on: keep hands off the antenna and the test port.";
 }
 
 function renderIdle() {
@@ -263,9 +270,9 @@ async function answerRetest(yes) {
 
 async function calibrationAction() {
   const j = state.job;
-  if (j && j.job !== "test" && j.waiting) {
+  if (j && j.waiting) {
     j.waiting = false;
-    renderCalibration();
+    if (j.job === "test") renderRun(); else renderCalibration();
     const r = await Station.call("cal.answer", { standard: j.standard });
     if (!r.ok) notice(r.error.message);
     return;
@@ -282,7 +289,7 @@ async function calibrationAction() {
 async function cancelJob() {
   const j = state.job;
   if (!j) return;
-  if (j.job !== "test" && j.waiting) {
+  if (j.waiting) {
     await Station.call("cal.answer", { standard: j.standard, connected: false });
   } else {
     await Station.call("cancel");
@@ -305,6 +312,13 @@ function onEvent(ev) {
       state.job.standard = ev.standard;
     }
     if (state.job.job === "test") renderRun(); else renderCalibration();
+  } else if (ev.event === "prompt" && ev.job === "test") {
+    if (!state.job) state.job = { job: "test", serial: ev.serial };
+    Object.assign(state.job, {
+      standard: ev.standard, waiting: true,
+      prompt: `Second reading: ${ev.description || "the unit behind the offset line"}. Then press F2.`,
+    });
+    renderRun();
   } else if (ev.event === "prompt") {
     if (!state.job) state.job = { job: ev.job };
     if (state.job.standard && state.job.standard !== ev.standard && !state.calDone.includes(state.job.standard)) {
@@ -391,6 +405,7 @@ function setup() {
   byId("retest-no").addEventListener("click", () => { answerRetest(false); focusSerial(); });
   byId("cal-go").addEventListener("click", () => { calibrationAction(); focusSerial(); });
   byId("cal-cancel").addEventListener("click", () => { cancelJob(); focusSerial(); });
+  byId("run-go").addEventListener("click", () => { calibrationAction(); focusSerial(); });
   byId("cancel").addEventListener("click", () => { cancelJob(); focusSerial(); });
   byId("next-go").addEventListener("click", () => { goNext(); focusSerial(); });
   setInterval(renderStrip, 15000);
