@@ -264,7 +264,7 @@ Result<json> Console::job_events(long id, const std::string& label) {
         const std::string what = str(j, "description");
         if (second) {
           connected = confirm(fmt::format("\n>>> SECOND READING of {}: fit the offset line to the test port and the unit to "
-                                          "its far end, then press Enter (take the line off again afterwards):",
+                                          "its far end, then press Enter (take the line off again afterwards; q ends the run unjudged):",
                                           testing_serial_));
         } else {
           connected = confirm(what.empty()

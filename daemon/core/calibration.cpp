@@ -319,6 +319,18 @@ CalibrationState calibration_due(const CalibrationRecord* cal, const Recipe& rec
                                 "{:.2f} ns",
                                 cal->id, (cal->budget.error_delay_s - 1e-9) / 2 * 1e9, station->test_port_delay_s * 1e9)};
     }
+    // The offset line's match as the station now takes it: a line fitted by hand (no switch arm
+    // any more) carries its connection's repeatability too (station_capability.cpp).
+    if (recipe.offset_pair && cal->budget.offset_line && station->kit.offset_line &&
+        station->kit.offset_line->match > cal->budget.offset_line->match * (1 + 1e-6) + 1e-12) {
+      return {true, fmt::format("calibration {} took the offset line's match as {:.1f} dB; the station now takes "
+                                "{:.1f} dB{}",
+                                cal->id, -20 * std::log10(std::max(cal->budget.offset_line->match, 1e-12)),
+                                -20 * std::log10(station->kit.offset_line->match),
+                                station->offset_line_by_hand ? " (the line is fitted by hand: its connection is made "
+                                                               "anew for every unit)"
+                                                             : "")};
+    }
   }
   if (other_recipe) {
     // Same sweep mode and plan; some other setting of the recipe file changed.

@@ -10,6 +10,7 @@
 #include "daemon/core/analysis.hpp"
 #include "daemon/core/decision.hpp"
 #include "daemon/core/frequency_text.hpp"
+#include "daemon/core/offset_pair_points.hpp"
 #include "daemon/core/rf_math.hpp"
 #include "daemon/core/trim.hpp"
 
@@ -70,6 +71,11 @@ Judgement judge(const Recipe& recipe, const CalibrationRecord& cal, const std::v
     }
     pair = &offset;
   }
+  // The second reading the same as the first: the line was not in place. The direct reading's
+  // bounds hold on their own; the pair's would not (MEASUREMENT.md §12).
+  double same_rms_db = 0, same_noise_db = 0;
+  const bool same = pair && offset_reading_is_direct(cal.budget, dut, offset, &same_rms_db, &same_noise_db);
+  if (same) pair = nullptr;
   CalibratedTrace trace = calibrate_points(cal, dut, pair);
   // Where the two readings disagree beyond both bounds the pair's model failed (the line is not
   // what the kit states, or the unit changed between the readings): the unit is judged on the
@@ -120,6 +126,14 @@ Judgement judge(const Recipe& recipe, const CalibrationRecord& cal, const std::v
     } else {
       j.reason += " (" + note + ")";
     }
+  }
+  if (same) {
+    const std::string note = fmt::format(
+        "the reading through the offset line is the direct one again (RMS difference {:.3f} dB, noise {:.3f} dB): the "
+        "line was not in place, so the unit was judged on the direct reading alone; fit the line when asked, and take "
+        "it off before the next unit",
+        same_rms_db, same_noise_db);
+    j.reason = j.reason.empty() ? note : j.reason + " (" + note + ")";
   }
   if (analysis.clamped_points > 0) {
     j.reason += fmt::format(" ({} reading(s) above the OPEN/SHORT reference were taken as total reflection)",

@@ -102,4 +102,24 @@ PairSumTrace offset_pair_sum(const UncertaintyBudget& b, const std::vector<doubl
   return t;
 }
 
+bool offset_reading_is_direct(const UncertaintyBudget& b, const std::vector<Reading>& direct,
+                              const std::vector<Reading>& offset, double* rms_db, double* noise_db) {
+  double z2 = 0, d2 = 0, s2 = 0;
+  std::size_t n = 0;
+  for (std::size_t i = 0; i < direct.size() && i < offset.size(); ++i) {
+    if (!std::isfinite(direct[i].raw_dbm) || !std::isfinite(offset[i].raw_dbm)) continue;
+    const double sa = reading_sigma_db(b, i, direct[i].raw_dbm), sb = reading_sigma_db(b, i, offset[i].raw_dbm);
+    // A noiseless bench (no noise measured): a floor of 1 µdB, so equal readings count as equal.
+    const double var = std::max(sa * sa + sb * sb, 1e-12), diff = offset[i].raw_dbm - direct[i].raw_dbm;
+    z2 += diff * diff / var;
+    d2 += diff * diff;
+    s2 += var;
+    ++n;
+  }
+  if (n == 0) return false;
+  if (rms_db) *rms_db = std::sqrt(d2 / static_cast<double>(n));
+  if (noise_db) *noise_db = std::sqrt(s2 / static_cast<double>(n));
+  return z2 / static_cast<double>(n) <= kSameReadingMeanSquare;
+}
+
 }  // namespace echoline::core

@@ -30,4 +30,16 @@ PairSumTrace offset_pair_sum(const UncertaintyBudget& b, const std::vector<doubl
                              const std::vector<Reading>& direct, const std::vector<Reading>& offset,
                              const std::vector<OffsetPairInterval>& pair, const UncertaintyBudget* leakage = nullptr);
 
+// Whether the reading through the offset line is the direct reading again: the line not in
+// place (an operator who answered the prompt without fitting it, or left it on from the last
+// unit; a switch arm that does not reach the line). Through the line the two readings differ by
+// the line's round-trip loss where the unit reflects more than the coupler leaks, and by twice
+// the leakage cross term, whose phase turns over the sweep; the same reading twice differs by
+// its noise alone. Same when the mean over the finite points of ((P_B − P_A)/σ)², σ the two
+// readings' noise combined (3.4), is at most kSameReadingMeanSquare: an RMS difference of at
+// most twice the noise. `rms_db` and `noise_db` (optional) get the RMS difference and the RMS σ.
+inline constexpr double kSameReadingMeanSquare = 4.0;
+bool offset_reading_is_direct(const UncertaintyBudget& b, const std::vector<Reading>& direct,
+                              const std::vector<Reading>& offset, double* rms_db = nullptr, double* noise_db = nullptr);
+
 }  // namespace echoline::core

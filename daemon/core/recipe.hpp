@@ -107,8 +107,9 @@ struct Recipe {
   ReceiverSettings receiver;
   FastCaptureLimits fast_capture;     // used when mode == fast_capture
   // The offset pair (MEASUREMENT.md §12): after the direct sweep, sweep the unit again through
-  // the calibration kit's offset line (the switch's DUT-OFFSET arm) and bound each point by both
-  // readings. Needs a kit with an "offset_line", a switch with that arm, and a step sweep.
+  // the calibration kit's offset line (the switch's DUT-OFFSET arm, or fitted by the operator
+  // when prompted) and bound each point by both readings. Needs a kit with an "offset_line" and a
+  // step sweep.
   bool offset_pair = false;
   CalibrationPolicy calibration;
   Limits limits;

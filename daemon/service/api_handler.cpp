@@ -96,6 +96,7 @@ class ApiHandler::ConnectPrompter : public Prompter {
     }
     json prompt = {{"standard", standard}, {"message", message}};
     if (!description.empty()) prompt["description"] = description;
+    if (h_.busy_info_.contains("serial")) prompt["serial"] = h_.busy_info_["serial"];   // a test's unit
     link_->send(event_line(id_, "prompt", prompt));
     prompt["event"] = "prompt";
     prompt["job"] = h_.busy_info_.value("kind", "calibration");

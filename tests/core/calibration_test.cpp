@@ -220,6 +220,29 @@ TEST(CalibrationDue, AStationConfigNowWorseThanTheBudgetAssumedMakesItDue) {
   EXPECT_NE(s.reason.find("test-port delay"), std::string::npos) << s.reason;
 }
 
+// The offset pair: a calibration made with the line on a switch arm keeps the kit's match; the
+// same recipe on the station once the line is fitted by hand takes the match plus the line's
+// connection (station_capability.cpp), which the calibration's bounds did not: it is due.
+// 39 dB is |S11| 0.01122; + 0.003 is 0.01422, 36.9 dB (definition of return loss).
+TEST(CalibrationDue, AnOffsetLineNowFittedByHandMakesItDue) {
+  Recipe r = whip_recipe();
+  r.offset_pair = true;
+  StationCapability then = station();
+  then.kit.offset_line = quarter_wave_line(39);
+  const CalibrationRecord cal = build_calibration(r, standards(r, Bench{}), then, "cal-line", "2026-12-05T08:00:00Z");
+  ASSERT_TRUE(cal.budget.offset_line.has_value());
+  const double t0 = 1.8e9;
+  EXPECT_FALSE(calibration_due(&cal, r, t0 + 60, t0, std::nullopt, -1, &then).due);
+  StationCapability now = then;
+  now.offset_line_by_hand = true;
+  now.kit_line_match = now.kit.offset_line->match;
+  now.kit.offset_line->match += 0.003;
+  const CalibrationState s = calibration_due(&cal, r, t0 + 60, t0, std::nullopt, -1, &now);
+  EXPECT_TRUE(s.due);
+  EXPECT_NE(s.reason.find("offset line's match as 39.0 dB; the station now takes 36.9 dB"), std::string::npos) << s.reason;
+  EXPECT_NE(s.reason.find("fitted by hand"), std::string::npos) << s.reason;
+}
+
 // A calibration made by a step sweep for one recipe, then another recipe selected that uses fast
 // capture: the reason names the sweep modes, not an older version (common practice, no source).
 TEST(CalibrationDue, StepCalibrationForAFastRecipeNamesBothModes) {

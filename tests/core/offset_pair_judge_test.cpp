@@ -12,7 +12,9 @@
 #include <numbers>
 #include <vector>
 
+#include "daemon/core/analysis.hpp"
 #include "daemon/core/judge.hpp"
+#include "daemon/core/offset_pair_points.hpp"
 #include "tests/core/synthetic_bench.hpp"
 
 namespace echoline::core {
@@ -149,6 +151,41 @@ TEST(OffsetPairJudge, ASecondReadingOfAnotherUnitIsNotAPass) {
   const Judgement j = judge(b.recipe, b.cal, measure(b.recipe, b.bench, unit), {}, b.offset([](double) { return cd(1, 0); }));
   EXPECT_NE(j.verdict, Verdict::pass);
   EXPECT_NE(j.reason.find("offset line disagrees"), std::string::npos) << j.reason;
+}
+
+// The operator answered the prompt without fitting the line (or left it on from the last unit):
+// the second reading is the direct one again. The pair's intervals, built on a half turn that was
+// not there, would keep the leakage cross term they claim to cancel, and miss the truth; the judge
+// sees the same reading twice and judges the direct reading alone, saying why.
+TEST(OffsetPairJudge, ASecondReadingWithoutTheLineIsTheDirectOneAgain) {
+  PairBench b;
+  const auto unit = [](double f) { return antenna(f, 915e6, 20, 38); };
+  const std::vector<Reading> direct = measure(b.recipe, b.bench, unit);
+  // What the pair's points would say of the same reading twice: the truth outside somewhere.
+  const CalibratedTrace taken = calibrate_points(b.cal, direct, &direct);
+  int outside = 0;
+  for (const PointResult& p : taken.points) {
+    const double rl = true_rl(unit(p.frequency_hz));
+    if (p.return_loss_worst_db > rl + 1e-6 || p.return_loss_best_db < rl - 1e-6) ++outside;
+  }
+  std::printf("the same reading twice taken as a pair: the truth outside at %d of %zu points\n", outside,
+              taken.points.size());
+  EXPECT_GT(outside, 0);
+  double rms = -1;
+  EXPECT_TRUE(offset_reading_is_direct(b.cal.budget, direct, direct, &rms));
+  EXPECT_EQ(rms, 0.0);
+  EXPECT_FALSE(offset_reading_is_direct(b.cal.budget, direct, b.offset(unit)));
+  Recipe one = b.recipe;
+  one.offset_pair = false;
+  const Judgement alone = judge(one, b.cal, direct);
+  const Judgement j = judge(b.recipe, b.cal, direct, {}, direct);
+  EXPECT_EQ(j.verdict, alone.verdict);   // inconclusive: one reading leaves this unit undecided
+  EXPECT_NE(j.reason.find("is the direct one again"), std::string::npos) << j.reason;
+  ASSERT_EQ(j.points.size(), alone.points.size());
+  for (std::size_t i = 0; i < j.points.size(); ++i) {
+    EXPECT_EQ(j.points[i].return_loss_worst_db, alone.points[i].return_loss_worst_db) << i;
+    EXPECT_EQ(j.points[i].return_loss_best_db, alone.points[i].return_loss_best_db) << i;
+  }
 }
 
 TEST(OffsetPairJudge, ARecipeWithThePairNeedsTheSecondReadingAndTheLine) {

@@ -188,6 +188,9 @@ async function refreshStatus() {
   const b = r.result.busy;
   if (b && !state.job) {
     state.job = { job: b.kind, serial: b.serial, standard: b.standard, point: b.point || 0, of: b.of || 0, waiting: !!b.waiting };
+  } else if (b && state.job.job === b.kind && b.waiting && !state.job.waiting) {
+    // A prompt whose event the page missed (its event stream dropped meanwhile): status says so.
+    Object.assign(state.job, { standard: b.standard, waiting: true });
   } else if (!b) {
     state.job = null;
   }
